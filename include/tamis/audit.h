@@ -1,0 +1,57 @@
+// The audit pipeline: the stages in order, from ROOT to the data every report renders.
+//
+//   walk -> read (probe, decode, features) -> labels -> groups -> checks -> split
+//
+// run_audit() only wires the stages; each lives in its own header with its own
+// contract. It never writes anything (the reports do, into the output folder),
+// and its result depends only on the tree's contents and the settings, never on
+// the thread count or the file system's listing order.
+#pragma once
+
+#include <cstdint>
+#include <filesystem>
+#include <functional>
+#include <string>
+#include <vector>
+
+#include "tamis/findings.h"
+#include "tamis/labels.h"
+#include "tamis/read_stage.h"
+#include "tamis/record.h"
+#include "tamis/split.h"
+#include "tamis/walk.h"
+
+namespace tamis {
+
+struct AuditSettings {
+  std::filesystem::path root;
+  ReadOptions read;
+  SplitSettings split;
+};
+
+struct Totals {
+  uint64_t files_seen = 0, images = 0, masks = 0, unreadable = 0, ignored = 0;
+};
+
+struct AuditResult {
+  WalkResult walk;                  // walk.files is released once read; links and dirs kept
+  std::vector<FileRecord> records;  // sorted by path, one per regular file
+  Labelling labels;
+  std::vector<int64_t> group_of;    // per record: group id, or -1
+  std::vector<Placement> placement; // per record: split (excluded for non-rows)
+  std::vector<Finding> findings;    // sorted (sort_findings)
+  Totals totals;
+};
+
+// Runs every stage. Throws std::runtime_error when ROOT cannot be read.
+AuditResult run_audit(const AuditSettings& settings);
+
+// Manifest rows are the records that are images or unreadable image files.
+inline bool is_manifest_row(const FileRecord& r) {
+  return r.kind == FileKind::image || r.kind == FileKind::unreadable;
+}
+
+// 1 when any finding has error severity, else 0 (the documented exit status).
+int policy_exit_status(const AuditResult& result);
+
+}  // namespace tamis

@@ -1,0 +1,40 @@
+// Decoding: turn a file's bytes into pixels, or say why that cannot be done.
+//
+// JPEG is decoded with libjpeg-turbo at the smallest DCT scale whose shorter
+// side still reaches `DecodeLimits::reduced_side` (or 1/1 for small images),
+// with decoder warnings treated as corruption: a damaged JPEG is reported,
+// never passed on as a grey-filled picture. GIF (first frame) is decoded by
+// tamis's own LZW decoder (this OpenCV has none). Other formats go through
+// OpenCV's imdecode at full size and are then reduced with area averaging.
+//
+// The pixel limit is checked from the probed header before any decoding.
+// The result is 8 bits per sample, 1 (gray), 3 (BGR) or 4 (BGRA) channels.
+// Pure function of its inputs; thread-safe (no shared state).
+#pragma once
+
+#include <cstdint>
+#include <span>
+
+#include <opencv2/core.hpp>
+
+#include "tamis/record.h"
+
+namespace tamis {
+
+struct DecodeLimits {
+  uint64_t max_pixels = 200'000'000;  // width * height claimed by the header
+  uint32_t reduced_side = 64;         // shorter side wanted in the reduced image
+};
+
+struct Decoded {
+  Defect defect = Defect::none;
+  cv::Mat reduced;  // 8-bit; shorter side >= reduced_side unless the image is smaller
+};
+
+Decoded decode_image(std::span<const uint8_t> bytes, const ProbeInfo& probe, const DecodeLimits& limits);
+
+// Decodes the first frame of a GIF to BGR (transparent pixels take their palette
+// colour). Returns an empty Mat and sets `defect` when the data is damaged.
+cv::Mat decode_gif_first_frame(std::span<const uint8_t> bytes, Defect& defect);
+
+}  // namespace tamis

@@ -1,0 +1,19 @@
+// The demo data set: a small textile-swatch collection of the project's own,
+// drawn procedurally (a weaving studio sorting fabric photos by pattern), with
+// the defects tamis exists to find planted on purpose: a byte copy filed under
+// another class, a mirrored copy, a truncated JPEG, a second spelling of a class,
+// a tiny class, a stray text file and a hidden file. docs/demo.md lists them.
+//
+// Deterministic: the same pixels on every run (SplitMix64-driven drawing).
+// Writes only below `dir`, creating it when missing.
+#pragma once
+
+#include <filesystem>
+
+namespace tamis {
+
+// Writes the demo tree into `dir`. Returns the number of files written.
+// Throws std::runtime_error when a file cannot be written.
+size_t write_demo(const std::filesystem::path& dir);
+
+}  // namespace tamis

@@ -1,0 +1,17 @@
+// The reports stage: writes manifest.csv, report.json and report.html into the
+// output folder, each atomically (temporary name, then rename).
+//
+// REQUIRES: `out_dir` is not inside the audited ROOT (the CLI refuses that
+// before anything is read). Creates `out_dir` when missing. Throws
+// std::runtime_error when a file cannot be written.
+#pragma once
+
+#include <filesystem>
+
+#include "tamis/audit.h"
+
+namespace tamis {
+
+void write_outputs(const std::filesystem::path& out_dir, const AuditResult& result, const AuditSettings& settings);
+
+}  // namespace tamis

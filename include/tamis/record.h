@@ -1,0 +1,85 @@
+// The per-file record: what every stage knows about one regular file under ROOT.
+//
+// A FileRecord is created by the walk (path, size, times), filled in by the probe
+// (format, geometry, EXIF facts) and by decode/features (readability, hashes), and
+// read by every later stage. Records are plain values; a stage that fills a field
+// owns it. Records are kept compact: the path is the only heap string.
+#pragma once
+
+#include <array>
+#include <cstdint>
+#include <string>
+#include <string_view>
+
+namespace tamis {
+
+// Image container format, decided from the bytes, never from the extension.
+enum class Format : uint8_t { unknown, png, jpeg, gif, bmp, webp, tiff, pnm };
+
+// Colour layout as stored in the file (before any conversion a decoder applies).
+enum class ColorMode : uint8_t { unknown, gray, graya, rgb, rgba, palette, cmyk };
+
+// What the audit made of a file. Every file seen gets exactly one kind, so
+// files_seen == images + masks + unreadable + ignored.
+enum class FileKind : uint8_t { image, mask, unreadable, ignored };
+
+// Why a file is unreadable (kind == unreadable) or ignored (kind == ignored).
+// `none` for readable images and masks.
+enum class Defect : uint8_t {
+  none,
+  // ignored
+  hidden,             // a path component starts with '.'
+  not_an_image,       // no image magic and no image extension
+  // unreadable
+  io_error,           // open/read failed
+  empty_file,         // zero bytes
+  unknown_format,     // image extension, but the bytes are no known image format
+  bad_header,         // header fields missing, out of range or inconsistent
+  truncated,          // ends before the format says it should
+  bad_checksum,       // a PNG chunk CRC does not match
+  too_many_pixels,    // header claims more pixels than the configured limit
+  too_many_bytes,     // file larger than the configured byte limit
+  decode_failed,      // the decoder refused the data
+  decode_warning,     // the decoder reported corrupt data (it would fill with grey)
+  no_decoder,         // a format this build cannot decode
+};
+
+std::string_view to_string(Format f);
+std::string_view to_string(ColorMode m);
+std::string_view to_string(FileKind k);
+// A stable code for the defect ("truncated") and a sentence a person understands.
+std::string_view defect_code(Defect d);
+std::string_view defect_message(Defect d);
+
+// Facts read from the header, without decoding pixels.
+struct ProbeInfo {
+  Format format = Format::unknown;
+  ColorMode mode = ColorMode::unknown;
+  uint8_t bit_depth = 0;            // bits per sample as stored
+  bool interlaced = false;          // PNG Adam7, progressive JPEG, interlaced GIF
+  bool has_exif = false;
+  bool has_gps = false;             // EXIF GPS IFD holds a latitude or longitude tag
+  uint16_t orientation = 0;         // EXIF tag 0x0112; 0 when absent
+  uint32_t width = 0;
+  uint32_t height = 0;
+  uint32_t frames = 1;              // >1 for animated GIF/APNG/WebP, multi-page TIFF
+};
+
+// Content features computed from the bytes and the decoded pixels.
+struct Features {
+  std::array<uint64_t, 2> content_hash{0, 0};  // XXH3-128 of the file bytes
+  bool has_content_hash = false;
+};
+
+struct FileRecord {
+  std::string path;                 // relative to ROOT, '/' separators, raw name bytes
+  uint64_t size = 0;
+  int64_t mtime_ns = 0;
+  uint64_t inode = 0;
+  FileKind kind = FileKind::ignored;
+  Defect defect = Defect::none;
+  ProbeInfo probe;
+  Features features;
+};
+
+}  // namespace tamis

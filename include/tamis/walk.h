@@ -1,0 +1,45 @@
+// The walk: list every regular file under ROOT, exactly once, in bytewise path order.
+//
+// Promises:
+//  - Every regular file reachable from ROOT without following a symbolic link is
+//    listed once; the order is bytewise on the relative path, whatever order the
+//    file system returns.
+//  - Symbolic links are never followed (neither to files nor to folders), so the
+//    walk cannot leave ROOT and cannot be sent round a link loop. Each link is
+//    reported in `links` instead. A folder reached twice (a bind mount loop) is
+//    entered only once: folders are tracked by (device, inode).
+//  - Nothing is opened for writing; file contents are not read.
+//  - Folders that cannot be opened are reported in `unreadable_dirs`; the walk goes on.
+// Not thread-safe in itself; a Walk result is a plain value.
+#pragma once
+
+#include <cstdint>
+#include <filesystem>
+#include <string>
+#include <vector>
+
+namespace tamis {
+
+struct WalkEntry {
+  std::string path;   // relative to ROOT, '/'-separated, raw bytes
+  uint64_t size = 0;
+  int64_t mtime_ns = 0;
+  uint64_t inode = 0;
+  uint64_t device = 0;
+};
+
+struct WalkResult {
+  std::vector<WalkEntry> files;             // sorted bytewise by path
+  std::vector<std::string> links;           // symbolic links met (not followed), sorted
+  std::vector<std::string> unreadable_dirs; // folders that could not be listed, sorted
+  std::vector<std::string> dirs;            // every folder walked (relative, "" is ROOT excluded), sorted
+};
+
+// Walks ROOT. Throws std::runtime_error when ROOT itself is not a readable folder.
+WalkResult walk_tree(const std::filesystem::path& root);
+
+// True when `child` is ROOT or lies inside it (after resolving both to canonical
+// paths where they exist). Used to refuse outputs inside the data set.
+bool path_is_inside(const std::filesystem::path& root, const std::filesystem::path& child);
+
+}  // namespace tamis

@@ -1,0 +1,93 @@
+#include "tamis/manifest.h"
+
+#include <algorithm>
+#include <cstdio>
+#include <set>
+#include <string_view>
+#include <unordered_map>
+
+namespace tamis {
+
+void append_csv_field(std::string& out, std::string_view field) {
+  bool quote = field.find_first_of(",\"\r\n") != std::string_view::npos;
+  if (!quote) {
+    out.append(field);
+    return;
+  }
+  out.push_back('"');
+  for (char c : field) {
+    if (c == '"') out.push_back('"');
+    out.push_back(c);
+  }
+  out.push_back('"');
+}
+
+std::vector<std::string> flags_per_record(const AuditResult& result) {
+  std::unordered_map<std::string_view, size_t> index;
+  index.reserve(result.records.size());
+  for (size_t i = 0; i < result.records.size(); ++i) index.emplace(result.records[i].path, i);
+  std::vector<std::set<std::string_view>> codes(result.records.size());
+  for (const auto& f : result.findings)
+    for (const auto& p : f.paths) {
+      auto it = index.find(p);
+      if (it != index.end()) codes[it->second].insert(f.code);
+    }
+  std::vector<std::string> out(result.records.size());
+  for (size_t i = 0; i < codes.size(); ++i) {
+    for (auto c : codes[i]) {
+      if (!out[i].empty()) out[i].push_back(';');
+      out[i].append(c);
+    }
+  }
+  return out;
+}
+
+void write_manifest(std::ostream& os, const AuditResult& r) {
+  static const char* kHeader[] = {"path", "label", "split", "group", "width", "height", "mode", "bit_depth",
+                                  "format", "mask_path", "flags", "reason", "bytes", "orientation", "frames",
+                                  "content_hash"};
+  std::string line;
+  for (size_t c = 0; c < std::size(kHeader); ++c) {
+    if (c) line.push_back(',');
+    line.append(kHeader[c]);
+  }
+  line.append("\r\n");
+  os << line;
+  std::vector<std::string> flags = flags_per_record(r);
+  for (size_t i = 0; i < r.records.size(); ++i) {
+    const FileRecord& rec = r.records[i];
+    if (!is_manifest_row(rec)) continue;
+    line.clear();
+    auto field = [&](std::string_view v) {
+      append_csv_field(line, v);
+      line.push_back(',');
+    };
+    bool readable = rec.kind == FileKind::image;
+    bool probed = rec.probe.format != Format::unknown;
+    field(rec.path);
+    field(r.labels.label_of[i] >= 0 ? std::string_view(r.labels.names[r.labels.label_of[i]]) : "");
+    field(to_string(r.placement[i]));
+    field(r.group_of[i] >= 0 ? "g" + std::to_string(r.group_of[i]) : "");
+    field(probed ? std::to_string(rec.probe.width) : "");
+    field(probed ? std::to_string(rec.probe.height) : "");
+    field(probed ? to_string(rec.probe.mode) : "");
+    field(probed ? std::to_string(rec.probe.bit_depth) : "");
+    field(probed ? to_string(rec.probe.format) : "");
+    field("");  // mask_path: filled by mask pairing
+    field(flags[i]);
+    field(readable ? "" : defect_code(rec.defect));
+    field(std::to_string(rec.size));
+    field(probed && rec.probe.orientation ? std::to_string(rec.probe.orientation) : "");
+    field(probed ? std::to_string(rec.probe.frames) : "");
+    if (rec.features.has_content_hash) {
+      char hex[33];
+      std::snprintf(hex, sizeof hex, "%016llx%016llx", static_cast<unsigned long long>(rec.features.content_hash[0]),
+                    static_cast<unsigned long long>(rec.features.content_hash[1]));
+      line.append(hex);
+    }
+    line.append("\r\n");
+    os << line;
+  }
+}
+
+}  // namespace tamis

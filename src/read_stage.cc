@@ -1,0 +1,125 @@
+#include "tamis/read_stage.h"
+
+#include <fcntl.h>
+#include <sys/stat.h>
+#include <unistd.h>
+#include <xxhash.h>
+
+#include <atomic>
+#include <cerrno>
+#include <stdexcept>
+
+#include "tamis/parallel.h"
+#include "tamis/probe.h"
+
+namespace tamis {
+
+namespace {
+
+struct Fd {
+  int fd = -1;
+  ~Fd() {
+    if (fd >= 0) close(fd);
+  }
+};
+
+// Reads the whole file into `buf` (reused across calls). False on any error or
+// when the file changed size under us.
+bool read_whole(int rootfd, const std::string& rel, uint64_t expect, std::vector<uint8_t>& buf) {
+  Fd f{openat(rootfd, rel.c_str(), O_RDONLY | O_NOFOLLOW | O_CLOEXEC | O_NOCTTY)};
+  if (f.fd < 0) return false;
+  struct stat st {};
+  if (fstat(f.fd, &st) != 0 || !S_ISREG(st.st_mode)) return false;
+  uint64_t size = static_cast<uint64_t>(st.st_size);
+  if (size != expect) return false;
+  buf.resize(size);
+  size_t got = 0;
+  while (got < size) {
+    ssize_t n = read(f.fd, buf.data() + got, size - got);
+    if (n < 0 && errno == EINTR) continue;
+    if (n <= 0) return false;
+    got += static_cast<size_t>(n);
+  }
+  return true;
+}
+
+void read_one(int rootfd, const WalkEntry& e, const ReadOptions& opt, std::vector<uint8_t>& buf, FileRecord& r) {
+  r.path = e.path;
+  r.size = e.size;
+  r.mtime_ns = e.mtime_ns;
+  r.inode = e.inode;
+  auto unreadable = [&](Defect d) {
+    r.kind = FileKind::unreadable;
+    r.defect = d;
+  };
+  if (is_hidden_path(e.path)) {
+    r.kind = FileKind::ignored;
+    r.defect = Defect::hidden;
+    return;
+  }
+  bool image_name = format_from_extension(e.path) != Format::unknown || has_other_image_extension(e.path);
+  if (e.size > opt.max_bytes) {
+    if (image_name) return unreadable(Defect::too_many_bytes);
+    r.kind = FileKind::ignored;
+    r.defect = Defect::not_an_image;
+    return;
+  }
+  if (!read_whole(rootfd, e.path, e.size, buf)) {
+    // A file we cannot read is only "ours" if it claims to be an image.
+    if (image_name) return unreadable(Defect::io_error);
+    r.kind = FileKind::ignored;
+    r.defect = Defect::not_an_image;
+    return;
+  }
+  std::span<const uint8_t> bytes(buf.data(), buf.size());
+  ProbeOutcome p = probe_bytes(bytes);
+  r.probe = p.info;
+  if (p.defect == Defect::unknown_format) {
+    if (!image_name) {
+      r.kind = FileKind::ignored;
+      r.defect = Defect::not_an_image;
+      return;
+    }
+    return unreadable(bytes.empty() ? Defect::empty_file
+                      : has_other_image_extension(e.path) ? Defect::no_decoder
+                                                          : Defect::unknown_format);
+  }
+  XXH128_hash_t h = XXH3_128bits(bytes.data(), bytes.size());
+  r.features.content_hash = {h.high64, h.low64};
+  r.features.has_content_hash = true;
+  if (p.defect != Defect::none) return unreadable(p.defect);
+  Decoded d = decode_image(bytes, r.probe, opt.decode);
+  if (d.defect != Defect::none) return unreadable(d.defect);
+  r.kind = FileKind::image;
+}
+
+}  // namespace
+
+bool is_hidden_path(std::string_view p) {
+  size_t start = 0;
+  while (start < p.size()) {
+    if (p[start] == '.') return true;
+    size_t slash = p.find('/', start);
+    if (slash == std::string_view::npos) break;
+    start = slash + 1;
+  }
+  return false;
+}
+
+std::vector<FileRecord> read_files(const std::filesystem::path& root, const std::vector<WalkEntry>& entries,
+                                   const ReadOptions& opt) {
+  Fd rootfd{open(root.c_str(), O_RDONLY | O_DIRECTORY | O_CLOEXEC)};
+  if (rootfd.fd < 0) throw std::runtime_error("cannot open folder " + root.string());
+  std::vector<FileRecord> records(entries.size());
+  std::atomic<size_t> done{0};
+  parallel_for(entries.size(), opt.threads, [&](size_t i) {
+    thread_local std::vector<uint8_t> buf;
+    read_one(rootfd.fd, entries[i], opt, buf, records[i]);
+    if (buf.capacity() > (64u << 20)) std::vector<uint8_t>().swap(buf);  // do not pin huge buffers
+    size_t n = done.fetch_add(1, std::memory_order_relaxed) + 1;
+    if (opt.on_progress) opt.on_progress(n, entries.size());
+  }, 8);
+  return records;
+}
+
+}  // namespace tamis

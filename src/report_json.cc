@@ -1,0 +1,85 @@
+#include "tamis/report_json.h"
+
+#include <array>
+
+#include "tamis/version.h"
+
+namespace tamis {
+
+using nlohmann::json;
+
+json settings_json(const AuditSettings& s) {
+  const auto& p = s.split.percent;
+  return json{
+      {"seed", s.split.seed},
+      {"split", {{"train", p[0]}, {"val", p[1]}, {"test", p[2]}}},
+      {"max_pixels", s.read.decode.max_pixels},
+      {"max_bytes", s.read.max_bytes},
+      {"reduced_side", s.read.decode.reduced_side},
+  };
+}
+
+json build_report(const AuditResult& r, const AuditSettings& s) {
+  json j;
+  j["schema_version"] = kReportSchemaVersion;
+  j["tool"] = {{"name", kToolName}, {"version", kToolVersion}};
+  j["settings"] = settings_json(s);
+  j["totals"] = {{"files_seen", r.totals.files_seen}, {"images", r.totals.images}, {"masks", r.totals.masks},
+                 {"unreadable", r.totals.unreadable}, {"ignored", r.totals.ignored}};
+  j["layout"] = {{"pre_split", r.labels.pre_split}};
+
+  struct ClassCount {
+    uint64_t count = 0;
+    std::array<uint64_t, 3> split{};
+    uint64_t excluded = 0;
+  };
+  std::vector<ClassCount> counts(r.labels.names.size());
+  std::map<std::string, uint64_t> formats, modes;
+  for (size_t i = 0; i < r.records.size(); ++i) {
+    const auto& rec = r.records[i];
+    if (rec.kind != FileKind::image) continue;
+    ++formats[std::string(to_string(rec.probe.format))];
+    ++modes[std::string(to_string(rec.probe.mode)) + "/" + std::to_string(rec.probe.bit_depth)];
+    int32_t l = r.labels.label_of[i];
+    if (l < 0) continue;
+    auto& c = counts[static_cast<size_t>(l)];
+    ++c.count;
+    if (r.placement[i] == Placement::excluded) {
+      ++c.excluded;
+    } else {
+      ++c.split[static_cast<size_t>(r.placement[i])];
+    }
+  }
+  json classes = json::array();
+  for (size_t k = 0; k < counts.size(); ++k) {
+    classes.push_back({{"label", r.labels.names[k]},
+                       {"count", counts[k].count},
+                       {"splits", {{"train", counts[k].split[0]}, {"val", counts[k].split[1]}, {"test", counts[k].split[2]}}},
+                       {"excluded", counts[k].excluded}});
+  }
+  j["classes"] = std::move(classes);
+  j["formats"] = formats;
+  j["modes"] = modes;
+  j["groups"] = json::array();
+
+  json findings = json::array();
+  for (const auto& f : r.findings) {
+    findings.push_back({{"code", f.code}, {"severity", to_string(f.severity)}, {"paths", f.paths},
+                        {"message", f.message}, {"details", f.details}});
+  }
+  j["findings"] = std::move(findings);
+
+  json ignored = json::array(), unreadable = json::array();
+  for (const auto& rec : r.records) {
+    if (rec.kind == FileKind::ignored) ignored.push_back({{"path", rec.path}, {"reason", defect_code(rec.defect)}});
+    if (rec.kind == FileKind::unreadable)
+      unreadable.push_back({{"path", rec.path}, {"reason", defect_code(rec.defect)}});
+  }
+  j["ignored"] = std::move(ignored);
+  j["unreadable"] = std::move(unreadable);
+  return j;
+}
+
+std::string dump_json(const json& j) { return j.dump(2, ' ', false, json::error_handler_t::replace); }
+
+}  // namespace tamis

@@ -1,0 +1,135 @@
+#include "tamis/walk.h"
+
+#include <dirent.h>
+#include <fcntl.h>
+#include <sys/stat.h>
+#include <unistd.h>
+
+#include <algorithm>
+#include <cerrno>
+#include <cstring>
+#include <set>
+#include <stdexcept>
+#include <utility>
+
+namespace tamis {
+namespace {
+
+struct DirGuard {
+  DIR* d;
+  ~DirGuard() {
+    if (d) closedir(d);
+  }
+};
+
+int64_t to_ns(const struct timespec& ts) {
+  return static_cast<int64_t>(ts.tv_sec) * 1000000000LL + ts.tv_nsec;
+}
+
+// Lists one folder at a time, closing it before descending, so deep trees cost
+// no more open descriptors than one; folders are visited depth-first in bytewise
+// order (the final order comes from sorting anyway).
+class TreeWalker {
+ public:
+  TreeWalker(int rootfd, WalkResult& out) : rootfd_(rootfd), out_(out) {}
+
+  void run() {
+    std::vector<std::string> stack{""};
+    while (!stack.empty()) {
+      std::string rel = std::move(stack.back());
+      stack.pop_back();
+      std::vector<std::string> subdirs = list_dir(rel);
+      for (auto it = subdirs.rbegin(); it != subdirs.rend(); ++it) stack.push_back(std::move(*it));
+    }
+  }
+
+ private:
+  // Lists folder `rel`; returns its sub-folders' relative paths in bytewise order.
+  std::vector<std::string> list_dir(const std::string& rel) {
+    std::vector<std::string> subdirs;
+    int dirfd = rel.empty() ? dup(rootfd_)
+                            : openat(rootfd_, rel.c_str(), O_RDONLY | O_DIRECTORY | O_NOFOLLOW | O_CLOEXEC);
+    if (dirfd < 0) {
+      out_.unreadable_dirs.push_back(rel);
+      return subdirs;
+    }
+    struct stat st {};
+    if (fstat(dirfd, &st) != 0 || !visited_.insert({st.st_dev, st.st_ino}).second) {
+      close(dirfd);
+      return subdirs;
+    }
+    DIR* d = fdopendir(dirfd);
+    if (!d) {
+      close(dirfd);
+      out_.unreadable_dirs.push_back(rel);
+      return subdirs;
+    }
+    DirGuard guard{d};
+    if (!rel.empty()) out_.dirs.push_back(rel);
+    while (struct dirent* e = readdir(d)) {
+      const char* name = e->d_name;
+      if (std::strcmp(name, ".") == 0 || std::strcmp(name, "..") == 0) continue;
+      std::string child = rel.empty() ? std::string(name) : rel + "/" + name;
+      struct stat cst {};
+      if (fstatat(dirfd, name, &cst, AT_SYMLINK_NOFOLLOW) != 0) {
+        out_.unreadable_dirs.push_back(std::move(child));  // vanished or unreadable entry
+        continue;
+      }
+      if (S_ISLNK(cst.st_mode)) {
+        out_.links.push_back(std::move(child));
+      } else if (S_ISDIR(cst.st_mode)) {
+        subdirs.push_back(std::move(child));
+      } else if (S_ISREG(cst.st_mode)) {
+        WalkEntry w;
+        w.path = std::move(child);
+        w.size = static_cast<uint64_t>(cst.st_size);
+        w.mtime_ns = to_ns(cst.st_mtim);
+        w.inode = cst.st_ino;
+        w.device = cst.st_dev;
+        out_.files.push_back(std::move(w));
+      }
+      // sockets, fifos and devices are not files of a data set: skipped.
+    }
+    std::sort(subdirs.begin(), subdirs.end());
+    return subdirs;
+  }
+
+  int rootfd_;
+  WalkResult& out_;
+  std::set<std::pair<dev_t, ino_t>> visited_;
+};
+
+}  // namespace
+
+WalkResult walk_tree(const std::filesystem::path& root) {
+  int fd = open(root.c_str(), O_RDONLY | O_DIRECTORY | O_CLOEXEC);
+  if (fd < 0) {
+    throw std::runtime_error("cannot open folder " + root.string() + ": " + std::strerror(errno));
+  }
+  WalkResult out;
+  TreeWalker(fd, out).run();
+  close(fd);
+  auto by_path = [](const WalkEntry& a, const WalkEntry& b) { return a.path < b.path; };
+  std::sort(out.files.begin(), out.files.end(), by_path);
+  std::sort(out.links.begin(), out.links.end());
+  std::sort(out.unreadable_dirs.begin(), out.unreadable_dirs.end());
+  std::sort(out.dirs.begin(), out.dirs.end());
+  return out;
+}
+
+bool path_is_inside(const std::filesystem::path& root, const std::filesystem::path& child) {
+  std::error_code ec;
+  auto r = std::filesystem::weakly_canonical(root, ec);
+  if (ec) r = std::filesystem::absolute(root);
+  auto c = std::filesystem::weakly_canonical(child, ec);
+  if (ec) c = std::filesystem::absolute(child);
+  auto ri = r.begin();
+  auto ci = c.begin();
+  for (; ri != r.end(); ++ri, ++ci) {
+    if (ri->empty()) continue;  // trailing separator
+    if (ci == c.end() || *ri != *ci) return false;
+  }
+  return true;
+}
+
+}  // namespace tamis
