@@ -281,6 +281,10 @@ Decoded decode_image(std::span<const uint8_t> b, const ProbeInfo& probe, const D
     return out;
   }
   if (probe.format == Format::jpeg) return decode_jpeg(b, limits);
+  if (probe.format == Format::webp && probe.frames > 1) {
+    out.defect = Defect::no_decoder;  // OpenCV 4.6 reads no animated WebP
+    return out;
+  }
   cv::Mat m;
   if (probe.format == Format::gif) {
     m = decode_gif_first_frame(b, out.defect);

@@ -41,8 +41,9 @@ std::vector<uint8_t> read_bytes(const std::filesystem::path& p) {
 }
 
 std::filesystem::path test_cache_dir() {
-  std::string env = env_or_empty("TAMIS_TEST_CACHE");
-  std::filesystem::path p = env.empty() ? std::filesystem::temp_directory_path() / "tamis-test-cache" : std::filesystem::path(env);
+  std::string env = env_or_empty("TAMIS_TEST_DATA");
+  std::filesystem::path p = env.empty() ? std::filesystem::temp_directory_path() / "tamis-test-cache"
+                                        : std::filesystem::path(env) / "cache";
   std::filesystem::create_directories(p);
   return p;
 }

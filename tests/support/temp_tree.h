@@ -25,7 +25,7 @@ void write_bytes(const std::filesystem::path& p, const std::vector<uint8_t>& byt
 void write_text(const std::filesystem::path& p, const std::string& text);
 std::vector<uint8_t> read_bytes(const std::filesystem::path& p);
 
-// Folder for data the tests build once and reuse (build/test-cache), created on demand.
+// Folder for data the tests build once and reuse ($TAMIS_TEST_DATA/cache), created on demand.
 std::filesystem::path test_cache_dir();
 
 // Value of an environment variable, or "" when unset.

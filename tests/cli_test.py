@@ -1,0 +1,182 @@
+#!/usr/bin/python3
+"""End-to-end tests of the tamis binary: exit statuses, outputs, hostile file names.
+
+The manifest is read back with Python's csv module (an RFC 4180 reader independent
+of tamis) and report.json with Python's json module.
+Usage: cli_test.py PATH_TO_TAMIS
+"""
+import csv
+import io
+import json
+import os
+import subprocess
+import sys
+import tempfile
+import unittest
+
+TAMIS = None
+
+
+def run(*args, **kw):
+    return subprocess.run([TAMIS, *args], capture_output=True, text=True, **kw)
+
+
+def snapshot(root):
+    """Every entry under root with its size and mtime: to prove nothing was written there."""
+    out = {}
+    for d, dirs, files in os.walk(root):
+        for n in dirs + files:
+            p = os.path.join(d, n)
+            st = os.lstat(p)
+            out[p] = (st.st_size, st.st_mtime_ns)
+    return out
+
+
+def load_json(path):
+    with open(path, encoding="utf-8") as f:
+        return json.load(f)
+
+
+def read_text(path):
+    with open(path, encoding="utf-8", newline="") as f:
+        return f.read()
+
+
+def tiny_png():
+    # A valid 1x1 gray PNG (ISO/IEC 15948), built with zlib and crc32 from Python's stdlib.
+    import struct
+    import zlib
+    def chunk(t, d):
+        return struct.pack(">I", len(d)) + t + d + struct.pack(">I", zlib.crc32(t + d) & 0xFFFFFFFF)
+    ihdr = struct.pack(">IIBBBBB", 1, 1, 8, 0, 0, 0, 0)
+    return b"\x89PNG\r\n\x1a\n" + chunk(b"IHDR", ihdr) + chunk(b"IDAT", zlib.compress(b"\x00\x80")) + chunk(b"IEND", b"")
+
+
+class ExitStatus(unittest.TestCase):
+    def test_help_and_version_exit_0(self):
+        for args in (["--help"], ["--version"], ["audit", "--help"], ["demo", "--help"]):
+            self.assertEqual(run(*args).returncode, 0, args)
+
+    def test_bad_command_lines_exit_2(self):
+        with tempfile.TemporaryDirectory() as t:
+            self.assertEqual(run("audit", t).returncode, 2)                      # no --out
+            self.assertEqual(run("audit", t, "--out", t + "/o", "--bogus").returncode, 2)
+            self.assertEqual(run("audit", t, "--out", t + "/o", "--split", "70/20").returncode, 2)
+            self.assertEqual(run("audit", t, "--out", t + "/o", "--split", "a/b/c").returncode, 2)
+            r = run("audit", t, "--out", os.path.join(t, "inside"))
+            self.assertEqual(r.returncode, 2)
+            self.assertIn("inside", r.stderr)
+            self.assertFalse(os.path.exists(os.path.join(t, "inside")))
+            self.assertEqual(run("frobnicate").returncode, 2)
+
+    def test_missing_root_exits_3(self):
+        with tempfile.TemporaryDirectory() as t:
+            self.assertEqual(run("audit", os.path.join(t, "nope"), "--out", os.path.join(t, "o")).returncode, 3)
+
+    def test_unwritable_output_exits_3(self):
+        with tempfile.TemporaryDirectory() as t:
+            os.makedirs(os.path.join(t, "data", "c"))
+            with open(os.path.join(t, "data", "c", "a.png"), "wb") as f:
+                f.write(tiny_png())
+            with open(os.path.join(t, "file"), "w") as f:
+                f.write("x")
+            self.assertEqual(run("audit", os.path.join(t, "data"), "--out", os.path.join(t, "file", "o")).returncode, 3)
+
+    def test_clean_tree_exits_0_and_broken_file_exits_1(self):
+        with tempfile.TemporaryDirectory() as t:
+            root = os.path.join(t, "data")
+            for c in ("a", "b"):
+                os.makedirs(os.path.join(root, c))
+                with open(os.path.join(root, c, "x.png"), "wb") as f:
+                    f.write(tiny_png())
+            self.assertEqual(run("audit", root, "--out", os.path.join(t, "o"), "--quiet").returncode, 0)
+            with open(os.path.join(root, "a", "broken.png"), "wb") as f:
+                f.write(tiny_png()[:30])
+            r = run("audit", root, "--out", os.path.join(t, "o"), "--quiet")
+            self.assertEqual(r.returncode, 1)
+            self.assertEqual(r.stdout, "")
+
+
+SCHEMA = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "docs", "report.schema.json")
+
+
+def validate_report(testcase, path):
+    """report.json against docs/report.schema.json with python3-jsonschema (draft 2020-12)."""
+    import jsonschema
+    schema = load_json(SCHEMA)
+    jsonschema.Draft202012Validator.check_schema(schema)
+    errors = list(jsonschema.Draft202012Validator(schema).iter_errors(load_json(path)))
+    testcase.assertEqual([e.message for e in errors], [])
+
+
+class Outputs(unittest.TestCase):
+    NAMES = [
+        "with space.png", 'quote"d.png', "comma,name.png", "semi;colon.png", "new\nline.png",
+        "crlf\r\nname.png", "caf\u00e9 \u6728.png", "<script>alert(1)<script>.png",
+        "<img src=x onerror=alert(1)>.png", "amp&lt;.png", "'single'.png",
+    ]
+
+    def test_hostile_names_survive_into_the_manifest(self):
+        with tempfile.TemporaryDirectory() as t:
+            root = os.path.join(t, "data")
+            labels = ["plain", "class, with comma", 'class "quoted"', "<b>bold<b>"]
+            expect = {}
+            for i, name in enumerate(self.NAMES):
+                label = labels[i % len(labels)]
+                os.makedirs(os.path.join(root, label), exist_ok=True)
+                with open(os.path.join(root, label, name), "wb") as f:
+                    f.write(tiny_png())
+                expect[label + "/" + name] = label
+            before = snapshot(root)
+            out = os.path.join(t, "out")
+            r = run("audit", root, "--out", out, "--no-progress")
+            self.assertEqual(r.returncode, 0, r.stderr)
+            self.assertEqual(snapshot(root), before, "the audit wrote inside ROOT")
+            with open(os.path.join(out, "manifest.csv"), newline="", encoding="utf-8") as f:
+                rows = list(csv.DictReader(f))
+            got = {row["path"]: row["label"] for row in rows}
+            self.assertEqual(got, expect)
+            paths = [row["path"] for row in rows]
+            self.assertEqual(paths, sorted(paths, key=lambda p: p.encode("utf-8")))
+            header = read_text(os.path.join(out, "manifest.csv")).split("\r\n", 1)[0]
+            self.assertTrue(header.startswith(
+                "path,label,split,group,width,height,mode,bit_depth,format,mask_path,flags"))
+            validate_report(self, os.path.join(out, "report.json"))
+            report = load_json(os.path.join(out, "report.json"))
+            tot = report["totals"]
+            self.assertEqual(tot["files_seen"], tot["images"] + tot["masks"] + tot["unreadable"] + tot["ignored"])
+            self.assertEqual(tot["images"], len(self.NAMES))
+            html = read_text(os.path.join(out, "report.html"))
+            self.assertNotIn("<script>", html)
+            self.assertNotIn("<img src=x", html)
+            self.assertEqual([n for n in os.listdir(out) if ".tmp" in n], [])
+
+    def test_schema_rejects_a_report_that_breaks_it(self):
+        import jsonschema
+        schema = load_json(SCHEMA)
+        bad = {"schema_version": 1, "tool": {"name": "tamis", "version": "0"}, "settings": {"seed": 1},
+               "totals": {"files_seen": -1}, "classes": [], "groups": [], "findings": [{"code": "Bad Code"}],
+               "ignored": [], "unreadable": []}
+        errors = list(jsonschema.Draft202012Validator(schema).iter_errors(bad))
+        self.assertGreaterEqual(len(errors), 3)
+
+    def test_demo_audit_finds_the_planted_defects(self):
+        with tempfile.TemporaryDirectory() as t:
+            root = os.path.join(t, "demo")
+            self.assertEqual(run("demo", root).returncode, 0)
+            out = os.path.join(t, "out")
+            r = run("audit", root, "--out", out, "--threads", "2")
+            self.assertEqual(r.returncode, 1, r.stderr)
+            validate_report(self, os.path.join(out, "report.json"))
+            report = load_json(os.path.join(out, "report.json"))
+            self.assertEqual(report["totals"]["unreadable"], 1)
+            self.assertEqual(report["totals"]["ignored"], 2)
+            codes = {f["code"] for f in report["findings"]}
+            self.assertIn("unreadable", codes)
+            ignored = {e["path"]: e["reason"] for e in report["ignored"]}
+            self.assertEqual(ignored, {"README.txt": "not-an-image", "gingham/.thumbs.db": "hidden"})
+
+
+if __name__ == "__main__":
+    TAMIS = os.path.abspath(sys.argv.pop(1))
+    unittest.main(verbosity=1)

@@ -1,0 +1,96 @@
+// Walk tests: order, links, loops, hidden and stray files.
+#include <catch2/catch.hpp>
+
+#include <unistd.h>
+
+#include <algorithm>
+#include <filesystem>
+
+#include "support/temp_tree.h"
+#include "tamis/labels.h"
+#include "tamis/read_stage.h"
+#include "tamis/walk.h"
+
+using namespace tamis;
+namespace fs = std::filesystem;
+
+TEST_CASE("walk lists every regular file once, in bytewise order, whatever the creation order", "[walk]") {
+  test::TempDir a, b;
+  // Bytewise order puts 'B' (0x42) before 'a' (0x61), '-' before '_', and UTF-8 after ASCII.
+  std::vector<std::string> names{"a/x.png", "B/y.png", "a-b/z.png", "a_b/z.png", "a/\xc3\xa9t\xc3\xa9.png",
+                                 "a/ 1.png", "a/sub/deep/q.png", "top.txt"};
+  for (const auto& n : names) test::write_text(a / n, n);
+  for (auto it = names.rbegin(); it != names.rend(); ++it) test::write_text(b / *it, *it);
+  std::vector<std::string> expect = names;
+  std::sort(expect.begin(), expect.end(), [](const std::string& x, const std::string& y) {
+    return std::lexicographical_compare(x.begin(), x.end(), y.begin(), y.end(),
+                                        [](char p, char q) { return (unsigned char)p < (unsigned char)q; });
+  });
+  for (auto* t : {&a, &b}) {
+    WalkResult w = walk_tree(t->path());
+    std::vector<std::string> got;
+    for (const auto& e : w.files) got.push_back(e.path);
+    CHECK(got == expect);
+  }
+}
+
+TEST_CASE("walk never follows links: no escape from ROOT, loops survived", "[walk][links]") {
+  test::TempDir outside, t;
+  test::write_text(outside / "secret.png", "outside");
+  test::write_text(t / "cls/a.png", "a");
+  fs::create_directory_symlink(outside.path(), t / "cls/escape");
+  fs::create_directory_symlink(t.path(), t / "cls/loop");
+  fs::create_symlink(t / "cls/a.png", t / "cls/alias.png");
+  WalkResult w = walk_tree(t.path());
+  REQUIRE(w.files.size() == 1);
+  CHECK(w.files[0].path == "cls/a.png");
+  CHECK(w.links == std::vector<std::string>{"cls/alias.png", "cls/escape", "cls/loop"});
+}
+
+TEST_CASE("hidden files and folders are recognised", "[walk]") {
+  CHECK(is_hidden_path(".DS_Store"));
+  CHECK(is_hidden_path("cls/.thumbs/a.png"));
+  CHECK(is_hidden_path(".git/objects/aa"));
+  CHECK_FALSE(is_hidden_path("cls/a.png"));
+  CHECK_FALSE(is_hidden_path("cls/a.b.png"));
+}
+
+TEST_CASE("path_is_inside refuses outputs inside ROOT", "[walk]") {
+  test::TempDir t;
+  fs::create_directories(t / "data/cls");
+  CHECK(path_is_inside(t / "data", t / "data"));
+  CHECK(path_is_inside(t / "data", t / "data/cls/out"));
+  CHECK(path_is_inside(t / "data", t / "data/../data/new"));
+  CHECK_FALSE(path_is_inside(t / "data", t / "data-out"));
+  CHECK_FALSE(path_is_inside(t / "data", t.path()));
+}
+
+TEST_CASE("labels come from the first folder; split folders are recognised", "[labels]") {
+  auto rec = [](std::string p) {
+    FileRecord r;
+    r.path = std::move(p);
+    r.kind = FileKind::image;
+    return r;
+  };
+  SECTION("class folders") {
+    std::vector<FileRecord> rs{rec("oak/a.png"), rec("oak/batch2/b.png"), rec("pine/c.png"), rec("loose.png")};
+    Labelling l = assign_labels(rs);
+    CHECK_FALSE(l.pre_split);
+    CHECK(l.names == std::vector<std::string>{"oak", "pine"});
+    CHECK(l.label_of == std::vector<int32_t>{0, 0, 1, -1});
+  }
+  SECTION("a pre-split tree") {
+    std::vector<FileRecord> rs{rec("Train/oak/a.png"), rec("train/pine/b.png"), rec("validation/oak/c.png"),
+                               rec("test/pine/d.png"), rec("test/e.png")};
+    Labelling l = assign_labels(rs);
+    CHECK(l.pre_split);
+    CHECK(l.names == std::vector<std::string>{"oak", "pine"});
+    CHECK(l.label_of == std::vector<int32_t>{0, 1, 0, 1, -1});
+    CHECK(l.given_split == std::vector<SplitName>{SplitName::train, SplitName::train, SplitName::val,
+                                                  SplitName::test, SplitName::test});
+  }
+  SECTION("a class named like a split does not make the tree pre-split") {
+    std::vector<FileRecord> rs{rec("test/a.png"), rec("oak/b.png")};
+    CHECK_FALSE(assign_labels(rs).pre_split);
+  }
+}
