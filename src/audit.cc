@@ -11,7 +11,9 @@ AuditResult run_audit(const AuditSettings& settings) {
   r.walk.files.clear();
   r.walk.files.shrink_to_fit();
   r.labels = assign_labels(r.records);
-  r.group_of.assign(r.records.size(), -1);
+  GroupSettings gs = settings.groups;
+  gs.threads = settings.read.threads;
+  r.groups = find_groups(r.records, gs);
 
   for (const auto& rec : r.records) {
     ++r.totals.files_seen;
@@ -24,12 +26,13 @@ AuditResult run_audit(const AuditSettings& settings) {
   }
 
   check_inventory(r.records, r.labels, r.walk, r.findings);
+  check_groups(r.records, r.labels, r.groups, settings.groups, r.findings);
 
   // Split: a pre-split tree keeps its folders' split; otherwise a stratified split.
   std::vector<SplitItem> items(r.records.size());
   for (size_t i = 0; i < r.records.size(); ++i) {
     items[i].label = r.labels.label_of[i];
-    items[i].group = r.group_of[i];
+    items[i].group = r.groups.group_of[i];
     items[i].eligible = r.records[i].kind == FileKind::image;
   }
   if (r.labels.pre_split) {

@@ -1,6 +1,7 @@
 #include "tamis/checks.h"
 
 #include <map>
+#include <set>
 #include <string>
 
 namespace tamis {
@@ -60,6 +61,83 @@ void check_inventory(const std::vector<FileRecord>& records, const Labelling& la
     f.details = {{"count", walk.unreadable_dirs.size()}};
     f.paths = walk.unreadable_dirs;
     out.push_back(std::move(f));
+  }
+}
+
+void check_groups(const std::vector<FileRecord>& records, const Labelling& labels, const GroupResult& groups,
+                  const GroupSettings& settings, std::vector<Finding>& out) {
+  for (size_t gi = 0; gi < groups.groups.size(); ++gi) {
+    const Group& g = groups.groups[gi];
+    const std::string id = group_id(static_cast<int64_t>(gi));
+    std::vector<std::string> paths;
+    std::set<std::string> label_set;
+    std::set<SplitName> splits;
+    for (uint32_t m : g.members) {
+      paths.push_back(records[m].path);
+      if (labels.label_of[m] >= 0) label_set.insert(labels.names[static_cast<size_t>(labels.label_of[m])]);
+      if (labels.pre_split) splits.insert(labels.given_split[m]);
+    }
+    std::vector<std::string> label_list(label_set.begin(), label_set.end());
+    nlohmann::json base = {{"group", id}, {"size", g.members.size()}, {"labels", label_list},
+                           {"diameter", g.diameter}};
+
+    // Byte-identical sets inside the group (a near group may hold some).
+    std::map<std::array<uint64_t, 2>, std::vector<std::string>> by_hash;
+    for (uint32_t m : g.members) by_hash[records[m].features.content_hash].push_back(records[m].path);
+    for (auto& [hash, same] : by_hash) {
+      if (same.size() < 2) continue;
+      Finding f;
+      f.code = "exact-duplicate";
+      f.severity = Severity::warning;
+      f.message = std::to_string(same.size()) + " files are byte-identical copies of each other";
+      f.details = base;
+      f.paths = std::move(same);
+      out.push_back(std::move(f));
+    }
+    if (!g.exact) {
+      Finding f;
+      f.code = "near-duplicate";
+      f.severity = Severity::warning;
+      f.message = std::to_string(g.members.size()) +
+                  " images look alike (re-encoded, resized, recoloured, mirrored or turned copies); group " + id;
+      f.details = base;
+      f.paths = paths;
+      out.push_back(std::move(f));
+    }
+    if (label_set.size() > 1) {
+      Finding f;
+      f.code = "label-conflict";
+      f.severity = Severity::error;
+      std::string names;
+      for (const auto& l : label_list) names += (names.empty() ? "" : ", ") + l;
+      f.message = "the same picture carries " + std::to_string(label_set.size()) + " labels (" + names + "); group " + id;
+      f.details = base;
+      f.paths = paths;
+      out.push_back(std::move(f));
+    }
+    splits.erase(SplitName::none);
+    if (splits.size() > 1) {
+      Finding f;
+      f.code = "split-leak";
+      f.severity = Severity::error;
+      std::string names;
+      for (auto s : splits) names += (names.empty() ? "" : ", ") + std::string(to_string(s));
+      f.message = "copies of one picture sit in more than one split (" + names + "): test accuracy will be inflated; group " + id;
+      f.details = base;
+      f.paths = paths;
+      out.push_back(std::move(f));
+    }
+    if (g.diameter > 2 * settings.radius) {
+      Finding f;
+      f.code = "lookalike-chain";
+      f.severity = Severity::warning;
+      f.message = "group " + id + " spans a hash distance of " + std::to_string(g.diameter) +
+                  ", more than twice the match radius: a chain of look-alikes may join unrelated images";
+      f.details = base;
+      f.details["diameter_exact"] = g.diameter_exact;
+      f.paths = paths;
+      out.push_back(std::move(f));
+    }
   }
 }
 

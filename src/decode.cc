@@ -99,6 +99,11 @@ Decoded decode_jpeg(Bytes b, const DecodeLimits& limits) {
     }
     m = bgr;
   }
+  // TJSCALED rounds up: a last column/row standing for a partial 8x8 block would
+  // weigh as much as a whole one and shift the picture by up to a pixel (a flipped
+  // copy shifts the other way). Keep only the pixels that stand for whole samples.
+  int exact_w = w * best.num / best.denom, exact_h = h * best.num / best.denom;
+  if (exact_w > 0 && exact_h > 0 && (exact_w < sw || exact_h < sh)) m = m(cv::Rect(0, 0, exact_w, exact_h));
   out.reduced = reduce(m, limits.reduced_side);
   return out;
 }

@@ -67,7 +67,7 @@ void write_manifest(std::ostream& os, const AuditResult& r) {
     field(rec.path);
     field(r.labels.label_of[i] >= 0 ? std::string_view(r.labels.names[r.labels.label_of[i]]) : "");
     field(to_string(r.placement[i]));
-    field(r.group_of[i] >= 0 ? "g" + std::to_string(r.group_of[i]) : "");
+    field(r.groups.group_of[i] >= 0 ? group_id(r.groups.group_of[i]) : "");
     field(probed ? std::to_string(rec.probe.width) : "");
     field(probed ? std::to_string(rec.probe.height) : "");
     field(probed ? to_string(rec.probe.mode) : "");

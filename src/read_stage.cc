@@ -9,6 +9,7 @@
 #include <cerrno>
 #include <stdexcept>
 
+#include "tamis/features.h"
 #include "tamis/parallel.h"
 #include "tamis/probe.h"
 
@@ -90,6 +91,8 @@ void read_one(int rootfd, const WalkEntry& e, const ReadOptions& opt, std::vecto
   if (p.defect != Defect::none) return unreadable(p.defect);
   Decoded d = decode_image(bytes, r.probe, opt.decode);
   if (d.defect != Defect::none) return unreadable(d.defect);
+  r.features.look = lookalike_features(d.reduced);
+  r.features.has_lookalike = true;
   r.kind = FileKind::image;
 }
 

@@ -1,6 +1,8 @@
 #include "tamis/report_json.h"
 
 #include <array>
+#include <map>
+#include <set>
 
 #include "tamis/version.h"
 
@@ -16,6 +18,8 @@ json settings_json(const AuditSettings& s) {
       {"max_pixels", s.read.decode.max_pixels},
       {"max_bytes", s.read.max_bytes},
       {"reduced_side", s.read.decode.reduced_side},
+      {"lookalike_radius", s.groups.radius},
+      {"lookalike_min_correlation", s.groups.min_correlation},
   };
 }
 
@@ -60,7 +64,26 @@ json build_report(const AuditResult& r, const AuditSettings& s) {
   j["classes"] = std::move(classes);
   j["formats"] = formats;
   j["modes"] = modes;
-  j["groups"] = json::array();
+  json groups = json::array();
+  for (size_t gi = 0; gi < r.groups.groups.size(); ++gi) {
+    const Group& g = r.groups.groups[gi];
+    std::vector<std::string> paths;
+    std::set<std::string> labels;
+    for (uint32_t m : g.members) {
+      paths.push_back(r.records[m].path);
+      if (r.labels.label_of[m] >= 0) labels.insert(r.labels.names[static_cast<size_t>(r.labels.label_of[m])]);
+    }
+    groups.push_back({{"id", group_id(static_cast<int64_t>(gi))},
+                      {"kind", g.exact ? "exact" : "near"},
+                      {"paths", paths},
+                      {"labels", labels},
+                      {"diameter", g.diameter},
+                      {"diameter_exact", g.diameter_exact}});
+  }
+  j["groups"] = std::move(groups);
+  j["lookalike_search"] = {{"exact_pairs", r.groups.exact_pairs},
+                           {"candidate_pairs", r.groups.candidate_pairs},
+                           {"confirmed_pairs", r.groups.confirmed_pairs}};
 
   json findings = json::array();
   for (const auto& f : r.findings) {

@@ -15,6 +15,7 @@
 #include <vector>
 
 #include "tamis/findings.h"
+#include "tamis/groups.h"
 #include "tamis/labels.h"
 #include "tamis/read_stage.h"
 #include "tamis/record.h"
@@ -26,6 +27,7 @@ namespace tamis {
 struct AuditSettings {
   std::filesystem::path root;
   ReadOptions read;
+  GroupSettings groups;
   SplitSettings split;
 };
 
@@ -37,7 +39,7 @@ struct AuditResult {
   WalkResult walk;                  // walk.files is released once read; links and dirs kept
   std::vector<FileRecord> records;  // sorted by path, one per regular file
   Labelling labels;
-  std::vector<int64_t> group_of;    // per record: group id, or -1
+  GroupResult groups;               // groups.group_of: per record, index into groups.groups or -1
   std::vector<Placement> placement; // per record: split (excluded for non-rows)
   std::vector<Finding> findings;    // sorted (sort_findings)
   Totals totals;

@@ -8,6 +8,7 @@
 #include <vector>
 
 #include "tamis/findings.h"
+#include "tamis/groups.h"
 #include "tamis/labels.h"
 #include "tamis/record.h"
 #include "tamis/walk.h"
@@ -19,5 +20,13 @@ namespace tamis {
 // `folder-unreadable` (warning) when the walk met such.
 void check_inventory(const std::vector<FileRecord>& records, const Labelling& labels, const WalkResult& walk,
                      std::vector<Finding>& out);
+
+// Findings about groups: `exact-duplicate` (warning) for each set of byte-identical
+// files, `near-duplicate` (warning) for each group that is not all byte-identical,
+// `label-conflict` (error) for a group whose images carry more than one label,
+// `split-leak` (error) for a group spanning split folders of a pre-split tree, and
+// `lookalike-chain` (warning) for a group whose diameter exceeds 2 * radius.
+void check_groups(const std::vector<FileRecord>& records, const Labelling& labels, const GroupResult& groups,
+                  const GroupSettings& settings, std::vector<Finding>& out);
 
 }  // namespace tamis

@@ -23,7 +23,7 @@ namespace tamis {
 
 struct DecodeLimits {
   uint64_t max_pixels = 200'000'000;  // width * height claimed by the header
-  uint32_t reduced_side = 64;         // shorter side wanted in the reduced image
+  uint32_t reduced_side = 128;        // shorter side wanted in the reduced image
 };
 
 struct Decoded {

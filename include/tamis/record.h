@@ -65,10 +65,23 @@ struct ProbeInfo {
   uint32_t frames = 1;              // >1 for animated GIF/APNG/WebP, multi-page TIFF
 };
 
+// Dihedral transform index t in [0, 8): bit 2 = transpose first, bit 1 = then
+// flip rows (vertical mirror), bit 0 = then flip columns (horizontal mirror).
+// t = 0 is the identity. (features.h computes the codes.)
+inline constexpr int kDihedralCount = 8;
+
+// Look-alike signals of one image (features.h).
+struct Lookalike {
+  std::array<uint64_t, kDihedralCount> phash{};  // phash[t] = DCT hash of transform t of the image
+  std::array<uint8_t, 1024> thumb{};             // the 32x32 gray thumbnail the hash is made from, row-major
+};
+
 // Content features computed from the bytes and the decoded pixels.
 struct Features {
   std::array<uint64_t, 2> content_hash{0, 0};  // XXH3-128 of the file bytes
   bool has_content_hash = false;
+  bool has_lookalike = false;                   // set for every readable image
+  Lookalike look;
 };
 
 struct FileRecord {

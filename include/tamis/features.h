@@ -1,0 +1,45 @@
+// Features: the compact per-image signals the look-alike search works on,
+// computed from the decode stage's reduced image.
+//
+//  - A 64-bit DCT perceptual hash (the DCT method that Zauner 2010 benchmarks):
+//    grayscale, area-resized to 32x32, orthonormal 2-D DCT-II, the low 8x8 block
+//    (DC included), each bit = coefficient > median of the 64. Bit k (k = 8*row +
+//    col of the block) is bit (63 - k) of the code, so the first coefficient is
+//    the most significant bit.
+//  - The same code for each of the 8 flips/turns of the thumbnail (the dihedral
+//    group D4), derived exactly from the one DCT block: a mirror of the image
+//    negates the odd-frequency coefficients along that axis, a transpose
+//    transposes the block.
+//  - The 32x32 grayscale thumbnail itself, kept for the independent second signal
+//    that confirms a candidate pair: the Pearson correlation of the two thumbnails'
+//    pixels after the matched flip/turn (docs/lookalikes.md for why 32x32).
+// Pure functions; thread-safe.
+#pragma once
+
+#include <array>
+#include <cstdint>
+
+#include <opencv2/core.hpp>
+
+#include "tamis/record.h"
+
+namespace tamis {
+
+// The 32x32 gray thumbnail the hash is computed from (8-bit, area-resized from `reduced`).
+cv::Mat hash_thumbnail(const cv::Mat& reduced);
+
+// The DCT hash of a 32x32 8-bit gray thumbnail, for transform t.
+std::array<uint64_t, kDihedralCount> dct_hashes(const cv::Mat& thumb32);
+
+// All look-alike features of one reduced decode (1, 3 or 4 channels, 8-bit).
+Lookalike lookalike_features(const cv::Mat& reduced);
+
+// Applies dihedral transform t to a square row-major gray image of side n.
+void apply_dihedral(const uint8_t* src, uint8_t* dst, int n, int t);
+
+// Pearson correlation of a's transform t with b (32x32 thumbnails). Two nearly
+// uniform thumbnails (standard deviation below 2 grey levels) correlate 1 when
+// their means are within 4 levels, else 0; one uniform and one not: 0.
+double thumb_correlation(const std::array<uint8_t, 1024>& a, int t, const std::array<uint8_t, 1024>& b);
+
+}  // namespace tamis

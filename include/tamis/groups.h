@@ -1,0 +1,57 @@
+// Groups: byte-identical files and look-alike images, joined into connected groups.
+//
+// Two readable images are joined when
+//   - their bytes are identical (XXH3-128 content hash equal), or
+//   - they look alike: the DCT hash of one of the 8 flips/turns of the first is
+//     within Hamming distance `radius` of the second's DCT hash (candidates found
+//     exactly by LookalikeIndex), AND the independent second signal confirms it:
+//     the Pearson correlation of their 32x32 thumbnails, after that flip/turn, is
+//     at least `min_correlation`.
+// Groups are the connected components (union-find) of these pairs, with two or
+// more members. A group's diameter is the largest hash distance (best flip/turn)
+// between two of its members, exact for groups up to 512 members and a lower
+// bound (double sweep) above; a diameter beyond 2 * radius means a chain may have
+// glued unrelated images together (finding `lookalike-chain`).
+//
+// Deterministic: groups are numbered in the order of their first member's path;
+// pairs are sorted before union; thread count changes nothing.
+#pragma once
+
+#include <cstdint>
+#include <string>
+#include <vector>
+
+#include "tamis/record.h"
+
+namespace tamis {
+
+struct GroupSettings {
+  int radius = 8;                // docs/lookalikes.md: how the defaults were measured
+  double min_correlation = 0.995;
+  unsigned threads = 0;
+};
+
+struct Group {
+  std::vector<uint32_t> members;  // record indices, ascending (= path order)
+  bool exact = false;             // every member byte-identical to every other
+  int diameter = 0;               // hash distance, see above
+  bool diameter_exact = true;
+};
+
+struct GroupResult {
+  std::vector<Group> groups;        // ordered by first member
+  std::vector<int64_t> group_of;    // per record: index into groups, or -1
+  uint64_t exact_pairs = 0;         // pairs of byte-identical files (within runs)
+  uint64_t candidate_pairs = 0;     // index hits (distinct pairs i < j)
+  uint64_t confirmed_pairs = 0;     // hits confirmed by the thumbnail correlation
+};
+
+GroupResult find_groups(const std::vector<FileRecord>& records, const GroupSettings& settings);
+
+// The id a group is known by in every output: "g1", "g2", … (index + 1).
+std::string group_id(int64_t index);
+
+// Smallest hash distance between a and b over the 8 flips/turns of a.
+int lookalike_distance(const Lookalike& a, const Lookalike& b);
+
+}  // namespace tamis

@@ -1,0 +1,59 @@
+// LookalikeIndex: every pair of 64-bit codes within Hamming distance r, found
+// exactly, without comparing all pairs.
+//
+// Multi-index hashing (Norouzi, Punjani & Fleet, "Fast search in Hamming space
+// with multi-index hashing", CVPR 2012): the 64 bits are cut into m disjoint
+// substrings, each indexed in its own table. If two codes differ in at most r
+// bits, then by the pigeonhole principle at least one substring differs in at
+// most floor(r / m) bits, so probing every substring value within that radius in
+// every table finds every such pair: the search is exact, never approximate.
+// m is chosen so that substrings are about log2(N) bits long (bucket occupancy
+// near one), which keeps probes and candidates per query small.
+//
+// Build once, then query from any number of threads (queries are const).
+// Results are sorted, so they never depend on thread count.
+#pragma once
+
+#include <cstddef>
+#include <cstdint>
+#include <utility>
+#include <vector>
+
+namespace tamis {
+
+class LookalikeIndex {
+ public:
+  // Indexes `codes` (copied). `radius` is the largest distance any query will ask
+  // for; it decides the table layout. `substrings` = 0 picks m from N.
+  LookalikeIndex(std::vector<uint64_t> codes, int radius, int substrings = 0);
+
+  // Appends to `out` every id j whose code is within `radius` of `query`
+  // (radius <= the build radius), each once, in no particular order.
+  void query(uint64_t query, int radius, std::vector<uint32_t>& out) const;
+
+  size_t size() const { return codes_.size(); }
+  int substrings() const { return static_cast<int>(tables_.size()); }
+
+ private:
+  struct Table {
+    int shift = 0, bits = 0;
+    std::vector<uint32_t> offsets;  // 2^bits + 1 bucket starts into ids
+    std::vector<uint32_t> ids;
+    uint32_t key(uint64_t code) const { return static_cast<uint32_t>((code >> shift) & ((uint64_t{1} << bits) - 1)); }
+  };
+  std::vector<uint64_t> codes_;
+  std::vector<Table> tables_;
+  int radius_;
+};
+
+// All unordered pairs (i < j) of `codes` within distance `radius`, sorted.
+// Uses LookalikeIndex; `threads` = 0 means all cores.
+std::vector<std::pair<uint32_t, uint32_t>> pairs_within(const std::vector<uint64_t>& codes, int radius,
+                                                        unsigned threads = 0);
+
+// The same by comparing every pair: the reference the index is tested against.
+std::vector<std::pair<uint32_t, uint32_t>> pairs_within_brute_force(const std::vector<uint64_t>& codes, int radius);
+
+inline int hamming(uint64_t a, uint64_t b) { return __builtin_popcountll(a ^ b); }
+
+}  // namespace tamis

@@ -1,0 +1,166 @@
+#include "tamis/groups.h"
+
+#include <algorithm>
+#include <numeric>
+
+#include "tamis/features.h"
+#include "tamis/lookalike_index.h"
+#include "tamis/parallel.h"
+
+namespace tamis {
+
+namespace {
+
+class UnionFind {
+ public:
+  explicit UnionFind(size_t n) : parent_(n), rank_(n, 0) { std::iota(parent_.begin(), parent_.end(), 0u); }
+  uint32_t find(uint32_t x) {
+    while (parent_[x] != x) {
+      parent_[x] = parent_[parent_[x]];
+      x = parent_[x];
+    }
+    return x;
+  }
+  void unite(uint32_t a, uint32_t b) {
+    a = find(a);
+    b = find(b);
+    if (a == b) return;
+    if (rank_[a] < rank_[b]) std::swap(a, b);
+    parent_[b] = a;
+    if (rank_[a] == rank_[b]) ++rank_[a];
+  }
+
+ private:
+  std::vector<uint32_t> parent_;
+  std::vector<uint8_t> rank_;
+};
+
+constexpr size_t kExactDiameterLimit = 512;
+
+}  // namespace
+
+std::string group_id(int64_t index) { return "g" + std::to_string(index + 1); }
+
+int lookalike_distance(const Lookalike& a, const Lookalike& b) {
+  int best = 64;
+  for (int t = 0; t < kDihedralCount; ++t) best = std::min(best, hamming(a.phash[t], b.phash[0]));
+  return best;
+}
+
+GroupResult find_groups(const std::vector<FileRecord>& records, const GroupSettings& settings) {
+  GroupResult out;
+  out.group_of.assign(records.size(), -1);
+  std::vector<uint32_t> eligible;  // record indices of readable images
+  for (uint32_t i = 0; i < records.size(); ++i)
+    if (records[i].kind == FileKind::image && records[i].features.has_lookalike) eligible.push_back(i);
+  const size_t n = eligible.size();
+  UnionFind uf(n);
+
+  // Byte-identical files: runs of equal content hash.
+  std::vector<uint32_t> by_hash(n);
+  std::iota(by_hash.begin(), by_hash.end(), 0u);
+  auto hash_of = [&](uint32_t k) { return records[eligible[k]].features.content_hash; };
+  std::sort(by_hash.begin(), by_hash.end(), [&](uint32_t a, uint32_t b) {
+    return hash_of(a) != hash_of(b) ? hash_of(a) < hash_of(b) : a < b;
+  });
+  std::vector<uint32_t> exact_root(n);
+  std::iota(exact_root.begin(), exact_root.end(), 0u);
+  for (size_t k = 1; k < n; ++k)
+    if (hash_of(by_hash[k]) == hash_of(by_hash[k - 1])) {
+      uf.unite(by_hash[k - 1], by_hash[k]);
+      exact_root[by_hash[k]] = exact_root[by_hash[k - 1]];
+      ++out.exact_pairs;
+    }
+
+  // Look-alikes: candidates from the index, confirmed by the thumbnails.
+  std::vector<uint64_t> codes(n);
+  for (size_t k = 0; k < n; ++k) codes[k] = records[eligible[k]].features.look.phash[0];
+  if (n > 1) {
+    LookalikeIndex index(codes, settings.radius);
+    const size_t chunk = 1024;
+    const size_t n_chunks = (n + chunk - 1) / chunk;
+    struct Found {
+      std::vector<std::pair<uint32_t, uint32_t>> confirmed;
+      uint64_t candidates = 0;
+    };
+    std::vector<Found> found(n_chunks);
+    parallel_for(n_chunks, settings.threads, [&](size_t c) {
+      std::vector<uint32_t> hits;
+      std::vector<uint32_t> seen;
+      for (size_t i = c * chunk; i < std::min(n, (c + 1) * chunk); ++i) {
+        const Lookalike& a = records[eligible[i]].features.look;
+        seen.clear();
+        for (int t = 0; t < kDihedralCount; ++t) {
+          hits.clear();
+          index.query(a.phash[t], settings.radius, hits);
+          for (uint32_t j : hits) {
+            if (j <= i) continue;
+            seen.push_back(j);
+            const Lookalike& b = records[eligible[j]].features.look;
+            if (thumb_correlation(a.thumb, t, b.thumb) >= settings.min_correlation)
+              found[c].confirmed.emplace_back(static_cast<uint32_t>(i), j);
+          }
+        }
+        std::sort(seen.begin(), seen.end());
+        found[c].candidates += static_cast<uint64_t>(std::unique(seen.begin(), seen.end()) - seen.begin());
+      }
+    }, 1);
+    std::vector<std::pair<uint32_t, uint32_t>> pairs;
+    for (auto& f : found) {
+      out.candidate_pairs += f.candidates;
+      pairs.insert(pairs.end(), f.confirmed.begin(), f.confirmed.end());
+    }
+    std::sort(pairs.begin(), pairs.end());
+    pairs.erase(std::unique(pairs.begin(), pairs.end()), pairs.end());
+    out.confirmed_pairs = pairs.size();
+    for (auto [a, b] : pairs) uf.unite(a, b);
+  }
+
+  // Components with two or more members, numbered by first member.
+  std::vector<int64_t> comp_of_root(n, -1);
+  for (uint32_t k = 0; k < n; ++k) {  // k ascending = record order ascending
+    uint32_t r = uf.find(k);
+    if (comp_of_root[r] < 0) {
+      comp_of_root[r] = static_cast<int64_t>(out.groups.size());
+      out.groups.emplace_back();
+    }
+    out.groups[static_cast<size_t>(comp_of_root[r])].members.push_back(k);
+  }
+  std::vector<Group> kept;
+  for (auto& g : out.groups) {
+    if (g.members.size() < 2) continue;
+    g.exact = std::all_of(g.members.begin(), g.members.end(),
+                          [&](uint32_t k) { return exact_root[k] == exact_root[g.members.front()]; });
+    // Diameter over the members' look-alike codes.
+    auto dist = [&](uint32_t x, uint32_t y) {
+      return lookalike_distance(records[eligible[x]].features.look, records[eligible[y]].features.look);
+    };
+    if (g.members.size() <= kExactDiameterLimit) {
+      for (size_t p = 0; p < g.members.size(); ++p)
+        for (size_t q = p + 1; q < g.members.size(); ++q) g.diameter = std::max(g.diameter, dist(g.members[p], g.members[q]));
+    } else {
+      g.diameter_exact = false;
+      uint32_t far = g.members.front();
+      for (int sweep = 0; sweep < 2; ++sweep) {
+        uint32_t from = far;
+        int best = -1;
+        for (uint32_t m : g.members) {
+          int d = dist(from, m);
+          if (d > best) {
+            best = d;
+            far = m;
+          }
+        }
+        g.diameter = std::max(g.diameter, best);
+      }
+    }
+    for (auto& m : g.members) m = eligible[m];  // to record indices
+    kept.push_back(std::move(g));
+  }
+  out.groups = std::move(kept);
+  for (size_t gi = 0; gi < out.groups.size(); ++gi)
+    for (uint32_t m : out.groups[gi].members) out.group_of[m] = static_cast<int64_t>(gi);
+  return out;
+}
+
+}  // namespace tamis
