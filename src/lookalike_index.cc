@@ -2,6 +2,7 @@
 
 #include <algorithm>
 #include <cmath>
+#include <memory>
 #include <stdexcept>
 
 #include "tamis/parallel.h"
@@ -56,8 +57,16 @@ LookalikeIndex::LookalikeIndex(std::vector<uint64_t> codes, int radius, int m) :
     for (uint64_t c : codes_) ++t.offsets[t.key(c) + 1];
     for (size_t b = 1; b < t.offsets.size(); ++b) t.offsets[b] += t.offsets[b - 1];
     t.ids.resize(codes_.size());
+    t.codes.resize(codes_.size());
+    t.occupied.assign(((size_t{1} << t.bits) + 63) / 64, 0);
     std::vector<uint32_t> fill(t.offsets.begin(), t.offsets.end() - 1);
-    for (uint32_t i = 0; i < codes_.size(); ++i) t.ids[fill[t.key(codes_[i])]++] = i;
+    for (uint32_t i = 0; i < codes_.size(); ++i) {
+      uint32_t key = t.key(codes_[i]);
+      uint32_t at = fill[key]++;
+      t.ids[at] = i;
+      t.codes[at] = codes_[i];
+      t.occupied[key >> 6] |= uint64_t{1} << (key & 63);
+    }
   }
 }
 
@@ -68,10 +77,11 @@ void LookalikeIndex::query(uint64_t q, int radius, std::vector<uint32_t>& out) c
   for (int k = 0; k < m; ++k) {
     const Table& t = tables_[static_cast<size_t>(k)];
     for_each_within(t.key(q), t.bits, sub_r, [&](uint32_t key) {
+      if (!((t.occupied[key >> 6] >> (key & 63)) & 1)) return;
       for (uint32_t p = t.offsets[key]; p < t.offsets[key + 1]; ++p) {
-        uint32_t j = t.ids[p];
-        uint64_t c = codes_[j];
+        uint64_t c = t.codes[p];
         if (hamming(c, q) > radius) continue;
+        uint32_t j = t.ids[p];
         // Report j only from the first table where it is within sub_r, so each id once.
         bool earlier = false;
         for (int e = 0; e < k && !earlier; ++e) {
@@ -84,31 +94,136 @@ void LookalikeIndex::query(uint64_t q, int radius, std::vector<uint32_t>& out) c
   }
 }
 
+namespace {
+
+uint64_t binomial_ball(int bits, int k) {  // number of bit strings within distance k
+  uint64_t total = 0, c = 1;
+  for (int i = 0; i <= k && i <= bits; ++i) {
+    total += c;
+    c = c * static_cast<uint64_t>(bits - i) / static_cast<uint64_t>(i + 1);
+  }
+  return total;
+}
+
+struct JoinPlan {
+  int m = 1;
+  std::vector<int> bits;  // width of each substring
+};
+
+// Picks the table count with the least estimated work (entries to sort plus
+// expected comparisons) among layouts whose substrings are at most 30 bits wide
+// and whose entries fit in memory.
+JoinPlan plan_join(size_t n, int radius) {
+  JoinPlan best;
+  double best_cost = -1;
+  for (int m = 1; m <= 64; ++m) {
+    if ((64 + m - 1) / m > 30) continue;  // keys must fit the entry's 32-bit key field
+    int s = radius / m;
+    int a = (s + 1) / 2, b = s / 2;
+    double cost = 0;
+    bool fits = true;
+    std::vector<int> widths;
+    for (int k = 0; k < m; ++k) {
+      int w = 64 / m + (k < 64 % m ? 1 : 0);
+      widths.push_back(w);
+      double ea = double(n) * double(binomial_ball(w, a)), eb = double(n) * double(binomial_ball(w, b));
+      double entries = a == b ? ea : ea + eb;
+      if (entries > double(1u << 30)) fits = false;
+      double buckets = std::ldexp(1.0, w);
+      double compares = a == b ? ea * ea / (2 * buckets) : ea * eb / buckets;
+      cost += 4.0 * entries + compares;
+    }
+    if (!fits) continue;
+    if (best_cost < 0 || cost < best_cost) {
+      best_cost = cost;
+      best.m = m;
+      best.bits = widths;
+    }
+  }
+  if (best_cost < 0) throw std::invalid_argument("pairs_within: no table layout fits in memory");
+  return best;
+}
+
+// LSD radix sort of (key << 32 | tagged id) entries on the key's `bits` bits,
+// 11 bits a pass, through `tmp` (same length); the result ends in `v`.
+void radix_sort_by_key(uint64_t*& v, uint64_t*& tmp, size_t n, int bits) {
+  for (int shift = 32; shift < 32 + bits; shift += 11) {
+    size_t count[2049] = {0};
+    for (size_t i = 0; i < n; ++i) ++count[((v[i] >> shift) & 2047) + 1];
+    for (int i = 1; i <= 2048; ++i) count[i] += count[i - 1];
+    for (size_t i = 0; i < n; ++i) tmp[count[(v[i] >> shift) & 2047]++] = v[i];
+    std::swap(v, tmp);
+  }
+}
+
+}  // namespace
+
 std::vector<std::pair<uint32_t, uint32_t>> pairs_within(const std::vector<uint64_t>& codes, int radius,
                                                         unsigned threads) {
-  LookalikeIndex index(codes, radius);
-  unsigned n_threads = resolve_threads(threads);
+  if (radius < 0 || radius > 32) throw std::invalid_argument("pairs_within radius must be in [0, 32]");
+  if (codes.size() >= (size_t{1} << 31)) throw std::invalid_argument("pairs_within holds fewer than 2^31 codes");
   const size_t n = codes.size();
-  const size_t chunk = 4096;
-  const size_t n_chunks = (n + chunk - 1) / chunk;
-  std::vector<std::vector<std::pair<uint32_t, uint32_t>>> per_chunk(n_chunks);
-  parallel_for(n_chunks, n_threads, [&](size_t c) {
-    std::vector<uint32_t> hits;
-    auto& out = per_chunk[c];
-    for (size_t i = c * chunk; i < std::min(n, (c + 1) * chunk); ++i) {
-      hits.clear();
-      index.query(codes[i], radius, hits);
-      for (uint32_t j : hits)
-        if (j > i) out.emplace_back(static_cast<uint32_t>(i), j);
+  JoinPlan plan = plan_join(n, radius);
+  const int s = radius / plan.m;
+  const int a = (s + 1) / 2, b = s / 2;
+  std::vector<std::pair<uint32_t, uint32_t>> found;
+  // One set of buffers for every table (no zero-filling: every slot is written first).
+  size_t most = 0;
+  for (int w : plan.bits) most = std::max<size_t>(most, n * (binomial_ball(w, a) + (a != b ? binomial_ball(w, b) : 0)));
+  std::unique_ptr<uint64_t[]> buf_a(new uint64_t[most]), buf_b(new uint64_t[most]), buf_codes(new uint64_t[most]);
+  int shift = 0;
+  for (int k = 0; k < plan.m; ++k) {
+    const int w = plan.bits[static_cast<size_t>(k)];
+    const uint64_t mask = w == 64 ? ~uint64_t{0} : (uint64_t{1} << w) - 1;
+    // Entry: key in the high 32 bits, id in bits 0..30, bit 31 set for the "b" side.
+    uint64_t* entries = buf_a.get();
+    uint64_t* tmp = buf_b.get();
+    size_t count = 0;
+    for (uint32_t i = 0; i < n; ++i) {
+      uint32_t key = static_cast<uint32_t>((codes[i] >> shift) & mask);
+      for_each_within(key, w, a, [&](uint32_t v) { entries[count++] = (uint64_t{v} << 32) | i; });
+      if (a != b)
+        for_each_within(key, w, b, [&](uint32_t v) { entries[count++] = (uint64_t{v} << 32) | i | 0x80000000u; });
     }
-    std::sort(out.begin(), out.end());
-  }, 1);
-  std::vector<std::pair<uint32_t, uint32_t>> all;
-  size_t total = 0;
-  for (const auto& v : per_chunk) total += v.size();
-  all.reserve(total);
-  for (auto& v : per_chunk) all.insert(all.end(), v.begin(), v.end());  // chunks are in i order
-  return all;
+    radix_sort_by_key(entries, tmp, count, w);
+    // Codes in entry order, so the comparisons below read memory sequentially.
+    uint64_t* entry_codes = buf_codes.get();
+    for (size_t p = 0; p < count; ++p) entry_codes[p] = codes[entries[p] & 0x7fffffffu];
+    // Runs of one key: compare the pairs that may meet there, on several threads.
+    // Chunks of entries are cut at run boundaries.
+    const size_t per_chunk = 1 << 16;
+    std::vector<size_t> cuts{0};
+    for (size_t p = per_chunk; p < count; p += per_chunk) {
+      size_t q = std::max(p, cuts.back());
+      while (q < count && q > 0 && (entries[q] >> 32) == (entries[q - 1] >> 32)) ++q;
+      if (q > cuts.back() && q < count) cuts.push_back(q);
+    }
+    cuts.push_back(count);
+    std::vector<std::vector<std::pair<uint32_t, uint32_t>>> parts(cuts.size() - 1);
+    parallel_for(parts.size(), threads, [&](size_t c) {
+      auto& out = parts[c];
+      const size_t stop = cuts[c + 1];
+      for (size_t x = cuts[c]; x < stop; ++x) {
+        const uint64_t kx = entries[x] >> 32;
+        const uint32_t ix = static_cast<uint32_t>(entries[x] & 0x7fffffffu);
+        const bool bx = entries[x] & 0x80000000u;
+        const uint64_t cx = entry_codes[x];
+        for (size_t y = x + 1; y < stop && (entries[y] >> 32) == kx; ++y) {
+          if (hamming(cx, entry_codes[y]) > radius) continue;
+          const uint32_t iy = static_cast<uint32_t>(entries[y] & 0x7fffffffu);
+          const bool by = entries[y] & 0x80000000u;
+          if (a != b && bx == by) continue;  // asymmetric radii meet a-side with b-side only
+          if (ix == iy) continue;
+          out.emplace_back(std::min(ix, iy), std::max(ix, iy));
+        }
+      }
+    }, 1);
+    for (auto& p : parts) found.insert(found.end(), p.begin(), p.end());
+    shift += w;
+  }
+  std::sort(found.begin(), found.end());
+  found.erase(std::unique(found.begin(), found.end()), found.end());
+  return found;
 }
 
 std::vector<std::pair<uint32_t, uint32_t>> pairs_within_brute_force(const std::vector<uint64_t>& codes, int radius) {

@@ -42,14 +42,22 @@ def read_text(path):
         return f.read()
 
 
+_png_counter = [0]
+
+
 def tiny_png():
-    # A valid 1x1 gray PNG (ISO/IEC 15948), built with zlib and crc32 from Python's stdlib.
+    """A valid 8x8 gray PNG (ISO/IEC 15948) of seeded noise, built with Python's zlib;
+    every call gives a different picture, so no two test files are duplicates."""
+    import random
     import struct
     import zlib
+    _png_counter[0] += 1
+    rng = random.Random(_png_counter[0])
     def chunk(t, d):
         return struct.pack(">I", len(d)) + t + d + struct.pack(">I", zlib.crc32(t + d) & 0xFFFFFFFF)
-    ihdr = struct.pack(">IIBBBBB", 1, 1, 8, 0, 0, 0, 0)
-    return b"\x89PNG\r\n\x1a\n" + chunk(b"IHDR", ihdr) + chunk(b"IDAT", zlib.compress(b"\x00\x80")) + chunk(b"IEND", b"")
+    ihdr = struct.pack(">IIBBBBB", 8, 8, 8, 0, 0, 0, 0)
+    raw = b"".join(b"\x00" + bytes(rng.randrange(256) for _ in range(8)) for _ in range(8))
+    return b"\x89PNG\r\n\x1a\n" + chunk(b"IHDR", ihdr) + chunk(b"IDAT", zlib.compress(raw)) + chunk(b"IEND", b"")
 
 
 class ExitStatus(unittest.TestCase):
@@ -91,7 +99,7 @@ class ExitStatus(unittest.TestCase):
                     f.write(tiny_png())
             self.assertEqual(run("audit", root, "--out", os.path.join(t, "o"), "--quiet").returncode, 0)
             with open(os.path.join(root, "a", "broken.png"), "wb") as f:
-                f.write(tiny_png()[:30])
+                f.write(tiny_png()[:60])
             r = run("audit", root, "--out", os.path.join(t, "o"), "--quiet")
             self.assertEqual(r.returncode, 1)
             self.assertEqual(r.stdout, "")

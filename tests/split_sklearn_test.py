@@ -7,6 +7,7 @@ StratifiedShuffleSplit(train_size=0.70, test_size=0.15) on each class layout and
 compares train and test counts (val is the rest). Usage: split_sklearn_test.py TAMIS
 """
 import csv
+import json
 import os
 import struct
 import subprocess
@@ -20,10 +21,13 @@ from sklearn.model_selection import StratifiedShuffleSplit
 
 
 def png(v):
+    """An 8x8 gray PNG of noise seeded by v: distinct pictures, so no look-alike groups."""
+    import random
+    rng = random.Random(v)
     def chunk(t, d):
         return struct.pack(">I", len(d)) + t + d + struct.pack(">I", zlib.crc32(t + d) & 0xFFFFFFFF)
-    ihdr = struct.pack(">IIBBBBB", 2, 1, 8, 0, 0, 0, 0)
-    raw = b"\x00" + struct.pack(">H", v % 65536)
+    ihdr = struct.pack(">IIBBBBB", 8, 8, 8, 0, 0, 0, 0)
+    raw = b"".join(b"\x00" + bytes(rng.randrange(256) for _ in range(8)) for _ in range(8))
     return b"\x89PNG\r\n\x1a\n" + chunk(b"IHDR", ihdr) + chunk(b"IDAT", zlib.compress(raw)) + chunk(b"IEND", b"")
 
 
@@ -39,11 +43,13 @@ def main(tamis):
                 os.makedirs(os.path.join(root, f"class{c}"))
                 for i in range(n):
                     with open(os.path.join(root, f"class{c}", f"{i}.png"), "wb") as f:
-                        f.write(png(k))  # distinct bytes: no duplicate groups
+                        f.write(png(k))
                     k += 1
             out = os.path.join(t, "out")
             r = subprocess.run([tamis, "audit", root, "--out", out, "--split", spec, "--quiet"])
             assert r.returncode == 0, r.returncode
+            report = json.load(open(os.path.join(out, "report.json")))
+            assert report["groups"] == [], report["groups"]
             ours = Counter()
             with open(os.path.join(out, "manifest.csv"), newline="") as f:
                 for row in csv.DictReader(f):

@@ -12,6 +12,13 @@
 //
 // Build once, then query from any number of threads (queries are const).
 // Results are sorted, so they never depend on thread count.
+//
+// pairs_within() answers the all-pairs question (a self-join) without per-query
+// probing: within each table, every code is entered under its substring and every
+// substring within ceil(s/2) bits of it (s = floor(r/m)), the entries are radix-
+// sorted, and codes that meet under one key have substrings within s of each
+// other; only those are compared in full. Same pigeonhole argument, so the same
+// exact answer, with sequential instead of random memory access.
 #pragma once
 
 #include <cstddef>
@@ -37,8 +44,10 @@ class LookalikeIndex {
  private:
   struct Table {
     int shift = 0, bits = 0;
-    std::vector<uint32_t> offsets;  // 2^bits + 1 bucket starts into ids
+    std::vector<uint64_t> occupied;  // one bit per bucket: skips empty buckets cheaply
+    std::vector<uint32_t> offsets;   // 2^bits + 1 bucket starts into ids/codes
     std::vector<uint32_t> ids;
+    std::vector<uint64_t> codes;     // codes in bucket order, beside their ids
     uint32_t key(uint64_t code) const { return static_cast<uint32_t>((code >> shift) & ((uint64_t{1} << bits) - 1)); }
   };
   std::vector<uint64_t> codes_;
