@@ -74,29 +74,33 @@ Lookalike lookalike_features(const cv::Mat& reduced) {
   return f;
 }
 
-double thumb_correlation(const std::array<uint8_t, 1024>& a, int t, const std::array<uint8_t, 1024>& b) {
-  constexpr int kN = 1024;
-  std::array<uint8_t, kN> ta;
-  apply_dihedral(a.data(), ta.data(), 32, t);
-  double ma = 0, mb = 0;
-  for (int i = 0; i < kN; ++i) {
-    ma += ta[i];
-    mb += b[i];
+ThumbStats thumb_stats(const std::array<uint8_t, 1024>& t) {
+  ThumbStats s;
+  for (uint8_t v : t) {
+    s.sum += v;
+    s.sum_sq += uint64_t{v} * v;
   }
-  ma /= kN;
-  mb /= kN;
-  double sab = 0, saa = 0, sbb = 0;
-  for (int i = 0; i < kN; ++i) {
-    double x = ta[i] - ma, y = b[i] - mb;
-    sab += x * y;
-    saa += x * x;
-    sbb += y * y;
-  }
-  double sda = std::sqrt(saa / kN), sdb = std::sqrt(sbb / kN);
+  return s;
+}
+
+double thumb_correlation(const std::array<uint8_t, 1024>& ta, const ThumbStats& sa, const std::array<uint8_t, 1024>& b,
+                         const ThumbStats& sb) {
+  constexpr double kN = 1024;
+  uint32_t dot = 0;  // at most 1024 * 255 * 255 < 2^32
+  for (int i = 0; i < 1024; ++i) dot += uint32_t{ta[i]} * b[i];
+  const double ma = sa.sum / kN, mb = sb.sum / kN;
+  const double saa = double(sa.sum_sq) - kN * ma * ma, sbb = double(sb.sum_sq) - kN * mb * mb;
+  const double sda = std::sqrt(std::max(0.0, saa) / kN), sdb = std::sqrt(std::max(0.0, sbb) / kN);
   constexpr double kFlat = 2.0;
   if (sda < kFlat && sdb < kFlat) return std::abs(ma - mb) <= 4.0 ? 1.0 : 0.0;
   if (sda < kFlat || sdb < kFlat) return 0.0;
-  return sab / std::sqrt(saa * sbb);
+  return (double(dot) - kN * ma * mb) / std::sqrt(saa * sbb);
+}
+
+double thumb_correlation(const std::array<uint8_t, 1024>& a, int t, const std::array<uint8_t, 1024>& b) {
+  std::array<uint8_t, 1024> ta;
+  apply_dihedral(a.data(), ta.data(), 32, t);
+  return thumb_correlation(ta, thumb_stats(a), b, thumb_stats(b));
 }
 
 }  // namespace tamis

@@ -72,48 +72,46 @@ GroupResult find_groups(const std::vector<FileRecord>& records, const GroupSetti
       ++out.exact_pairs;
     }
 
-  // Look-alikes: candidates from the index, confirmed by the thumbnails.
-  std::vector<uint64_t> codes(n);
-  for (size_t k = 0; k < n; ++k) codes[k] = records[eligible[k]].features.look.phash[0];
+  // Look-alikes: candidates from an exact Hamming join of each flip/turn's codes
+  // with the identity codes, confirmed by the thumbnails' correlation.
+  std::vector<uint64_t> identity(n);
+  for (size_t k = 0; k < n; ++k) identity[k] = records[eligible[k]].features.look.phash[0];
   if (n > 1) {
-    LookalikeIndex index(codes, settings.radius);
-    const size_t chunk = 1024;
-    const size_t n_chunks = (n + chunk - 1) / chunk;
-    struct Found {
-      std::vector<std::pair<uint32_t, uint32_t>> confirmed;
-      uint64_t candidates = 0;
-    };
-    std::vector<Found> found(n_chunks);
-    parallel_for(n_chunks, settings.threads, [&](size_t c) {
-      std::vector<uint32_t> hits;
-      std::vector<uint32_t> seen;
-      for (size_t i = c * chunk; i < std::min(n, (c + 1) * chunk); ++i) {
-        const Lookalike& a = records[eligible[i]].features.look;
-        seen.clear();
-        for (int t = 0; t < kDihedralCount; ++t) {
-          hits.clear();
-          index.query(a.phash[t], settings.radius, hits);
-          for (uint32_t j : hits) {
-            if (j <= i) continue;
-            seen.push_back(j);
-            const Lookalike& b = records[eligible[j]].features.look;
-            if (thumb_correlation(a.thumb, t, b.thumb) >= settings.min_correlation)
-              found[c].confirmed.emplace_back(static_cast<uint32_t>(i), j);
-          }
-        }
-        std::sort(seen.begin(), seen.end());
-        found[c].candidates += static_cast<uint64_t>(std::unique(seen.begin(), seen.end()) - seen.begin());
+    std::vector<ThumbStats> stats(n);
+    for (size_t k = 0; k < n; ++k) stats[k] = thumb_stats(records[eligible[k]].features.look.thumb);
+    std::vector<std::pair<uint32_t, uint32_t>> confirmed;
+    // One join of all 8 variants (id = 8 * image + t) against the identity codes.
+    std::vector<uint64_t> variants(n * kDihedralCount);
+    for (size_t k = 0; k < n; ++k)
+      for (int t = 0; t < kDihedralCount; ++t) variants[k * kDihedralCount + t] = records[eligible[k]].features.look.phash[t];
+    auto hits = join_within(variants, identity, settings.radius, settings.threads);
+    // Hits are sorted by variant: turn each (image, t) thumbnail once, then compare its partners.
+    std::vector<size_t> starts;
+    for (size_t h = 0; h < hits.size(); ++h)
+      if (h == 0 || hits[h].first != hits[h - 1].first) starts.push_back(h);
+    starts.push_back(hits.size());
+    std::vector<std::vector<std::pair<uint32_t, uint32_t>>> found(starts.size() - 1);
+    std::vector<uint64_t> hit_counts(found.size(), 0);
+    parallel_for(found.size(), settings.threads, [&](size_t g) {
+      const uint32_t i = hits[starts[g]].first / kDihedralCount;
+      const int t = static_cast<int>(hits[starts[g]].first % kDihedralCount);
+      std::array<uint8_t, 1024> turned;
+      apply_dihedral(records[eligible[i]].features.look.thumb.data(), turned.data(), 32, t);
+      for (size_t h = starts[g]; h < starts[g + 1]; ++h) {
+        const uint32_t j = hits[h].second;
+        if (i == j) continue;
+        ++hit_counts[g];
+        if (thumb_correlation(turned, stats[i], records[eligible[j]].features.look.thumb, stats[j]) >=
+            settings.min_correlation)
+          found[g].emplace_back(std::min(i, j), std::max(i, j));
       }
-    }, 1);
-    std::vector<std::pair<uint32_t, uint32_t>> pairs;
-    for (auto& f : found) {
-      out.candidate_pairs += f.candidates;
-      pairs.insert(pairs.end(), f.confirmed.begin(), f.confirmed.end());
-    }
-    std::sort(pairs.begin(), pairs.end());
-    pairs.erase(std::unique(pairs.begin(), pairs.end()), pairs.end());
-    out.confirmed_pairs = pairs.size();
-    for (auto [a, b] : pairs) uf.unite(a, b);
+    }, 64);
+    for (uint64_t c : hit_counts) out.candidate_hits += c;
+    for (auto& f : found) confirmed.insert(confirmed.end(), f.begin(), f.end());
+    std::sort(confirmed.begin(), confirmed.end());
+    confirmed.erase(std::unique(confirmed.begin(), confirmed.end()), confirmed.end());
+    out.confirmed_pairs = confirmed.size();
+    for (auto [a, b] : confirmed) uf.unite(a, b);
   }
 
   // Components with two or more members, numbered by first member.

@@ -112,25 +112,27 @@ struct JoinPlan {
 
 // Picks the table count with the least estimated work (entries to sort plus
 // expected comparisons) among layouts whose substrings are at most 30 bits wide
-// and whose entries fit in memory.
-JoinPlan plan_join(size_t n, int radius) {
+// and whose entries fit in memory. `na`, `nb`: sizes of the two sides (equal
+// and `self` for a self-join).
+JoinPlan plan_join(size_t na, size_t nb, bool self, int radius) {
   JoinPlan best;
   double best_cost = -1;
   for (int m = 1; m <= 64; ++m) {
     if ((64 + m - 1) / m > 30) continue;  // keys must fit the entry's 32-bit key field
     int s = radius / m;
-    int a = (s + 1) / 2, b = s / 2;
+    int ra = (s + 1) / 2, rb = s / 2;
+    bool one_side = self && ra == rb;
     double cost = 0;
     bool fits = true;
     std::vector<int> widths;
     for (int k = 0; k < m; ++k) {
       int w = 64 / m + (k < 64 % m ? 1 : 0);
       widths.push_back(w);
-      double ea = double(n) * double(binomial_ball(w, a)), eb = double(n) * double(binomial_ball(w, b));
-      double entries = a == b ? ea : ea + eb;
+      double ea = double(na) * double(binomial_ball(w, ra)), eb = double(nb) * double(binomial_ball(w, rb));
+      double entries = one_side ? ea : ea + eb;
       if (entries > double(1u << 30)) fits = false;
       double buckets = std::ldexp(1.0, w);
-      double compares = a == b ? ea * ea / (2 * buckets) : ea * eb / buckets;
+      double compares = one_side ? ea * ea / (2 * buckets) : ea * eb / buckets;
       cost += 4.0 * entries + compares;
     }
     if (!fits) continue;
@@ -140,7 +142,7 @@ JoinPlan plan_join(size_t n, int radius) {
       best.bits = widths;
     }
   }
-  if (best_cost < 0) throw std::invalid_argument("pairs_within: no table layout fits in memory");
+  if (best_cost < 0) throw std::invalid_argument("Hamming join: no table layout fits in memory");
   return best;
 }
 
@@ -156,66 +158,130 @@ void radix_sort_by_key(uint64_t*& v, uint64_t*& tmp, size_t n, int bits) {
   }
 }
 
-}  // namespace
+// The lowest `k` set bits of x.
+inline uint64_t low_bits(uint64_t x, int k) {
+  uint64_t out = 0;
+  for (int i = 0; i < k && x; ++i) {
+    uint64_t bit = x & (~x + 1);
+    out |= bit;
+    x ^= bit;
+  }
+  return out;
+}
 
-std::vector<std::pair<uint32_t, uint32_t>> pairs_within(const std::vector<uint64_t>& codes, int radius,
+constexpr uint64_t kIdMask = 0x7fffffffu;
+constexpr uint64_t kSideB = 0x80000000u;
+
+// The join behind pairs_within and join_within. `b` == nullptr: self-join of `a`,
+// pairs (i, j) with i < j. Otherwise pairs (i in a, j in b). Sorted and unique.
+std::vector<std::pair<uint32_t, uint32_t>> hamming_join(const std::vector<uint64_t>& a,
+                                                        const std::vector<uint64_t>* b, int radius,
                                                         unsigned threads) {
-  if (radius < 0 || radius > 32) throw std::invalid_argument("pairs_within radius must be in [0, 32]");
-  if (codes.size() >= (size_t{1} << 31)) throw std::invalid_argument("pairs_within holds fewer than 2^31 codes");
-  const size_t n = codes.size();
-  JoinPlan plan = plan_join(n, radius);
+  if (radius < 0 || radius > 32) throw std::invalid_argument("Hamming join radius must be in [0, 32]");
+  const bool self = b == nullptr;
+  const std::vector<uint64_t>& bb = self ? a : *b;
+  if (a.size() > kIdMask || bb.size() > kIdMask) throw std::invalid_argument("Hamming join holds fewer than 2^31 codes a side");
+  JoinPlan plan = plan_join(a.size(), bb.size(), self, radius);
   const int s = radius / plan.m;
-  const int a = (s + 1) / 2, b = s / 2;
+  const int ra = (s + 1) / 2, rb = s / 2;
+  const bool one_side = self && ra == rb;
   std::vector<std::pair<uint32_t, uint32_t>> found;
   // One set of buffers for every table (no zero-filling: every slot is written first).
   size_t most = 0;
-  for (int w : plan.bits) most = std::max<size_t>(most, n * (binomial_ball(w, a) + (a != b ? binomial_ball(w, b) : 0)));
+  for (int w : plan.bits)
+    most = std::max<size_t>(most, a.size() * binomial_ball(w, ra) + (one_side ? 0 : bb.size() * binomial_ball(w, rb)));
   std::unique_ptr<uint64_t[]> buf_a(new uint64_t[most]), buf_b(new uint64_t[most]), buf_codes(new uint64_t[most]);
   int shift = 0;
   for (int k = 0; k < plan.m; ++k) {
     const int w = plan.bits[static_cast<size_t>(k)];
-    const uint64_t mask = w == 64 ? ~uint64_t{0} : (uint64_t{1} << w) - 1;
-    // Entry: key in the high 32 bits, id in bits 0..30, bit 31 set for the "b" side.
+    const uint64_t mask = (uint64_t{1} << w) - 1;
+    // Entry: key in the high 32 bits, id in bits 0..30, bit 31 set for side b.
     uint64_t* entries = buf_a.get();
     uint64_t* tmp = buf_b.get();
     size_t count = 0;
-    for (uint32_t i = 0; i < n; ++i) {
-      uint32_t key = static_cast<uint32_t>((codes[i] >> shift) & mask);
-      for_each_within(key, w, a, [&](uint32_t v) { entries[count++] = (uint64_t{v} << 32) | i; });
-      if (a != b)
-        for_each_within(key, w, b, [&](uint32_t v) { entries[count++] = (uint64_t{v} << 32) | i | 0x80000000u; });
+    for (uint32_t i = 0; i < a.size(); ++i) {
+      uint32_t key = static_cast<uint32_t>((a[i] >> shift) & mask);
+      for_each_within(key, w, ra, [&](uint32_t v) { entries[count++] = (uint64_t{v} << 32) | i; });
     }
+    if (!one_side)
+      for (uint32_t i = 0; i < bb.size(); ++i) {
+        uint32_t key = static_cast<uint32_t>((bb[i] >> shift) & mask);
+        for_each_within(key, w, rb, [&](uint32_t v) { entries[count++] = (uint64_t{v} << 32) | i | kSideB; });
+      }
     radix_sort_by_key(entries, tmp, count, w);
     // Codes in entry order, so the comparisons below read memory sequentially.
     uint64_t* entry_codes = buf_codes.get();
-    for (size_t p = 0; p < count; ++p) entry_codes[p] = codes[entries[p] & 0x7fffffffu];
-    // Runs of one key: compare the pairs that may meet there, on several threads.
-    // Chunks of entries are cut at run boundaries.
+    for (size_t p = 0; p < count; ++p) entry_codes[p] = (entries[p] & kSideB ? bb : a)[entries[p] & kIdMask];
+    // Runs of one key hold the codes that may be within the radius; chunks for the
+    // threads are cut at run boundaries.
     const size_t per_chunk = 1 << 16;
     std::vector<size_t> cuts{0};
     for (size_t p = per_chunk; p < count; p += per_chunk) {
       size_t q = std::max(p, cuts.back());
-      while (q < count && q > 0 && (entries[q] >> 32) == (entries[q - 1] >> 32)) ++q;
+      while (q < count && (entries[q] >> 32) == (entries[q - 1] >> 32)) ++q;
       if (q > cuts.back() && q < count) cuts.push_back(q);
     }
     cuts.push_back(count);
     std::vector<std::vector<std::pair<uint32_t, uint32_t>>> parts(cuts.size() - 1);
+    // Each pair is reported once: only from the first table where its substrings
+    // are within s, and there only in its canonical bucket: the a-side key with
+    // the lowest min(d, ra) differing bits flipped (the rest flipped on side b).
+    int table_shift[64];
+    {
+      int sh = 0;
+      for (int e = 0; e < plan.m; ++e) {
+        table_shift[e] = sh;
+        sh += plan.bits[static_cast<size_t>(e)];
+      }
+    }
+    auto first_meeting = [&](uint64_t code_a, uint64_t code_b, uint64_t key) {
+      for (int e = 0; e < k; ++e) {
+        const uint64_t me = (uint64_t{1} << plan.bits[static_cast<size_t>(e)]) - 1;
+        if (__builtin_popcountll(((code_a ^ code_b) >> table_shift[e]) & me) <= s) return false;
+      }
+      const uint64_t d = ((code_a ^ code_b) >> shift) & mask;
+      return ((((code_a >> shift) & mask) ^ low_bits(d, ra)) == key);
+    };
     parallel_for(parts.size(), threads, [&](size_t c) {
       auto& out = parts[c];
-      const size_t stop = cuts[c + 1];
-      for (size_t x = cuts[c]; x < stop; ++x) {
-        const uint64_t kx = entries[x] >> 32;
-        const uint32_t ix = static_cast<uint32_t>(entries[x] & 0x7fffffffu);
-        const bool bx = entries[x] & 0x80000000u;
-        const uint64_t cx = entry_codes[x];
-        for (size_t y = x + 1; y < stop && (entries[y] >> 32) == kx; ++y) {
-          if (hamming(cx, entry_codes[y]) > radius) continue;
-          const uint32_t iy = static_cast<uint32_t>(entries[y] & 0x7fffffffu);
-          const bool by = entries[y] & 0x80000000u;
-          if (a != b && bx == by) continue;  // asymmetric radii meet a-side with b-side only
-          if (ix == iy) continue;
-          out.emplace_back(std::min(ix, iy), std::max(ix, iy));
+      for (size_t begin = cuts[c], stop = cuts[c + 1]; begin < stop;) {
+        const uint64_t key = entries[begin] >> 32;
+        size_t end = begin;
+        while (end < stop && (entries[end] >> 32) == key) ++end;
+        if (one_side) {
+          for (size_t x = begin; x < end; ++x) {
+            const uint64_t cx = entry_codes[x];
+            const uint32_t ix = static_cast<uint32_t>(entries[x] & kIdMask);
+            for (size_t y = x + 1; y < end; ++y) {
+              if (hamming(cx, entry_codes[y]) > radius) continue;
+              const uint32_t iy = static_cast<uint32_t>(entries[y] & kIdMask);
+              if (ix == iy) continue;
+              // side a of a self-join pair is its smaller id
+              const bool x_first = ix < iy;
+              if (!first_meeting(x_first ? cx : entry_codes[y], x_first ? entry_codes[y] : cx, key)) continue;
+              out.emplace_back(std::min(ix, iy), std::max(ix, iy));
+            }
+          }
+        } else {
+          // The sort is stable and side a was entered first: a run is [a..., b...].
+          size_t mid = begin;
+          while (mid < end && !(entries[mid] & kSideB)) ++mid;
+          for (size_t x = begin; x < mid; ++x) {
+            const uint64_t cx = entry_codes[x];
+            const uint32_t ia = static_cast<uint32_t>(entries[x] & kIdMask);
+            for (size_t y = mid; y < end; ++y) {
+              if (hamming(cx, entry_codes[y]) > radius) continue;
+              const uint32_t ib = static_cast<uint32_t>(entries[y] & kIdMask);
+              if (!first_meeting(cx, entry_codes[y], key)) continue;
+              if (!self) {
+                out.emplace_back(ia, ib);
+              } else if (ia != ib) {
+                out.emplace_back(std::min(ia, ib), std::max(ia, ib));
+              }
+            }
+          }
         }
+        begin = end;
       }
     }, 1);
     for (auto& p : parts) found.insert(found.end(), p.begin(), p.end());
@@ -224,6 +290,18 @@ std::vector<std::pair<uint32_t, uint32_t>> pairs_within(const std::vector<uint64
   std::sort(found.begin(), found.end());
   found.erase(std::unique(found.begin(), found.end()), found.end());
   return found;
+}
+
+}  // namespace
+
+std::vector<std::pair<uint32_t, uint32_t>> pairs_within(const std::vector<uint64_t>& codes, int radius,
+                                                        unsigned threads) {
+  return hamming_join(codes, nullptr, radius, threads);
+}
+
+std::vector<std::pair<uint32_t, uint32_t>> join_within(const std::vector<uint64_t>& a, const std::vector<uint64_t>& b,
+                                                       int radius, unsigned threads) {
+  return hamming_join(a, &b, radius, threads);
 }
 
 std::vector<std::pair<uint32_t, uint32_t>> pairs_within_brute_force(const std::vector<uint64_t>& codes, int radius) {

@@ -82,7 +82,7 @@ json build_report(const AuditResult& r, const AuditSettings& s) {
   }
   j["groups"] = std::move(groups);
   j["lookalike_search"] = {{"exact_pairs", r.groups.exact_pairs},
-                           {"candidate_pairs", r.groups.candidate_pairs},
+                           {"candidate_hits", r.groups.candidate_hits},
                            {"confirmed_pairs", r.groups.confirmed_pairs}};
 
   json findings = json::array();

@@ -107,7 +107,7 @@ TEST_CASE("Fashion-MNIST: no exact groups, few look-alike groups", "[lookalike][
   CHECK(exact == 0);
   CHECK(r.groups.exact_pairs == 0);
   WARN("Fashion-MNIST: " << in_groups << " images in " << r.groups.groups.size() << " look-alike groups, largest "
-                         << largest << ", candidate pairs " << r.groups.candidate_pairs);
+                         << largest << ", candidate hits " << r.groups.candidate_hits);
   CHECK(in_groups <= 700);  // at most 1% of the images (measured: docs/lookalikes.md)
   CHECK(largest <= 20);
 }

@@ -42,4 +42,13 @@ void apply_dihedral(const uint8_t* src, uint8_t* dst, int n, int t);
 // their means are within 4 levels, else 0; one uniform and one not: 0.
 double thumb_correlation(const std::array<uint8_t, 1024>& a, int t, const std::array<uint8_t, 1024>& b);
 
+// The same, in two steps for many comparisons: a thumbnail's sums (unchanged by
+// any flip/turn), then the correlation of an already transformed `a` with `b`.
+struct ThumbStats {
+  uint64_t sum = 0, sum_sq = 0;
+};
+ThumbStats thumb_stats(const std::array<uint8_t, 1024>& t);
+double thumb_correlation(const std::array<uint8_t, 1024>& turned_a, const ThumbStats& sa,
+                         const std::array<uint8_t, 1024>& b, const ThumbStats& sb);
+
 }  // namespace tamis

@@ -42,7 +42,7 @@ struct GroupResult {
   std::vector<Group> groups;        // ordered by first member
   std::vector<int64_t> group_of;    // per record: index into groups, or -1
   uint64_t exact_pairs = 0;         // pairs of byte-identical files (within runs)
-  uint64_t candidate_pairs = 0;     // index hits (distinct pairs i < j)
+  uint64_t candidate_hits = 0;      // (image, flip/turn, image) triples within the radius
   uint64_t confirmed_pairs = 0;     // hits confirmed by the thumbnail correlation
 };
 

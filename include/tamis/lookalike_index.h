@@ -13,7 +13,7 @@
 // Build once, then query from any number of threads (queries are const).
 // Results are sorted, so they never depend on thread count.
 //
-// pairs_within() answers the all-pairs question (a self-join) without per-query
+// pairs_within() and join_within() answer all-pairs questions without per-query
 // probing: within each table, every code is entered under its substring and every
 // substring within ceil(s/2) bits of it (s = floor(r/m)), the entries are radix-
 // sorted, and codes that meet under one key have substrings within s of each
@@ -59,6 +59,11 @@ class LookalikeIndex {
 // Uses LookalikeIndex; `threads` = 0 means all cores.
 std::vector<std::pair<uint32_t, uint32_t>> pairs_within(const std::vector<uint64_t>& codes, int radius,
                                                         unsigned threads = 0);
+
+// Every (i, j), i indexing `a` and j indexing `b`, with hamming(a[i], b[j]) <=
+// radius, sorted. The same sorted self-join technique, across two sets.
+std::vector<std::pair<uint32_t, uint32_t>> join_within(const std::vector<uint64_t>& a, const std::vector<uint64_t>& b,
+                                                       int radius, unsigned threads = 0);
 
 // The same by comparing every pair: the reference the index is tested against.
 std::vector<std::pair<uint32_t, uint32_t>> pairs_within_brute_force(const std::vector<uint64_t>& codes, int radius);
