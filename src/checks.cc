@@ -1,5 +1,6 @@
 #include "tamis/checks.h"
 
+#include <array>
 #include <map>
 #include <set>
 #include <string>
@@ -136,6 +137,51 @@ void check_groups(const std::vector<FileRecord>& records, const Labelling& label
       f.details = base;
       f.details["diameter_exact"] = g.diameter_exact;
       f.paths = paths;
+      out.push_back(std::move(f));
+    }
+  }
+}
+
+void check_split(const std::vector<FileRecord>& records, const Labelling& labels, const SplitOutcome& split,
+                 const SplitSettings& settings, bool kept_folders, std::vector<Finding>& out) {
+  const size_t nc = labels.names.size();
+  std::vector<std::array<uint64_t, 3>> counts(nc);
+  std::vector<uint64_t> capped(nc, 0), total(nc, 0);
+  std::array<bool, 3> split_used{};
+  for (size_t i = 0; i < records.size(); ++i) {
+    int32_t l = labels.label_of[i];
+    if (l < 0 || records[i].kind != FileKind::image) continue;
+    ++total[static_cast<size_t>(l)];
+    if (split.why[i] == Exclusion::capped) ++capped[static_cast<size_t>(l)];
+    if (split.placement[i] != Placement::excluded) {
+      ++counts[static_cast<size_t>(l)][static_cast<size_t>(split.placement[i])];
+      split_used[static_cast<size_t>(split.placement[i])] = true;
+    }
+  }
+  for (size_t c = 0; c < nc; ++c) {
+    if (capped[c] > 0) {
+      Finding f;
+      f.code = "class-capped";
+      f.severity = Severity::info;
+      f.message = "class " + labels.names[c] + ": " + std::to_string(capped[c]) + " of " + std::to_string(total[c]) +
+                  " images left out by the per-class cap of " + std::to_string(settings.per_class);
+      f.details = {{"label", labels.names[c]}, {"capped", capped[c]}, {"count", total[c]}, {"cap", settings.per_class}};
+      out.push_back(std::move(f));
+    }
+    std::vector<std::string> missing;
+    for (int s = 0; s < 3; ++s) {
+      bool expected = kept_folders ? split_used[s] : settings.percent[s] > 0;
+      if (expected && counts[c][s] == 0 && total[c] > capped[c]) missing.emplace_back(to_string(static_cast<Placement>(s)));
+    }
+    if (!missing.empty()) {
+      Finding f;
+      f.code = "split-without-class";
+      f.severity = Severity::warning;
+      std::string list;
+      for (const auto& m : missing) list += (list.empty() ? "" : ", ") + m;
+      f.message = "class " + labels.names[c] + " has no image in " + list + " (" + std::to_string(total[c]) +
+                  " images in all): it cannot be measured there";
+      f.details = {{"label", labels.names[c]}, {"missing", missing}, {"count", total[c]}};
       out.push_back(std::move(f));
     }
   }

@@ -2,6 +2,8 @@
 
 #include <algorithm>
 #include <cstdio>
+#include <istream>
+#include <stdexcept>
 #include <set>
 #include <string_view>
 #include <unordered_map>
@@ -45,7 +47,7 @@ std::vector<std::string> flags_per_record(const AuditResult& result) {
 void write_manifest(std::ostream& os, const AuditResult& r) {
   static const char* kHeader[] = {"path", "label", "split", "group", "width", "height", "mode", "bit_depth",
                                   "format", "mask_path", "flags", "reason", "bytes", "orientation", "frames",
-                                  "content_hash"};
+                                  "content_hash", "fold"};
   std::string line;
   for (size_t c = 0; c < std::size(kHeader); ++c) {
     if (c) line.push_back(',');
@@ -66,7 +68,7 @@ void write_manifest(std::ostream& os, const AuditResult& r) {
     bool probed = rec.probe.format != Format::unknown;
     field(rec.path);
     field(r.labels.label_of[i] >= 0 ? std::string_view(r.labels.names[r.labels.label_of[i]]) : "");
-    field(to_string(r.placement[i]));
+    field(to_string(r.split.placement[i]));
     field(r.groups.group_of[i] >= 0 ? group_id(r.groups.group_of[i]) : "");
     field(probed ? std::to_string(rec.probe.width) : "");
     field(probed ? std::to_string(rec.probe.height) : "");
@@ -85,9 +87,81 @@ void write_manifest(std::ostream& os, const AuditResult& r) {
                     static_cast<unsigned long long>(rec.features.content_hash[1]));
       line.append(hex);
     }
+    line.push_back(',');
+    if (r.split.fold[i] >= 0) line.append(std::to_string(r.split.fold[i]));
     line.append("\r\n");
     os << line;
   }
+}
+
+KeepMap read_manifest_splits(std::istream& is) {
+  // RFC 4180 records: fields split on commas, quoted fields may hold commas,
+  // quotes (doubled) and line breaks; records end at CRLF or LF outside quotes.
+  std::vector<std::vector<std::string>> rows;
+  std::vector<std::string> row;
+  std::string field;
+  bool quoted = false, at_start = true, any = false;
+  size_t line = 1;
+  char c;
+  auto end_field = [&] {
+    row.push_back(std::move(field));
+    field.clear();
+    at_start = true;
+  };
+  while (is.get(c)) {
+    any = true;
+    if (quoted) {
+      if (c == '"') {
+        if (is.peek() == '"') {
+          is.get(c);
+          field.push_back('"');
+        } else {
+          quoted = false;
+        }
+      } else {
+        if (c == '\n') ++line;
+        field.push_back(c);
+      }
+      continue;
+    }
+    if (c == '"' && at_start) {
+      quoted = true;
+      at_start = false;
+    } else if (c == ',') {
+      end_field();
+    } else if (c == '\r' && is.peek() == '\n') {
+      continue;
+    } else if (c == '\n') {
+      end_field();
+      rows.push_back(std::move(row));
+      row.clear();
+      ++line;
+    } else {
+      field.push_back(c);
+      at_start = false;
+    }
+  }
+  if (quoted) throw std::runtime_error("manifest: unterminated quoted field at line " + std::to_string(line));
+  if (any && (!field.empty() || !row.empty())) {
+    end_field();
+    rows.push_back(std::move(row));
+  }
+  if (rows.empty()) throw std::runtime_error("manifest: the file is empty");
+  const auto& header = rows.front();
+  auto col = [&](const char* name) {
+    auto it = std::find(header.begin(), header.end(), name);
+    if (it == header.end()) throw std::runtime_error(std::string("manifest: no '") + name + "' column in the header");
+    return static_cast<size_t>(it - header.begin());
+  };
+  const size_t path_col = col("path"), split_col = col("split");
+  KeepMap out;
+  for (size_t k = 1; k < rows.size(); ++k) {
+    const auto& r = rows[k];
+    if (r.size() <= std::max(path_col, split_col)) continue;
+    Placement p = placement_from_string(r[split_col]);
+    if (p != Placement::excluded) out[r[path_col]] = p;
+  }
+  return out;
 }
 
 }  // namespace tamis

@@ -15,6 +15,10 @@ json settings_json(const AuditSettings& s) {
   return json{
       {"seed", s.split.seed},
       {"split", {{"train", p[0]}, {"val", p[1]}, {"test", p[2]}}},
+      {"split_method", s.split.method == SplitMethod::stable ? "stable" : "shuffle"},
+      {"per_class", s.split.per_class},
+      {"folds", s.split.folds},
+      {"resplit", s.split.resplit},
       {"max_pixels", s.read.decode.max_pixels},
       {"max_bytes", s.read.max_bytes},
       {"reduced_side", s.read.decode.reduced_side},
@@ -23,7 +27,8 @@ json settings_json(const AuditSettings& s) {
   };
 }
 
-json build_report(const AuditResult& r, const AuditSettings& s) {
+json build_report(const AuditResult& r) {
+  const AuditSettings& s = r.settings;
   json j;
   j["schema_version"] = kReportSchemaVersion;
   j["tool"] = {{"name", kToolName}, {"version", kToolVersion}};
@@ -31,11 +36,13 @@ json build_report(const AuditResult& r, const AuditSettings& s) {
   j["totals"] = {{"files_seen", r.totals.files_seen}, {"images", r.totals.images}, {"masks", r.totals.masks},
                  {"unreadable", r.totals.unreadable}, {"ignored", r.totals.ignored}};
   j["layout"] = {{"pre_split", r.labels.pre_split}};
+  j["split"] = {{"kept_from_folders", r.labels.pre_split && !s.split.resplit}, {"kept_from_manifest", r.split.kept}};
 
   struct ClassCount {
     uint64_t count = 0;
     std::array<uint64_t, 3> split{};
     uint64_t excluded = 0;
+    std::vector<uint64_t> folds;
   };
   std::vector<ClassCount> counts(r.labels.names.size());
   std::map<std::string, uint64_t> formats, modes;
@@ -48,18 +55,34 @@ json build_report(const AuditResult& r, const AuditSettings& s) {
     if (l < 0) continue;
     auto& c = counts[static_cast<size_t>(l)];
     ++c.count;
-    if (r.placement[i] == Placement::excluded) {
+    if (r.split.placement[i] == Placement::excluded) {
       ++c.excluded;
     } else {
-      ++c.split[static_cast<size_t>(r.placement[i])];
+      ++c.split[static_cast<size_t>(r.split.placement[i])];
+    }
+    if (r.split.fold[i] >= 0) {
+      if (c.folds.size() < s.split.folds) c.folds.resize(s.split.folds, 0);
+      ++c.folds[static_cast<size_t>(r.split.fold[i])];
     }
   }
   json classes = json::array();
   for (size_t k = 0; k < counts.size(); ++k) {
-    classes.push_back({{"label", r.labels.names[k]},
-                       {"count", counts[k].count},
-                       {"splits", {{"train", counts[k].split[0]}, {"val", counts[k].split[1]}, {"test", counts[k].split[2]}}},
-                       {"excluded", counts[k].excluded}});
+    const auto& c = counts[k];
+    uint64_t placed = c.split[0] + c.split[1] + c.split[2];
+    auto share = [&](int sp) { return placed ? double(c.split[sp]) / double(placed) : 0.0; };
+    auto target = largest_remainder(placed, s.split.percent);
+    json entry = {{"label", r.labels.names[k]},
+                  {"count", c.count},
+                  {"splits", {{"train", c.split[0]}, {"val", c.split[1]}, {"test", c.split[2]}}},
+                  {"excluded", c.excluded},
+                  {"shares", {{"train", share(0)}, {"val", share(1)}, {"test", share(2)}}},
+                  {"target", {{"train", target[0]}, {"val", target[1]}, {"test", target[2]}}}};
+    if (s.split.folds >= 2) {
+      std::vector<uint64_t> folds = c.folds;
+      folds.resize(s.split.folds, 0);
+      entry["folds"] = folds;
+    }
+    classes.push_back(std::move(entry));
   }
   j["classes"] = std::move(classes);
   j["formats"] = formats;

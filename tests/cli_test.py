@@ -62,7 +62,7 @@ def tiny_png():
 
 class ExitStatus(unittest.TestCase):
     def test_help_and_version_exit_0(self):
-        for args in (["--help"], ["--version"], ["audit", "--help"], ["demo", "--help"]):
+        for args in (["--help"], ["--version"], ["audit", "--help"], ["demo", "--help"], ["split", "--help"]):
             self.assertEqual(run(*args).returncode, 0, args)
 
     def test_bad_command_lines_exit_2(self):
@@ -158,6 +158,49 @@ class Outputs(unittest.TestCase):
             self.assertNotIn("<script>", html)
             self.assertNotIn("<img src=x", html)
             self.assertEqual([n for n in os.listdir(out) if ".tmp" in n], [])
+
+    def test_split_reproduces_the_audit_and_keeps_a_python_written_manifest(self):
+        with tempfile.TemporaryDirectory() as t:
+            root = os.path.join(t, "data")
+            for i, name in enumerate(self.NAMES * 3):
+                label = ["plain", "class, with comma"][i % 2]
+                os.makedirs(os.path.join(root, label), exist_ok=True)
+                with open(os.path.join(root, label, f"{i}-{name}"), "wb") as f:
+                    f.write(tiny_png())
+            a, b = os.path.join(t, "a"), os.path.join(t, "b")
+            self.assertEqual(run("audit", root, "--out", a, "--seed", "4", "--quiet").returncode, 0)
+            self.assertEqual(run("split", a, "--out", b, "--seed", "4", "--quiet").returncode, 0)
+            for name in ("manifest.csv", "report.json"):
+                with open(os.path.join(a, name), "rb") as fa, open(os.path.join(b, name), "rb") as fb:
+                    self.assertEqual(fa.read(), fb.read(), name)
+            # A manifest written by Python's csv module (every field quoted, LF line ends)
+            # with made-up splits: --keep must hand every one of them back.
+            with open(os.path.join(a, "manifest.csv"), newline="", encoding="utf-8") as f:
+                rows = list(csv.DictReader(f))
+            wanted = {row["path"]: ["train", "val", "test"][k % 3] for k, row in enumerate(rows)}
+            keep = os.path.join(t, "keep.csv")
+            with open(keep, "w", newline="", encoding="utf-8") as f:
+                w = csv.writer(f, quoting=csv.QUOTE_ALL, lineterminator="\n")
+                w.writerow(["split", "path"])
+                for path, split in wanted.items():
+                    w.writerow([split, path])
+            c = os.path.join(t, "c")
+            r = run("split", a, "--out", c, "--keep", keep, "--seed", "77", "--quiet")
+            self.assertEqual(r.returncode, 0, r.stderr)
+            with open(os.path.join(c, "manifest.csv"), newline="", encoding="utf-8") as f:
+                got = {row["path"]: row["split"] for row in csv.DictReader(f)}
+            self.assertEqual(got, wanted)
+            validate_report(self, os.path.join(c, "report.json"))
+
+    def test_split_command_exit_statuses(self):
+        with tempfile.TemporaryDirectory() as t:
+            self.assertEqual(run("split", t, "--out", os.path.join(t, "o")).returncode, 3)  # no index
+            with open(os.path.join(t, "index.cbor"), "wb") as f:
+                f.write(b"\xa1garbage")
+            self.assertEqual(run("split", t, "--out", os.path.join(t, "o")).returncode, 3)
+            self.assertEqual(run("split", t, "--out", os.path.join(t, "o"), "--keep", os.path.join(t, "nope.csv")).returncode, 2)
+            self.assertEqual(run("split", t, "--out", os.path.join(t, "o"), "--folds", "1").returncode, 2)
+            self.assertEqual(run("split", "--help").returncode, 0)
 
     def test_schema_rejects_a_report_that_breaks_it(self):
         import jsonschema

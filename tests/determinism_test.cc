@@ -23,7 +23,7 @@ std::string manifest_of(const std::filesystem::path& root, unsigned threads, uin
   AuditResult r = run_audit(s);
   std::ostringstream os;
   write_manifest(os, r);
-  return os.str() + dump_json(build_report(r, s));
+  return os.str() + dump_json(build_report(r));
 }
 }  // namespace
 

@@ -32,8 +32,8 @@ TEST_CASE("Fashion-MNIST tree: 10 classes of 7,000, all 28x28 gray 8-bit PNG", "
   // Largest remainder at 70/15/15 on 7,000: exactly 4900/1050/1050 in every class.
   std::vector<std::array<size_t, 3>> counts(10);
   for (size_t i = 0; i < r.records.size(); ++i) {
-    REQUIRE(r.placement[i] != Placement::excluded);
-    ++counts[static_cast<size_t>(r.labels.label_of[i])][static_cast<size_t>(r.placement[i])];
+    REQUIRE(r.split.placement[i] != Placement::excluded);
+    ++counts[static_cast<size_t>(r.labels.label_of[i])][static_cast<size_t>(r.split.placement[i])];
   }
   for (const auto& c : counts) CHECK(c == std::array<size_t, 3>{4900, 1050, 1050});
 }

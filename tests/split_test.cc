@@ -85,15 +85,19 @@ TEST_CASE("no group spans two splits; class shares stay near target (property te
     }
     SplitSettings s;
     s.seed = rng.next();
-    auto placed = assign_splits(items, names, s);
-    std::map<int64_t, std::set<Placement>> seen;
+    s.folds = trial % 2 ? 4 : 0;
+    s.method = trial % 3 == 0 ? SplitMethod::stable : SplitMethod::shuffle;
+    auto outcome = assign_splits(items, names, s);
+    const auto& placed = outcome.placement;
+    std::map<int64_t, std::set<std::pair<Placement, int32_t>>> seen;
     for (size_t i = 0; i < n; ++i) {
       if (!items[i].eligible) CHECK(placed[i] == Placement::excluded);
       else CHECK(placed[i] != Placement::excluded);
-      if (items[i].group >= 0 && items[i].eligible) seen[items[i].group].insert(placed[i]);
+      if (s.folds && placed[i] != Placement::excluded && placed[i] != Placement::test) CHECK(outcome.fold[i] >= 0);
+      if (items[i].group >= 0 && items[i].eligible) seen[items[i].group].insert({placed[i], outcome.fold[i]});
     }
-    for (const auto& [g, splits] : seen) CHECK(splits.size() == 1);
-    CHECK(assign_splits(items, names, s) == placed);  // deterministic
+    for (const auto& [g, splits] : seen) CHECK(splits.size() == 1);  // neither split nor fold divides a group
+    CHECK(assign_splits(items, names, s).placement == placed);  // deterministic
   }
 }
 
@@ -101,11 +105,11 @@ TEST_CASE("without groups, every class meets its largest-remainder target exactl
   std::vector<std::string> names{"a", "b", "c"};
   std::vector<SplitItem> items;
   for (int c = 0; c < 3; ++c)
-    for (int i = 0; i < 101 + c * 37; ++i) items.push_back({c, -1, true});
+    for (int i = 0; i < 101 + c * 37; ++i) items.push_back({c, -1, true, {}, Placement::excluded});
   for (uint64_t seed : {1ULL, 2ULL, 99ULL}) {
     SplitSettings s;
     s.seed = seed;
-    auto placed = assign_splits(items, names, s);
+    auto placed = assign_splits(items, names, s).placement;
     std::array<std::array<uint64_t, 3>, 3> got{};
     for (size_t i = 0; i < items.size(); ++i) ++got[items[i].label][static_cast<size_t>(placed[i])];
     for (int c = 0; c < 3; ++c) CHECK(got[c] == largest_remainder(101 + c * 37, s.percent));

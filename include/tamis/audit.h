@@ -12,6 +12,7 @@
 #include <filesystem>
 #include <functional>
 #include <string>
+#include <unordered_map>
 #include <vector>
 
 #include "tamis/findings.h"
@@ -35,17 +36,37 @@ struct Totals {
   uint64_t files_seen = 0, images = 0, masks = 0, unreadable = 0, ignored = 0;
 };
 
-struct AuditResult {
+// Everything an audit knows before the split: what `tamis split` reloads from the
+// index an audit saves (index_file.h), so a re-split never reads an image.
+struct AuditIndex {
+  AuditSettings settings;           // root, read and group settings of the reading run
   WalkResult walk;                  // walk.files is released once read; links and dirs kept
   std::vector<FileRecord> records;  // sorted by path, one per regular file
   Labelling labels;
   GroupResult groups;               // groups.group_of: per record, index into groups.groups or -1
-  std::vector<Placement> placement; // per record: split (excluded for non-rows)
-  std::vector<Finding> findings;    // sorted (sort_findings)
+  std::vector<Finding> findings;    // the reading stages' and checks' findings
   Totals totals;
 };
 
-// Runs every stage. Throws std::runtime_error when ROOT cannot be read.
+// An index placed: the split, and the findings about it added to the index's.
+struct AuditResult : AuditIndex {
+  SplitOutcome split;               // per record (excluded for non-rows)
+  std::vector<Finding> index_findings;  // the index's own findings (findings = these + the split's)
+};
+
+// Earlier placements to keep (path -> split), e.g. read from a previous manifest.
+using KeepMap = std::unordered_map<std::string, Placement>;
+
+// walk -> read -> labels -> groups -> checks. Throws std::runtime_error when ROOT
+// cannot be read.
+AuditIndex read_tree(const AuditSettings& settings);
+
+// The split stage and its findings, with `split` replacing the index's split
+// settings. A pre-split tree keeps its folders' splits unless split.resplit;
+// `keep` (optional) gives earlier placements to keep. Findings end up sorted.
+AuditResult place(AuditIndex index, const SplitSettings& split, const KeepMap* keep = nullptr);
+
+// read_tree then place with the settings' split.
 AuditResult run_audit(const AuditSettings& settings);
 
 // Manifest rows are the records that are images or unreadable image files.

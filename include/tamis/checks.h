@@ -10,6 +10,7 @@
 #include "tamis/findings.h"
 #include "tamis/groups.h"
 #include "tamis/labels.h"
+#include "tamis/split.h"
 #include "tamis/record.h"
 #include "tamis/walk.h"
 
@@ -28,5 +29,11 @@ void check_inventory(const std::vector<FileRecord>& records, const Labelling& la
 // `lookalike-chain` (warning) for a group whose diameter exceeds 2 * radius.
 void check_groups(const std::vector<FileRecord>& records, const Labelling& labels, const GroupResult& groups,
                   const GroupSettings& settings, std::vector<Finding>& out);
+
+// Findings about the split: `class-capped` (info) for classes cut by --per-class,
+// `split-without-class` (warning) for a class with no image in a split whose share
+// is above 0 (or, in a pre-split tree, in a split folder the tree has).
+void check_split(const std::vector<FileRecord>& records, const Labelling& labels, const SplitOutcome& split,
+                 const SplitSettings& settings, bool kept_folders, std::vector<Finding>& out);
 
 }  // namespace tamis

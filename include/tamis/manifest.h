@@ -4,7 +4,7 @@
 // quoted, inner quotes doubled), CRLF line ends as RFC 4180 prescribes, and a
 // header row. Columns, in order: path, label, split, group, width, height, mode,
 // bit_depth, format, mask_path, flags, then reason, bytes, orientation, frames,
-// content_hash (docs/outputs.md). Rendering only: computes nothing.
+// content_hash, fold (docs/outputs.md). Rendering only: computes nothing.
 #pragma once
 
 #include <ostream>
@@ -23,5 +23,11 @@ void append_csv_field(std::string& out, std::string_view field);
 std::vector<std::string> flags_per_record(const AuditResult& result);
 
 void write_manifest(std::ostream& os, const AuditResult& result);
+
+// Reads the path and split columns of a manifest (RFC 4180, any column order,
+// header row required) into a map, for --keep. Rows whose split is not train,
+// val or test are skipped. Throws std::runtime_error naming the line when the
+// file is not a manifest (no path or split column, an unterminated quote).
+KeepMap read_manifest_splits(std::istream& is);
 
 }  // namespace tamis

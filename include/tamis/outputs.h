@@ -1,5 +1,6 @@
-// The reports stage: writes manifest.csv, report.json and report.html into the
-// output folder, each atomically (temporary name, then rename).
+// The reports stage: writes manifest.csv, report.json, report.html and the saved
+// index (index.cbor, for `tamis split`) into the output folder, each atomically
+// (temporary name, then rename).
 //
 // REQUIRES: `out_dir` is not inside the audited ROOT (the CLI refuses that
 // before anything is read). Creates `out_dir` when missing. Throws
@@ -12,6 +13,6 @@
 
 namespace tamis {
 
-void write_outputs(const std::filesystem::path& out_dir, const AuditResult& result, const AuditSettings& settings);
+void write_outputs(const std::filesystem::path& out_dir, const AuditResult& result);
 
 }  // namespace tamis

@@ -18,7 +18,7 @@ inline constexpr int kReportSchemaVersion = 1;
 // The settings as they are recorded in report.json (and compared on re-split).
 nlohmann::json settings_json(const AuditSettings& settings);
 
-nlohmann::json build_report(const AuditResult& result, const AuditSettings& settings);
+nlohmann::json build_report(const AuditResult& result);
 
 // Serialises with 2-space indent; invalid UTF-8 replaced, never thrown on.
 std::string dump_json(const nlohmann::json& j);

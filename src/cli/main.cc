@@ -3,6 +3,7 @@
 //   0 nothing breaks the policy, 1 a finding breaks it, 2 bad command line,
 //   3 the run could not be done.
 #include <cstdio>
+#include <fstream>
 #include <iostream>
 #include <string>
 
@@ -11,6 +12,8 @@
 #include "progress.h"
 #include "tamis/audit.h"
 #include "tamis/demo.h"
+#include "tamis/index_file.h"
+#include "tamis/manifest.h"
 #include "tamis/outputs.h"
 #include "tamis/version.h"
 
@@ -37,6 +40,58 @@ void add_reading_options(CLI::App* cmd, CommonOptions& o) {
   cmd->add_flag("--no-progress", o.no_progress, "never show a progress line");
 }
 
+// Options that decide the split: shared by `audit` and `split`.
+struct SplitOptions {
+  std::string spec = "70/15/15";
+  uint64_t seed = 1;
+  bool stable = false;
+  std::string keep;
+  uint64_t per_class = 0;
+  uint32_t folds = 0;
+  bool resplit = false;
+};
+
+void add_split_options(CLI::App* cmd, SplitOptions& o) {
+  cmd->add_option("--seed", o.seed, "seed of the split (default 1)");
+  cmd->add_option("--split", o.spec, "train/val/test percentages, or train/test (default 70/15/15)");
+  cmd->add_flag("--stable", o.stable, "decide each group's split by a keyed hash, so added files never move others");
+  cmd->add_option("--keep", o.keep, "a previous manifest.csv: keep its splits, place only new files");
+  cmd->add_option("--per-class", o.per_class, "at most N images a class (whole groups), the rest excluded");
+  cmd->add_option("--folds", o.folds, "deal train+val into K folds (stratified, groups whole): a fold column")
+      ->check(CLI::Range(2u, 1000u));
+  cmd->add_flag("--resplit", o.resplit, "in a tree already split into train/val/test folders, draw a new split");
+}
+
+// Turns the options into settings and the keep map; prints and returns false when bad.
+bool resolve_split(const SplitOptions& o, tamis::SplitSettings& s, tamis::KeepMap& keep, bool& have_keep) {
+  try {
+    s.percent = tamis::parse_split_spec(o.spec);
+  } catch (const std::invalid_argument& e) {
+    std::fprintf(stderr, "tamis: %s\n", e.what());
+    return false;
+  }
+  s.seed = o.seed;
+  s.method = o.stable ? tamis::SplitMethod::stable : tamis::SplitMethod::shuffle;
+  s.per_class = o.per_class;
+  s.folds = o.folds;
+  s.resplit = o.resplit;
+  have_keep = !o.keep.empty();
+  if (have_keep) {
+    std::ifstream is(o.keep, std::ios::binary);
+    if (!is) {
+      std::fprintf(stderr, "tamis: --keep %s cannot be read\n", o.keep.c_str());
+      return false;
+    }
+    try {
+      keep = tamis::read_manifest_splits(is);
+    } catch (const std::exception& e) {
+      std::fprintf(stderr, "tamis: --keep %s: %s\n", o.keep.c_str(), e.what());
+      return false;
+    }
+  }
+  return true;
+}
+
 void print_summary(const tamis::AuditResult& r, const std::filesystem::path& out) {
   const auto& t = r.totals;
   size_t errors = 0, warnings = 0;
@@ -51,18 +106,14 @@ void print_summary(const tamis::AuditResult& r, const std::filesystem::path& out
   std::printf("reports: %s\n", (out / "report.html").string().c_str());
 }
 
-int run_audit_command(const std::string& root, const std::string& out, const std::string& split_spec,
-                      uint64_t seed, const CommonOptions& o) {
+int run_audit_command(const std::string& root, const std::string& out, const SplitOptions& so,
+                      const CommonOptions& o) {
   namespace fs = std::filesystem;
   tamis::AuditSettings settings;
   settings.root = root;
-  try {
-    settings.split.percent = tamis::parse_split_spec(split_spec);
-  } catch (const std::invalid_argument& e) {
-    std::fprintf(stderr, "tamis: %s\n", e.what());
-    return kExitBadUsage;
-  }
-  settings.split.seed = seed;
+  tamis::KeepMap keep;
+  bool have_keep = false;
+  if (!resolve_split(so, settings.split, keep, have_keep)) return kExitBadUsage;
   settings.read.threads = o.threads;
   if (tamis::path_is_inside(root, out)) {
     std::fprintf(stderr, "tamis: --out %s lies inside ROOT %s; tamis never writes inside the data set\n",
@@ -84,15 +135,44 @@ int run_audit_command(const std::string& root, const std::string& out, const std
   settings.read.on_progress = [&progress](size_t done, size_t total) { progress.update(done, total); };
   tamis::AuditResult result;
   try {
-    result = tamis::run_audit(settings);
+    result = tamis::place(tamis::read_tree(settings), settings.split, have_keep ? &keep : nullptr);
     progress.finish();
-    tamis::write_outputs(out, result, settings);
+    tamis::write_outputs(out, result);
   } catch (const std::exception& e) {
     progress.finish();
     std::fprintf(stderr, "tamis: %s\n", e.what());
     return kExitCannotRun;
   }
   if (!o.quiet) print_summary(result, out);
+  return tamis::policy_exit_status(result);
+}
+
+int run_split_command(const std::string& dir, const std::string& out, const SplitOptions& so, bool quiet) {
+  tamis::SplitSettings split;
+  tamis::KeepMap keep;
+  bool have_keep = false;
+  if (!resolve_split(so, split, keep, have_keep)) return kExitBadUsage;
+  tamis::AuditIndex index;
+  try {
+    index = tamis::load_index(std::filesystem::path(dir) / tamis::kIndexFileName);
+  } catch (const std::exception& e) {
+    std::fprintf(stderr, "tamis: %s\n", e.what());
+    return kExitCannotRun;
+  }
+  if (tamis::path_is_inside(index.settings.root, out)) {
+    std::fprintf(stderr, "tamis: --out %s lies inside the audited ROOT; tamis never writes inside the data set\n",
+                 out.c_str());
+    return kExitBadUsage;
+  }
+  tamis::AuditResult result;
+  try {
+    result = tamis::place(std::move(index), split, have_keep ? &keep : nullptr);
+    tamis::write_outputs(out, result);
+  } catch (const std::exception& e) {
+    std::fprintf(stderr, "tamis: %s\n", e.what());
+    return kExitCannotRun;
+  }
+  if (!quiet) print_summary(result, out);
   return tamis::policy_exit_status(result);
 }
 
@@ -104,14 +184,22 @@ int main(int argc, char** argv) {
   app.require_subcommand(1);
 
   CommonOptions audit_opts;
-  std::string root, out, split_spec = "70/15/15";
-  uint64_t seed = 1;
+  SplitOptions audit_split;
+  std::string root, out;
   CLI::App* audit = app.add_subcommand("audit", "read ROOT, check it, split it and write the reports into --out");
   audit->add_option("ROOT", root, "the data set: one folder per class")->required();
-  audit->add_option("--out", out, "folder for manifest.csv, report.json and report.html")->required();
-  audit->add_option("--seed", seed, "seed of the split (default 1)");
-  audit->add_option("--split", split_spec, "train/val/test percentages, or train/test (default 70/15/15)");
+  audit->add_option("--out", out, "folder for manifest.csv, report.json, report.html and index.cbor")->required();
+  add_split_options(audit, audit_split);
   add_reading_options(audit, audit_opts);
+
+  SplitOptions resplit_opts;
+  std::string split_dir, split_out;
+  bool split_quiet = false;
+  CLI::App* split = app.add_subcommand("split", "re-split from an audit's saved index (DIR/index.cbor), reading no image");
+  split->add_option("DIR", split_dir, "the --out folder of an earlier audit")->required();
+  split->add_option("--out", split_out, "folder for the new manifest and reports")->required();
+  add_split_options(split, resplit_opts);
+  split->add_flag("--quiet", split_quiet, "print nothing but errors");
 
   std::string demo_dir;
   CLI::App* demo = app.add_subcommand("demo", "write the demo data set (textile swatches) into DIR");
@@ -130,7 +218,8 @@ int main(int argc, char** argv) {
     return kExitBadUsage;
   }
 
-  if (audit->parsed()) return run_audit_command(root, out, split_spec, seed, audit_opts);
+  if (audit->parsed()) return run_audit_command(root, out, audit_split, audit_opts);
+  if (split->parsed()) return run_split_command(split_dir, split_out, resplit_opts, split_quiet);
   if (demo->parsed()) {
     try {
       size_t n = tamis::write_demo(demo_dir);

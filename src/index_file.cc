@@ -1,0 +1,184 @@
+#include "tamis/index_file.h"
+
+#include <fstream>
+#include <iterator>
+#include <stdexcept>
+
+#include <nlohmann/json.hpp>
+
+#include "tamis/atomic_file.h"
+
+namespace tamis {
+
+using nlohmann::json;
+
+namespace {
+
+json bin(const std::string& s) { return json::binary(std::vector<uint8_t>(s.begin(), s.end())); }
+
+std::string str(const json& j) {
+  if (!j.is_binary()) throw std::runtime_error("index: expected a byte string");
+  const auto& b = j.get_binary();
+  return std::string(b.begin(), b.end());
+}
+
+json bins(const std::vector<std::string>& v) {
+  json a = json::array();
+  for (const auto& s : v) a.push_back(bin(s));
+  return a;
+}
+
+std::vector<std::string> strs(const json& j) {
+  std::vector<std::string> out;
+  for (const auto& e : j) out.push_back(str(e));
+  return out;
+}
+
+template <typename E>
+E enum_at(const json& j, int last) {
+  int v = j.get<int>();
+  if (v < 0 || v > last) throw std::runtime_error("index: value out of range");
+  return static_cast<E>(v);
+}
+
+}  // namespace
+
+void save_index(const std::filesystem::path& file, const AuditIndex& x, const std::vector<Finding>& index_findings) {
+  json j;
+  j["format"] = "tamis-index";
+  j["version"] = kIndexVersion;
+  j["root"] = bin(x.settings.root.string());
+  j["read"] = {{"max_pixels", x.settings.read.decode.max_pixels},
+               {"reduced_side", x.settings.read.decode.reduced_side},
+               {"max_bytes", x.settings.read.max_bytes}};
+  j["groups_settings"] = {{"radius", x.settings.groups.radius}, {"min_correlation", x.settings.groups.min_correlation}};
+  json recs = json::array();
+  for (const auto& r : x.records) {
+    const auto& p = r.probe;
+    recs.push_back(json::array({bin(r.path), r.size, r.mtime_ns, r.inode, int(r.kind), int(r.defect), int(p.format),
+                                int(p.mode), p.bit_depth, p.interlaced, p.has_exif, p.has_gps, p.orientation, p.width,
+                                p.height, p.frames, r.features.content_hash[0], r.features.content_hash[1],
+                                r.features.has_content_hash, r.features.has_lookalike}));
+  }
+  j["records"] = std::move(recs);
+  std::vector<int> given;
+  for (auto s : x.labels.given_split) given.push_back(int(s));
+  j["labels"] = {{"pre_split", x.labels.pre_split}, {"names", bins(x.labels.names)}, {"label_of", x.labels.label_of},
+                 {"given_split", given}};
+  json groups = json::array();
+  for (const auto& g : x.groups.groups)
+    groups.push_back({{"members", g.members}, {"exact", g.exact}, {"diameter", g.diameter}, {"diameter_exact", g.diameter_exact}});
+  j["groups"] = {{"groups", groups},
+                 {"exact_pairs", x.groups.exact_pairs},
+                 {"candidate_hits", x.groups.candidate_hits},
+                 {"confirmed_pairs", x.groups.confirmed_pairs}};
+  json findings = json::array();
+  for (const auto& f : index_findings)
+    findings.push_back({{"code", f.code}, {"severity", int(f.severity)}, {"paths", bins(f.paths)}, {"message", bin(f.message)},
+                        {"details", json::binary(json::to_cbor(f.details))}});
+  j["findings"] = std::move(findings);
+  j["totals"] = {x.totals.files_seen, x.totals.images, x.totals.masks, x.totals.unreadable, x.totals.ignored};
+  j["walk"] = {{"links", bins(x.walk.links)}, {"unreadable_dirs", bins(x.walk.unreadable_dirs)}, {"dirs", bins(x.walk.dirs)}};
+  std::vector<uint8_t> bytes = json::to_cbor(j);
+  write_file_atomically(file, [&](std::ostream& os) {
+    os.write(reinterpret_cast<const char*>(bytes.data()), static_cast<std::streamsize>(bytes.size()));
+  });
+}
+
+AuditIndex load_index(const std::filesystem::path& file) {
+  std::ifstream is(file, std::ios::binary);
+  if (!is) throw std::runtime_error("cannot read index " + file.string());
+  std::vector<uint8_t> bytes((std::istreambuf_iterator<char>(is)), {});
+  AuditIndex x;
+  try {
+    json j = json::from_cbor(bytes);
+    if (j.value("format", "") != "tamis-index") throw std::runtime_error("not a tamis index");
+    if (j.value("version", 0) != kIndexVersion)
+      throw std::runtime_error("index version " + std::to_string(j.value("version", 0)) + ", this tamis reads " +
+                               std::to_string(kIndexVersion));
+    x.settings.root = str(j.at("root"));
+    const json& rd = j.at("read");
+    x.settings.read.decode.max_pixels = rd.at("max_pixels").get<uint64_t>();
+    x.settings.read.decode.reduced_side = rd.at("reduced_side").get<uint32_t>();
+    x.settings.read.max_bytes = rd.at("max_bytes").get<uint64_t>();
+    x.settings.groups.radius = j.at("groups_settings").at("radius").get<int>();
+    x.settings.groups.min_correlation = j.at("groups_settings").at("min_correlation").get<double>();
+    for (const auto& e : j.at("records")) {
+      if (!e.is_array() || e.size() != 20) throw std::runtime_error("malformed record");
+      FileRecord r;
+      r.path = str(e[0]);
+      r.size = e[1].get<uint64_t>();
+      r.mtime_ns = e[2].get<int64_t>();
+      r.inode = e[3].get<uint64_t>();
+      r.kind = enum_at<FileKind>(e[4], int(FileKind::ignored));
+      r.defect = enum_at<Defect>(e[5], int(Defect::no_decoder));
+      r.probe.format = enum_at<Format>(e[6], int(Format::pnm));
+      r.probe.mode = enum_at<ColorMode>(e[7], int(ColorMode::cmyk));
+      r.probe.bit_depth = e[8].get<uint8_t>();
+      r.probe.interlaced = e[9].get<bool>();
+      r.probe.has_exif = e[10].get<bool>();
+      r.probe.has_gps = e[11].get<bool>();
+      r.probe.orientation = e[12].get<uint16_t>();
+      r.probe.width = e[13].get<uint32_t>();
+      r.probe.height = e[14].get<uint32_t>();
+      r.probe.frames = e[15].get<uint32_t>();
+      r.features.content_hash = {e[16].get<uint64_t>(), e[17].get<uint64_t>()};
+      r.features.has_content_hash = e[18].get<bool>();
+      r.features.has_lookalike = e[19].get<bool>();
+      x.records.push_back(std::move(r));
+    }
+    const size_t n = x.records.size();
+    for (size_t i = 1; i < n; ++i)
+      if (!(x.records[i - 1].path < x.records[i].path)) throw std::runtime_error("records out of order");
+    const json& lb = j.at("labels");
+    x.labels.pre_split = lb.at("pre_split").get<bool>();
+    x.labels.names = strs(lb.at("names"));
+    x.labels.label_of = lb.at("label_of").get<std::vector<int32_t>>();
+    for (int v : lb.at("given_split").get<std::vector<int>>()) {
+      if (v < -1 || v > 2) throw std::runtime_error("given split out of range");
+      x.labels.given_split.push_back(static_cast<SplitName>(v));
+    }
+    if (x.labels.label_of.size() != n || x.labels.given_split.size() != n) throw std::runtime_error("label table size");
+    for (int32_t l : x.labels.label_of)
+      if (l < -1 || l >= static_cast<int32_t>(x.labels.names.size())) throw std::runtime_error("label out of range");
+    const json& gr = j.at("groups");
+    x.groups.group_of.assign(n, -1);
+    for (const auto& g : gr.at("groups")) {
+      Group grp;
+      grp.members = g.at("members").get<std::vector<uint32_t>>();
+      grp.exact = g.at("exact").get<bool>();
+      grp.diameter = g.at("diameter").get<int>();
+      grp.diameter_exact = g.at("diameter_exact").get<bool>();
+      for (uint32_t m : grp.members) {
+        if (m >= n || x.groups.group_of[m] >= 0) throw std::runtime_error("group member out of range");
+        x.groups.group_of[m] = static_cast<int64_t>(x.groups.groups.size());
+      }
+      x.groups.groups.push_back(std::move(grp));
+    }
+    x.groups.exact_pairs = gr.at("exact_pairs").get<uint64_t>();
+    x.groups.candidate_hits = gr.at("candidate_hits").get<uint64_t>();
+    x.groups.confirmed_pairs = gr.at("confirmed_pairs").get<uint64_t>();
+    for (const auto& f : j.at("findings")) {
+      Finding out;
+      out.code = f.at("code").get<std::string>();
+      out.severity = enum_at<Severity>(f.at("severity"), int(Severity::error));
+      out.paths = strs(f.at("paths"));
+      out.message = str(f.at("message"));
+      out.details = json::from_cbor(f.at("details").get_binary());
+      x.findings.push_back(std::move(out));
+    }
+    auto t = j.at("totals").get<std::vector<uint64_t>>();
+    if (t.size() != 5) throw std::runtime_error("totals");
+    x.totals = {t[0], t[1], t[2], t[3], t[4]};
+    x.walk.links = strs(j.at("walk").at("links"));
+    x.walk.unreadable_dirs = strs(j.at("walk").at("unreadable_dirs"));
+    x.walk.dirs = strs(j.at("walk").at("dirs"));
+  } catch (const json::exception& e) {
+    throw std::runtime_error("index " + file.string() + " is damaged: " + e.what());
+  } catch (const std::runtime_error& e) {
+    throw std::runtime_error("index " + file.string() + ": " + e.what());
+  }
+  return x;
+}
+
+}  // namespace tamis
