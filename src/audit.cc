@@ -28,6 +28,8 @@ AuditIndex read_tree(const AuditSettings& settings) {
   }
   check_inventory(r.records, r.labels, r.walk, r.findings);
   check_groups(r.records, r.labels, r.groups, settings.groups, r.findings);
+  check_images(r.records, r.labels, settings.checks, r.findings);
+  check_labels(r.records, r.labels, r.walk, settings.checks, r.findings);
   return r;
 }
 

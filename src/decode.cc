@@ -311,6 +311,13 @@ Decoded decode_image(std::span<const uint8_t> b, const ProbeInfo& probe, const D
     return out;
   }
   m = to_8bit(m);
+  if (m.channels() == 2 || m.channels() == 4) {  // alpha at full resolution
+    cv::Mat a;
+    cv::extractChannel(m, a, m.channels() - 1);
+    double lo = 255;
+    cv::minMaxLoc(a, &lo);
+    out.alpha_min = static_cast<uint8_t>(lo);
+  }
   if (m.channels() == 2) {  // gray + alpha: keep the gray plane
     cv::Mat g;
     cv::extractChannel(m, g, 0);

@@ -55,6 +55,58 @@ std::array<uint64_t, kDihedralCount> dct_hashes(const cv::Mat& thumb32) {
   return out;
 }
 
+ImageStats image_stats(const cv::Mat& reduced, uint8_t alpha_min) {
+  ImageStats st;
+  st.alpha_min = alpha_min;
+  cv::Mat gray;
+  if (reduced.channels() == 1) {
+    gray = reduced;
+  } else {
+    cv::cvtColor(reduced, gray, reduced.channels() == 3 ? cv::COLOR_BGR2GRAY : cv::COLOR_BGRA2GRAY);
+    int max_diff = 0;
+    for (int y = 0; y < reduced.rows && max_diff <= 2; ++y) {
+      const uint8_t* p = reduced.ptr<uint8_t>(y);
+      const int ch = reduced.channels();
+      for (int x = 0; x < reduced.cols; ++x, p += ch) {
+        max_diff = std::max({max_diff, std::abs(p[0] - p[1]), std::abs(p[1] - p[2])});
+      }
+    }
+    st.channels_equal = max_diff <= 2;
+  }
+  std::array<uint64_t, 256> hist{};
+  for (int y = 0; y < gray.rows; ++y) {
+    const uint8_t* p = gray.ptr<uint8_t>(y);
+    for (int x = 0; x < gray.cols; ++x) ++hist[p[x]];
+  }
+  const double n = double(gray.total());
+  double mean = 0, sq = 0, entropy = 0;
+  for (int v = 0; v < 256; ++v) {
+    mean += v * double(hist[v]);
+    sq += double(v) * v * double(hist[v]);
+    if (hist[v]) {
+      double p = hist[v] / n;
+      entropy -= p * std::log2(p);
+    }
+  }
+  mean /= n;
+  st.luma_mean = static_cast<float>(mean);
+  st.luma_std = static_cast<float>(std::sqrt(std::max(0.0, sq / n - mean * mean)));
+  st.entropy = static_cast<float>(entropy);
+  cv::Mat g = gray;
+  int shorter = std::min(gray.cols, gray.rows);
+  if (shorter > 128) {
+    double f = 128.0 / shorter;
+    cv::resize(gray, g, cv::Size(std::max(1, int(gray.cols * f + 0.5)), std::max(1, int(gray.rows * f + 0.5))), 0, 0,
+               cv::INTER_AREA);
+  }
+  cv::Mat lap;
+  cv::Laplacian(g, lap, CV_32F);
+  cv::Scalar m, sd;
+  cv::meanStdDev(lap, m, sd);
+  st.focus = static_cast<float>(sd[0] * sd[0]);
+  return st;
+}
+
 void apply_dihedral(const uint8_t* src, uint8_t* dst, int n, int t) {
   bool transpose = t & 4, flip_rows = t & 2, flip_cols = t & 1;
   for (int y = 0; y < n; ++y)

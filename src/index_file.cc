@@ -52,13 +52,18 @@ void save_index(const std::filesystem::path& file, const AuditIndex& x, const st
                {"reduced_side", x.settings.read.decode.reduced_side},
                {"max_bytes", x.settings.read.max_bytes}};
   j["groups_settings"] = {{"radius", x.settings.groups.radius}, {"min_correlation", x.settings.groups.min_correlation}};
+  const auto& cs = x.settings.checks;
+  j["checks"] = {{"min_side", cs.min_side}, {"input_side", cs.input_side}, {"min_class", cs.min_class},
+                 {"max_imbalance", cs.max_imbalance}, {"outlier_z", cs.outlier_z}};
   json recs = json::array();
   for (const auto& r : x.records) {
     const auto& p = r.probe;
     recs.push_back(json::array({bin(r.path), r.size, r.mtime_ns, r.inode, int(r.kind), int(r.defect), int(p.format),
                                 int(p.mode), p.bit_depth, p.interlaced, p.has_exif, p.has_gps, p.orientation, p.width,
                                 p.height, p.frames, r.features.content_hash[0], r.features.content_hash[1],
-                                r.features.has_content_hash, r.features.has_lookalike}));
+                                r.features.has_content_hash, r.features.has_lookalike, r.features.stats.luma_mean,
+                                r.features.stats.luma_std, r.features.stats.entropy, r.features.stats.focus,
+                                r.features.stats.alpha_min, r.features.stats.channels_equal}));
   }
   j["records"] = std::move(recs);
   std::vector<int> given;
@@ -103,8 +108,14 @@ AuditIndex load_index(const std::filesystem::path& file) {
     x.settings.read.max_bytes = rd.at("max_bytes").get<uint64_t>();
     x.settings.groups.radius = j.at("groups_settings").at("radius").get<int>();
     x.settings.groups.min_correlation = j.at("groups_settings").at("min_correlation").get<double>();
+    const json& ck = j.at("checks");
+    x.settings.checks.min_side = ck.at("min_side").get<uint32_t>();
+    x.settings.checks.input_side = ck.at("input_side").get<uint32_t>();
+    x.settings.checks.min_class = ck.at("min_class").get<uint64_t>();
+    x.settings.checks.max_imbalance = ck.at("max_imbalance").get<double>();
+    x.settings.checks.outlier_z = ck.at("outlier_z").get<double>();
     for (const auto& e : j.at("records")) {
-      if (!e.is_array() || e.size() != 20) throw std::runtime_error("malformed record");
+      if (!e.is_array() || e.size() != 26) throw std::runtime_error("malformed record");
       FileRecord r;
       r.path = str(e[0]);
       r.size = e[1].get<uint64_t>();
@@ -125,6 +136,12 @@ AuditIndex load_index(const std::filesystem::path& file) {
       r.features.content_hash = {e[16].get<uint64_t>(), e[17].get<uint64_t>()};
       r.features.has_content_hash = e[18].get<bool>();
       r.features.has_lookalike = e[19].get<bool>();
+      r.features.stats.luma_mean = e[20].get<float>();
+      r.features.stats.luma_std = e[21].get<float>();
+      r.features.stats.entropy = e[22].get<float>();
+      r.features.stats.focus = e[23].get<float>();
+      r.features.stats.alpha_min = e[24].get<uint8_t>();
+      r.features.stats.channels_equal = e[25].get<bool>();
       x.records.push_back(std::move(r));
     }
     const size_t n = x.records.size();

@@ -47,7 +47,7 @@ std::vector<std::string> flags_per_record(const AuditResult& result) {
 void write_manifest(std::ostream& os, const AuditResult& r) {
   static const char* kHeader[] = {"path", "label", "split", "group", "width", "height", "mode", "bit_depth",
                                   "format", "mask_path", "flags", "reason", "bytes", "orientation", "frames",
-                                  "content_hash", "fold"};
+                                  "content_hash", "fold", "brightness", "contrast", "entropy", "sharpness"};
   std::string line;
   for (size_t c = 0; c < std::size(kHeader); ++c) {
     if (c) line.push_back(',');
@@ -89,6 +89,14 @@ void write_manifest(std::ostream& os, const AuditResult& r) {
     }
     line.push_back(',');
     if (r.split.fold[i] >= 0) line.append(std::to_string(r.split.fold[i]));
+    if (rec.features.has_lookalike) {
+      const auto& st = rec.features.stats;
+      char buf[96];
+      std::snprintf(buf, sizeof buf, ",%.1f,%.1f,%.2f,%.1f", st.luma_mean, st.luma_std, st.entropy, st.focus);
+      line.append(buf);
+    } else {
+      line.append(",,,,");
+    }
     line.append("\r\n");
     os << line;
   }

@@ -92,6 +92,7 @@ void read_one(int rootfd, const WalkEntry& e, const ReadOptions& opt, std::vecto
   Decoded d = decode_image(bytes, r.probe, opt.decode);
   if (d.defect != Defect::none) return unreadable(d.defect);
   r.features.look = lookalike_features(d.reduced);
+  r.features.stats = image_stats(d.reduced, d.alpha_min);
   r.features.has_lookalike = true;
   r.kind = FileKind::image;
 }

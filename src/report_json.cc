@@ -24,6 +24,11 @@ json settings_json(const AuditSettings& s) {
       {"reduced_side", s.read.decode.reduced_side},
       {"lookalike_radius", s.groups.radius},
       {"lookalike_min_correlation", s.groups.min_correlation},
+      {"min_side", s.checks.min_side},
+      {"input_side", s.checks.input_side},
+      {"min_class", s.checks.min_class},
+      {"max_imbalance", s.checks.max_imbalance},
+      {"outlier_z", s.checks.outlier_z},
   };
 }
 
@@ -85,6 +90,9 @@ json build_report(const AuditResult& r) {
     classes.push_back(std::move(entry));
   }
   j["classes"] = std::move(classes);
+  Balance bal = class_balance(r.records, r.labels);
+  j["balance"] = {{"largest", bal.largest}, {"smallest", bal.smallest}, {"imbalance_ratio", bal.imbalance_ratio},
+                  {"normalized_entropy", bal.normalized_entropy}};
   j["formats"] = formats;
   j["modes"] = modes;
   json groups = json::array();

@@ -15,6 +15,7 @@
 #include <unordered_map>
 #include <vector>
 
+#include "tamis/checks.h"
 #include "tamis/findings.h"
 #include "tamis/groups.h"
 #include "tamis/labels.h"
@@ -29,6 +30,7 @@ struct AuditSettings {
   std::filesystem::path root;
   ReadOptions read;
   GroupSettings groups;
+  CheckSettings checks;
   SplitSettings split;
 };
 

@@ -29,6 +29,7 @@ struct DecodeLimits {
 struct Decoded {
   Defect defect = Defect::none;
   cv::Mat reduced;  // 8-bit; shorter side >= reduced_side unless the image is smaller
+  uint8_t alpha_min = 255;  // smallest alpha value at full resolution (255 without alpha)
 };
 
 Decoded decode_image(std::span<const uint8_t> bytes, const ProbeInfo& probe, const DecodeLimits& limits);

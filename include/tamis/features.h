@@ -34,6 +34,13 @@ std::array<uint64_t, kDihedralCount> dct_hashes(const cv::Mat& thumb32);
 // All look-alike features of one reduced decode (1, 3 or 4 channels, 8-bit).
 Lookalike lookalike_features(const cv::Mat& reduced);
 
+// Quality statistics of a reduced decode (1, 3 or 4 channels, 8-bit): luminance
+// mean, spread and histogram entropy, the variance of the Laplacian (after
+// resizing the shorter side to 128 px when larger, so images of any size compare),
+// and whether a colour image's channels are all equal. `alpha_min` is passed in
+// from the full-resolution decode.
+ImageStats image_stats(const cv::Mat& reduced, uint8_t alpha_min);
+
 // Applies dihedral transform t to a square row-major gray image of side n.
 void apply_dihedral(const uint8_t* src, uint8_t* dst, int n, int t);
 

@@ -4,7 +4,8 @@
 // quoted, inner quotes doubled), CRLF line ends as RFC 4180 prescribes, and a
 // header row. Columns, in order: path, label, split, group, width, height, mode,
 // bit_depth, format, mask_path, flags, then reason, bytes, orientation, frames,
-// content_hash, fold (docs/outputs.md). Rendering only: computes nothing.
+// content_hash, fold, brightness, contrast, entropy, sharpness (docs/outputs.md).
+// Rendering only: computes nothing.
 #pragma once
 
 #include <ostream>

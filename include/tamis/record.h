@@ -76,12 +76,23 @@ struct Lookalike {
   std::array<uint8_t, 1024> thumb{};             // the 32x32 gray thumbnail the hash is made from, row-major
 };
 
+// Pixel statistics of the reduced decode (features.h), for the quality checks.
+struct ImageStats {
+  float luma_mean = 0;     // mean luminance, 0..255 (ITU-R BT.601 weights, as OpenCV's gray)
+  float luma_std = 0;      // standard deviation of luminance
+  float entropy = 0;       // Shannon entropy of the 256-bin luminance histogram, bits (0..8)
+  float focus = 0;         // variance of the Laplacian at a 128 px shorter side
+  uint8_t alpha_min = 255; // smallest alpha at full resolution (255: opaque or no alpha)
+  bool channels_equal = false;  // a colour image whose channels are equal (within 2 levels)
+};
+
 // Content features computed from the bytes and the decoded pixels.
 struct Features {
   std::array<uint64_t, 2> content_hash{0, 0};  // XXH3-128 of the file bytes
   bool has_content_hash = false;
   bool has_lookalike = false;                   // set for every readable image
   Lookalike look;
+  ImageStats stats;                             // set with has_lookalike
 };
 
 struct FileRecord {
