@@ -1,5 +1,7 @@
 #include "tamis/audit.h"
 
+#include <algorithm>
+
 #include "tamis/checks.h"
 
 namespace tamis {
@@ -16,7 +18,6 @@ AuditIndex read_tree(const AuditSettings& settings) {
   GroupSettings gs = settings.groups;
   gs.threads = settings.read.threads;
   r.groups = find_groups(r.records, gs);
-
   for (const auto& rec : r.records) {
     ++r.totals.files_seen;
     switch (rec.kind) {
@@ -26,17 +27,24 @@ AuditIndex read_tree(const AuditSettings& settings) {
       case FileKind::ignored: ++r.totals.ignored; break;
     }
   }
-  check_inventory(r.records, r.labels, r.walk, r.findings);
-  check_groups(r.records, r.labels, r.groups, settings.groups, r.findings);
-  check_images(r.records, r.labels, settings.checks, r.findings);
-  check_labels(r.records, r.labels, r.walk, settings.checks, r.findings);
   return r;
 }
 
-AuditResult place(AuditIndex index, const SplitSettings& split, const KeepMap* keep) {
+AuditResult place(AuditIndex index, const PlaceOptions& opt) {
   AuditResult r;
   static_cast<AuditIndex&>(r) = std::move(index);
-  r.settings.split = split;
+  r.settings.split = opt.split;
+  r.settings.checks = opt.policy.thresholds;
+  r.fail_on_new_only = opt.policy.fail_on_new_only;
+
+  // Checks.
+  check_inventory(r.records, r.labels, r.walk, r.findings);
+  check_groups(r.records, r.labels, r.groups, r.settings.groups, r.findings);
+  check_images(r.records, r.labels, r.settings.checks, r.findings);
+  check_labels(r.records, r.labels, r.walk, r.settings.checks, r.findings);
+
+  // Split.
+  const SplitSettings& split = opt.split;
   const bool keep_folders = r.labels.pre_split && !split.resplit;
   std::vector<SplitItem> items(r.records.size());
   for (size_t i = 0; i < r.records.size(); ++i) {
@@ -44,9 +52,9 @@ AuditResult place(AuditIndex index, const SplitSettings& split, const KeepMap* k
     items[i].group = r.groups.group_of[i];
     items[i].eligible = r.records[i].kind == FileKind::image;
     items[i].key = r.records[i].path;
-    if (keep) {
-      auto it = keep->find(r.records[i].path);
-      if (it != keep->end()) items[i].previous = it->second;
+    if (opt.keep) {
+      auto it = opt.keep->find(r.records[i].path);
+      if (it != opt.keep->end()) items[i].previous = it->second;
     }
   }
   if (keep_folders) {
@@ -63,17 +71,50 @@ AuditResult place(AuditIndex index, const SplitSettings& split, const KeepMap* k
   } else {
     r.split = assign_splits(items, r.labels.names, split);
   }
-  r.index_findings = r.findings;
   check_split(r.records, r.labels, r.split, split, keep_folders, r.findings);
+
+  // Policy, then order, then the baseline's verdict per finding.
+  apply_policy(opt.policy, r.totals.unreadable, r.totals.images + r.totals.unreadable, r.findings);
   sort_findings(r.findings);
+  r.known.assign(r.findings.size(), false);
+  if (opt.baseline) {
+    const Baseline& b = *opt.baseline;
+    r.baseline.present = true;
+    std::set<std::string> now;
+    for (size_t k = 0; k < r.findings.size(); ++k) {
+      auto ids = finding_identities(r.findings[k]);
+      bool known = std::all_of(ids.begin(), ids.end(), [&](const std::string& id) { return b.identities.count(id) > 0; });
+      r.known[k] = known;
+      (known ? r.baseline.findings_known : r.baseline.findings_new)++;
+      now.insert(ids.begin(), ids.end());
+    }
+    for (const auto& id : b.identities) r.baseline.findings_gone += now.count(id) == 0;
+    if (b.has_files) {
+      std::set<std::string> files;
+      for (const auto& rec : r.records)
+        if (is_manifest_row(rec)) files.insert(rec.path);
+      std::set_difference(files.begin(), files.end(), b.files.begin(), b.files.end(),
+                          std::back_inserter(r.baseline.files_added));
+      std::set_difference(b.files.begin(), b.files.end(), files.begin(), files.end(),
+                          std::back_inserter(r.baseline.files_removed));
+    }
+  }
   return r;
+}
+
+AuditResult place(AuditIndex index, const SplitSettings& split, const KeepMap* keep) {
+  PlaceOptions opt;
+  opt.split = split;
+  opt.policy.thresholds = index.settings.checks;
+  opt.keep = keep;
+  return place(std::move(index), opt);
 }
 
 AuditResult run_audit(const AuditSettings& settings) { return place(read_tree(settings), settings.split); }
 
 int policy_exit_status(const AuditResult& result) {
-  for (const auto& f : result.findings)
-    if (f.severity == Severity::error) return 1;
+  for (size_t k = 0; k < result.findings.size(); ++k)
+    if (result.findings[k].severity == Severity::error && !(result.fail_on_new_only && result.known[k])) return 1;
   return 0;
 }
 

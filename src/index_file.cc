@@ -43,7 +43,7 @@ E enum_at(const json& j, int last) {
 
 }  // namespace
 
-void save_index(const std::filesystem::path& file, const AuditIndex& x, const std::vector<Finding>& index_findings) {
+void save_index(const std::filesystem::path& file, const AuditIndex& x) {
   json j;
   j["format"] = "tamis-index";
   j["version"] = kIndexVersion;
@@ -77,11 +77,6 @@ void save_index(const std::filesystem::path& file, const AuditIndex& x, const st
                  {"exact_pairs", x.groups.exact_pairs},
                  {"candidate_hits", x.groups.candidate_hits},
                  {"confirmed_pairs", x.groups.confirmed_pairs}};
-  json findings = json::array();
-  for (const auto& f : index_findings)
-    findings.push_back({{"code", f.code}, {"severity", int(f.severity)}, {"paths", bins(f.paths)}, {"message", bin(f.message)},
-                        {"details", json::binary(json::to_cbor(f.details))}});
-  j["findings"] = std::move(findings);
   j["totals"] = {x.totals.files_seen, x.totals.images, x.totals.masks, x.totals.unreadable, x.totals.ignored};
   j["walk"] = {{"links", bins(x.walk.links)}, {"unreadable_dirs", bins(x.walk.unreadable_dirs)}, {"dirs", bins(x.walk.dirs)}};
   std::vector<uint8_t> bytes = json::to_cbor(j);
@@ -175,15 +170,6 @@ AuditIndex load_index(const std::filesystem::path& file) {
     x.groups.exact_pairs = gr.at("exact_pairs").get<uint64_t>();
     x.groups.candidate_hits = gr.at("candidate_hits").get<uint64_t>();
     x.groups.confirmed_pairs = gr.at("confirmed_pairs").get<uint64_t>();
-    for (const auto& f : j.at("findings")) {
-      Finding out;
-      out.code = f.at("code").get<std::string>();
-      out.severity = enum_at<Severity>(f.at("severity"), int(Severity::error));
-      out.paths = strs(f.at("paths"));
-      out.message = str(f.at("message"));
-      out.details = json::from_cbor(f.at("details").get_binary());
-      x.findings.push_back(std::move(out));
-    }
     auto t = j.at("totals").get<std::vector<uint64_t>>();
     if (t.size() != 5) throw std::runtime_error("totals");
     x.totals = {t[0], t[1], t[2], t[3], t[4]};

@@ -102,7 +102,9 @@ void write_manifest(std::ostream& os, const AuditResult& r) {
   }
 }
 
-KeepMap read_manifest_splits(std::istream& is) {
+namespace {
+// Parses RFC 4180 text into rows of fields.
+std::vector<std::vector<std::string>> parse_csv(std::istream& is) {
   // RFC 4180 records: fields split on commas, quoted fields may hold commas,
   // quotes (doubled) and line breaks; records end at CRLF or LF outside quotes.
   std::vector<std::vector<std::string>> rows;
@@ -155,13 +157,28 @@ KeepMap read_manifest_splits(std::istream& is) {
     rows.push_back(std::move(row));
   }
   if (rows.empty()) throw std::runtime_error("manifest: the file is empty");
-  const auto& header = rows.front();
-  auto col = [&](const char* name) {
-    auto it = std::find(header.begin(), header.end(), name);
-    if (it == header.end()) throw std::runtime_error(std::string("manifest: no '") + name + "' column in the header");
-    return static_cast<size_t>(it - header.begin());
-  };
-  const size_t path_col = col("path"), split_col = col("split");
+  return rows;
+}
+
+size_t column(const std::vector<std::string>& header, const char* name) {
+  auto it = std::find(header.begin(), header.end(), name);
+  if (it == header.end()) throw std::runtime_error(std::string("manifest: no '") + name + "' column in the header");
+  return static_cast<size_t>(it - header.begin());
+}
+}  // namespace
+
+std::vector<std::string> read_manifest_paths(std::istream& is) {
+  auto rows = parse_csv(is);
+  const size_t path_col = column(rows.front(), "path");
+  std::vector<std::string> out;
+  for (size_t k = 1; k < rows.size(); ++k)
+    if (rows[k].size() > path_col) out.push_back(rows[k][path_col]);
+  return out;
+}
+
+KeepMap read_manifest_splits(std::istream& is) {
+  auto rows = parse_csv(is);
+  const size_t path_col = column(rows.front(), "path"), split_col = column(rows.front(), "split");
   KeepMap out;
   for (size_t k = 1; k < rows.size(); ++k) {
     const auto& r = rows[k];

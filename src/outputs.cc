@@ -18,7 +18,7 @@ void write_outputs(const std::filesystem::path& out_dir, const AuditResult& resu
   nlohmann::json report = build_report(result);
   write_file_atomically(out_dir / "report.json", [&](std::ostream& os) { os << dump_json(report) << '\n'; });
   write_file_atomically(out_dir / "report.html", [&](std::ostream& os) { os << render_html(report); });
-  save_index(out_dir / kIndexFileName, result, result.index_findings);
+  save_index(out_dir / kIndexFileName, result);
 }
 
 }  // namespace tamis

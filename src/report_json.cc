@@ -117,11 +117,22 @@ json build_report(const AuditResult& r) {
                            {"confirmed_pairs", r.groups.confirmed_pairs}};
 
   json findings = json::array();
-  for (const auto& f : r.findings) {
-    findings.push_back({{"code", f.code}, {"severity", to_string(f.severity)}, {"paths", f.paths},
-                        {"message", f.message}, {"details", f.details}});
+  for (size_t k = 0; k < r.findings.size(); ++k) {
+    const auto& f = r.findings[k];
+    json jf = {{"code", f.code}, {"severity", to_string(f.severity)}, {"paths", f.paths},
+               {"message", f.message}, {"details", f.details}};
+    if (r.baseline.present) jf["baseline"] = r.known[k] ? "known" : "new";
+    findings.push_back(std::move(jf));
   }
   j["findings"] = std::move(findings);
+  j["policy"] = {{"fail_on", r.fail_on_new_only ? "new" : "all"}, {"exit_status", policy_exit_status(r)}};
+  if (r.baseline.present) {
+    j["baseline"] = {{"files_added", r.baseline.files_added},
+                     {"files_removed", r.baseline.files_removed},
+                     {"findings_new", r.baseline.findings_new},
+                     {"findings_known", r.baseline.findings_known},
+                     {"findings_gone", r.baseline.findings_gone}};
+  }
 
   json ignored = json::array(), unreadable = json::array();
   for (const auto& rec : r.records) {

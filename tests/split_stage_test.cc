@@ -234,7 +234,7 @@ TEST_CASE("re-splitting from the saved index reproduces the audit's outputs byte
   s.split.seed = 5;
   s.split.folds = 3;
   AuditResult r = run_audit(s);
-  save_index(out / "index.cbor", r, r.index_findings);
+  save_index(out / "index.cbor", r);
   AuditResult again = place(load_index(out / "index.cbor"), s.split);
   CHECK(manifest_text(again) == manifest_text(r));
   CHECK(dump_json(build_report(again)) == dump_json(build_report(r)));
@@ -246,7 +246,7 @@ TEST_CASE("a damaged or foreign index is refused with a message, never half read
   AuditSettings s;
   s.root = t.path();
   AuditResult r = run_audit(s);
-  save_index(out / "index.cbor", r, r.index_findings);
+  save_index(out / "index.cbor", r);
   auto good = test::read_bytes(out / "index.cbor");
   test::write_text(out / "garbage.cbor", "this is not an index");
   CHECK_THROWS_AS(load_index(out / "garbage.cbor"), std::runtime_error);

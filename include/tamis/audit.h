@@ -17,7 +17,9 @@
 
 #include "tamis/checks.h"
 #include "tamis/findings.h"
+#include "tamis/baseline.h"
 #include "tamis/groups.h"
+#include "tamis/policy.h"
 #include "tamis/labels.h"
 #include "tamis/read_stage.h"
 #include "tamis/record.h"
@@ -30,7 +32,7 @@ struct AuditSettings {
   std::filesystem::path root;
   ReadOptions read;
   GroupSettings groups;
-  CheckSettings checks;
+  CheckSettings checks;   // from the policy's thresholds
   SplitSettings split;
 };
 
@@ -46,29 +48,37 @@ struct AuditIndex {
   std::vector<FileRecord> records;  // sorted by path, one per regular file
   Labelling labels;
   GroupResult groups;               // groups.group_of: per record, index into groups.groups or -1
-  std::vector<Finding> findings;    // the reading stages' and checks' findings
   Totals totals;
 };
 
-// An index placed: the split, and the findings about it added to the index's.
-struct AuditResult : AuditIndex {
-  SplitOutcome split;               // per record (excluded for non-rows)
-  std::vector<Finding> index_findings;  // the index's own findings (findings = these + the split's)
+// What place() needs beyond the index: the split, the policy (its thresholds
+// replace the check settings), earlier placements, a baseline.
+struct PlaceOptions {
+  SplitSettings split;
+  Policy policy;
+  const KeepMap* keep = nullptr;          // earlier placements to keep
+  const Baseline* baseline = nullptr;     // an earlier report to compare with
 };
 
-// Earlier placements to keep (path -> split), e.g. read from a previous manifest.
-using KeepMap = std::unordered_map<std::string, Placement>;
+// An index placed and judged: checks, split, policy, baseline.
+struct AuditResult : AuditIndex {
+  SplitOutcome split;               // per record (excluded for non-rows)
+  std::vector<Finding> findings;    // every finding, policy applied, sorted
+  std::vector<bool> known;          // per finding: also in the baseline (same code and paths)
+  BaselineDiff baseline;            // filled when a baseline was given
+  bool fail_on_new_only = false;
+};
 
-// walk -> read -> labels -> groups -> checks. Throws std::runtime_error when ROOT
-// cannot be read.
+// walk -> read -> labels -> groups. Throws std::runtime_error when ROOT cannot be read.
 AuditIndex read_tree(const AuditSettings& settings);
 
-// The split stage and its findings, with `split` replacing the index's split
-// settings. A pre-split tree keeps its folders' splits unless split.resplit;
-// `keep` (optional) gives earlier placements to keep. Findings end up sorted.
+// checks -> split -> policy -> baseline, on an index (fresh, or loaded by `tamis
+// split`). A pre-split tree keeps its folders' splits unless split.resplit.
+AuditResult place(AuditIndex index, const PlaceOptions& options);
+// The same with only split settings and the default policy.
 AuditResult place(AuditIndex index, const SplitSettings& split, const KeepMap* keep = nullptr);
 
-// read_tree then place with the settings' split.
+// read_tree then place with the settings' split and checks and the default severities.
 AuditResult run_audit(const AuditSettings& settings);
 
 // Manifest rows are the records that are images or unreadable image files.
@@ -76,7 +86,8 @@ inline bool is_manifest_row(const FileRecord& r) {
   return r.kind == FileKind::image || r.kind == FileKind::unreadable;
 }
 
-// 1 when any finding has error severity, else 0 (the documented exit status).
+// 1 when any finding has error severity (and, with fail_on "new", is not known
+// from the baseline), else 0: the documented exit status.
 int policy_exit_status(const AuditResult& result);
 
 }  // namespace tamis

@@ -1,10 +1,11 @@
-// The saved index: everything an audit knew before the split (AuditIndex), so
-// `tamis split` can re-split without reading a single image.
+// The saved index: everything an audit read (AuditIndex: records, labels, groups,
+// settings), so `tamis split` can re-check and re-split without reading an image.
 //
 // Format: CBOR (RFC 8949) of one map {"format": "tamis-index", "version": 1, ...};
 // strings that come from the data set (paths, labels, messages) are stored as
 // CBOR byte strings, so any file-name bytes survive. Look-alike thumbnails are not
-// stored: the groups they produced are. Loading checks the format and version
+// stored: the groups they produced are. Findings are not stored: checks re-run
+// from the records. Loading checks the format and version
 // and every index it follows; a damaged or foreign file throws
 // std::runtime_error, never yields a half-read index.
 #pragma once
@@ -18,9 +19,7 @@ namespace tamis {
 inline constexpr int kIndexVersion = 1;
 inline constexpr const char* kIndexFileName = "index.cbor";
 
-// Saves `index` with `findings` as its findings (an AuditResult passes its
-// index_findings, so the split's own findings are not saved).
-void save_index(const std::filesystem::path& file, const AuditIndex& index, const std::vector<Finding>& findings);
+void save_index(const std::filesystem::path& file, const AuditIndex& index);
 AuditIndex load_index(const std::filesystem::path& file);
 
 }  // namespace tamis

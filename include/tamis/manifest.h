@@ -31,4 +31,7 @@ void write_manifest(std::ostream& os, const AuditResult& result);
 // file is not a manifest (no path or split column, an unterminated quote).
 KeepMap read_manifest_splits(std::istream& is);
 
+// The path column of a manifest, in file order (same rules as above).
+std::vector<std::string> read_manifest_paths(std::istream& is);
+
 }  // namespace tamis

@@ -34,6 +34,7 @@
 #include <cstdint>
 #include <string>
 #include <string_view>
+#include <unordered_map>
 #include <vector>
 
 #include "tamis/labels.h"
@@ -67,6 +68,9 @@ struct SplitItem {
   std::string_view key;       // stable key (the path); a unit's key is its smallest
   Placement previous = Placement::excluded;  // earlier placement to keep (excluded = none)
 };
+
+// Earlier placements to keep (path -> split), e.g. read from a previous manifest.
+using KeepMap = std::unordered_map<std::string, Placement>;
 
 // Why an eligible item ended up excluded.
 enum class Exclusion : uint8_t { none, not_eligible, capped };

@@ -3,16 +3,20 @@
 //   0 nothing breaks the policy, 1 a finding breaks it, 2 bad command line,
 //   3 the run could not be done.
 #include <cstdio>
+#include <cstdlib>
 #include <fstream>
 #include <iostream>
 #include <string>
 
 #include <CLI/CLI.hpp>
+#include <nlohmann/json.hpp>
 
 #include "progress.h"
 #include "tamis/audit.h"
 #include "tamis/demo.h"
 #include "tamis/index_file.h"
+#include "tamis/junit.h"
+#include "tamis/atomic_file.h"
 #include "tamis/manifest.h"
 #include "tamis/outputs.h"
 #include "tamis/version.h"
@@ -38,6 +42,38 @@ void add_reading_options(CLI::App* cmd, CommonOptions& o) {
   cmd->add_flag("--quiet", o.quiet, "print nothing but errors");
   cmd->add_flag("--progress", o.progress, "show a progress line on stderr even when it is not a terminal");
   cmd->add_flag("--no-progress", o.no_progress, "never show a progress line");
+}
+
+// Options of the judging stages, shared by `audit` and `split`.
+struct JudgeOptions {
+  std::string policy, baseline, junit, format = "text";
+};
+
+void add_judge_options(CLI::App* cmd, JudgeOptions& o) {
+  cmd->add_option("--policy", o.policy, "policy file (JSON): severities per finding code and thresholds");
+  cmd->add_option("--baseline", o.baseline, "an earlier report.json: report what changed; with fail_on \"new\" fail only on new findings");
+  cmd->add_option("--junit", o.junit, "also write the checks as JUnit XML to FILE");
+  cmd->add_option("--format", o.format, "summary on stdout: text or json")->check(CLI::IsMember({"text", "json"}));
+}
+
+// Loads the policy and baseline; prints and returns false when either is bad.
+bool resolve_judge(const JudgeOptions& o, tamis::Policy& policy, tamis::Baseline& baseline, bool& have_baseline) {
+  try {
+    policy = o.policy.empty() ? tamis::default_policy() : tamis::load_policy(o.policy);
+  } catch (const tamis::PolicyError& e) {
+    std::fprintf(stderr, "tamis: %s (%s)\n", e.what(), o.policy.c_str());
+    return false;
+  }
+  have_baseline = !o.baseline.empty();
+  if (have_baseline) {
+    try {
+      baseline = tamis::load_baseline(o.baseline);
+    } catch (const std::exception& e) {
+      std::fprintf(stderr, "tamis: %s\n", e.what());
+      return false;
+    }
+  }
+  return true;
 }
 
 // Options that decide the split: shared by `audit` and `split`.
@@ -92,32 +128,101 @@ bool resolve_split(const SplitOptions& o, tamis::SplitSettings& s, tamis::KeepMa
   return true;
 }
 
-void print_summary(const tamis::AuditResult& r, const std::filesystem::path& out) {
+bool use_colour() {
+  const char* no = std::getenv("NO_COLOR");
+  return isatty(STDOUT_FILENO) == 1 && !(no && *no);
+}
+
+void print_summary(const tamis::AuditResult& r, const std::filesystem::path& out, const std::string& format) {
   const auto& t = r.totals;
-  size_t errors = 0, warnings = 0;
-  for (const auto& f : r.findings) {
-    if (f.severity == tamis::Severity::error) ++errors;
+  size_t errors = 0, warnings = 0, infos = 0, failing = 0;
+  for (size_t k = 0; k < r.findings.size(); ++k) {
+    const auto& f = r.findings[k];
+    if (f.severity == tamis::Severity::error) {
+      ++errors;
+      if (!(r.fail_on_new_only && r.known[k])) ++failing;
+    }
     if (f.severity == tamis::Severity::warning) ++warnings;
+    if (f.severity == tamis::Severity::info) ++infos;
   }
-  std::printf("files seen %llu: %llu images, %llu masks, %llu unreadable, %llu ignored; %zu classes\n",
+  if (format == "json") {
+    nlohmann::json j = {{"files_seen", t.files_seen}, {"images", t.images}, {"masks", t.masks},
+                        {"unreadable", t.unreadable}, {"ignored", t.ignored}, {"classes", r.labels.names.size()},
+                        {"groups", r.groups.groups.size()}, {"errors", errors}, {"warnings", warnings}, {"infos", infos},
+                        {"failing", failing}, {"exit_status", tamis::policy_exit_status(r)},
+                        {"reports", (out / "report.html").string()}};
+    if (r.baseline.present)
+      j["baseline"] = {{"findings_new", r.baseline.findings_new}, {"findings_gone", r.baseline.findings_gone},
+                       {"files_added", r.baseline.files_added.size()}, {"files_removed", r.baseline.files_removed.size()}};
+    std::printf("%s\n", j.dump(-1, ' ', false, nlohmann::json::error_handler_t::replace).c_str());
+    return;
+  }
+  const bool c = use_colour();
+  const char* red = c ? "\033[31;1m" : "";
+  const char* amber = c ? "\033[33m" : "";
+  const char* green = c ? "\033[32m" : "";
+  const char* off = c ? "\033[0m" : "";
+  std::printf("files seen %llu: %llu images, %llu masks, %llu unreadable, %llu ignored; %zu classes, %zu groups\n",
               (unsigned long long)t.files_seen, (unsigned long long)t.images, (unsigned long long)t.masks,
-              (unsigned long long)t.unreadable, (unsigned long long)t.ignored, r.labels.names.size());
-  std::printf("findings: %zu errors, %zu warnings, %zu in all\n", errors, warnings, r.findings.size());
+              (unsigned long long)t.unreadable, (unsigned long long)t.ignored, r.labels.names.size(),
+              r.groups.groups.size());
+  std::printf("findings: %s%zu errors%s, %s%zu warnings%s, %zu infos\n", errors ? red : green, errors, off,
+              warnings ? amber : "", warnings, warnings ? off : "", infos);
+  for (size_t k = 0, shown = 0; k < r.findings.size() && shown < 8; ++k) {
+    const auto& f = r.findings[k];
+    if (f.severity != tamis::Severity::error) continue;
+    ++shown;
+    std::printf("  %s%s%s %s%s\n", red, f.code.c_str(), off, f.message.c_str(),
+                r.baseline.present ? (r.known[k] ? " (known)" : " (new)") : "");
+  }
+  if (r.baseline.present)
+    std::printf("against the baseline: %zu new, %zu gone findings; %zu files added, %zu removed\n",
+                r.baseline.findings_new, r.baseline.findings_gone, r.baseline.files_added.size(),
+                r.baseline.files_removed.size());
+  std::printf("policy: %s%s%s\n", failing ? red : green,
+              failing ? (std::to_string(failing) + " error findings break it").c_str() : "passes", off);
   std::printf("reports: %s\n", (out / "report.html").string().c_str());
 }
 
+// Writes the outputs, the JUnit file when asked, and the summary; returns the exit status.
+int finish(const tamis::AuditResult& result, const std::string& out, const JudgeOptions& jo, bool quiet) {
+  try {
+    tamis::write_outputs(out, result);
+    if (!jo.junit.empty())
+      tamis::write_file_atomically(jo.junit, [&](std::ostream& os) { tamis::write_junit(os, result); });
+  } catch (const std::exception& e) {
+    std::fprintf(stderr, "tamis: %s\n", e.what());
+    return kExitCannotRun;
+  }
+  if (!quiet) print_summary(result, out, jo.format);
+  return tamis::policy_exit_status(result);
+}
+
 int run_audit_command(const std::string& root, const std::string& out, const SplitOptions& so,
-                      const CommonOptions& o) {
+                      const JudgeOptions& jo, const CommonOptions& o) {
   namespace fs = std::filesystem;
   tamis::AuditSettings settings;
   settings.root = root;
   tamis::KeepMap keep;
   bool have_keep = false;
   if (!resolve_split(so, settings.split, keep, have_keep)) return kExitBadUsage;
+  tamis::PlaceOptions place;
+  tamis::Baseline baseline;
+  bool have_baseline = false;
+  if (!resolve_judge(jo, place.policy, baseline, have_baseline)) return kExitBadUsage;
+  place.split = settings.split;
+  place.keep = have_keep ? &keep : nullptr;
+  place.baseline = have_baseline ? &baseline : nullptr;
+  settings.checks = place.policy.thresholds;
   settings.read.threads = o.threads;
   if (tamis::path_is_inside(root, out)) {
     std::fprintf(stderr, "tamis: --out %s lies inside ROOT %s; tamis never writes inside the data set\n",
                  out.c_str(), root.c_str());
+    return kExitBadUsage;
+  }
+  if (!jo.junit.empty() && tamis::path_is_inside(root, jo.junit)) {
+    std::fprintf(stderr, "tamis: --junit %s lies inside ROOT; tamis never writes inside the data set\n",
+                 jo.junit.c_str());
     return kExitBadUsage;
   }
   if (!o.cache.empty() && tamis::path_is_inside(root, o.cache)) {
@@ -135,23 +240,27 @@ int run_audit_command(const std::string& root, const std::string& out, const Spl
   settings.read.on_progress = [&progress](size_t done, size_t total) { progress.update(done, total); };
   tamis::AuditResult result;
   try {
-    result = tamis::place(tamis::read_tree(settings), settings.split, have_keep ? &keep : nullptr);
+    result = tamis::place(tamis::read_tree(settings), place);
     progress.finish();
-    tamis::write_outputs(out, result);
   } catch (const std::exception& e) {
     progress.finish();
     std::fprintf(stderr, "tamis: %s\n", e.what());
     return kExitCannotRun;
   }
-  if (!o.quiet) print_summary(result, out);
-  return tamis::policy_exit_status(result);
+  return finish(result, out, jo, o.quiet);
 }
 
-int run_split_command(const std::string& dir, const std::string& out, const SplitOptions& so, bool quiet) {
-  tamis::SplitSettings split;
+int run_split_command(const std::string& dir, const std::string& out, const SplitOptions& so, const JudgeOptions& jo,
+                      bool quiet) {
+  tamis::PlaceOptions place;
   tamis::KeepMap keep;
   bool have_keep = false;
-  if (!resolve_split(so, split, keep, have_keep)) return kExitBadUsage;
+  if (!resolve_split(so, place.split, keep, have_keep)) return kExitBadUsage;
+  tamis::Baseline baseline;
+  bool have_baseline = false;
+  if (!resolve_judge(jo, place.policy, baseline, have_baseline)) return kExitBadUsage;
+  place.keep = have_keep ? &keep : nullptr;
+  place.baseline = have_baseline ? &baseline : nullptr;
   tamis::AuditIndex index;
   try {
     index = tamis::load_index(std::filesystem::path(dir) / tamis::kIndexFileName);
@@ -166,14 +275,12 @@ int run_split_command(const std::string& dir, const std::string& out, const Spli
   }
   tamis::AuditResult result;
   try {
-    result = tamis::place(std::move(index), split, have_keep ? &keep : nullptr);
-    tamis::write_outputs(out, result);
+    result = tamis::place(std::move(index), place);
   } catch (const std::exception& e) {
     std::fprintf(stderr, "tamis: %s\n", e.what());
     return kExitCannotRun;
   }
-  if (!quiet) print_summary(result, out);
-  return tamis::policy_exit_status(result);
+  return finish(result, out, jo, quiet);
 }
 
 }  // namespace
@@ -189,7 +296,9 @@ int main(int argc, char** argv) {
   CLI::App* audit = app.add_subcommand("audit", "read ROOT, check it, split it and write the reports into --out");
   audit->add_option("ROOT", root, "the data set: one folder per class")->required();
   audit->add_option("--out", out, "folder for manifest.csv, report.json, report.html and index.cbor")->required();
+  JudgeOptions audit_judge;
   add_split_options(audit, audit_split);
+  add_judge_options(audit, audit_judge);
   add_reading_options(audit, audit_opts);
 
   SplitOptions resplit_opts;
@@ -198,7 +307,9 @@ int main(int argc, char** argv) {
   CLI::App* split = app.add_subcommand("split", "re-split from an audit's saved index (DIR/index.cbor), reading no image");
   split->add_option("DIR", split_dir, "the --out folder of an earlier audit")->required();
   split->add_option("--out", split_out, "folder for the new manifest and reports")->required();
+  JudgeOptions split_judge;
   add_split_options(split, resplit_opts);
+  add_judge_options(split, split_judge);
   split->add_flag("--quiet", split_quiet, "print nothing but errors");
 
   std::string demo_dir;
@@ -218,8 +329,8 @@ int main(int argc, char** argv) {
     return kExitBadUsage;
   }
 
-  if (audit->parsed()) return run_audit_command(root, out, audit_split, audit_opts);
-  if (split->parsed()) return run_split_command(split_dir, split_out, resplit_opts, split_quiet);
+  if (audit->parsed()) return run_audit_command(root, out, audit_split, audit_judge, audit_opts);
+  if (split->parsed()) return run_split_command(split_dir, split_out, resplit_opts, split_judge, split_quiet);
   if (demo->parsed()) {
     try {
       size_t n = tamis::write_demo(demo_dir);
