@@ -228,6 +228,133 @@ class Outputs(unittest.TestCase):
             self.assertEqual(ignored, {"README.txt": "not-an-image", "gingham/.thumbs.db": "hidden"})
 
 
+def make_clean_tree(root, per_class=12):
+    for c in ("alder", "birch"):
+        os.makedirs(os.path.join(root, c), exist_ok=True)
+        for i in range(per_class):
+            with open(os.path.join(root, c, f"{i}.png"), "wb") as f:
+                f.write(tiny_png())
+
+
+class Policy(unittest.TestCase):
+    def audit(self, root, out, *extra):
+        return run("audit", root, "--out", out, "--quiet", *extra)
+
+    def write_policy(self, t, obj):
+        path = os.path.join(t, "policy.json")
+        with open(path, "w") as f:
+            f.write(obj if isinstance(obj, str) else json.dumps(obj))
+        return path
+
+    def test_severities_and_thresholds_change_the_exit_status(self):
+        with tempfile.TemporaryDirectory() as t:
+            root = os.path.join(t, "data")
+            make_clean_tree(root)
+            out = os.path.join(t, "o")
+            self.assertEqual(self.audit(root, out).returncode, 0)
+            # 8x8 images are below the default min_side of 32: tiny-image, a warning by default.
+            p = self.write_policy(t, {"severity": {"tiny-image": "error"}})
+            self.assertEqual(self.audit(root, out, "--policy", p).returncode, 1)
+            p = self.write_policy(t, {"severity": {"tiny-image": "error"}, "thresholds": {"min_side": 8}})
+            self.assertEqual(self.audit(root, out, "--policy", p).returncode, 0)
+            # small-class: 12 images, min_class 20 -> warning; made an error -> fails.
+            p = self.write_policy(t, {"severity": {"small-class": "error"}, "thresholds": {"min_class": 20}})
+            self.assertEqual(self.audit(root, out, "--policy", p).returncode, 1)
+            # class-imbalance: 12 vs 3 images is a ratio of 4.
+            for i in range(9):
+                os.remove(os.path.join(root, "birch", f"{i}.png"))
+            p = self.write_policy(t, {"severity": {"class-imbalance": "error"}, "thresholds": {"max_imbalance": 3}})
+            self.assertEqual(self.audit(root, out, "--policy", p).returncode, 1)
+            p = self.write_policy(t, {"severity": {"class-imbalance": "error"}, "thresholds": {"max_imbalance": 5}})
+            self.assertEqual(self.audit(root, out, "--policy", p).returncode, 0)
+            # An unreadable file is an error by default; off, or a tolerated share, passes.
+            with open(os.path.join(root, "alder", "broken.png"), "wb") as f:
+                f.write(tiny_png()[:50])
+            self.assertEqual(self.audit(root, out).returncode, 1)
+            p = self.write_policy(t, {"severity": {"unreadable": "off"}})
+            self.assertEqual(self.audit(root, out, "--policy", p).returncode, 0)
+            p = self.write_policy(t, {"severity": {"unreadable": "warning"}, "thresholds": {"max_unreadable_share": 0.2}})
+            self.assertEqual(self.audit(root, out, "--policy", p).returncode, 0)
+            p = self.write_policy(t, {"severity": {"unreadable": "warning"}, "thresholds": {"max_unreadable_share": 0.01}})
+            self.assertEqual(self.audit(root, out, "--policy", p).returncode, 1)
+            validate_report(self, os.path.join(out, "report.json"))
+
+    def test_a_bad_policy_exits_2_naming_the_key(self):
+        with tempfile.TemporaryDirectory() as t:
+            root = os.path.join(t, "data")
+            make_clean_tree(root, 2)
+            cases = {
+                '{"severty": {}}': "severty",
+                '{"severity": {"no-such-code": "error"}}': "no-such-code",
+                '{"severity": {"tiny-image": "fatal"}}': "tiny-image",
+                '{"thresholds": {"min_sid": 3}}': "min_sid",
+                '{"thresholds": {"max_imbalance": "ten"}}': "max_imbalance",
+                '{"fail_on": "some"}': "fail_on",
+                '[1, 2]': "object",
+                '{"severity": ': "JSON",
+            }
+            for text, key in cases.items():
+                p = self.write_policy(t, text)
+                r = run("audit", root, "--out", os.path.join(t, "o"), "--policy", p)
+                self.assertEqual(r.returncode, 2, text)
+                self.assertIn(key, r.stderr, text)
+                self.assertFalse(os.path.exists(os.path.join(t, "o")), "nothing may be written on exit 2")
+
+    def test_baseline_fails_only_the_new_duplicate(self):
+        with tempfile.TemporaryDirectory() as t:
+            root = os.path.join(t, "data")
+            make_clean_tree(root)
+            with open(os.path.join(root, "alder", "broken.png"), "wb") as f:
+                f.write(tiny_png()[:50])  # a known problem, present in the baseline
+            old = os.path.join(t, "old")
+            self.assertEqual(run("audit", root, "--out", old, "--quiet").returncode, 1)
+            gate = self.write_policy(t, {"fail_on": "new", "severity": {"exact-duplicate": "error"}})
+            self.assertEqual(run("audit", root, "--out", os.path.join(t, "same"), "--quiet", "--policy", gate,
+                                 "--baseline", os.path.join(old, "report.json")).returncode, 0)
+            # Add a byte copy of one image: only that finding is new, and it fails the gate.
+            with open(os.path.join(root, "alder", "0.png"), "rb") as f:
+                data = f.read()
+            with open(os.path.join(root, "alder", "0 copy.png"), "wb") as f:
+                f.write(data)
+            new = os.path.join(t, "new")
+            junit = os.path.join(t, "junit.xml")
+            r = run("audit", root, "--out", new, "--quiet", "--policy", gate, "--junit", junit,
+                    "--baseline", os.path.join(old, "report.json"))
+            self.assertEqual(r.returncode, 1)
+            report = load_json(os.path.join(new, "report.json"))
+            validate_report(self, os.path.join(new, "report.json"))
+            self.assertEqual(report["baseline"]["files_added"], ["alder/0 copy.png"])
+            self.assertEqual(report["baseline"]["files_removed"], [])
+            new_findings = [f for f in report["findings"] if f["baseline"] == "new"]
+            self.assertIn("exact-duplicate", [f["code"] for f in new_findings])
+            for f in new_findings:  # everything new concerns the added file
+                self.assertIn("alder/0 copy.png", f["paths"], f["code"])
+            failing = [f["code"] for f in new_findings if f["severity"] == "error"]
+            self.assertEqual(failing, ["exact-duplicate"])
+            unreadable = [f for f in report["findings"] if f["code"] == "unreadable"]
+            self.assertEqual(unreadable[0]["baseline"], "known")
+            # JUnit XML, read with Python's xml.etree (a general-purpose XML parser).
+            import xml.etree.ElementTree as ET
+            suite = ET.parse(junit).getroot()
+            cases = {c.get("name"): c for c in suite.iter("testcase")}
+            self.assertIn("unreadable", cases)
+            self.assertIsNotNone(cases["exact-duplicate"].find("failure"))
+            self.assertIn("alder/0 copy.png", cases["exact-duplicate"].find("failure").text)
+            self.assertIsNone(cases["unreadable"].find("failure"))  # known from the baseline
+            self.assertEqual(int(suite.get("failures")), 1)
+
+    def test_summary_as_json_and_no_colour_in_a_pipe(self):
+        with tempfile.TemporaryDirectory() as t:
+            root = os.path.join(t, "data")
+            make_clean_tree(root, 3)
+            r = run("audit", root, "--out", os.path.join(t, "o"), "--format", "json")
+            summary = json.loads(r.stdout)
+            self.assertEqual(summary["images"], 6)
+            self.assertEqual(summary["exit_status"], r.returncode)
+            r = run("audit", root, "--out", os.path.join(t, "o"))
+            self.assertNotIn("\033[", r.stdout)
+
+
 if __name__ == "__main__":
     TAMIS = os.path.abspath(sys.argv.pop(1))
     unittest.main(verbosity=1)
