@@ -77,6 +77,14 @@ void save_index(const std::filesystem::path& file, const AuditIndex& x) {
                  {"exact_pairs", x.groups.exact_pairs},
                  {"candidate_hits", x.groups.candidate_hits},
                  {"confirmed_pairs", x.groups.confirmed_pairs}};
+  // The look-alike thumbnails of group members, for the report's picture strips.
+  json thumbs = json::array();
+  for (const auto& g : x.groups.groups)
+    for (uint32_t m : g.members) {
+      const auto& t = x.records[m].features.look.thumb;
+      thumbs.push_back(json::array({m, json::binary(std::vector<uint8_t>(t.begin(), t.end()))}));
+    }
+  j["thumbs"] = std::move(thumbs);
   j["totals"] = {x.totals.files_seen, x.totals.images, x.totals.masks, x.totals.unreadable, x.totals.ignored};
   j["walk"] = {{"links", bins(x.walk.links)}, {"unreadable_dirs", bins(x.walk.unreadable_dirs)}, {"dirs", bins(x.walk.dirs)}};
   std::vector<uint8_t> bytes = json::to_cbor(j);
@@ -170,6 +178,12 @@ AuditIndex load_index(const std::filesystem::path& file) {
     x.groups.exact_pairs = gr.at("exact_pairs").get<uint64_t>();
     x.groups.candidate_hits = gr.at("candidate_hits").get<uint64_t>();
     x.groups.confirmed_pairs = gr.at("confirmed_pairs").get<uint64_t>();
+    for (const auto& e : j.at("thumbs")) {
+      uint32_t m = e.at(0).get<uint32_t>();
+      const auto& b = e.at(1).get_binary();
+      if (m >= n || b.size() != 1024) throw std::runtime_error("thumbnail out of range");
+      std::copy(b.begin(), b.end(), x.records[m].features.look.thumb.begin());
+    }
     auto t = j.at("totals").get<std::vector<uint64_t>>();
     if (t.size() != 5) throw std::runtime_error("totals");
     x.totals = {t[0], t[1], t[2], t[3], t[4]};

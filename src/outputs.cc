@@ -2,6 +2,8 @@
 
 #include <stdexcept>
 
+#include <opencv2/imgcodecs.hpp>
+
 #include "tamis/atomic_file.h"
 #include "tamis/index_file.h"
 #include "tamis/manifest.h"
@@ -10,6 +12,49 @@
 
 namespace tamis {
 
+namespace {
+
+std::string base64(const std::vector<uchar>& in) {
+  static const char* t = "ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789+/";
+  std::string out;
+  out.reserve((in.size() + 2) / 3 * 4);
+  for (size_t i = 0; i < in.size(); i += 3) {
+    uint32_t v = uint32_t{in[i]} << 16;
+    if (i + 1 < in.size()) v |= uint32_t{in[i + 1]} << 8;
+    if (i + 2 < in.size()) v |= in[i + 2];
+    out.push_back(t[(v >> 18) & 63]);
+    out.push_back(t[(v >> 12) & 63]);
+    out.push_back(i + 1 < in.size() ? t[(v >> 6) & 63] : '=');
+    out.push_back(i + 2 < in.size() ? t[v & 63] : '=');
+  }
+  return out;
+}
+
+// JPEG thumbnails (the 32x32 look-alike thumbnails, shown at 64 px) of the groups'
+// first members, within `budget` bytes of data URIs.
+Thumbnails group_thumbnails(const AuditResult& r, size_t budget) {
+  Thumbnails out;
+  size_t used = 0;
+  for (size_t gi = 0; gi < r.groups.groups.size() && gi < 60; ++gi) {
+    const Group& g = r.groups.groups[gi];
+    auto& strip = out[group_id(static_cast<int64_t>(gi))];
+    for (size_t k = 0; k < g.members.size() && k < 8; ++k) {
+      const FileRecord& rec = r.records[g.members[k]];
+      if (!rec.features.has_lookalike) continue;
+      cv::Mat t(32, 32, CV_8UC1, const_cast<uint8_t*>(rec.features.look.thumb.data()));
+      std::vector<uchar> jpg;
+      if (!cv::imencode(".jpg", t, jpg, {cv::IMWRITE_JPEG_QUALITY, 85})) continue;
+      std::string uri = "data:image/jpeg;base64," + base64(jpg);
+      if (used + uri.size() > budget) return out;
+      used += uri.size();
+      strip.emplace_back(rec.path, std::move(uri));
+    }
+  }
+  return out;
+}
+
+}  // namespace
+
 void write_outputs(const std::filesystem::path& out_dir, const AuditResult& result) {
   std::error_code ec;
   std::filesystem::create_directories(out_dir, ec);
@@ -17,7 +62,8 @@ void write_outputs(const std::filesystem::path& out_dir, const AuditResult& resu
   write_file_atomically(out_dir / "manifest.csv", [&](std::ostream& os) { write_manifest(os, result); });
   nlohmann::json report = build_report(result);
   write_file_atomically(out_dir / "report.json", [&](std::ostream& os) { os << dump_json(report) << '\n'; });
-  write_file_atomically(out_dir / "report.html", [&](std::ostream& os) { os << render_html(report); });
+  Thumbnails thumbs = group_thumbnails(result, kThumbnailBudget);
+  write_file_atomically(out_dir / "report.html", [&](std::ostream& os) { os << render_html(report, thumbs); });
   save_index(out_dir / kIndexFileName, result);
 }
 

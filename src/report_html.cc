@@ -1,6 +1,8 @@
 #include "tamis/report_html.h"
 
 #include <algorithm>
+#include <cmath>
+#include <set>
 #include <sstream>
 
 namespace tamis {
@@ -48,7 +50,10 @@ th{background:#f1ebe0;font-weight:600}td.num{text-align:right;font-variant-numer
 .bar span{display:block;height:100%}.tr{background:var(--teal)}.va{background:var(--moss)}.te{background:var(--ochre)}.ex{background:#b9b2a6}
 .sev{font-weight:600;padding:1px 6px;border-radius:3px;font-size:12px;color:#fff}.sev.error{background:#b3261e}.sev.warning{background:var(--ochre)}.sev.info{background:#5b7083}
 code,.path{font-family:ui-monospace,Menlo,Consolas,monospace;font-size:12.5px;word-break:break-all;white-space:pre-wrap}
-.note{color:#5d6b70;font-size:12.5px}.legend span{display:inline-block;width:10px;height:10px;margin:0 4px 0 10px;border-radius:2px}
+.note{color:#5d6b70;font-size:12.5px}.filters{display:flex;gap:14px;align-items:center;margin:0 0 8px;font-size:13px}
+.group{border-top:1px solid #ece4d6;padding:8px 0}.gh{font-size:13px;margin-bottom:4px}.strip{display:flex;gap:8px;flex-wrap:wrap}
+figure{margin:0;width:96px}figure img,.nothumb{width:64px;height:64px;image-rendering:pixelated;border:1px solid var(--rule);background:#eee6d8}
+figcaption{font-size:10.5px}table.narrow{width:auto;margin-top:8px}.legend span{display:inline-block;width:10px;height:10px;margin:0 4px 0 10px;border-radius:2px}
 )CSS";
 
 void tiles(std::ostringstream& o, const json& t) {
@@ -115,33 +120,154 @@ void storage(std::ostringstream& o, const json& report) {
   o << "</table></section>\n";
 }
 
+std::string join_labels(const json& g) {
+  std::string out;
+  for (const auto& l : g.value("labels", json::array())) out += (out.empty() ? "" : ", ") + str(l);
+  return out;
+}
+
+// The class a path belongs to, for the findings filter (display only).
+std::string class_of_path(const std::string& p, bool pre_split) {
+  size_t a = p.find('/');
+  if (a == std::string::npos) return "";
+  if (!pre_split) return p.substr(0, a);
+  size_t b = p.find('/', a + 1);
+  return b == std::string::npos ? "" : p.substr(a + 1, b - a - 1);
+}
+
 void findings(std::ostringstream& o, const json& report) {
   const json& fs = report.value("findings", json::array());
+  const bool pre_split = report.value("layout", json::object()).value("pre_split", false);
   o << "<section id=\"findings\"><h2>Findings</h2>";
   if (fs.empty()) {
     o << "<p class=\"note\">Nothing to report.</p></section>\n";
     return;
   }
-  o << "<table><tr><th>severity</th><th>code</th><th>what</th><th>files</th></tr>";
+  std::set<std::string> codes, classes;
+  for (const auto& f : fs) codes.insert(str(f.value("code", json(""))));
+  for (const auto& c : report.value("classes", json::array())) classes.insert(str(c.value("label", json(""))));
+  o << "<div class=\"filters\"><label>severity <select id=\"f-sev\"><option value=\"\">all</option>"
+       "<option>error</option><option>warning</option><option>info</option></select></label>"
+       "<label>code <select id=\"f-code\"><option value=\"\">all</option>";
+  for (const auto& c : codes) o << "<option>" << html_escape(c) << "</option>";
+  o << "</select></label><label>class <select id=\"f-class\"><option value=\"\">all</option>";
+  for (const auto& c : classes) o << "<option>" << html_escape(c) << "</option>";
+  o << "</select></label><span class=\"note\" id=\"f-count\"></span></div>";
+  o << "<table id=\"findings-table\"><thead><tr><th data-sort=\"0\">severity</th><th data-sort=\"1\">code</th>"
+       "<th>what</th><th data-sort=\"3\" style=\"width:38%\">files</th></tr></thead><tbody>";
   size_t shown = 0;
   for (const auto& f : fs) {
     if (shown++ == kMaxRows) break;
     std::string sev = str(f.value("severity", json("info")));
-    o << "<tr><td><span class=\"sev " << html_escape(sev) << "\">" << html_escape(sev) << "</span></td><td><code>"
-      << esc(f.value("code", json(""))) << "</code></td><td>" << esc(f.value("message", json(""))) << "</td><td>";
     const json& paths = f.value("paths", json::array());
+    std::set<std::string> row_classes;
+    for (const auto& p : paths) {
+      std::string c = class_of_path(str(p), pre_split);
+      if (!c.empty()) row_classes.insert(c);
+    }
+    const json& details = f.value("details", json::object());
+    if (details.contains("label") && details["label"].is_string()) row_classes.insert(details["label"].get<std::string>());
+    if (details.contains("labels") && details["labels"].is_array())
+      for (const auto& l : details["labels"]) if (l.is_string()) row_classes.insert(l.get<std::string>());
+    std::string cls_attr;
+    for (const auto& c : row_classes) cls_attr += "\x1f" + c;
+    int rank = sev == "error" ? 0 : sev == "warning" ? 1 : 2;
+    o << "<tr data-sev=\"" << html_escape(sev) << "\" data-code=\"" << esc(f.value("code", json(""))) << "\" data-classes=\""
+      << html_escape(cls_attr + "\x1f") << "\" data-k0=\"" << rank << "\" data-k3=\"" << paths.size() << "\">"
+      << "<td><span class=\"sev " << html_escape(sev) << "\">" << html_escape(sev) << "</span>";
+    if (f.contains("baseline")) o << " <span class=\"note\">" << esc(f["baseline"]) << "</span>";
+    o << "</td><td><code>" << esc(f.value("code", json(""))) << "</code></td><td>" << esc(f.value("message", json("")))
+      << "</td><td>";
     size_t k = 0;
     for (const auto& p : paths) {
-      if (k++ == 20) {
-        o << "<div class=\"note\">… and " << paths.size() - 20 << " more (see report.json)</div>";
+      if (k++ == 8) {
+        o << "<div class=\"note\">… and " << paths.size() - 8 << " more (see report.json)</div>";
         break;
       }
       o << "<div class=\"path\">" << esc(p) << "</div>";
     }
     o << "</td></tr>";
   }
-  o << "</table>";
+  o << "</tbody></table>";
   if (fs.size() > kMaxRows) o << "<p class=\"note\">First " << kMaxRows << " of " << fs.size() << " findings.</p>";
+  o << "</section>\n";
+}
+
+void sizes(std::ostringstream& o, const json& report) {
+  const json& sz = report.value("sizes", json::array());
+  if (sz.empty()) return;
+  // Log-log scatter of stored width x height; circle area grows with the count.
+  double max_side = 16;
+  uint64_t max_count = 1;
+  for (const auto& e : sz) {
+    max_side = std::max({max_side, e.value("width", 1.0), e.value("height", 1.0)});
+    max_count = std::max(max_count, e.value("count", uint64_t{1}));
+  }
+  const double hi = std::log10(max_side * 1.5);
+  const int W = 520, H = 360, L = 56, B = 40;
+  auto px = [&](double v) { return L + std::log10(std::max(v, 1.0)) / hi * (W - L - 12); };
+  auto py = [&](double v) { return H - B - std::log10(std::max(v, 1.0)) / hi * (H - B - 12); };
+  o << "<section id=\"sizes\"><h2>Image sizes</h2><svg width=\"" << W << "\" height=\"" << H
+    << "\" viewBox=\"0 0 " << W << " " << H << "\" role=\"img\" aria-label=\"width by height\">";
+  o << "<rect x=\"" << L << "\" y=\"12\" width=\"" << W - L - 12 << "\" height=\"" << H - B - 12
+    << "\" fill=\"#fbf7f0\" stroke=\"#d9cfbf\"/>";
+  for (double t : {10.0, 100.0, 1000.0, 10000.0}) {
+    if (t > max_side * 1.5) break;
+    o << "<line x1=\"" << px(t) << "\" y1=\"12\" x2=\"" << px(t) << "\" y2=\"" << H - B << "\" stroke=\"#e6dccb\"/>"
+      << "<text x=\"" << px(t) << "\" y=\"" << H - B + 16 << "\" font-size=\"11\" text-anchor=\"middle\">" << t << "</text>"
+      << "<line x1=\"" << L << "\" y1=\"" << py(t) << "\" x2=\"" << W - 12 << "\" y2=\"" << py(t) << "\" stroke=\"#e6dccb\"/>"
+      << "<text x=\"" << L - 6 << "\" y=\"" << py(t) + 4 << "\" font-size=\"11\" text-anchor=\"end\">" << t << "</text>";
+  }
+  o << "<text x=\"" << (W + L) / 2 << "\" y=\"" << H - 6 << "\" font-size=\"12\" text-anchor=\"middle\">width (px)</text>"
+    << "<text x=\"14\" y=\"" << (H - B) / 2 << "\" font-size=\"12\" transform=\"rotate(-90 14 " << (H - B) / 2
+    << ")\" text-anchor=\"middle\">height (px)</text>";
+  for (const auto& e : sz) {
+    double w = e.value("width", 1.0), h = e.value("height", 1.0);
+    uint64_t n = e.value("count", uint64_t{1});
+    double r = 2.5 + 14.0 * std::sqrt(double(n) / double(max_count));
+    o << "<circle cx=\"" << px(w) << "\" cy=\"" << py(h) << "\" r=\"" << r
+      << "\" fill=\"#0f4c5c\" fill-opacity=\"0.45\"><title>" << w << " x " << h << ": " << n << "</title></circle>";
+  }
+  o << "</svg><table class=\"narrow\"><tr><th>most common sizes</th><th class=\"num\">images</th></tr>";
+  size_t k = 0;
+  for (const auto& e : sz) {
+    if (k++ == 8) break;
+    o << "<tr><td>" << esc(e.value("width", json(0))) << " x " << esc(e.value("height", json(0)))
+      << "</td><td class=\"num\">" << esc(e.value("count", json(0))) << "</td></tr>";
+  }
+  o << "</table></section>\n";
+}
+
+void groups(std::ostringstream& o, const json& report, const Thumbnails& thumbs) {
+  const json& gs = report.value("groups", json::array());
+  if (gs.empty()) return;
+  o << "<section id=\"groups\"><h2>Copies and look-alikes</h2><p class=\"note\">" << gs.size()
+    << " groups; each strip shows the first images of a group (its 32x32 look-alike thumbnails) with their paths.</p>";
+  size_t shown = 0;
+  for (const auto& g : gs) {
+    if (shown++ == 60) {
+      o << "<p class=\"note\">First 60 of " << gs.size() << " groups (all in report.json).</p>";
+      break;
+    }
+    std::string id = str(g.value("id", json("")));
+    o << "<div class=\"group\"><div class=\"gh\"><b>" << html_escape(id) << "</b> " << esc(g.value("kind", json("")))
+      << " · " << g.value("paths", json::array()).size() << " images · " << html_escape(join_labels(g)) << "</div><div class=\"strip\">";
+    auto it = thumbs.find(id);
+    size_t k = 0;
+    for (const auto& p : g.value("paths", json::array())) {
+      if (k++ == 8) break;
+      std::string path = str(p);
+      std::string uri;
+      if (it != thumbs.end())
+        for (const auto& [tp, data] : it->second)
+          if (tp == path) uri = data;
+      o << "<figure>";
+      if (!uri.empty()) o << "<img alt=\"\" width=\"64\" height=\"64\" src=\"" << uri << "\">";
+      else o << "<div class=\"nothumb\"></div>";
+      o << "<figcaption class=\"path\">" << html_escape(path) << "</figcaption></figure>";
+    }
+    o << "</div></div>";
+  }
   o << "</section>\n";
 }
 
@@ -162,11 +288,30 @@ void ignored(std::ostringstream& o, const json& report) {
 
 }  // namespace
 
-std::string render_html(const json& report) {
+// The filter and sort script. Its SHA-256 is in the page's Content-Security-Policy,
+// so it is the only script the browser will run (tests/report_html_test.py checks
+// the hash with hashlib). Edit both together.
+const char* kScriptHash = "sha256-Td//Re0L+8B9VfJd0a1kgglMrGyFXWxt54xy8WSTyvo=";
+const char* kScript = R"JS(
+(function(){var t=document.getElementById('findings-table');document.body.setAttribute('data-ready','1');if(!t)return;
+var rows=[].slice.call(t.tBodies[0].rows),s=document.getElementById('f-sev'),c=document.getElementById('f-code'),
+k=document.getElementById('f-class'),n=document.getElementById('f-count');
+function apply(){var v=0;rows.forEach(function(r){var ok=(!s.value||r.dataset.sev===s.value)&&(!c.value||r.dataset.code===c.value)
+&&(!k.value||r.dataset.classes.indexOf(''+k.value+'')>=0);r.style.display=ok?'':'none';if(ok)v++;});
+n.textContent=v+' of '+rows.length+' shown';}
+[s,c,k].forEach(function(e){e.addEventListener('change',apply);});
+[].slice.call(t.tHead.rows[0].cells).forEach(function(h){var col=h.dataset.sort;if(col===undefined)return;var up=true;
+h.style.cursor='pointer';h.addEventListener('click',function(){rows.sort(function(a,b){var x=a.dataset['k'+col],y=b.dataset['k'+col];
+if(x===undefined){x=a.cells[col].textContent;y=b.cells[col].textContent;return up?x.localeCompare(y):y.localeCompare(x);}
+return up?x-y:y-x;});up=!up;rows.forEach(function(r){t.tBodies[0].appendChild(r);});});});apply();})();
+)JS";
+
+std::string render_html(const json& report, const Thumbnails& thumbs) {
   std::ostringstream o;
   const json& tool = report.value("tool", json::object());
   o << "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
-       "<meta http-equiv=\"Content-Security-Policy\" content=\"default-src 'none'; style-src 'unsafe-inline'; img-src data:\">"
+       "<meta http-equiv=\"Content-Security-Policy\" content=\"default-src 'none'; style-src 'unsafe-inline'; img-src data:; script-src '"
+    << kScriptHash << "'\">"
        "<meta name=\"viewport\" content=\"width=device-width,initial-scale=1\"><title>tamis audit</title><style>"
     << kStyle << "</style></head><body>\n<header><h1>tamis audit</h1><p>" << esc(tool.value("name", json("tamis")))
     << " " << esc(tool.value("version", json(""))) << " · seed "
@@ -174,9 +319,11 @@ std::string render_html(const json& report) {
   tiles(o, report.value("totals", json::object()));
   findings(o, report);
   classes(o, report);
+  groups(o, report, thumbs);
+  sizes(o, report);
   storage(o, report);
   ignored(o, report);
-  o << "</main></body></html>\n";
+  o << "</main><script>" << kScript << "</script></body></html>\n";
   return o.str();
 }
 

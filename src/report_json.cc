@@ -1,5 +1,6 @@
 #include "tamis/report_json.h"
 
+#include <algorithm>
 #include <array>
 #include <map>
 #include <set>
@@ -93,6 +94,20 @@ json build_report(const AuditResult& r) {
   Balance bal = class_balance(r.records, r.labels);
   j["balance"] = {{"largest", bal.largest}, {"smallest", bal.smallest}, {"imbalance_ratio", bal.imbalance_ratio},
                   {"normalized_entropy", bal.normalized_entropy}};
+  // The most common stored sizes (for the size scatter), most frequent first.
+  std::map<std::pair<uint32_t, uint32_t>, uint64_t> size_counts;
+  for (const auto& rec : r.records)
+    if (rec.kind == FileKind::image) ++size_counts[{rec.probe.width, rec.probe.height}];
+  std::vector<std::pair<uint64_t, std::pair<uint32_t, uint32_t>>> by_count;
+  for (const auto& [wh, n] : size_counts) by_count.push_back({n, wh});
+  std::sort(by_count.begin(), by_count.end(), [](const auto& a, const auto& b) {
+    return a.first != b.first ? a.first > b.first : a.second < b.second;
+  });
+  if (by_count.size() > 2000) by_count.resize(2000);
+  json sizes = json::array();
+  for (const auto& [n, wh] : by_count) sizes.push_back({{"width", wh.first}, {"height", wh.second}, {"count", n}});
+  j["sizes"] = std::move(sizes);
+  j["distinct_sizes"] = size_counts.size();
   j["formats"] = formats;
   j["modes"] = modes;
   json groups = json::array();

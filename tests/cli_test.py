@@ -155,7 +155,7 @@ class Outputs(unittest.TestCase):
             self.assertEqual(tot["files_seen"], tot["images"] + tot["masks"] + tot["unreadable"] + tot["ignored"])
             self.assertEqual(tot["images"], len(self.NAMES))
             html = read_text(os.path.join(out, "report.html"))
-            self.assertNotIn("<script>", html)
+            self.assertNotIn("<script>alert", html)  # the page has one script of its own, never a name
             self.assertNotIn("<img src=x", html)
             self.assertEqual([n for n in os.listdir(out) if ".tmp" in n], [])
 

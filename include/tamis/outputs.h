@@ -13,6 +13,9 @@
 
 namespace tamis {
 
+// Bytes of thumbnail data URIs report.html may carry (about 300 KB).
+inline constexpr size_t kThumbnailBudget = 300 * 1024;
+
 void write_outputs(const std::filesystem::path& out_dir, const AuditResult& result);
 
 }  // namespace tamis

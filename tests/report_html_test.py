@@ -1,0 +1,113 @@
+#!/usr/bin/python3
+"""report.html in headless Chromium (Debian chromium): hostile file names never run
+as script or become markup, the page's own script runs under its Content-Security-
+Policy hash, the hash is right (Python's hashlib), and the page renders (a screenshot
+that is not blank, checked with Pillow). Usage: report_html_test.py TAMIS
+"""
+import base64
+import hashlib
+import os
+import re
+import shutil
+import subprocess
+import sys
+import tempfile
+import unittest
+
+TAMIS = None
+CHROMIUM = shutil.which("chromium") or "/usr/bin/chromium"
+FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
+         "--disable-background-networking", "--disable-component-update", "--disable-sync"]
+
+HOSTILE = [
+    "<script>document.body.setAttribute('data-pwned','1')<script>.png",
+    "<img src=x onerror=\"document.body.setAttribute('data-pwned','2')\">.png",
+    "\" onmouseover=\"document.body.setAttribute('data-pwned','3').png",
+    "'><svg onload=document.body.setAttribute('data-pwned','4')>.png",
+    "&amp;lt;b&amp;gt;.png",
+]
+
+
+def tiny_png(seed):
+    import random
+    import struct
+    import zlib
+    rng = random.Random(seed)
+    def chunk(t, d):
+        return struct.pack(">I", len(d)) + t + d + struct.pack(">I", zlib.crc32(t + d) & 0xFFFFFFFF)
+    raw = b"".join(b"\x00" + bytes(rng.randrange(256) for _ in range(8)) for _ in range(8))
+    return (b"\x89PNG\r\n\x1a\n" + chunk(b"IHDR", struct.pack(">IIBBBBB", 8, 8, 8, 0, 0, 0, 0)) +
+            chunk(b"IDAT", zlib.compress(raw)) + chunk(b"IEND", b""))
+
+
+def chromium(*args, cwd):
+    profile = tempfile.mkdtemp(dir=cwd)
+    r = subprocess.run([CHROMIUM, *FLAGS, f"--user-data-dir={profile}", *args], capture_output=True, text=True,
+                       timeout=120, cwd=cwd)
+    return r
+
+
+class ReportInBrowser(unittest.TestCase):
+    @classmethod
+    def setUpClass(cls):
+        cls.tmp = tempfile.mkdtemp()
+        root = os.path.join(cls.tmp, "data")
+        for i, name in enumerate(HOSTILE):
+            label = ["<b>class</b>", "plain"][i % 2].replace("/", "")
+            os.makedirs(os.path.join(root, label), exist_ok=True)
+            with open(os.path.join(root, label, name), "wb") as f:
+                f.write(tiny_png(i))
+        # a byte copy too, so the groups section (with thumbnails) is on the page
+        with open(os.path.join(root, "plain", HOSTILE[1]), "rb") as f:
+            data = f.read()
+        with open(os.path.join(root, "plain", "copy " + HOSTILE[0]), "wb") as f:
+            f.write(data)
+        cls.out = os.path.join(cls.tmp, "out")
+        r = subprocess.run([TAMIS, "audit", root, "--out", cls.out, "--quiet"], capture_output=True, text=True)
+        assert r.returncode in (0, 1), r.stderr
+        cls.page = os.path.join(cls.out, "report.html")
+        with open(cls.page, encoding="utf-8") as f:
+            cls.html = f.read()
+
+    @classmethod
+    def tearDownClass(cls):
+        shutil.rmtree(cls.tmp, ignore_errors=True)
+
+    def test_no_hostile_name_runs_and_each_appears_as_text(self):
+        r = chromium("--virtual-time-budget=3000", "--dump-dom", "file://" + self.page, cwd=self.tmp)
+        dom = r.stdout
+        self.assertIn("<main>", dom, r.stderr[-2000:])
+        self.assertNotIn("data-pwned", dom.split("<main>", 1)[0] + re.sub(r"&[a-z#0-9]+;", "", ""))
+        self.assertIsNone(re.search(r"<body[^>]*data-pwned", dom))
+        self.assertIsNone(re.search(r"<(img|svg)[^>]*(onerror|onload)=", dom))
+        self.assertEqual(len(re.findall(r"<script", dom)), 1)  # only the page's own script element
+        self.assertRegex(dom, r'<body[^>]*data-ready="1"')      # ...and it ran under the CSP hash
+        for name in HOSTILE:
+            escaped = name.replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
+            self.assertIn(escaped, dom, name)
+
+    def test_csp_hash_matches_the_inline_script(self):
+        scripts = re.findall(r"<script>(.*?)</script>", self.html, re.S)
+        self.assertEqual(len(scripts), 1)
+        digest = base64.b64encode(hashlib.sha256(scripts[0].encode("utf-8")).digest()).decode()
+        csp = re.search(r'Content-Security-Policy" content="([^"]*)"', self.html).group(1)
+        self.assertIn(f"script-src 'sha256-{digest}'", csp)
+        self.assertIn("default-src 'none'", csp)
+        # nothing loads from anywhere: no remote or file references, no imports
+        self.assertIsNone(re.search(r"(src|href)=\"(?!data:)|url\(|@import|https?://", self.html))
+
+    def test_page_renders_something(self):
+        shot = os.path.join(self.tmp, "shot.png")
+        r = chromium("--window-size=1200,1600", f"--screenshot={shot}", "file://" + self.page, cwd=self.tmp)
+        self.assertTrue(os.path.exists(shot), r.stderr[-2000:])
+        from PIL import Image
+        im = Image.open(shot).convert("RGB")
+        colours = im.getcolors(maxcolors=1 << 20)
+        self.assertGreater(len(colours), 50)  # text, bars and tiles, not a blank page
+        teal = sum(n for n, c in colours if c == (15, 76, 92))  # the header's colour, #0f4c5c
+        self.assertGreater(teal, 1200 * 30)
+
+
+if __name__ == "__main__":
+    TAMIS = os.path.abspath(sys.argv.pop(1))
+    unittest.main(verbosity=1)
