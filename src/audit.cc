@@ -14,7 +14,8 @@ AuditIndex read_tree(const AuditSettings& settings) {
   r.records = read_files(settings.root, r.walk.files, settings.read);
   r.walk.files.clear();
   r.walk.files.shrink_to_fit();
-  r.labels = assign_labels(r.records);
+  r.masks = pair_masks(r.records, settings.masks);
+  r.labels = assign_labels(r.records, r.masks.layout_roots);
   GroupSettings gs = settings.groups;
   gs.threads = settings.read.threads;
   r.groups = find_groups(r.records, gs);
@@ -39,6 +40,7 @@ AuditResult place(AuditIndex index, const PlaceOptions& opt) {
 
   // Checks.
   check_inventory(r.records, r.labels, r.walk, r.findings);
+  check_masks(r.records, r.masks, r.findings);
   check_groups(r.records, r.labels, r.groups, r.settings.groups, r.findings);
   check_images(r.records, r.labels, r.settings.checks, r.findings);
   check_labels(r.records, r.labels, r.walk, r.settings.checks, r.findings);

@@ -108,6 +108,29 @@ Decoded decode_jpeg(Bytes b, const DecodeLimits& limits) {
   return out;
 }
 
+// Distinct pixel values (all channels together), counted up to `cap`. Masks and
+// label maps have a handful; photographs have thousands.
+uint8_t count_distinct(const cv::Mat& m, int cap) {
+  const int ch = m.channels();
+  std::vector<uint32_t> seen;
+  seen.reserve(static_cast<size_t>(cap));
+  uint32_t last = UINT32_MAX;
+  for (int y = 0; y < m.rows; ++y) {
+    const uint8_t* p = m.ptr<uint8_t>(y);
+    for (int x = 0; x < m.cols; ++x, p += ch) {
+      uint32_t v = 0;
+      for (int c = 0; c < ch; ++c) v = (v << 8) | p[c];
+      if (v == last) continue;
+      last = v;
+      if (std::find(seen.begin(), seen.end(), v) == seen.end()) {
+        seen.push_back(v);
+        if (static_cast<int>(seen.size()) >= cap) return static_cast<uint8_t>(cap);
+      }
+    }
+  }
+  return static_cast<uint8_t>(seen.size());
+}
+
 // Reads LSB-first variable-width codes from a GIF sub-block chain.
 class GifCodeReader {
  public:
@@ -311,6 +334,7 @@ Decoded decode_image(std::span<const uint8_t> b, const ProbeInfo& probe, const D
     return out;
   }
   m = to_8bit(m);
+  out.distinct = count_distinct(m, 65);
   if (m.channels() == 2 || m.channels() == 4) {  // alpha at full resolution
     cv::Mat a;
     cv::extractChannel(m, a, m.channels() - 1);

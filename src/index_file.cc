@@ -2,6 +2,7 @@
 
 #include <fstream>
 #include <iterator>
+#include <set>
 #include <stdexcept>
 
 #include <nlohmann/json.hpp>
@@ -51,6 +52,7 @@ void save_index(const std::filesystem::path& file, const AuditIndex& x) {
   j["read"] = {{"max_pixels", x.settings.read.decode.max_pixels},
                {"reduced_side", x.settings.read.decode.reduced_side},
                {"max_bytes", x.settings.read.max_bytes}};
+  j["mask_settings"] = {{"force", bins(x.settings.masks.force)}, {"forbid", bins(x.settings.masks.forbid)}};
   j["groups_settings"] = {{"radius", x.settings.groups.radius}, {"min_correlation", x.settings.groups.min_correlation}};
   const auto& cs = x.settings.checks;
   j["checks"] = {{"min_side", cs.min_side}, {"input_side", cs.input_side}, {"min_class", cs.min_class},
@@ -63,7 +65,8 @@ void save_index(const std::filesystem::path& file, const AuditIndex& x) {
                                 p.height, p.frames, r.features.content_hash[0], r.features.content_hash[1],
                                 r.features.has_content_hash, r.features.has_lookalike, r.features.stats.luma_mean,
                                 r.features.stats.luma_std, r.features.stats.entropy, r.features.stats.focus,
-                                r.features.stats.alpha_min, r.features.stats.channels_equal}));
+                                r.features.stats.alpha_min, r.features.stats.channels_equal,
+                                r.features.stats.distinct}));
   }
   j["records"] = std::move(recs);
   std::vector<int> given;
@@ -77,13 +80,27 @@ void save_index(const std::filesystem::path& file, const AuditIndex& x) {
                  {"exact_pairs", x.groups.exact_pairs},
                  {"candidate_hits", x.groups.candidate_hits},
                  {"confirmed_pairs", x.groups.confirmed_pairs}};
+  json ev = json::array();
+  for (const auto& e : x.masks.evidence)
+    ev.push_back({bin(e.folder), bin(e.partner), e.layout, e.pairs, e.confirmed, e.accepted, e.decided_by});
+  j["masks"] = {{"mask_of", x.masks.mask_of}, {"image_of", x.masks.image_of}, {"evidence", ev},
+                {"layout_roots", bins(x.masks.layout_roots)}, {"misfiled", x.masks.misfiled},
+                {"orphan_images", x.masks.orphan_images}};
   // The look-alike thumbnails of group members, for the report's picture strips.
   json thumbs = json::array();
-  for (const auto& g : x.groups.groups)
-    for (uint32_t m : g.members) {
-      const auto& t = x.records[m].features.look.thumb;
-      thumbs.push_back(json::array({m, json::binary(std::vector<uint8_t>(t.begin(), t.end()))}));
+  std::set<uint32_t> shown;
+  for (const auto& g : x.groups.groups) shown.insert(g.members.begin(), g.members.end());
+  size_t pairs = 0;
+  for (size_t i = 0; i < x.records.size() && pairs < kMaskPairsShown; ++i)
+    if (x.masks.mask_of[i] >= 0) {
+      shown.insert(static_cast<uint32_t>(i));
+      shown.insert(static_cast<uint32_t>(x.masks.mask_of[i]));
+      ++pairs;
     }
+  for (uint32_t m : shown) {
+    const auto& t = x.records[m].features.look.thumb;
+    thumbs.push_back(json::array({m, json::binary(std::vector<uint8_t>(t.begin(), t.end()))}));
+  }
   j["thumbs"] = std::move(thumbs);
   j["totals"] = {x.totals.files_seen, x.totals.images, x.totals.masks, x.totals.unreadable, x.totals.ignored};
   j["walk"] = {{"links", bins(x.walk.links)}, {"unreadable_dirs", bins(x.walk.unreadable_dirs)}, {"dirs", bins(x.walk.dirs)}};
@@ -111,6 +128,8 @@ AuditIndex load_index(const std::filesystem::path& file) {
     x.settings.read.max_bytes = rd.at("max_bytes").get<uint64_t>();
     x.settings.groups.radius = j.at("groups_settings").at("radius").get<int>();
     x.settings.groups.min_correlation = j.at("groups_settings").at("min_correlation").get<double>();
+    x.settings.masks.force = strs(j.at("mask_settings").at("force"));
+    x.settings.masks.forbid = strs(j.at("mask_settings").at("forbid"));
     const json& ck = j.at("checks");
     x.settings.checks.min_side = ck.at("min_side").get<uint32_t>();
     x.settings.checks.input_side = ck.at("input_side").get<uint32_t>();
@@ -118,7 +137,7 @@ AuditIndex load_index(const std::filesystem::path& file) {
     x.settings.checks.max_imbalance = ck.at("max_imbalance").get<double>();
     x.settings.checks.outlier_z = ck.at("outlier_z").get<double>();
     for (const auto& e : j.at("records")) {
-      if (!e.is_array() || e.size() != 26) throw std::runtime_error("malformed record");
+      if (!e.is_array() || e.size() != 27) throw std::runtime_error("malformed record");
       FileRecord r;
       r.path = str(e[0]);
       r.size = e[1].get<uint64_t>();
@@ -145,11 +164,38 @@ AuditIndex load_index(const std::filesystem::path& file) {
       r.features.stats.focus = e[23].get<float>();
       r.features.stats.alpha_min = e[24].get<uint8_t>();
       r.features.stats.channels_equal = e[25].get<bool>();
+      r.features.stats.distinct = e[26].get<uint8_t>();
       x.records.push_back(std::move(r));
     }
     const size_t n = x.records.size();
     for (size_t i = 1; i < n; ++i)
       if (!(x.records[i - 1].path < x.records[i].path)) throw std::runtime_error("records out of order");
+    const json& mk = j.at("masks");
+    x.masks.mask_of = mk.at("mask_of").get<std::vector<int64_t>>();
+    x.masks.image_of = mk.at("image_of").get<std::vector<int64_t>>();
+    if (x.masks.mask_of.size() != n || x.masks.image_of.size() != n) throw std::runtime_error("mask table size");
+    for (int64_t v : x.masks.mask_of)
+      if (v < -1 || v >= static_cast<int64_t>(n)) throw std::runtime_error("mask link out of range");
+    for (int64_t v : x.masks.image_of)
+      if (v < -1 || v >= static_cast<int64_t>(n)) throw std::runtime_error("mask link out of range");
+    for (const auto& e : mk.at("evidence")) {
+      MaskEvidence me;
+      me.folder = str(e.at(0));
+      me.partner = str(e.at(1));
+      me.layout = e.at(2).get<std::string>();
+      me.pairs = e.at(3).get<uint64_t>();
+      me.confirmed = e.at(4).get<uint64_t>();
+      me.accepted = e.at(5).get<bool>();
+      me.decided_by = e.at(6).get<std::string>();
+      x.masks.evidence.push_back(std::move(me));
+    }
+    x.masks.layout_roots = strs(mk.at("layout_roots"));
+    x.masks.misfiled = mk.at("misfiled").get<std::vector<uint32_t>>();
+    x.masks.orphan_images = mk.at("orphan_images").get<std::vector<uint32_t>>();
+    for (uint32_t v : x.masks.misfiled)
+      if (v >= n) throw std::runtime_error("mask index out of range");
+    for (uint32_t v : x.masks.orphan_images)
+      if (v >= n) throw std::runtime_error("mask index out of range");
     const json& lb = j.at("labels");
     x.labels.pre_split = lb.at("pre_split").get<bool>();
     x.labels.names = strs(lb.at("names"));

@@ -41,7 +41,7 @@ std::vector<std::string_view> folders_of(std::string_view path) {
 }
 }  // namespace
 
-Labelling assign_labels(const std::vector<FileRecord>& records) {
+Labelling assign_labels(const std::vector<FileRecord>& records, const std::vector<std::string>& layout_roots) {
   Labelling out;
   out.label_of.assign(records.size(), -1);
   out.given_split.assign(records.size(), SplitName::none);
@@ -67,6 +67,7 @@ Labelling assign_labels(const std::vector<FileRecord>& records) {
     if (r.kind != FileKind::image && r.kind != FileKind::unreadable) continue;
     auto f = folders_of(r.path);
     size_t at = out.pre_split ? 1 : 0;
+    if (!f.empty() && std::find(layout_roots.begin(), layout_roots.end(), f[0]) != layout_roots.end()) at = 1;
     if (out.pre_split && !f.empty()) out.given_split[i] = split_from_folder(f[0]);
     if (f.size() > at) {
       raw[i] = f[at];

@@ -75,7 +75,7 @@ void write_manifest(std::ostream& os, const AuditResult& r) {
     field(probed ? to_string(rec.probe.mode) : "");
     field(probed ? std::to_string(rec.probe.bit_depth) : "");
     field(probed ? to_string(rec.probe.format) : "");
-    field("");  // mask_path: filled by mask pairing
+    field(r.masks.mask_of[i] >= 0 ? std::string_view(r.records[static_cast<size_t>(r.masks.mask_of[i])].path) : "");
     field(flags[i]);
     field(readable ? "" : defect_code(rec.defect));
     field(std::to_string(rec.size));

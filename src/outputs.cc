@@ -35,16 +35,33 @@ std::string base64(const std::vector<uchar>& in) {
 Thumbnails group_thumbnails(const AuditResult& r, size_t budget) {
   Thumbnails out;
   size_t used = 0;
+  auto uri_of = [&](const FileRecord& rec) {
+    cv::Mat t(32, 32, CV_8UC1, const_cast<uint8_t*>(rec.features.look.thumb.data()));
+    std::vector<uchar> jpg;
+    if (!cv::imencode(".jpg", t, jpg, {cv::IMWRITE_JPEG_QUALITY, 85})) return std::string();
+    return "data:image/jpeg;base64," + base64(jpg);
+  };
+  // A few image/mask pairs first (key "#masks": image, mask, image, mask, ...).
+  size_t pairs = 0;
+  for (size_t i = 0; i < r.records.size() && pairs < kMaskPairsShown; ++i) {
+    if (r.masks.mask_of[i] < 0) continue;
+    const FileRecord& img = r.records[i];
+    const FileRecord& mask = r.records[static_cast<size_t>(r.masks.mask_of[i])];
+    std::string a = uri_of(img), b = uri_of(mask);
+    if (a.empty() || b.empty() || used + a.size() + b.size() > budget) break;
+    used += a.size() + b.size();
+    out["#masks"].emplace_back(img.path, std::move(a));
+    out["#masks"].emplace_back(mask.path, std::move(b));
+    ++pairs;
+  }
   for (size_t gi = 0; gi < r.groups.groups.size() && gi < 60; ++gi) {
     const Group& g = r.groups.groups[gi];
     auto& strip = out[group_id(static_cast<int64_t>(gi))];
     for (size_t k = 0; k < g.members.size() && k < 8; ++k) {
       const FileRecord& rec = r.records[g.members[k]];
       if (!rec.features.has_lookalike) continue;
-      cv::Mat t(32, 32, CV_8UC1, const_cast<uint8_t*>(rec.features.look.thumb.data()));
-      std::vector<uchar> jpg;
-      if (!cv::imencode(".jpg", t, jpg, {cv::IMWRITE_JPEG_QUALITY, 85})) continue;
-      std::string uri = "data:image/jpeg;base64," + base64(jpg);
+      std::string uri = uri_of(rec);
+      if (uri.empty()) continue;
       if (used + uri.size() > budget) return out;
       used += uri.size();
       strip.emplace_back(rec.path, std::move(uri));

@@ -29,6 +29,8 @@ const std::map<std::string, Severity>& finding_catalogue() {
       {"label-variants", Severity::warning},    {"label-near", Severity::info},
       {"small-class", Severity::warning},       {"empty-class", Severity::warning},
       {"class-imbalance", Severity::warning},   {"stray-file", Severity::info},
+      {"mask-orphan", Severity::warning},       {"mask-size-mismatch", Severity::error},
+      {"mask-empty", Severity::warning},        {"mask-misfiled", Severity::warning},
   };
   return c;
 }

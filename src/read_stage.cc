@@ -93,6 +93,7 @@ void read_one(int rootfd, const WalkEntry& e, const ReadOptions& opt, std::vecto
   if (d.defect != Defect::none) return unreadable(d.defect);
   r.features.look = lookalike_features(d.reduced);
   r.features.stats = image_stats(d.reduced, d.alpha_min);
+  r.features.stats.distinct = d.distinct;
   r.features.has_lookalike = true;
   r.kind = FileKind::image;
 }

@@ -238,6 +238,38 @@ void sizes(std::ostringstream& o, const json& report) {
   o << "</table></section>\n";
 }
 
+void mask_pairs(std::ostringstream& o, const json& report, const Thumbnails& thumbs) {
+  const json& m = report.value("masks", json::object());
+  const json& pairs = m.value("pairs", json::array());
+  if (pairs.empty()) return;
+  o << "<section id=\"masks\"><h2>Masks and their images</h2><p class=\"note\">" << pairs.size()
+    << " images have a mask or annotation twin; masks are not counted as images or classes.</p><table class=\"narrow\">"
+       "<tr><th>class</th><th class=\"num\">pairs</th></tr>";
+  for (const auto& c : m.value("pairs_per_class", json::array()))
+    o << "<tr><td class=\"path\">" << esc(c.value("label", json(""))) << "</td><td class=\"num\">"
+      << esc(c.value("pairs", json(0))) << "</td></tr>";
+  o << "</table><table class=\"narrow\"><tr><th>folder</th><th>beside</th><th>layout</th><th class=\"num\">pairs</th>"
+       "<th class=\"num\">confirmed</th><th>masks?</th></tr>";
+  size_t k = 0;
+  for (const auto& e : m.value("folders", json::array())) {
+    if (k++ == 50) break;
+    o << "<tr><td class=\"path\">" << esc(e.value("folder", json(""))) << "</td><td class=\"path\">"
+      << esc(e.value("partner", json(""))) << "</td><td>" << esc(e.value("layout", json(""))) << "</td><td class=\"num\">"
+      << esc(e.value("pairs", json(0))) << "</td><td class=\"num\">" << esc(e.value("confirmed", json(0)))
+      << "</td><td>" << (e.value("accepted", false) ? "yes" : "no") << " (" << esc(e.value("decided_by", json(""))) << ")</td></tr>";
+  }
+  o << "</table>";
+  auto it = thumbs.find("#masks");
+  if (it != thumbs.end()) {
+    o << "<div class=\"strip\">";
+    for (const auto& [path, uri] : it->second)
+      o << "<figure><img alt=\"\" width=\"64\" height=\"64\" src=\"" << uri << "\"><figcaption class=\"path\">"
+        << html_escape(path) << "</figcaption></figure>";
+    o << "</div>";
+  }
+  o << "</section>\n";
+}
+
 void groups(std::ostringstream& o, const json& report, const Thumbnails& thumbs) {
   const json& gs = report.value("groups", json::array());
   if (gs.empty()) return;
@@ -320,6 +352,7 @@ std::string render_html(const json& report, const Thumbnails& thumbs) {
   findings(o, report);
   classes(o, report);
   groups(o, report, thumbs);
+  mask_pairs(o, report, thumbs);
   sizes(o, report);
   storage(o, report);
   ignored(o, report);

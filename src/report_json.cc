@@ -30,6 +30,8 @@ json settings_json(const AuditSettings& s) {
       {"min_class", s.checks.min_class},
       {"max_imbalance", s.checks.max_imbalance},
       {"outlier_z", s.checks.outlier_z},
+      {"mask_folders", s.masks.force},
+      {"not_mask_folders", s.masks.forbid},
   };
 }
 
@@ -127,6 +129,26 @@ json build_report(const AuditResult& r) {
                       {"diameter_exact", g.diameter_exact}});
   }
   j["groups"] = std::move(groups);
+  // Mask pairs per class, the folder evidence, and every pair.
+  json pairs = json::array();
+  std::map<std::string, uint64_t> pairs_per_class;
+  for (size_t i = 0; i < r.records.size(); ++i) {
+    if (r.masks.mask_of[i] < 0) continue;
+    std::string label = r.labels.label_of[i] >= 0 ? r.labels.names[static_cast<size_t>(r.labels.label_of[i])] : "";
+    ++pairs_per_class[label];
+    pairs.push_back({{"image", r.records[i].path}, {"mask", r.records[static_cast<size_t>(r.masks.mask_of[i])].path},
+                     {"label", label}});
+  }
+  json evidence = json::array();
+  for (const auto& e : r.masks.evidence)
+    evidence.push_back({{"folder", e.folder}, {"partner", e.partner}, {"layout", e.layout}, {"pairs", e.pairs},
+                        {"confirmed", e.confirmed},
+                        {"fraction", e.pairs ? double(e.confirmed) / double(e.pairs) : 0.0},
+                        {"accepted", e.accepted}, {"decided_by", e.decided_by}});
+  json per_class = json::array();
+  for (const auto& [label, n] : pairs_per_class) per_class.push_back({{"label", label}, {"pairs", n}});
+  j["masks"] = {{"pairs_per_class", per_class}, {"folders", evidence}, {"pairs", pairs},
+                {"layout_roots", r.masks.layout_roots}};
   j["lookalike_search"] = {{"exact_pairs", r.groups.exact_pairs},
                            {"candidate_hits", r.groups.candidate_hits},
                            {"confirmed_pairs", r.groups.confirmed_pairs}};

@@ -215,7 +215,7 @@ TEST_CASE("label hygiene: one class spelled three ways, near names, small and em
   test::TempDir t;
   int k = 0;
   auto add = [&](const std::string& cls, int n) {
-    for (int i = 0; i < n; ++i) test::write_bytes(t / cls / ("p" + std::to_string(k) + ".jpg"), enc(photo_crop(k++), ".jpg"));
+    for (int i = 0; i < n; ++i, ++k) test::write_bytes(t / cls / ("p" + std::to_string(k) + ".jpg"), enc(photo_crop(k), ".jpg"));
   };
   add("Red_Pepper", 12);
   add("red pepper", 12);

@@ -21,6 +21,7 @@
 #include "tamis/groups.h"
 #include "tamis/policy.h"
 #include "tamis/labels.h"
+#include "tamis/masks.h"
 #include "tamis/read_stage.h"
 #include "tamis/record.h"
 #include "tamis/split.h"
@@ -33,6 +34,7 @@ struct AuditSettings {
   ReadOptions read;
   GroupSettings groups;
   CheckSettings checks;   // from the policy's thresholds
+  MaskSettings masks;
   SplitSettings split;
 };
 
@@ -46,6 +48,7 @@ struct AuditIndex {
   AuditSettings settings;           // root, read and group settings of the reading run
   WalkResult walk;                  // walk.files is released once read; links and dirs kept
   std::vector<FileRecord> records;  // sorted by path, one per regular file
+  MaskPairing masks;                // which records are masks, and whose
   Labelling labels;
   GroupResult groups;               // groups.group_of: per record, index into groups.groups or -1
   Totals totals;
@@ -69,7 +72,7 @@ struct AuditResult : AuditIndex {
   bool fail_on_new_only = false;
 };
 
-// walk -> read -> labels -> groups. Throws std::runtime_error when ROOT cannot be read.
+// walk -> read -> masks -> labels -> groups. Throws std::runtime_error when ROOT cannot be read.
 AuditIndex read_tree(const AuditSettings& settings);
 
 // checks -> split -> policy -> baseline, on an index (fresh, or loaded by `tamis

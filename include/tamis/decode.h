@@ -30,6 +30,7 @@ struct Decoded {
   Defect defect = Defect::none;
   cv::Mat reduced;  // 8-bit; shorter side >= reduced_side unless the image is smaller
   uint8_t alpha_min = 255;  // smallest alpha value at full resolution (255 without alpha)
+  uint8_t distinct = 65;    // distinct pixel values (colours) at full resolution, up to 65; JPEG: 65
 };
 
 Decoded decode_image(std::span<const uint8_t> bytes, const ProbeInfo& probe, const DecodeLimits& limits);

@@ -17,6 +17,7 @@
 namespace tamis {
 
 inline constexpr int kIndexVersion = 1;
+inline constexpr size_t kMaskPairsShown = 12;  // image/mask pairs whose thumbnails the index keeps for the report
 inline constexpr const char* kIndexFileName = "index.cbor";
 
 void save_index(const std::filesystem::path& file, const AuditIndex& index);

@@ -32,7 +32,10 @@ struct Labelling {
   std::vector<SplitName> given_split;     // per record: the split folder, when pre_split
 };
 
-// Labels every record (only images get one; others get -1).
-Labelling assign_labels(const std::vector<FileRecord>& records);
+// Labels every record (only images get one; others get -1). `layout_roots` are
+// top-level folders that hold photographs beside a parallel mask tree
+// (ROOT/images/<class>/... beside ROOT/masks/<class>/...): below them the label
+// is the next folder.
+Labelling assign_labels(const std::vector<FileRecord>& records, const std::vector<std::string>& layout_roots = {});
 
 }  // namespace tamis

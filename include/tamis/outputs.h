@@ -10,6 +10,7 @@
 #include <filesystem>
 
 #include "tamis/audit.h"
+#include "tamis/index_file.h"
 
 namespace tamis {
 

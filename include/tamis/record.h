@@ -84,6 +84,7 @@ struct ImageStats {
   float focus = 0;         // variance of the Laplacian at a 128 px shorter side
   uint8_t alpha_min = 255; // smallest alpha at full resolution (255: opaque or no alpha)
   bool channels_equal = false;  // a colour image whose channels are equal (within 2 levels)
+  uint8_t distinct = 0;    // distinct pixel values at full resolution, counted up to 65 (65: more)
 };
 
 // Content features computed from the bytes and the decoded pixels.

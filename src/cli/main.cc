@@ -27,6 +27,7 @@ constexpr int kExitBadUsage = 2;
 constexpr int kExitCannotRun = 3;
 
 struct CommonOptions {
+  std::vector<std::string> mask_folders, not_mask_folders;
   unsigned threads = 0;
   std::string cache;
   bool no_cache = false;
@@ -37,6 +38,8 @@ struct CommonOptions {
 
 void add_reading_options(CLI::App* cmd, CommonOptions& o) {
   cmd->add_option("--threads", o.threads, "worker threads (default: all cores)")->check(CLI::Range(0u, 1024u));
+  cmd->add_option("--mask-folder", o.mask_folders, "a folder (relative to ROOT) that holds masks, whatever its pixels say");
+  cmd->add_option("--not-mask-folder", o.not_mask_folders, "a folder (relative to ROOT) that never holds masks");
   cmd->add_option("--cache", o.cache, "cache file for per-file records (never inside ROOT)");
   cmd->add_flag("--no-cache", o.no_cache, "do not read or write a cache");
   cmd->add_flag("--quiet", o.quiet, "print nothing but errors");
@@ -214,6 +217,8 @@ int run_audit_command(const std::string& root, const std::string& out, const Spl
   place.keep = have_keep ? &keep : nullptr;
   place.baseline = have_baseline ? &baseline : nullptr;
   settings.checks = place.policy.thresholds;
+  settings.masks.force = o.mask_folders;
+  settings.masks.forbid = o.not_mask_folders;
   settings.read.threads = o.threads;
   if (tamis::path_is_inside(root, out)) {
     std::fprintf(stderr, "tamis: --out %s lies inside ROOT %s; tamis never writes inside the data set\n",
