@@ -1,8 +1,11 @@
 #include "tamis/audit.h"
 
 #include <algorithm>
+#include <memory>
 
+#include "tamis/cache.h"
 #include "tamis/checks.h"
+#include "tamis/version.h"
 
 namespace tamis {
 
@@ -11,7 +14,29 @@ AuditIndex read_tree(const AuditSettings& settings) {
   r.settings = settings;
   r.settings.read.on_progress = nullptr;
   r.walk = walk_tree(settings.root);
-  r.records = read_files(settings.root, r.walk.files, settings.read);
+  std::unique_ptr<RecordCache> cache;
+  if (!settings.cache_file.empty()) {
+    const auto& d = settings.read.decode;
+    std::string key = std::string(kToolVersion) + "|" + std::to_string(d.max_pixels) + "|" +
+                      std::to_string(d.reduced_side) + "|" + std::to_string(settings.read.max_bytes);
+    try {
+      cache = std::make_unique<RecordCache>(settings.cache_file, settings.root, key);
+      if (cache->rebuilt()) r.cache_note = "the cache file was damaged; it was moved aside and rebuilt";
+    } catch (const std::exception& e) {
+      r.cache_note = std::string("the cache cannot be used: ") + e.what();
+    }
+  }
+  ReadOptions ro = settings.read;
+  ro.cache = cache.get();
+  ro.counts = &r.counts;
+  r.records = read_files(settings.root, r.walk.files, ro);
+  if (cache) {
+    try {
+      cache->store(r.records);  // as read, before mask pairing changes kinds
+    } catch (const std::exception& e) {
+      r.cache_note = std::string("the cache could not be updated: ") + e.what();
+    }
+  }
   r.walk.files.clear();
   r.walk.files.shrink_to_fit();
   r.masks = pair_masks(r.records, settings.masks);

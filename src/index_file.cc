@@ -7,11 +7,14 @@
 
 #include <nlohmann/json.hpp>
 
+#include "record_codec.h"
 #include "tamis/atomic_file.h"
 
 namespace tamis {
 
 using nlohmann::json;
+using detail::record_from_json;
+using detail::record_to_json;
 
 namespace {
 
@@ -59,14 +62,7 @@ void save_index(const std::filesystem::path& file, const AuditIndex& x) {
                  {"max_imbalance", cs.max_imbalance}, {"outlier_z", cs.outlier_z}};
   json recs = json::array();
   for (const auto& r : x.records) {
-    const auto& p = r.probe;
-    recs.push_back(json::array({bin(r.path), r.size, r.mtime_ns, r.inode, int(r.kind), int(r.defect), int(p.format),
-                                int(p.mode), p.bit_depth, p.interlaced, p.has_exif, p.has_gps, p.orientation, p.width,
-                                p.height, p.frames, r.features.content_hash[0], r.features.content_hash[1],
-                                r.features.has_content_hash, r.features.has_lookalike, r.features.stats.luma_mean,
-                                r.features.stats.luma_std, r.features.stats.entropy, r.features.stats.focus,
-                                r.features.stats.alpha_min, r.features.stats.channels_equal,
-                                r.features.stats.distinct}));
+    recs.push_back(record_to_json(r, false));
   }
   j["records"] = std::move(recs);
   std::vector<int> given;
@@ -137,34 +133,7 @@ AuditIndex load_index(const std::filesystem::path& file) {
     x.settings.checks.max_imbalance = ck.at("max_imbalance").get<double>();
     x.settings.checks.outlier_z = ck.at("outlier_z").get<double>();
     for (const auto& e : j.at("records")) {
-      if (!e.is_array() || e.size() != 27) throw std::runtime_error("malformed record");
-      FileRecord r;
-      r.path = str(e[0]);
-      r.size = e[1].get<uint64_t>();
-      r.mtime_ns = e[2].get<int64_t>();
-      r.inode = e[3].get<uint64_t>();
-      r.kind = enum_at<FileKind>(e[4], int(FileKind::ignored));
-      r.defect = enum_at<Defect>(e[5], int(Defect::no_decoder));
-      r.probe.format = enum_at<Format>(e[6], int(Format::pnm));
-      r.probe.mode = enum_at<ColorMode>(e[7], int(ColorMode::cmyk));
-      r.probe.bit_depth = e[8].get<uint8_t>();
-      r.probe.interlaced = e[9].get<bool>();
-      r.probe.has_exif = e[10].get<bool>();
-      r.probe.has_gps = e[11].get<bool>();
-      r.probe.orientation = e[12].get<uint16_t>();
-      r.probe.width = e[13].get<uint32_t>();
-      r.probe.height = e[14].get<uint32_t>();
-      r.probe.frames = e[15].get<uint32_t>();
-      r.features.content_hash = {e[16].get<uint64_t>(), e[17].get<uint64_t>()};
-      r.features.has_content_hash = e[18].get<bool>();
-      r.features.has_lookalike = e[19].get<bool>();
-      r.features.stats.luma_mean = e[20].get<float>();
-      r.features.stats.luma_std = e[21].get<float>();
-      r.features.stats.entropy = e[22].get<float>();
-      r.features.stats.focus = e[23].get<float>();
-      r.features.stats.alpha_min = e[24].get<uint8_t>();
-      r.features.stats.channels_equal = e[25].get<bool>();
-      r.features.stats.distinct = e[26].get<uint8_t>();
+      FileRecord r = record_from_json(e);
       x.records.push_back(std::move(r));
     }
     const size_t n = x.records.size();

@@ -9,6 +9,7 @@
 #include <cerrno>
 #include <stdexcept>
 
+#include "tamis/cache.h"
 #include "tamis/features.h"
 #include "tamis/parallel.h"
 #include "tamis/probe.h"
@@ -44,7 +45,17 @@ bool read_whole(int rootfd, const std::string& rel, uint64_t expect, std::vector
   return true;
 }
 
-void read_one(int rootfd, const WalkEntry& e, const ReadOptions& opt, std::vector<uint8_t>& buf, FileRecord& r) {
+enum class Source { read, cached, cached_by_hash };
+
+Source read_one(int rootfd, const WalkEntry& e, const ReadOptions& opt, std::vector<uint8_t>& buf, FileRecord& r) {
+  if (opt.cache && !is_hidden_path(e.path)) {
+    auto it = opt.cache->by_path().find(e.path);
+    if (it != opt.cache->by_path().end() && it->second.size == e.size && it->second.mtime_ns == e.mtime_ns &&
+        it->second.inode == e.inode) {
+      r = it->second;
+      return Source::cached;
+    }
+  }
   r.path = e.path;
   r.size = e.size;
   r.mtime_ns = e.mtime_ns;
@@ -56,21 +67,27 @@ void read_one(int rootfd, const WalkEntry& e, const ReadOptions& opt, std::vecto
   if (is_hidden_path(e.path)) {
     r.kind = FileKind::ignored;
     r.defect = Defect::hidden;
-    return;
+    return Source::read;
   }
   bool image_name = format_from_extension(e.path) != Format::unknown || has_other_image_extension(e.path);
   if (e.size > opt.max_bytes) {
-    if (image_name) return unreadable(Defect::too_many_bytes);
+    if (image_name) {
+      unreadable(Defect::too_many_bytes);
+      return Source::read;
+    }
     r.kind = FileKind::ignored;
     r.defect = Defect::not_an_image;
-    return;
+    return Source::read;
   }
   if (!read_whole(rootfd, e.path, e.size, buf)) {
     // A file we cannot read is only "ours" if it claims to be an image.
-    if (image_name) return unreadable(Defect::io_error);
+    if (image_name) {
+      unreadable(Defect::io_error);
+      return Source::read;
+    }
     r.kind = FileKind::ignored;
     r.defect = Defect::not_an_image;
-    return;
+    return Source::read;
   }
   std::span<const uint8_t> bytes(buf.data(), buf.size());
   ProbeOutcome p = probe_bytes(bytes);
@@ -79,23 +96,42 @@ void read_one(int rootfd, const WalkEntry& e, const ReadOptions& opt, std::vecto
     if (!image_name) {
       r.kind = FileKind::ignored;
       r.defect = Defect::not_an_image;
-      return;
+      return Source::read;
     }
-    return unreadable(bytes.empty() ? Defect::empty_file
-                      : has_other_image_extension(e.path) ? Defect::no_decoder
-                                                          : Defect::unknown_format);
+    unreadable(bytes.empty() ? Defect::empty_file
+               : has_other_image_extension(e.path) ? Defect::no_decoder
+                                                   : Defect::unknown_format);
+    return Source::read;
   }
   XXH128_hash_t h = XXH3_128bits(bytes.data(), bytes.size());
   r.features.content_hash = {h.high64, h.low64};
   r.features.has_content_hash = true;
-  if (p.defect != Defect::none) return unreadable(p.defect);
+  if (opt.cache) {  // the same bytes under another name: reuse, do not decode
+    if (const FileRecord* known = opt.cache->by_content(r.features.content_hash, e.size)) {
+      FileRecord copy = *known;
+      copy.path = e.path;
+      copy.size = e.size;
+      copy.mtime_ns = e.mtime_ns;
+      copy.inode = e.inode;
+      r = std::move(copy);
+      return Source::cached_by_hash;
+    }
+  }
+  if (p.defect != Defect::none) {
+    unreadable(p.defect);
+    return Source::read;
+  }
   Decoded d = decode_image(bytes, r.probe, opt.decode);
-  if (d.defect != Defect::none) return unreadable(d.defect);
+  if (d.defect != Defect::none) {
+    unreadable(d.defect);
+    return Source::read;
+  }
   r.features.look = lookalike_features(d.reduced);
   r.features.stats = image_stats(d.reduced, d.alpha_min);
   r.features.stats.distinct = d.distinct;
   r.features.has_lookalike = true;
   r.kind = FileKind::image;
+  return Source::read;
 }
 
 }  // namespace
@@ -117,13 +153,16 @@ std::vector<FileRecord> read_files(const std::filesystem::path& root, const std:
   if (rootfd.fd < 0) throw std::runtime_error("cannot open folder " + root.string());
   std::vector<FileRecord> records(entries.size());
   std::atomic<size_t> done{0};
+  std::atomic<uint64_t> n_read{0}, n_cached{0}, n_hash{0};
   parallel_for(entries.size(), opt.threads, [&](size_t i) {
     thread_local std::vector<uint8_t> buf;
-    read_one(rootfd.fd, entries[i], opt, buf, records[i]);
+    Source src = read_one(rootfd.fd, entries[i], opt, buf, records[i]);
+    (src == Source::cached ? n_cached : src == Source::cached_by_hash ? n_hash : n_read)++;
     if (buf.capacity() > (64u << 20)) std::vector<uint8_t>().swap(buf);  // do not pin huge buffers
     size_t n = done.fetch_add(1, std::memory_order_relaxed) + 1;
     if (opt.on_progress) opt.on_progress(n, entries.size());
   }, 8);
+  if (opt.counts) *opt.counts = {n_read.load(), n_cached.load(), n_hash.load()};
   return records;
 }
 

@@ -355,6 +355,31 @@ class Policy(unittest.TestCase):
             self.assertNotIn("\033[", r.stdout)
 
 
+class Cache(unittest.TestCase):
+    def test_a_killed_run_then_a_clean_rerun_gives_identical_outputs(self):
+        import signal
+        import time
+        tree = os.path.join(os.environ.get("TAMIS_TEST_DATA", ""), "cache", "fashion-mnist-png")
+        if not os.path.isdir(tree):  # built by the Fashion-MNIST C++ tests; make a tree of our own otherwise
+            tree = tempfile.mkdtemp()
+            make_clean_tree(tree, 400)
+        with tempfile.TemporaryDirectory() as t:
+            cache = os.path.join(t, "records.sqlite")
+            p = subprocess.Popen([TAMIS, "audit", tree, "--out", os.path.join(t, "killed"), "--cache", cache, "--quiet"])
+            time.sleep(1.5)
+            p.send_signal(signal.SIGKILL)
+            p.wait()
+            r1 = run("audit", tree, "--out", os.path.join(t, "after"), "--cache", cache, "--quiet")
+            r2 = run("audit", tree, "--out", os.path.join(t, "clean"), "--no-cache", "--quiet")
+            self.assertEqual(r1.returncode, r2.returncode)
+            for name in ("manifest.csv", "report.json", "report.html"):
+                with open(os.path.join(t, "after", name), "rb") as a, open(os.path.join(t, "clean", name), "rb") as b:
+                    self.assertEqual(a.read(), b.read(), name)
+            # a warm run now reads nothing
+            r3 = run("audit", tree, "--out", os.path.join(t, "warm"), "--cache", cache, "--format", "json")
+            self.assertEqual(json.loads(r3.stdout)["read"], 0)
+
+
 if __name__ == "__main__":
     TAMIS = os.path.abspath(sys.argv.pop(1))
     unittest.main(verbosity=1)

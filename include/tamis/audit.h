@@ -36,6 +36,7 @@ struct AuditSettings {
   CheckSettings checks;   // from the policy's thresholds
   MaskSettings masks;
   SplitSettings split;
+  std::filesystem::path cache_file;  // record cache (cache.h); empty: none
 };
 
 struct Totals {
@@ -52,6 +53,8 @@ struct AuditIndex {
   Labelling labels;
   GroupResult groups;               // groups.group_of: per record, index into groups.groups or -1
   Totals totals;
+  ReadCounts counts;                // how the records were obtained (not saved, not reported)
+  std::string cache_note;           // why the cache was not used or was rebuilt, if it was
 };
 
 // What place() needs beyond the index: the split, the policy (its thresholds

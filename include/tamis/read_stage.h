@@ -8,8 +8,10 @@
 // throws for a bad file. Files are opened read-only and never followed through
 // a symbolic link.
 //
-// Output record i belongs to input entry i, whatever the thread count; the
-// result is identical for any `threads`. The `on_progress` callback, when set,
+// With a cache, a file whose path, size, modification time and inode match a
+// stored record is not opened; one whose bytes hash to a stored record is not
+// decoded. Output record i belongs to input entry i, whatever the thread count;
+// the result is identical for any `threads` and with or without the cache. The `on_progress` callback, when set,
 // is called from worker threads with the count of files done (it must be
 // thread-safe and cheap).
 #pragma once
@@ -25,8 +27,19 @@
 
 namespace tamis {
 
+class RecordCache;
+
+// What the read stage did with the files (for the summary; never in a report).
+struct ReadCounts {
+  uint64_t read = 0;            // files opened and decoded (or found not to be images)
+  uint64_t cached = 0;          // records reused from the cache by path, size, time and inode
+  uint64_t cached_by_hash = 0;  // records reused by content hash (moved or renamed files)
+};
+
 struct ReadOptions {
   unsigned threads = 0;                      // 0 = all cores
+  const RecordCache* cache = nullptr;        // records to reuse (cache.h); none when null
+  ReadCounts* counts = nullptr;              // filled when set
   uint64_t max_bytes = 4ull << 30;           // files larger than this are not read
   DecodeLimits decode;
   std::function<void(size_t done, size_t total)> on_progress;

@@ -13,6 +13,7 @@
 
 #include "progress.h"
 #include "tamis/audit.h"
+#include "tamis/cache.h"
 #include "tamis/demo.h"
 #include "tamis/index_file.h"
 #include "tamis/junit.h"
@@ -40,7 +41,7 @@ void add_reading_options(CLI::App* cmd, CommonOptions& o) {
   cmd->add_option("--threads", o.threads, "worker threads (default: all cores)")->check(CLI::Range(0u, 1024u));
   cmd->add_option("--mask-folder", o.mask_folders, "a folder (relative to ROOT) that holds masks, whatever its pixels say");
   cmd->add_option("--not-mask-folder", o.not_mask_folders, "a folder (relative to ROOT) that never holds masks");
-  cmd->add_option("--cache", o.cache, "cache file for per-file records (never inside ROOT)");
+  cmd->add_option("--cache", o.cache, "record cache file (default: $XDG_CACHE_HOME/tamis/records.sqlite; never inside ROOT)");
   cmd->add_flag("--no-cache", o.no_cache, "do not read or write a cache");
   cmd->add_flag("--quiet", o.quiet, "print nothing but errors");
   cmd->add_flag("--progress", o.progress, "show a progress line on stderr even when it is not a terminal");
@@ -153,7 +154,8 @@ void print_summary(const tamis::AuditResult& r, const std::filesystem::path& out
                         {"unreadable", t.unreadable}, {"ignored", t.ignored}, {"classes", r.labels.names.size()},
                         {"groups", r.groups.groups.size()}, {"errors", errors}, {"warnings", warnings}, {"infos", infos},
                         {"failing", failing}, {"exit_status", tamis::policy_exit_status(r)},
-                        {"reports", (out / "report.html").string()}};
+                        {"reports", (out / "report.html").string()},
+                        {"read", r.counts.read}, {"cached", r.counts.cached}, {"cached_by_hash", r.counts.cached_by_hash}};
     if (r.baseline.present)
       j["baseline"] = {{"findings_new", r.baseline.findings_new}, {"findings_gone", r.baseline.findings_gone},
                        {"files_added", r.baseline.files_added.size()}, {"files_removed", r.baseline.files_removed.size()}};
@@ -182,6 +184,9 @@ void print_summary(const tamis::AuditResult& r, const std::filesystem::path& out
     std::printf("against the baseline: %zu new, %zu gone findings; %zu files added, %zu removed\n",
                 r.baseline.findings_new, r.baseline.findings_gone, r.baseline.files_added.size(),
                 r.baseline.files_removed.size());
+  if (r.counts.read + r.counts.cached + r.counts.cached_by_hash > 0)
+    std::printf("read %llu files, %llu from the cache, %llu moved or renamed\n", (unsigned long long)r.counts.read,
+                (unsigned long long)r.counts.cached, (unsigned long long)r.counts.cached_by_hash);
   std::printf("policy: %s%s%s\n", failing ? red : green,
               failing ? (std::to_string(failing) + " error findings break it").c_str() : "passes", off);
   std::printf("reports: %s\n", (out / "report.html").string().c_str());
@@ -217,6 +222,10 @@ int run_audit_command(const std::string& root, const std::string& out, const Spl
   place.keep = have_keep ? &keep : nullptr;
   place.baseline = have_baseline ? &baseline : nullptr;
   settings.checks = place.policy.thresholds;
+  if (!o.no_cache) {
+    settings.cache_file = o.cache.empty() ? tamis::default_cache_file() : fs::path(o.cache);
+    if (o.cache.empty() && tamis::path_is_inside(root, settings.cache_file)) settings.cache_file.clear();
+  }
   settings.masks.force = o.mask_folders;
   settings.masks.forbid = o.not_mask_folders;
   settings.read.threads = o.threads;
@@ -247,6 +256,7 @@ int run_audit_command(const std::string& root, const std::string& out, const Spl
   try {
     result = tamis::place(tamis::read_tree(settings), place);
     progress.finish();
+    if (!result.cache_note.empty() && !o.quiet) std::fprintf(stderr, "tamis: %s\n", result.cache_note.c_str());
   } catch (const std::exception& e) {
     progress.finish();
     std::fprintf(stderr, "tamis: %s\n", e.what());
