@@ -38,13 +38,6 @@ std::vector<std::string> strs(const json& j) {
   return out;
 }
 
-template <typename E>
-E enum_at(const json& j, int last) {
-  int v = j.get<int>();
-  if (v < 0 || v > last) throw std::runtime_error("index: value out of range");
-  return static_cast<E>(v);
-}
-
 }  // namespace
 
 void save_index(const std::filesystem::path& file, const AuditIndex& x) {

@@ -118,18 +118,17 @@ WalkResult walk_tree(const std::filesystem::path& root) {
 }
 
 bool path_is_inside(const std::filesystem::path& root, const std::filesystem::path& child) {
-  std::error_code ec;
-  auto r = std::filesystem::weakly_canonical(root, ec);
-  if (ec) r = std::filesystem::absolute(root);
-  auto c = std::filesystem::weakly_canonical(child, ec);
-  if (ec) c = std::filesystem::absolute(child);
-  auto ri = r.begin();
-  auto ci = c.begin();
-  for (; ri != r.end(); ++ri, ++ci) {
-    if (ri->empty()) continue;  // trailing separator
-    if (ci == c.end() || *ri != *ci) return false;
-  }
-  return true;
+  auto parts = [](const std::filesystem::path& p) {
+    std::error_code ec;
+    auto c = std::filesystem::weakly_canonical(p, ec);
+    if (ec) c = std::filesystem::absolute(p).lexically_normal();
+    std::vector<std::string> out;
+    for (const auto& part : c)
+      if (!part.empty() && part != ".") out.push_back(part.string());
+    return out;
+  };
+  auto r = parts(root), c = parts(child);
+  return r.size() <= c.size() && std::equal(r.begin(), r.end(), c.begin());
 }
 
 }  // namespace tamis
