@@ -72,14 +72,14 @@ Thumbnails group_thumbnails(const AuditResult& r, size_t budget) {
 
 }  // namespace
 
-void write_outputs(const std::filesystem::path& out_dir, const AuditResult& result) {
+void write_outputs(const std::filesystem::path& out_dir, const AuditResult& result, size_t thumbnail_budget) {
   std::error_code ec;
   std::filesystem::create_directories(out_dir, ec);
   if (ec) throw std::runtime_error("cannot create output folder " + out_dir.string() + ": " + ec.message());
   write_file_atomically(out_dir / "manifest.csv", [&](std::ostream& os) { write_manifest(os, result); });
   nlohmann::json report = build_report(result);
   write_file_atomically(out_dir / "report.json", [&](std::ostream& os) { os << dump_json(report) << '\n'; });
-  Thumbnails thumbs = group_thumbnails(result, kThumbnailBudget);
+  Thumbnails thumbs = group_thumbnails(result, thumbnail_budget);
   write_file_atomically(out_dir / "report.html", [&](std::ostream& os) { os << render_html(report, thumbs); });
   save_index(out_dir / kIndexFileName, result);
 }

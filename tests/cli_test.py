@@ -159,6 +159,18 @@ class Outputs(unittest.TestCase):
             self.assertNotIn("<img src=x", html)
             self.assertEqual([n for n in os.listdir(out) if ".tmp" in n], [])
 
+    def test_thumbnail_budget_is_a_setting(self):
+        with tempfile.TemporaryDirectory() as t:
+            root = os.path.join(t, "demo")
+            run("demo", root)
+            sizes = {}
+            for kb in ("0", "300"):
+                out = os.path.join(t, kb)
+                run("audit", root, "--out", out, "--thumbnails-kb", kb, "--quiet")
+                sizes[kb] = read_text(os.path.join(out, "report.html")).count("data:image/jpeg")
+            self.assertEqual(sizes["0"], 0)
+            self.assertGreater(sizes["300"], 0)
+
     def test_split_reproduces_the_audit_and_keeps_a_python_written_manifest(self):
         with tempfile.TemporaryDirectory() as t:
             root = os.path.join(t, "data")

@@ -14,9 +14,10 @@
 
 namespace tamis {
 
-// Bytes of thumbnail data URIs report.html may carry (about 300 KB).
+// Bytes of thumbnail data URIs report.html carries by default (about 300 KB).
 inline constexpr size_t kThumbnailBudget = 300 * 1024;
 
-void write_outputs(const std::filesystem::path& out_dir, const AuditResult& result);
+void write_outputs(const std::filesystem::path& out_dir, const AuditResult& result,
+                   size_t thumbnail_budget = kThumbnailBudget);
 
 }  // namespace tamis

@@ -51,6 +51,7 @@ void add_reading_options(CLI::App* cmd, CommonOptions& o) {
 // Options of the judging stages, shared by `audit` and `split`.
 struct JudgeOptions {
   std::string policy, baseline, junit, format = "text";
+  size_t thumbnails_kb = tamis::kThumbnailBudget / 1024;
 };
 
 void add_judge_options(CLI::App* cmd, JudgeOptions& o) {
@@ -58,6 +59,8 @@ void add_judge_options(CLI::App* cmd, JudgeOptions& o) {
   cmd->add_option("--baseline", o.baseline, "an earlier report.json: report what changed; with fail_on \"new\" fail only on new findings");
   cmd->add_option("--junit", o.junit, "also write the checks as JUnit XML to FILE");
   cmd->add_option("--format", o.format, "summary on stdout: text or json")->check(CLI::IsMember({"text", "json"}));
+  cmd->add_option("--thumbnails-kb", o.thumbnails_kb, "thumbnail data report.html may embed, in KB (default 300; 0: none)")
+      ->check(CLI::Range(size_t{0}, size_t{1} << 20));
 }
 
 // Loads the policy and baseline; prints and returns false when either is bad.
@@ -195,7 +198,7 @@ void print_summary(const tamis::AuditResult& r, const std::filesystem::path& out
 // Writes the outputs, the JUnit file when asked, and the summary; returns the exit status.
 int finish(const tamis::AuditResult& result, const std::string& out, const JudgeOptions& jo, bool quiet) {
   try {
-    tamis::write_outputs(out, result);
+    tamis::write_outputs(out, result, jo.thumbnails_kb * 1024);
     if (!jo.junit.empty())
       tamis::write_file_atomically(jo.junit, [&](std::ostream& os) { tamis::write_junit(os, result); });
   } catch (const std::exception& e) {
