@@ -1,0 +1,48 @@
+// Reduced (libjpeg-turbo scaled) and full decodes give nearly the same DCT hashes
+// on real photographs (JPEGs of Debian's visp-images-data). Documented bound:
+// at most 4 of 64 bits (docs/lookalikes.md).
+#include <catch2/catch.hpp>
+
+#include <opencv2/imgcodecs.hpp>
+
+#include "support/photos.h"
+#include "support/temp_tree.h"
+#include "tamis/decode.h"
+#include "tamis/features.h"
+#include "tamis/lookalike_index.h"
+#include "tamis/probe.h"
+
+using namespace tamis;
+
+TEST_CASE("reduced and full JPEG decodes hash within 4 bits of each other", "[decode][reduced]") {
+  const std::vector<std::string> files{
+      "Klimt/Klimt.jpeg",
+      "Solvay/Solvay_conference_1927_Version2_640x440.jpg",
+      "Solvay/Solvay_conference_1927_Version2_1024x705.jpg",
+      "Solvay/Solvay_conference_1927_Version2_1280x881.jpg",
+      "Solvay/Solvay_conference_1927_Version2_2126x1463.jpg",
+      "cube/image.0001.pgm",  // not JPEG: decoded in full both ways, must be 0
+  };
+  // Not included: mire/mire.jpg, a synthetic target of four dots on black, not a
+  // photograph: its hash bits sit on near-zero coefficients and differ by 22 bits
+  // between decodes (docs/lookalikes.md, Limits).
+  int worst = 0;
+  for (const auto& f : files) {
+    auto bytes = test::read_bytes(test::kVispDir / f);
+    ProbeOutcome p = probe_bytes(bytes);
+    REQUIRE(p.defect == Defect::none);
+    Decoded reduced = decode_image(bytes, p.info, DecodeLimits{});
+    REQUIRE(reduced.defect == Defect::none);
+    if (p.info.format == Format::jpeg && std::min(p.info.width, p.info.height) >= 256)
+      CHECK(std::min(reduced.reduced.cols, reduced.reduced.rows) < std::min<int>(p.info.width, p.info.height));
+    cv::Mat full = cv::imdecode(cv::Mat(1, int(bytes.size()), CV_8U, bytes.data()), cv::IMREAD_UNCHANGED);
+    REQUIRE(!full.empty());
+    auto a = dct_hashes(hash_thumbnail(reduced.reduced));
+    auto b = dct_hashes(hash_thumbnail(full));
+    int d = hamming(a[0], b[0]);
+    INFO(f << ": " << d << " bits");
+    CHECK(d <= 4);
+    worst = std::max(worst, d);
+  }
+  WARN("largest distance between reduced and full decodes: " << worst << " bits");
+}
