@@ -142,10 +142,18 @@ const FileRecord* RecordCache::by_content(const std::array<uint64_t, 2>& hash, u
 void RecordCache::store(const std::vector<FileRecord>& records) {
   db_->exec("BEGIN IMMEDIATE");
   try {
-    {
-      Stmt del(db_->h, "DELETE FROM records WHERE root = ?");
-      sqlite3_bind_text(del.s, 1, root_.c_str(), -1, SQLITE_TRANSIENT);
-      if (sqlite3_step(del.s) != SQLITE_DONE) throw std::runtime_error(sqlite3_errmsg(db_->h));
+    {  // rows of this root whose files are gone
+      std::unordered_map<std::string, bool> present;
+      present.reserve(records.size());
+      for (const auto& r : records) present.emplace(r.path, true);
+      Stmt del(db_->h, "DELETE FROM records WHERE root = ? AND path = ?");
+      for (const auto& [path, r] : by_path_) {
+        if (present.count(path)) continue;
+        sqlite3_reset(del.s);
+        sqlite3_bind_text(del.s, 1, root_.c_str(), -1, SQLITE_TRANSIENT);
+        sqlite3_bind_blob(del.s, 2, path.data(), static_cast<int>(path.size()), SQLITE_TRANSIENT);
+        if (sqlite3_step(del.s) != SQLITE_DONE) throw std::runtime_error(sqlite3_errmsg(db_->h));
+      }
     }
     {  // forget roots that no longer exist, so the file does not grow without end
       std::vector<std::string> roots;
@@ -159,8 +167,12 @@ void RecordCache::store(const std::vector<FileRecord>& records) {
         if (sqlite3_step(gone.s) != SQLITE_DONE) throw std::runtime_error(sqlite3_errmsg(db_->h));
       }
     }
-    Stmt ins(db_->h, "INSERT INTO records(root, path, size, mtime, inode, data) VALUES(?, ?, ?, ?, ?, ?)");
+    Stmt ins(db_->h, "INSERT OR REPLACE INTO records(root, path, size, mtime, inode, data) VALUES(?, ?, ?, ?, ?, ?)");
     for (const auto& r : records) {
+      auto known = by_path_.find(r.path);  // rows that are already right are not written again
+      if (known != by_path_.end() && known->second.size == r.size && known->second.mtime_ns == r.mtime_ns &&
+          known->second.inode == r.inode)
+        continue;
       std::vector<uint8_t> data = json::to_cbor(detail::record_to_json(r, true));
       sqlite3_reset(ins.s);
       sqlite3_bind_text(ins.s, 1, root_.c_str(), -1, SQLITE_TRANSIENT);

@@ -43,7 +43,8 @@ class RecordCache {
   // A stored record with this content hash and size, from any path of this root.
   const FileRecord* by_content(const std::array<uint64_t, 2>& hash, uint64_t size) const;
 
-  // Replaces the root's stored records with `records` in one transaction.
+  // Makes the root's stored records equal `records` in one transaction, writing
+  // only rows that changed and deleting rows of files that are gone.
   void store(const std::vector<FileRecord>& records);
 
   bool rebuilt() const { return rebuilt_; }  // the file was damaged and started afresh
