@@ -2,7 +2,7 @@
 // drawn procedurally (a weaving studio sorting fabric photos by pattern), with
 // the defects tamis exists to find planted on purpose: a byte copy filed under
 // another class, a mirrored copy, a truncated JPEG, a second spelling of a class,
-// a tiny class, a stray text file and a hidden file. docs/demo.md lists them.
+// a tiny class, a stray text file and a hidden file. README.md lists them.
 //
 // Deterministic: the same pixels on every run (SplitMix64-driven drawing).
 // Writes only below `dir`, creating it when missing.
