@@ -2,6 +2,9 @@
 
 #include <algorithm>
 #include <memory>
+#include <optional>
+
+#include <xxhash.h>
 
 #include "tamis/cache.h"
 #include "tamis/checks.h"
@@ -43,7 +46,36 @@ AuditIndex read_tree(const AuditSettings& settings) {
   r.labels = assign_labels(r.records, r.masks.layout_roots);
   GroupSettings gs = settings.groups;
   gs.threads = settings.read.threads;
-  r.groups = find_groups(r.records, gs);
+  // An unchanged set (same records, kinds and bytes, same settings) reuses its groups.
+  uint64_t fingerprint = 0;
+  std::optional<GroupResult> cached_groups;
+  if (cache) {
+    XXH3_state_t* st = XXH3_createState();
+    XXH3_64bits_reset(st);
+    const double corr = gs.min_correlation;
+    XXH3_64bits_update(st, &gs.radius, sizeof gs.radius);
+    XXH3_64bits_update(st, &corr, sizeof corr);
+    for (const auto& rec : r.records) {
+      XXH3_64bits_update(st, rec.path.data(), rec.path.size() + 1);
+      XXH3_64bits_update(st, &rec.kind, sizeof rec.kind);
+      XXH3_64bits_update(st, rec.features.content_hash.data(), sizeof rec.features.content_hash);
+    }
+    fingerprint = XXH3_64bits_digest(st);
+    XXH3_freeState(st);
+    cached_groups = cache->load_groups(fingerprint, r.records.size());
+  }
+  if (cached_groups) {
+    r.groups = std::move(*cached_groups);
+  } else {
+    r.groups = find_groups(r.records, gs);
+    if (cache) {
+      try {
+        cache->store_groups(fingerprint, r.groups);
+      } catch (const std::exception& e) {
+        r.cache_note = std::string("the cache could not be updated: ") + e.what();
+      }
+    }
+  }
   for (const auto& rec : r.records) {
     ++r.totals.files_seen;
     switch (rec.kind) {

@@ -104,12 +104,14 @@ RecordCache::RecordCache(const std::filesystem::path& file, const std::filesyste
   db_->exec("PRAGMA journal_mode=WAL");
   db_->exec("PRAGMA synchronous=NORMAL");
   db_->exec("CREATE TABLE IF NOT EXISTS meta(key TEXT PRIMARY KEY, value TEXT NOT NULL)");
+  db_->exec("CREATE TABLE IF NOT EXISTS groups(root TEXT PRIMARY KEY, fingerprint TEXT NOT NULL, data BLOB NOT NULL)");
   db_->exec("CREATE TABLE IF NOT EXISTS records(root TEXT NOT NULL, path BLOB NOT NULL, size INTEGER NOT NULL,"
             " mtime INTEGER NOT NULL, inode INTEGER NOT NULL, data BLOB NOT NULL, PRIMARY KEY(root, path))");
   const std::string want = std::to_string(kCacheSchemaVersion) + "|" + settings_key;
   if (meta_value(db_->h, "version") != want) {
     db_->exec("BEGIN IMMEDIATE");
     db_->exec("DELETE FROM records");
+    db_->exec("DELETE FROM groups");
     set_meta(db_->h, "version", want);
     db_->exec("COMMIT");
   }
@@ -133,6 +135,52 @@ RecordCache::RecordCache(const std::filesystem::path& file, const std::filesyste
 }
 
 RecordCache::~RecordCache() = default;
+
+std::optional<GroupResult> RecordCache::load_groups(uint64_t fingerprint, size_t n) const {
+  try {
+    Stmt q(db_->h, "SELECT fingerprint, data FROM groups WHERE root = ?");
+    sqlite3_bind_text(q.s, 1, root_.c_str(), -1, SQLITE_TRANSIENT);
+    if (sqlite3_step(q.s) != SQLITE_ROW) return std::nullopt;
+    if (std::string(reinterpret_cast<const char*>(sqlite3_column_text(q.s, 0))) != std::to_string(fingerprint))
+      return std::nullopt;
+    const auto* blob = static_cast<const uint8_t*>(sqlite3_column_blob(q.s, 1));
+    json j = json::from_cbor(std::vector<uint8_t>(blob, blob + sqlite3_column_bytes(q.s, 1)));
+    GroupResult g;
+    g.group_of.assign(n, -1);
+    for (const auto& e : j.at("groups")) {
+      Group grp;
+      grp.members = e.at(0).get<std::vector<uint32_t>>();
+      grp.exact = e.at(1).get<bool>();
+      grp.diameter = e.at(2).get<int>();
+      grp.diameter_exact = e.at(3).get<bool>();
+      for (uint32_t m : grp.members) {
+        if (m >= n || g.group_of[m] >= 0) return std::nullopt;
+        g.group_of[m] = static_cast<int64_t>(g.groups.size());
+      }
+      g.groups.push_back(std::move(grp));
+    }
+    g.exact_pairs = j.at("exact_pairs").get<uint64_t>();
+    g.candidate_hits = j.at("candidate_hits").get<uint64_t>();
+    g.confirmed_pairs = j.at("confirmed_pairs").get<uint64_t>();
+    return g;
+  } catch (const std::exception&) {
+    return std::nullopt;  // anything odd is a miss: the join runs again
+  }
+}
+
+void RecordCache::store_groups(uint64_t fingerprint, const GroupResult& g) {
+  json groups = json::array();
+  for (const auto& grp : g.groups) groups.push_back(json::array({grp.members, grp.exact, grp.diameter, grp.diameter_exact}));
+  json j = {{"groups", groups}, {"exact_pairs", g.exact_pairs}, {"candidate_hits", g.candidate_hits},
+            {"confirmed_pairs", g.confirmed_pairs}};
+  std::vector<uint8_t> data = json::to_cbor(j);
+  std::string fp = std::to_string(fingerprint);
+  Stmt ins(db_->h, "INSERT OR REPLACE INTO groups(root, fingerprint, data) VALUES(?, ?, ?)");
+  sqlite3_bind_text(ins.s, 1, root_.c_str(), -1, SQLITE_TRANSIENT);
+  sqlite3_bind_text(ins.s, 2, fp.c_str(), -1, SQLITE_TRANSIENT);
+  sqlite3_bind_blob(ins.s, 3, data.data(), static_cast<int>(data.size()), SQLITE_TRANSIENT);
+  if (sqlite3_step(ins.s) != SQLITE_DONE) throw std::runtime_error(std::string("cache: ") + sqlite3_errmsg(db_->h));
+}
 
 const FileRecord* RecordCache::by_content(const std::array<uint64_t, 2>& hash, uint64_t size) const {
   auto it = by_hash_.find(hash_key(hash, size));

@@ -10,7 +10,8 @@
 // The file uses WAL mode and a busy timeout, so two runs may share it; every write
 // is one transaction, so a killed run leaves the previous state. A cache whose
 // schema version or record settings differ is cleared; one that SQLite finds
-// damaged is moved aside (FILE.damaged-<pid>) and rebuilt. The cache never
+// damaged is moved aside (FILE.damaged-<pid>) and rebuilt. The last look-alike
+// groups of the root are kept too, so an unchanged set skips the Hamming join. The cache never
 // decides an output: a run with and without it writes the same files.
 // Not thread-safe: one RecordCache per run, used from the calling thread.
 #pragma once
@@ -22,6 +23,7 @@
 #include <unordered_map>
 #include <vector>
 
+#include "tamis/groups.h"
 #include "tamis/record.h"
 
 namespace tamis {
@@ -46,6 +48,12 @@ class RecordCache {
   // Makes the root's stored records equal `records` in one transaction, writing
   // only rows that changed and deleting rows of files that are gone.
   void store(const std::vector<FileRecord>& records);
+
+  // The look-alike groups of an unchanged set: stored under a fingerprint of every
+  // grouped record's path and content hash and of the group settings; loaded
+  // only when the fingerprint matches (and every member index is in range).
+  std::optional<GroupResult> load_groups(uint64_t fingerprint, size_t n_records) const;
+  void store_groups(uint64_t fingerprint, const GroupResult& groups);
 
   bool rebuilt() const { return rebuilt_; }  // the file was damaged and started afresh
   const std::filesystem::path& file() const { return file_; }
