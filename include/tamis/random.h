@@ -35,7 +35,7 @@ class SplitMix64 {
   uint64_t state_;
 };
 
-// Fisher–Yates shuffle (Durstenfeld's form) driven by SplitMix64.
+// Durstenfeld's in-place random shuffle (Knuth's Algorithm P) driven by SplitMix64.
 template <typename T>
 void seeded_shuffle(std::vector<T>& v, SplitMix64& rng) {
   for (size_t i = v.size(); i > 1; --i) {
