@@ -1,0 +1,89 @@
+// How the in-memory stages grow with the number of files (docs/performance.md):
+// synthetic records (100 classes, random DCT codes and thumbnails, 1% planted
+// look-alike copies), timed through masks, labels, groups, checks, split and the
+// manifest, with the peak resident memory per record.
+// Usage: scaling_bench N [THREADS=2]
+#include <sys/resource.h>
+
+#include <chrono>
+#include <cstdio>
+#include <cstdlib>
+#include <sstream>
+
+#include "tamis/audit.h"
+#include "tamis/features.h"
+#include "tamis/manifest.h"
+#include "tamis/random.h"
+
+using namespace tamis;
+using Clock = std::chrono::steady_clock;
+
+static double seconds_since(Clock::time_point t) { return std::chrono::duration<double>(Clock::now() - t).count(); }
+static long peak_kb() {
+  rusage u{};
+  getrusage(RUSAGE_SELF, &u);
+  return u.ru_maxrss;
+}
+
+int main(int argc, char** argv) {
+  const size_t n = argc > 1 ? std::strtoull(argv[1], nullptr, 10) : 100000;
+  const unsigned threads = argc > 2 ? static_cast<unsigned>(std::atoi(argv[2])) : 2;
+  const long base_kb = peak_kb();
+  auto t0 = Clock::now();
+  AuditIndex x;
+  x.settings.read.threads = threads;
+  x.records.resize(n);
+  SplitMix64 rng(7);
+  for (size_t i = 0; i < n; ++i) {
+    FileRecord& r = x.records[i];
+    char path[64];
+    std::snprintf(path, sizeof path, "class%03zu/img_%08zu.jpg", i % 100, i);
+    r.path = path;
+    r.size = 200000 + rng.below(100000);
+    r.kind = FileKind::image;
+    r.probe.format = Format::jpeg;
+    r.probe.mode = ColorMode::rgb;
+    r.probe.bit_depth = 8;
+    r.probe.width = 640;
+    r.probe.height = 480;
+    r.features.content_hash = {rng.next(), rng.next()};
+    r.features.has_content_hash = true;
+    r.features.has_lookalike = true;
+    for (auto& b : r.features.look.thumb) b = static_cast<uint8_t>(rng.below(256));
+    if (i % 100 == 99) {  // a look-alike copy of the previous image
+      r.features.look = x.records[i - 1].features.look;
+      r.features.look.phash[0] ^= 1ULL << rng.below(64);
+    } else {
+      cv::Mat t(32, 32, CV_8UC1, r.features.look.thumb.data());
+      r.features.look.phash = dct_hashes(t);
+    }
+    r.features.stats = {120.0f + float(rng.below(40)), 40.0f, 7.0f, 900.0f + float(rng.below(500)), 255, false, 65};
+  }
+  std::sort(x.records.begin(), x.records.end(), [](const FileRecord& a, const FileRecord& b) { return a.path < b.path; });
+  x.totals = {n, n, 0, 0, 0};
+  double t_make = seconds_since(t0);
+  t0 = Clock::now();
+  x.masks = pair_masks(x.records, {});
+  double t_masks = seconds_since(t0);
+  t0 = Clock::now();
+  x.labels = assign_labels(x.records, x.masks.layout_roots);
+  double t_labels = seconds_since(t0);
+  t0 = Clock::now();
+  GroupSettings gs;
+  gs.threads = threads;
+  x.groups = find_groups(x.records, gs);
+  double t_groups = seconds_since(t0);
+  t0 = Clock::now();
+  AuditResult r = place(std::move(x), SplitSettings{});
+  double t_place = seconds_since(t0);
+  t0 = Clock::now();
+  std::ostringstream os;
+  write_manifest(os, r);
+  double t_manifest = seconds_since(t0);
+  const long peak = peak_kb();
+  std::printf("%zu records: make %.2f s, masks %.2f s, labels %.2f s, groups %.2f s (%zu groups), checks+split %.2f s, "
+              "manifest %.2f s (%.1f MB); peak RSS %.0f MB, %.0f bytes per record\n",
+              n, t_make, t_masks, t_labels, t_groups, r.groups.groups.size(), t_place, t_manifest,
+              os.str().size() / 1e6, peak / 1024.0, (peak - base_kb) * 1024.0 / double(n));
+  return 0;
+}
