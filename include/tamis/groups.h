@@ -29,6 +29,7 @@ struct GroupSettings {
   int radius = 8;                // docs/lookalikes.md: how the defaults were measured
   double min_correlation = 0.995;
   unsigned threads = 0;
+  uint64_t join_memory_bytes = 1ull << 30;  // above this, flips/turns are joined one at a time (same result)
 };
 
 struct Group {
