@@ -4,7 +4,7 @@
 //   - their bytes are identical (XXH3-128 content hash equal), or
 //   - they look alike: the DCT hash of one of the 8 flips/turns of the first is
 //     within Hamming distance `radius` of the second's DCT hash (candidates found
-//     exactly by LookalikeIndex), AND the independent second signal confirms it:
+//     exactly by join_within, lookalike_index.h), AND the independent second signal confirms it:
 //     the Pearson correlation of their 32x32 thumbnails, after that flip/turn, is
 //     at least `min_correlation`.
 // Groups are the connected components (union-find) of these pairs, with two or
