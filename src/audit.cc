@@ -1,6 +1,7 @@
 #include "tamis/audit.h"
 
 #include <algorithm>
+#include <chrono>
 #include <memory>
 #include <optional>
 
@@ -12,11 +13,32 @@
 
 namespace tamis {
 
+namespace {
+
+// Appends the wall time since the previous lap to `times` under `stage`.
+class StageClock {
+ public:
+  explicit StageClock(std::vector<StageTime>& times) : times_(times), last_(std::chrono::steady_clock::now()) {}
+  void lap(const char* stage) {
+    auto now = std::chrono::steady_clock::now();
+    times_.push_back({stage, std::chrono::duration<double>(now - last_).count()});
+    last_ = now;
+  }
+
+ private:
+  std::vector<StageTime>& times_;
+  std::chrono::steady_clock::time_point last_;
+};
+
+}  // namespace
+
 AuditIndex read_tree(const AuditSettings& settings) {
   AuditIndex r;
   r.settings = settings;
   r.settings.read.on_progress = nullptr;
+  StageClock clock(r.times);
   r.walk = walk_tree(settings.root);
+  clock.lap("walk");
   std::unique_ptr<RecordCache> cache;
   if (!settings.cache_file.empty()) {
     const auto& d = settings.read.decode;
@@ -32,7 +54,9 @@ AuditIndex read_tree(const AuditSettings& settings) {
   ReadOptions ro = settings.read;
   ro.cache = cache.get();
   ro.counts = &r.counts;
+  if (cache) clock.lap("cache load");
   r.records = read_files(settings.root, r.walk.files, ro);
+  clock.lap("read");
   if (cache) {
     try {
       cache->store(r.records);  // as read, before mask pairing changes kinds
@@ -40,10 +64,13 @@ AuditIndex read_tree(const AuditSettings& settings) {
       r.cache_note = std::string("the cache could not be updated: ") + e.what();
     }
   }
+  if (cache) clock.lap("cache store");
   r.walk.files.clear();
   r.walk.files.shrink_to_fit();
   r.masks = pair_masks(r.records, settings.masks);
+  clock.lap("masks");
   r.labels = assign_labels(r.records, r.masks.layout_roots);
+  clock.lap("labels");
   GroupSettings gs = settings.groups;
   gs.threads = settings.read.threads;
   // An unchanged set (same records, kinds and bytes, same settings) reuses its groups.
@@ -76,6 +103,7 @@ AuditIndex read_tree(const AuditSettings& settings) {
       }
     }
   }
+  clock.lap(cached_groups ? "groups (cached)" : "groups");
   for (const auto& rec : r.records) {
     ++r.totals.files_seen;
     switch (rec.kind) {
@@ -94,6 +122,7 @@ AuditResult place(AuditIndex index, const PlaceOptions& opt) {
   r.settings.split = opt.split;
   r.settings.checks = opt.policy.thresholds;
   r.fail_on_new_only = opt.policy.fail_on_new_only;
+  StageClock clock(r.times);
 
   // Checks.
   check_inventory(r.records, r.labels, r.walk, r.findings);
@@ -131,6 +160,7 @@ AuditResult place(AuditIndex index, const PlaceOptions& opt) {
     r.split = assign_splits(items, r.labels.names, split);
   }
   check_split(r.records, r.labels, r.split, split, keep_folders, r.findings);
+  clock.lap("checks + split");
 
   // Policy, then order, then the baseline's verdict per finding.
   apply_policy(opt.policy, r.totals.unreadable, r.totals.images + r.totals.unreadable, r.findings);

@@ -7,6 +7,10 @@
 
 namespace tamis {
 
+namespace {
+constexpr double kFlatSd = 2.0;  // grey levels: below this a thumbnail is flat
+}  // namespace
+
 cv::Mat hash_thumbnail(const cv::Mat& reduced) {
   cv::Mat gray;
   if (reduced.channels() == 1) {
@@ -143,10 +147,92 @@ double thumb_correlation(const std::array<uint8_t, 1024>& ta, const ThumbStats& 
   const double ma = sa.sum / kN, mb = sb.sum / kN;
   const double saa = double(sa.sum_sq) - kN * ma * ma, sbb = double(sb.sum_sq) - kN * mb * mb;
   const double sda = std::sqrt(std::max(0.0, saa) / kN), sdb = std::sqrt(std::max(0.0, sbb) / kN);
-  constexpr double kFlat = 2.0;
-  if (sda < kFlat && sdb < kFlat) return std::abs(ma - mb) <= 4.0 ? 1.0 : 0.0;
-  if (sda < kFlat || sdb < kFlat) return 0.0;
+  if (sda < kFlatSd && sdb < kFlatSd) return std::abs(ma - mb) <= 4.0 ? 1.0 : 0.0;
+  if (sda < kFlatSd || sdb < kFlatSd) return 0.0;
   return (double(dot) - kN * ma * mb) / std::sqrt(saa * sbb);
+}
+
+bool thumb_is_flat(const ThumbStats& s) {
+  constexpr double kN = 1024;
+  const double m = s.sum / kN;
+  const double sd = std::sqrt(std::max(0.0, double(s.sum_sq) - kN * m * m) / kN);
+  return sd < kFlatSd;
+}
+
+namespace {
+
+constexpr double kSketchScale = 32767.0;
+
+// Rows 0..7 of the orthonormal 32-point DCT-II matrix.
+struct DctRows {
+  float c[8][32];
+  DctRows() {
+    const double pi = std::acos(-1.0);
+    for (int u = 0; u < 8; ++u)
+      for (int x = 0; x < 32; ++x)
+        c[u][x] = static_cast<float>((u == 0 ? std::sqrt(1.0 / 32) : std::sqrt(2.0 / 32)) *
+                                     std::cos(pi * (2 * x + 1) * u / 64.0));
+  }
+};
+
+// For transform t: where sketch entry k takes its value from, and its sign.
+struct SketchMaps {
+  uint8_t from[kDihedralCount][63];
+  int8_t sign[kDihedralCount][63];
+  SketchMaps() {
+    for (int t = 0; t < kDihedralCount; ++t)
+      for (int u = 0; u < 8; ++u)
+        for (int v = 0; v < 8; ++v) {
+          if (u == 0 && v == 0) continue;
+          const int k = u * 8 + v - 1;
+          const bool transpose = t & 4, flip_rows = t & 2, flip_cols = t & 1;
+          from[t][k] = static_cast<uint8_t>(transpose ? v * 8 + u - 1 : k);
+          sign[t][k] = static_cast<int8_t>(((flip_rows && (u & 1)) != (flip_cols && (v & 1))) ? -1 : 1);
+        }
+  }
+};
+
+}  // namespace
+
+ThumbSketch thumb_sketch(const std::array<uint8_t, 1024>& thumb, const ThumbStats& s) {
+  static const DctRows dct;
+  constexpr double kN = 1024;
+  const double mean = s.sum / kN;
+  const double norm = std::sqrt(std::max(1e-12, double(s.sum_sq) - kN * mean * mean));
+  // rows[u][x] = sum over y of C[u][y] * (p[y][x] - mean), then block[u][v] = sum over x of rows[u][x] * C[v][x].
+  float centred[32][32];
+  for (int i = 0; i < 1024; ++i) centred[i / 32][i % 32] = static_cast<float>(thumb[static_cast<size_t>(i)] - mean);
+  float rows[8][32] = {};
+  for (int u = 0; u < 8; ++u)
+    for (int y = 0; y < 32; ++y) {
+      const float c = dct.c[u][y];
+      for (int x = 0; x < 32; ++x) rows[u][x] += c * centred[y][x];
+    }
+  ThumbSketch out{};
+  for (int u = 0; u < 8; ++u)
+    for (int v = 0; v < 8; ++v) {
+      if (u == 0 && v == 0) continue;
+      double acc = 0;
+      for (int x = 0; x < 32; ++x) acc += double(rows[u][x]) * dct.c[v][x];
+      out[static_cast<size_t>(u * 8 + v - 1)] =
+          static_cast<int16_t>(std::lround(std::clamp(acc / norm, -1.0, 1.0) * kSketchScale));
+    }
+  return out;
+}
+
+bool sketch_may_correlate(const ThumbSketch& a, int t, const ThumbSketch& b, double min_correlation) {
+  static const SketchMaps maps;
+  // Each stored value is within 0.5 (rounding) plus well under 0.5 (float
+  // arithmetic on values of at most 1) of the true coefficient x 32767, so a
+  // difference is at least |qa - qb| - 2.
+  const double limit = 2.0 * (1.0 - min_correlation) * kSketchScale * kSketchScale;
+  if (limit < 0) return true;
+  int64_t sum = 0;
+  for (int k = 0; k < 63; ++k) {
+    int d = std::abs(maps.sign[t][k] * a[maps.from[t][k]] - b[static_cast<size_t>(k)]) - 2;
+    if (d > 0) sum += int64_t{d} * d;
+  }
+  return double(sum) <= limit;
 }
 
 double thumb_correlation(const std::array<uint8_t, 1024>& a, int t, const std::array<uint8_t, 1024>& b) {

@@ -77,18 +77,39 @@ GroupResult find_groups(const std::vector<FileRecord>& records, const GroupSetti
   std::vector<uint64_t> identity(n);
   for (size_t k = 0; k < n; ++k) identity[k] = records[eligible[k]].features.look.phash[0];
   if (n > 1) {
+    // Per image: the thumbnail's sums, and for a thumbnail that is not flat the
+    // DCT sketch that rejects most hash hits before the correlation is computed.
     std::vector<ThumbStats> stats(n);
-    for (size_t k = 0; k < n; ++k) stats[k] = thumb_stats(records[eligible[k]].features.look.thumb);
+    std::vector<uint8_t> flat(n);
+    std::vector<ThumbSketch> sketch(n);
+    parallel_for(n, settings.threads, [&](size_t k) {
+      const auto& thumb = records[eligible[k]].features.look.thumb;
+      stats[k] = thumb_stats(thumb);
+      flat[k] = thumb_is_flat(stats[k]);
+      if (!flat[k]) sketch[k] = thumb_sketch(thumb, stats[k]);
+    }, 256);
+    // A hit (8 * image + t, j) goes on to the correlation unless it pairs an
+    // image with itself or the sketches prove the correlation too low.
+    const PairFilter keep = [&](uint32_t variant, uint32_t j) {
+      const uint32_t i = variant / kDihedralCount;
+      if (i == j) return false;
+      if (flat[i] || flat[j]) return true;
+      return sketch_may_correlate(sketch[i], static_cast<int>(variant % kDihedralCount), sketch[j],
+                                  settings.min_correlation);
+    };
+    // Hits of an image with itself are counted by the join but are no candidates.
+    uint64_t self_hits = 0;
+    for (size_t k = 0; k < n; ++k)
+      for (int t = 0; t < kDihedralCount; ++t) self_hits += hamming(records[eligible[k]].features.look.phash[t], identity[k]) <= settings.radius;
     std::vector<std::pair<uint32_t, uint32_t>> confirmed;
-    // Hits (8 * image + t, j), sorted by their first member: turn each (image, t)
-    // thumbnail once, then compare it with its partners.
+    // Kept hits (8 * image + t, j), sorted by their first member: turn each
+    // (image, t) thumbnail once, then compare it with its partners.
     auto confirm = [&](const std::vector<std::pair<uint32_t, uint32_t>>& hits) {
       std::vector<size_t> starts;
       for (size_t h = 0; h < hits.size(); ++h)
         if (h == 0 || hits[h].first != hits[h - 1].first) starts.push_back(h);
       starts.push_back(hits.size());
       std::vector<std::vector<std::pair<uint32_t, uint32_t>>> found(starts.size() - 1);
-      std::vector<uint64_t> hit_counts(found.size(), 0);
       parallel_for(found.size(), settings.threads, [&](size_t g) {
         const uint32_t i = hits[starts[g]].first / kDihedralCount;
         const int t = static_cast<int>(hits[starts[g]].first % kDihedralCount);
@@ -96,34 +117,38 @@ GroupResult find_groups(const std::vector<FileRecord>& records, const GroupSetti
         apply_dihedral(records[eligible[i]].features.look.thumb.data(), turned.data(), 32, t);
         for (size_t h = starts[g]; h < starts[g + 1]; ++h) {
           const uint32_t j = hits[h].second;
-          if (i == j) continue;
-          ++hit_counts[g];
           if (thumb_correlation(turned, stats[i], records[eligible[j]].features.look.thumb, stats[j]) >=
               settings.min_correlation)
             found[g].emplace_back(std::min(i, j), std::max(i, j));
         }
       }, 64);
-      for (uint64_t c : hit_counts) out.candidate_hits += c;
       for (auto& f : found) confirmed.insert(confirmed.end(), f.begin(), f.end());
     };
     // One join of all 8 variants (id = 8 * image + t) is fastest; when its buffers
     // (about 4 KB a file) would pass the memory budget, the variants are joined one
     // at a time (about 1 KB a file). The join is exact, so both give the same pairs.
     const bool one_join = double(n) * 4300.0 <= double(settings.join_memory_bytes);
+    uint64_t found = 0;
     if (one_join) {
       std::vector<uint64_t> variants(n * kDihedralCount);
       for (size_t k = 0; k < n; ++k)
         for (int t = 0; t < kDihedralCount; ++t) variants[k * kDihedralCount + t] = records[eligible[k]].features.look.phash[t];
-      confirm(join_within(variants, identity, settings.radius, settings.threads));
+      confirm(join_within(variants, identity, settings.radius, settings.threads, keep, &found));
+      out.candidate_hits += found;
     } else {
       std::vector<uint64_t> variant(n);
       for (int t = 0; t < kDihedralCount; ++t) {
         for (size_t k = 0; k < n; ++k) variant[k] = records[eligible[k]].features.look.phash[t];
-        auto hits = join_within(variant, identity, settings.radius, settings.threads);
+        const PairFilter keep_t = [&](uint32_t i, uint32_t j) {
+          return keep(i * kDihedralCount + static_cast<uint32_t>(t), j);
+        };
+        auto hits = join_within(variant, identity, settings.radius, settings.threads, keep_t, &found);
+        out.candidate_hits += found;
         for (auto& h : hits) h.first = h.first * kDihedralCount + static_cast<uint32_t>(t);
         confirm(hits);
       }
     }
+    out.candidate_hits -= self_hits;
     std::sort(confirmed.begin(), confirmed.end());
     confirmed.erase(std::unique(confirmed.begin(), confirmed.end()), confirmed.end());
     out.confirmed_pairs = confirmed.size();

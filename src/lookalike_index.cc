@@ -1,6 +1,9 @@
 #include "tamis/lookalike_index.h"
 
+#include <sys/mman.h>
+
 #include <algorithm>
+#include <array>
 #include <cmath>
 #include <memory>
 #include <stdexcept>
@@ -146,17 +149,25 @@ JoinPlan plan_join(size_t na, size_t nb, bool self, int radius) {
   return best;
 }
 
-// LSD radix sort of (key << 32 | tagged id) entries on the key's `bits` bits,
-// 11 bits a pass, through `tmp` (same length); the result ends in `v`.
-void radix_sort_by_key(uint64_t*& v, uint64_t*& tmp, size_t n, int bits) {
-  for (int shift = 32; shift < 32 + bits; shift += 11) {
-    size_t count[2049] = {0};
-    for (size_t i = 0; i < n; ++i) ++count[((v[i] >> shift) & 2047) + 1];
-    for (int i = 1; i <= 2048; ++i) count[i] += count[i - 1];
-    for (size_t i = 0; i < n; ++i) tmp[count[(v[i] >> shift) & 2047]++] = v[i];
-    std::swap(v, tmp);
+// A large array of uint64 that the kernel may back with huge pages (fewer page
+// faults when it is first written). Not zeroed.
+class LargeBuffer {
+ public:
+  explicit LargeBuffer(size_t n) : bytes_(std::max<size_t>(n, 1) * sizeof(uint64_t)) {
+    void* p = mmap(nullptr, bytes_, PROT_READ | PROT_WRITE, MAP_PRIVATE | MAP_ANONYMOUS, -1, 0);
+    if (p == MAP_FAILED) throw std::bad_alloc();
+    if (bytes_ >= (size_t{2} << 20)) madvise(p, bytes_, MADV_HUGEPAGE);  // advice only; may be ignored
+    data_ = static_cast<uint64_t*>(p);
   }
-}
+  ~LargeBuffer() { munmap(data_, bytes_); }
+  LargeBuffer(const LargeBuffer&) = delete;
+  LargeBuffer& operator=(const LargeBuffer&) = delete;
+  uint64_t* data() { return data_; }
+
+ private:
+  size_t bytes_;
+  uint64_t* data_ = nullptr;
+};
 
 // The lowest `k` set bits of x.
 inline uint64_t low_bits(uint64_t x, int k) {
@@ -169,71 +180,161 @@ inline uint64_t low_bits(uint64_t x, int k) {
   return out;
 }
 
+// A permutation of the 64 bit positions, applied a byte at a time. Permuting the
+// bits of every code keeps every Hamming distance, so a join of permuted codes
+// returns the same pairs.
+class BitPermutation {
+ public:
+  // to[k]: where bit k goes.
+  explicit BitPermutation(const std::array<int, 64>& to) {
+    for (int byte = 0; byte < 8; ++byte)
+      for (int v = 0; v < 256; ++v) {
+        uint64_t m = 0;
+        for (int b = 0; b < 8; ++b)
+          if (v >> b & 1) m |= uint64_t{1} << to[static_cast<size_t>(byte * 8 + b)];
+        table_[byte][v] = m;
+      }
+  }
+  uint64_t operator()(uint64_t x) const {
+    uint64_t out = 0;
+    for (int byte = 0; byte < 8; ++byte) out |= table_[byte][(x >> (8 * byte)) & 255];
+    return out;
+  }
+
+ private:
+  uint64_t table_[8][256];
+};
+
+// Deals the bit positions to the substrings so that each substring gets an even
+// share of the informative bits: codes of real images are far from uniform (a
+// DCT hash's first bit is nearly always set, and neighbouring frequencies go
+// together), and contiguous substrings would make a few buckets huge. Bits are
+// ranked by how evenly they split the codes, then dealt to the substrings in turn.
+std::array<int, 64> deal_bits(const std::vector<uint64_t>& a, const std::vector<uint64_t>& b,
+                              const std::vector<int>& widths) {
+  std::array<uint64_t, 64> ones{};
+  const size_t step = std::max<size_t>(1, (a.size() + b.size()) / 65536);  // a sample suffices
+  size_t seen = 0;
+  for (const auto* side : {&a, &b})
+    for (size_t i = 0; i < side->size(); i += step, ++seen)
+      for (uint64_t x = (*side)[i]; x; x &= x - 1) ++ones[static_cast<size_t>(__builtin_ctzll(x))];
+  std::array<int, 64> order;
+  for (int k = 0; k < 64; ++k) order[static_cast<size_t>(k)] = k;
+  auto imbalance = [&](int k) {
+    double p = seen ? double(ones[static_cast<size_t>(k)]) / double(seen) : 0.5;
+    return std::abs(p - 0.5);
+  };
+  std::stable_sort(order.begin(), order.end(), [&](int x, int y) { return imbalance(x) < imbalance(y); });
+  // Substring k takes positions [start_k, start_k + widths[k]); deal round-robin.
+  std::vector<int> start(widths.size()), filled(widths.size(), 0);
+  for (size_t k = 1; k < widths.size(); ++k) start[k] = start[k - 1] + widths[k - 1];
+  std::array<int, 64> to{};
+  size_t table = 0;
+  for (int rank = 0; rank < 64; ++rank) {
+    while (filled[table] == widths[table]) table = (table + 1) % widths.size();
+    to[static_cast<size_t>(order[static_cast<size_t>(rank)])] = start[table] + filled[table]++;
+    table = (table + 1) % widths.size();
+  }
+  return to;
+}
+
 constexpr uint64_t kIdMask = 0x7fffffffu;
 constexpr uint64_t kSideB = 0x80000000u;
 
 // The join behind pairs_within and join_within. `b` == nullptr: self-join of `a`,
 // pairs (i, j) with i < j. Otherwise pairs (i in a, j in b). Sorted and unique.
-std::vector<std::pair<uint32_t, uint32_t>> hamming_join(const std::vector<uint64_t>& a,
-                                                        const std::vector<uint64_t>* b, int radius,
-                                                        unsigned threads) {
+std::vector<std::pair<uint32_t, uint32_t>> hamming_join(const std::vector<uint64_t>& a_in,
+                                                        const std::vector<uint64_t>* b_in, int radius,
+                                                        unsigned threads, const PairFilter& keep,
+                                                        uint64_t* found_count) {
   if (radius < 0 || radius > 32) throw std::invalid_argument("Hamming join radius must be in [0, 32]");
-  const bool self = b == nullptr;
-  const std::vector<uint64_t>& bb = self ? a : *b;
-  if (a.size() > kIdMask || bb.size() > kIdMask) throw std::invalid_argument("Hamming join holds fewer than 2^31 codes a side");
-  JoinPlan plan = plan_join(a.size(), bb.size(), self, radius);
+  const bool self = b_in == nullptr;
+  if (a_in.size() > kIdMask || (b_in && b_in->size() > kIdMask))
+    throw std::invalid_argument("Hamming join holds fewer than 2^31 codes a side");
+  JoinPlan plan = plan_join(a_in.size(), self ? a_in.size() : b_in->size(), self, radius);
+  const BitPermutation permute(deal_bits(a_in, self ? a_in : *b_in, plan.bits));
+  std::vector<uint64_t> a(a_in.size()), b_permuted;
+  for (size_t i = 0; i < a.size(); ++i) a[i] = permute(a_in[i]);
+  if (!self) {
+    b_permuted.resize(b_in->size());
+    for (size_t i = 0; i < b_permuted.size(); ++i) b_permuted[i] = permute((*b_in)[i]);
+  }
+  const std::vector<uint64_t>& bb = self ? a : b_permuted;
   const int s = radius / plan.m;
   const int ra = (s + 1) / 2, rb = s / 2;
   const bool one_side = self && ra == rb;
   std::vector<std::pair<uint32_t, uint32_t>> found;
-  // One set of buffers for every table (no zero-filling: every slot is written first).
+  uint64_t total_found = 0;
+  // One buffer of entries serves every table (no zero-filling: every slot is written first).
   size_t most = 0;
   for (int w : plan.bits)
     most = std::max<size_t>(most, a.size() * binomial_ball(w, ra) + (one_side ? 0 : bb.size() * binomial_ball(w, rb)));
-  std::unique_ptr<uint64_t[]> buf_a(new uint64_t[most]), buf_b(new uint64_t[most]), buf_codes(new uint64_t[most]);
-  int shift = 0;
+  LargeBuffer buffer(most);
+  uint64_t* const entries = buffer.data();
+  int table_shift[64];
+  {
+    int sh = 0;
+    for (int e = 0; e < plan.m; ++e) {
+      table_shift[e] = sh;
+      sh += plan.bits[static_cast<size_t>(e)];
+    }
+  }
+  // Codes of side a, then of side b (unless one side serves both), are numbered
+  // 0..n_codes-1; generation chunks cut that sequence in order.
+  const size_t n_codes = a.size() + (one_side ? 0 : bb.size());
+  const size_t n_chunks = std::clamp<size_t>(n_codes / 4096, 1, 8 * size_t{resolve_threads(threads)});
   for (int k = 0; k < plan.m; ++k) {
     const int w = plan.bits[static_cast<size_t>(k)];
+    const int shift = table_shift[k];
     const uint64_t mask = (uint64_t{1} << w) - 1;
-    // Entry: key in the high 32 bits, id in bits 0..30, bit 31 set for side b.
-    uint64_t* entries = buf_a.get();
-    uint64_t* tmp = buf_b.get();
-    size_t count = 0;
-    for (uint32_t i = 0; i < a.size(); ++i) {
-      uint32_t key = static_cast<uint32_t>((a[i] >> shift) & mask);
-      for_each_within(key, w, ra, [&](uint32_t v) { entries[count++] = (uint64_t{v} << 32) | i; });
-    }
-    if (!one_side)
-      for (uint32_t i = 0; i < bb.size(); ++i) {
-        uint32_t key = static_cast<uint32_t>((bb[i] >> shift) & mask);
-        for_each_within(key, w, rb, [&](uint32_t v) { entries[count++] = (uint64_t{v} << 32) | i | kSideB; });
+    const size_t count = a.size() * binomial_ball(w, ra) + (one_side ? 0 : bb.size() * binomial_ball(w, rb));
+    // Entries (key in the high 32 bits, id in bits 0..30, bit 31 set for side b)
+    // are first placed by the key's top bits into buckets of a few thousand, so
+    // that each bucket is then sorted and searched within the processor's cache.
+    const int top = std::clamp(static_cast<int>(std::ceil(std::log2(std::max(1.0, double(count) / 8192.0)))), 0,
+                               std::min(w, 16));
+    const int low = w - top;
+    const size_t n_buckets = size_t{1} << top;
+    auto for_chunk = [&](size_t c, auto&& fn) {  // fn(entry) for every entry of chunk c, in order
+      const size_t from = n_codes * c / n_chunks, to = n_codes * (c + 1) / n_chunks;
+      for (size_t x = from; x < to; ++x) {
+        const bool side_b = x >= a.size();
+        const uint32_t id = static_cast<uint32_t>(side_b ? x - a.size() : x);
+        const uint64_t code = side_b ? bb[id] : a[id];
+        const uint64_t tag = side_b ? (id | kSideB) : id;
+        for_each_within(static_cast<uint32_t>((code >> shift) & mask), w, side_b ? rb : ra,
+                        [&](uint32_t v) { fn((uint64_t{v} << 32) | tag); });
       }
-    radix_sort_by_key(entries, tmp, count, w);
-    // Codes in entry order, so the comparisons below read memory sequentially.
-    uint64_t* entry_codes = buf_codes.get();
-    for (size_t p = 0; p < count; ++p) entry_codes[p] = (entries[p] & kSideB ? bb : a)[entries[p] & kIdMask];
-    // Runs of one key hold the codes that may be within the radius; chunks for the
-    // threads are cut at run boundaries.
-    const size_t per_chunk = 1 << 16;
-    std::vector<size_t> cuts{0};
-    for (size_t p = per_chunk; p < count; p += per_chunk) {
-      size_t q = std::max(p, cuts.back());
-      while (q < count && (entries[q] >> 32) == (entries[q - 1] >> 32)) ++q;
-      if (q > cuts.back() && q < count) cuts.push_back(q);
+    };
+    std::vector<size_t> place(n_chunks * n_buckets, 0);  // [chunk][bucket]: counts, then write positions
+    parallel_for(n_chunks, threads, [&](size_t c) {
+      size_t* h = &place[c * n_buckets];
+      for_chunk(c, [&](uint64_t e) { ++h[(e >> 32) >> low]; });
+    }, 1);
+    std::vector<size_t> bucket_start(n_buckets + 1, 0);
+    for (size_t d = 0, at = 0; d < n_buckets; ++d) {
+      bucket_start[d] = at;
+      for (size_t c = 0; c < n_chunks; ++c) {
+        const size_t n = place[c * n_buckets + d];
+        place[c * n_buckets + d] = at;
+        at += n;
+      }
     }
-    cuts.push_back(count);
+    bucket_start[n_buckets] = count;
+    parallel_for(n_chunks, threads, [&](size_t c) {
+      size_t* pos = &place[c * n_buckets];
+      for_chunk(c, [&](uint64_t e) { entries[pos[(e >> 32) >> low]++] = e; });
+    }, 1);
+    // Tasks: runs of whole buckets holding about 64K entries each.
+    std::vector<size_t> cuts{0};
+    for (size_t d = 1; d < n_buckets; ++d)
+      if (bucket_start[d] - bucket_start[cuts.back()] >= (size_t{1} << 16)) cuts.push_back(d);
+    cuts.push_back(n_buckets);
     std::vector<std::vector<std::pair<uint32_t, uint32_t>>> parts(cuts.size() - 1);
+    std::vector<uint64_t> part_found(parts.size(), 0);
     // Each pair is reported once: only from the first table where its substrings
     // are within s, and there only in its canonical bucket: the a-side key with
     // the lowest min(d, ra) differing bits flipped (the rest flipped on side b).
-    int table_shift[64];
-    {
-      int sh = 0;
-      for (int e = 0; e < plan.m; ++e) {
-        table_shift[e] = sh;
-        sh += plan.bits[static_cast<size_t>(e)];
-      }
-    }
     auto first_meeting = [&](uint64_t code_a, uint64_t code_b, uint64_t key) {
       for (int e = 0; e < k; ++e) {
         const uint64_t me = (uint64_t{1} << plan.bits[static_cast<size_t>(e)]) - 1;
@@ -244,49 +345,84 @@ std::vector<std::pair<uint32_t, uint32_t>> hamming_join(const std::vector<uint64
     };
     parallel_for(parts.size(), threads, [&](size_t c) {
       auto& out = parts[c];
-      for (size_t begin = cuts[c], stop = cuts[c + 1]; begin < stop;) {
-        const uint64_t key = entries[begin] >> 32;
-        size_t end = begin;
-        while (end < stop && (entries[end] >> 32) == key) ++end;
-        if (one_side) {
-          for (size_t x = begin; x < end; ++x) {
-            const uint64_t cx = entry_codes[x];
-            const uint32_t ix = static_cast<uint32_t>(entries[x] & kIdMask);
-            for (size_t y = x + 1; y < end; ++y) {
-              if (hamming(cx, entry_codes[y]) > radius) continue;
-              const uint32_t iy = static_cast<uint32_t>(entries[y] & kIdMask);
-              if (ix == iy) continue;
-              // side a of a self-join pair is its smaller id
-              const bool x_first = ix < iy;
-              if (!first_meeting(x_first ? cx : entry_codes[y], x_first ? entry_codes[y] : cx, key)) continue;
-              out.emplace_back(std::min(ix, iy), std::max(ix, iy));
-            }
-          }
+      uint64_t n_found = 0;
+      auto emit = [&](uint32_t x, uint32_t y) {
+        ++n_found;
+        if (!keep || keep(x, y)) out.emplace_back(x, y);
+      };
+      thread_local std::vector<uint64_t> sorted, codes;
+      thread_local std::vector<uint32_t> counts;
+      for (size_t d = cuts[c]; d < cuts[c + 1]; ++d) {
+        const size_t b0 = bucket_start[d], n = bucket_start[d + 1] - b0;
+        if (n < 2) continue;
+        // Sort the bucket by key, keeping the generation order (side a before
+        // side b, ids ascending) within a key.
+        sorted.resize(n);
+        if (low == 0) {
+          std::copy(entries + b0, entries + b0 + n, sorted.begin());
+        } else if (low <= 16) {
+          const uint64_t lmask = (uint64_t{1} << low) - 1;
+          counts.assign((size_t{1} << low) + 1, 0);
+          for (size_t p = 0; p < n; ++p) ++counts[((entries[b0 + p] >> 32) & lmask) + 1];
+          for (size_t v = 1; v < counts.size(); ++v) counts[v] += counts[v - 1];
+          for (size_t p = 0; p < n; ++p) sorted[counts[(entries[b0 + p] >> 32) & lmask]++] = entries[b0 + p];
         } else {
-          // The sort is stable and side a was entered first: a run is [a..., b...].
-          size_t mid = begin;
-          while (mid < end && !(entries[mid] & kSideB)) ++mid;
-          for (size_t x = begin; x < mid; ++x) {
-            const uint64_t cx = entry_codes[x];
-            const uint32_t ia = static_cast<uint32_t>(entries[x] & kIdMask);
-            for (size_t y = mid; y < end; ++y) {
-              if (hamming(cx, entry_codes[y]) > radius) continue;
-              const uint32_t ib = static_cast<uint32_t>(entries[y] & kIdMask);
-              if (!first_meeting(cx, entry_codes[y], key)) continue;
-              if (!self) {
-                out.emplace_back(ia, ib);
-              } else if (ia != ib) {
-                out.emplace_back(std::min(ia, ib), std::max(ia, ib));
+          std::copy(entries + b0, entries + b0 + n, sorted.begin());
+          std::sort(sorted.begin(), sorted.end());  // key, then side, then id: the same order
+        }
+        // Codes in entry order, so the comparisons below read memory sequentially.
+        codes.resize(n);
+        for (size_t p = 0; p < n; ++p) codes[p] = (sorted[p] & kSideB ? bb : a)[sorted[p] & kIdMask];
+        for (size_t begin = 0; begin < n;) {
+          const uint64_t key = sorted[begin] >> 32;
+          size_t end = begin;
+          while (end < n && (sorted[end] >> 32) == key) ++end;
+          if (one_side) {
+            for (size_t x = begin; x < end; ++x) {
+              const uint64_t cx = codes[x];
+              const uint32_t ix = static_cast<uint32_t>(sorted[x] & kIdMask);
+              for (size_t y = x + 1; y < end; ++y) {
+                if (hamming(cx, codes[y]) > radius) continue;
+                const uint32_t iy = static_cast<uint32_t>(sorted[y] & kIdMask);
+                if (ix == iy) continue;
+                // side a of a self-join pair is its smaller id
+                const bool x_first = ix < iy;
+                if (!first_meeting(x_first ? cx : codes[y], x_first ? codes[y] : cx, key)) continue;
+                emit(std::min(ix, iy), std::max(ix, iy));
+              }
+            }
+          } else {
+            // A run is [a..., b...].
+            size_t mid = begin;
+            while (mid < end && !(sorted[mid] & kSideB)) ++mid;
+            for (size_t x = begin; x < mid; ++x) {
+              const uint64_t cx = codes[x];
+              const uint32_t ia = static_cast<uint32_t>(sorted[x] & kIdMask);
+              for (size_t y = mid; y < end; ++y) {
+                if (hamming(cx, codes[y]) > radius) continue;
+                const uint32_t ib = static_cast<uint32_t>(sorted[y] & kIdMask);
+                if (!first_meeting(cx, codes[y], key)) continue;
+                if (!self) {
+                  emit(ia, ib);
+                } else if (ia != ib) {
+                  emit(std::min(ia, ib), std::max(ia, ib));
+                }
               }
             }
           }
+          begin = end;
         }
-        begin = end;
       }
+      if (sorted.capacity() > (size_t{1} << 20)) {  // do not pin a huge bucket's buffers
+        std::vector<uint64_t>().swap(sorted);
+        std::vector<uint64_t>().swap(codes);
+      }
+      part_found[c] = n_found;
     }, 1);
     for (auto& p : parts) found.insert(found.end(), p.begin(), p.end());
-    shift += w;
+    for (uint64_t f : part_found) total_found += f;
   }
+  if (found_count) *found_count = total_found;
   std::sort(found.begin(), found.end());
   found.erase(std::unique(found.begin(), found.end()), found.end());
   return found;
@@ -296,12 +432,13 @@ std::vector<std::pair<uint32_t, uint32_t>> hamming_join(const std::vector<uint64
 
 std::vector<std::pair<uint32_t, uint32_t>> pairs_within(const std::vector<uint64_t>& codes, int radius,
                                                         unsigned threads) {
-  return hamming_join(codes, nullptr, radius, threads);
+  return hamming_join(codes, nullptr, radius, threads, {}, nullptr);
 }
 
 std::vector<std::pair<uint32_t, uint32_t>> join_within(const std::vector<uint64_t>& a, const std::vector<uint64_t>& b,
-                                                       int radius, unsigned threads) {
-  return hamming_join(a, &b, radius, threads);
+                                                       int radius, unsigned threads, const PairFilter& keep,
+                                                       uint64_t* found) {
+  return hamming_join(a, &b, radius, threads, keep, found);
 }
 
 std::vector<std::pair<uint32_t, uint32_t>> pairs_within_brute_force(const std::vector<uint64_t>& codes, int radius) {

@@ -105,3 +105,49 @@ TEST_CASE("results do not depend on the thread count", "[lookalike][index][deter
   auto codes = planted_codes(20000, 8, 30, 5);
   CHECK(pairs_within(codes, 8, 1) == pairs_within(codes, 8, 4));
 }
+
+namespace {
+// Every (i, j) across the two sets within the radius, by comparing all pairs.
+Pairs cross_brute_force(const std::vector<uint64_t>& a, const std::vector<uint64_t>& b, int radius) {
+  Pairs out;
+  for (uint32_t i = 0; i < a.size(); ++i)
+    for (uint32_t j = 0; j < b.size(); ++j)
+      if (hamming(a[i], b[j]) <= radius) out.emplace_back(i, j);
+  return out;
+}
+
+// Codes whose bits are far from uniform, as real hashes are: a few bits nearly
+// constant, the rest copied in runs from a small set of prototypes, then a few flipped.
+std::vector<uint64_t> skewed_codes(size_t n, uint64_t seed) {
+  SplitMix64 rng(seed);
+  std::vector<uint64_t> protos;
+  for (int k = 0; k < 12; ++k) protos.push_back(rng.next() | (uint64_t{0xF} << 60));
+  std::vector<uint64_t> codes;
+  for (size_t i = 0; i < n; ++i) {
+    uint64_t c = protos[rng.below(protos.size())];
+    for (int f = static_cast<int>(rng.below(9)); f > 0; --f) c ^= uint64_t{1} << rng.below(60);
+    codes.push_back(c);
+  }
+  return codes;
+}
+}  // namespace
+
+TEST_CASE("cross join equals brute force on skewed codes, with and without a filter", "[lookalike][index]") {
+  for (int r : {0, 2, 5, 8, 12}) {
+    auto a = skewed_codes(3000, 40 + r), b = skewed_codes(800, 90 + r);
+    Pairs slow = cross_brute_force(a, b, r);
+    INFO("radius " << r << ", " << slow.size() << " pairs");
+    CHECK(join_within(a, b, r, 2) == slow);
+    // A filter sees every pair found, and only the pairs it accepts come back.
+    auto keep = [](uint32_t i, uint32_t j) { return (i * 7 + j) % 3 != 0; };
+    Pairs kept;
+    for (auto p : slow)
+      if (keep(p.first, p.second)) kept.push_back(p);
+    uint64_t found = 0;
+    CHECK(join_within(a, b, r, 2, keep, &found) == kept);
+    CHECK(found == slow.size());
+  }
+  // The self-join on the same skewed codes.
+  auto codes = skewed_codes(4000, 7);
+  CHECK(pairs_within(codes, 8, 2) == pairs_within_brute_force(codes, 8));
+}

@@ -2,7 +2,9 @@
 // tests/support/photos.cc) and on Fashion-MNIST.
 #include <catch2/catch.hpp>
 
+#include <functional>
 #include <map>
+#include <numeric>
 #include <set>
 #include <unordered_set>
 
@@ -12,6 +14,8 @@
 #include "support/photos.h"
 #include "support/temp_tree.h"
 #include "tamis/audit.h"
+#include "tamis/features.h"
+#include "tamis/lookalike_index.h"
 
 using namespace tamis;
 namespace fs = std::filesystem;
@@ -118,4 +122,128 @@ TEST_CASE("Fashion-MNIST: no exact groups, few look-alike groups", "[lookalike][
   CHECK(one_by_one.confirmed_pairs == r.groups.confirmed_pairs);
   CHECK(one_by_one.candidate_hits == r.groups.candidate_hits);
   CHECK(one_by_one.group_of == r.groups.group_of);
+}
+
+namespace {
+// Look-alike features of Fashion-MNIST images (train set, from the IDX file) and
+// of the visp photographs with every kind of copy, as records find_groups takes.
+std::vector<Lookalike> real_thumbnails(size_t n_fashion) {
+  std::vector<Lookalike> out;
+  auto img = test::read_idx_images(test::kFashionMnistDir / "train-images-idx3-ubyte.gz");
+  for (size_t i = 0; i < n_fashion && i < img.count; ++i) {
+    cv::Mat m(static_cast<int>(img.rows), static_cast<int>(img.cols), CV_8UC1,
+              img.pixels.data() + i * img.rows * img.cols);
+    out.push_back(lookalike_features(m));
+  }
+  for (const auto& name : test::distinct_photographs()) {
+    cv::Mat pixels = cv::imread((test::kVispDir / name).string(), cv::IMREAD_COLOR);
+    REQUIRE(!pixels.empty());
+    out.push_back(lookalike_features(pixels));
+    for (const auto& kind : test::copy_kinds()) {
+      cv::Mat copy = kind.make(pixels);
+      if (kind.jpeg_quality > 0) copy = cv::imdecode(test::encode_copy(copy, kind.jpeg_quality), cv::IMREAD_COLOR);
+      out.push_back(lookalike_features(copy));
+    }
+  }
+  return out;
+}
+}  // namespace
+
+TEST_CASE("the DCT sketch never rejects a pair that reaches the correlation threshold", "[lookalike][sketch]") {
+  // Truth is the Pearson correlation itself, computed from the pixels; the sketch
+  // may only say "maybe" for every pair that reaches it.
+  auto looks = real_thumbnails(400);
+  std::vector<ThumbStats> st;
+  std::vector<ThumbSketch> sk;
+  for (const auto& l : looks) {
+    st.push_back(thumb_stats(l.thumb));
+    sk.push_back(thumb_is_flat(st.back()) ? ThumbSketch{} : thumb_sketch(l.thumb, st.back()));
+  }
+  for (double c : {0.5, 0.9, 0.99, 0.995, 0.999}) {
+    size_t reached = 0, below = 0, rejected = 0, wrongly_rejected = 0;
+    for (size_t i = 0; i < looks.size(); ++i)
+      for (size_t j = 0; j < looks.size(); ++j) {
+        if (i == j || thumb_is_flat(st[i]) || thumb_is_flat(st[j])) continue;
+        for (int t = 0; t < kDihedralCount; ++t) {
+          const bool maybe = sketch_may_correlate(sk[i], t, sk[j], c);
+          if (thumb_correlation(looks[i].thumb, t, looks[j].thumb) >= c) {
+            ++reached;
+            wrongly_rejected += !maybe;
+          } else {
+            ++below;
+            rejected += !maybe;
+          }
+        }
+      }
+    INFO("threshold " << c << ": " << reached << " reach it, " << rejected << " of " << below << " below it rejected");
+    CHECK(reached > 200);  // the photographs' copies at least
+    CHECK(wrongly_rejected == 0);
+    if (c >= 0.99) CHECK(double(rejected) >= 0.95 * double(below));  // what makes it worth having
+  }
+}
+
+TEST_CASE("find_groups equals the definition checked pair by pair", "[lookalike][groups]") {
+  // Groups are the connected components of pairs (i, j) such that some flip/turn t
+  // of i has a hash within the radius of j's and thumbnails that correlate
+  // enough: here every pair and every t is tried, with no index and no sketch.
+  auto looks = real_thumbnails(3000);
+  std::vector<FileRecord> records(looks.size());
+  for (size_t i = 0; i < looks.size(); ++i) {
+    char path[32];
+    std::snprintf(path, sizeof path, "c/%06zu.png", i);
+    records[i].path = path;
+    records[i].kind = FileKind::image;
+    records[i].features.has_lookalike = true;
+    records[i].features.has_content_hash = true;
+    records[i].features.content_hash = {i, 0};
+    records[i].features.look = looks[i];
+  }
+  for (double c : {0.9, 0.995}) {
+    GroupSettings gs;
+    gs.min_correlation = c;
+    GroupResult got = find_groups(records, gs);
+    std::set<std::pair<uint32_t, uint32_t>> pairs;
+    uint64_t hits = 0;
+    for (uint32_t i = 0; i < records.size(); ++i)
+      for (uint32_t j = 0; j < records.size(); ++j) {
+        if (i == j) continue;
+        for (int t = 0; t < kDihedralCount; ++t) {
+          if (hamming(looks[i].phash[t], looks[j].phash[0]) > gs.radius) continue;
+          ++hits;
+          if (thumb_correlation(looks[i].thumb, t, looks[j].thumb) >= c) pairs.emplace(std::min(i, j), std::max(i, j));
+        }
+      }
+    INFO("threshold " << c << ": " << pairs.size() << " pairs");
+    CHECK(pairs.size() > 50);
+    CHECK(got.confirmed_pairs == pairs.size());
+    CHECK(got.candidate_hits == hits);
+    // Same partition: two records share a group exactly when the pairs connect them.
+    std::vector<uint32_t> root(records.size());
+    std::iota(root.begin(), root.end(), 0u);
+    std::function<uint32_t(uint32_t)> find = [&](uint32_t x) { return root[x] == x ? x : root[x] = find(root[x]); };
+    for (auto [a, b] : pairs) root[find(a)] = find(b);
+    std::map<uint32_t, size_t> size_of_root;
+    for (uint32_t i = 0; i < records.size(); ++i) ++size_of_root[find(i)];
+    // A one-to-one map between find_groups' groups and the components of two or more.
+    std::map<int64_t, uint32_t> root_of_group;
+    std::map<uint32_t, int64_t> group_of_root;
+    size_t mismatched = 0;
+    for (uint32_t i = 0; i < records.size(); ++i) {
+      const uint32_t r = find(i);
+      const int64_t g = got.group_of[i];
+      if (size_of_root[r] < 2) {
+        mismatched += g != -1;
+        continue;
+      }
+      auto [gr, new_g] = root_of_group.emplace(g, r);
+      auto [rg, new_r] = group_of_root.emplace(r, g);
+      mismatched += g < 0 || gr->second != r || rg->second != g;
+    }
+    CHECK(mismatched == 0);
+    size_t in_groups = 0;
+    for (auto [r, n] : size_of_root) in_groups += n >= 2 ? n : 0;
+    size_t got_in_groups = 0;
+    for (const auto& g : got.groups) got_in_groups += g.members.size();
+    CHECK(got_in_groups == in_groups);
+  }
 }

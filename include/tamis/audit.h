@@ -39,6 +39,13 @@ struct AuditSettings {
   std::filesystem::path cache_file;  // record cache (cache.h); empty: none
 };
 
+// Wall time of each stage, in the order the stages ran (for --timings and the
+// benchmarks; never in a report, since it is not deterministic).
+struct StageTime {
+  std::string stage;
+  double seconds = 0;
+};
+
 struct Totals {
   uint64_t files_seen = 0, images = 0, masks = 0, unreadable = 0, ignored = 0;
 };
@@ -55,6 +62,7 @@ struct AuditIndex {
   Totals totals;
   ReadCounts counts;                // how the records were obtained (not saved, not reported)
   std::string cache_note;           // why the cache was not used or was rebuilt, if it was
+  std::vector<StageTime> times;     // not saved, not reported
 };
 
 // What place() needs beyond the index: the split, the policy (its thresholds

@@ -58,4 +58,23 @@ ThumbStats thumb_stats(const std::array<uint8_t, 1024>& t);
 double thumb_correlation(const std::array<uint8_t, 1024>& turned_a, const ThumbStats& sa,
                          const std::array<uint8_t, 1024>& b, const ThumbStats& sb);
 
+// True when thumb_correlation treats the thumbnail as flat (standard deviation
+// below 2 grey levels): its correlations follow the flat rule above.
+bool thumb_is_flat(const ThumbStats& s);
+
+// A lower bound on the thumbnails' distance, to reject most candidate pairs
+// before their correlation is computed. The Pearson correlation of two
+// thumbnails is 1 - |a' - b'|^2 / 2, where a' and b' are the pixels centred and
+// scaled to unit length; the orthonormal DCT keeps that distance, and any subset
+// of the coefficients gives a lower bound. The sketch holds the low 8x8 block
+// (without the DC term, which centring makes 0) of the DCT of a', rounded to
+// int16 (x 32767). A flip/turn of the image maps the block onto itself (a
+// transpose, and sign changes at odd frequencies), so one sketch serves all 8.
+using ThumbSketch = std::array<int16_t, 63>;
+// REQUIRES: !thumb_is_flat(s), s = thumb_stats(thumb).
+ThumbSketch thumb_sketch(const std::array<uint8_t, 1024>& thumb, const ThumbStats& s);
+// False only when corr(transform t of a, b) < min_correlation for certain (the
+// bound allows for the rounding of the sketches and of their computation).
+bool sketch_may_correlate(const ThumbSketch& a, int t, const ThumbSketch& b, double min_correlation);
+
 }  // namespace tamis

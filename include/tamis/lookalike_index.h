@@ -23,6 +23,7 @@
 
 #include <cstddef>
 #include <cstdint>
+#include <functional>
 #include <utility>
 #include <vector>
 
@@ -60,10 +61,17 @@ class LookalikeIndex {
 std::vector<std::pair<uint32_t, uint32_t>> pairs_within(const std::vector<uint64_t>& codes, int radius,
                                                         unsigned threads = 0);
 
+// Decides whether a pair the join found is returned. Called from the join's
+// threads, once for each pair found: it must be thread-safe and pure.
+using PairFilter = std::function<bool(uint32_t, uint32_t)>;
+
 // Every (i, j), i indexing `a` and j indexing `b`, with hamming(a[i], b[j]) <=
-// radius, sorted. The same sorted self-join technique, across two sets.
+// radius, sorted. The same sorted self-join technique, across two sets. With
+// `keep`, only the pairs it accepts are returned, and `found` (when set)
+// receives the number of pairs found before it was asked.
 std::vector<std::pair<uint32_t, uint32_t>> join_within(const std::vector<uint64_t>& a, const std::vector<uint64_t>& b,
-                                                       int radius, unsigned threads = 0);
+                                                       int radius, unsigned threads = 0, const PairFilter& keep = {},
+                                                       uint64_t* found = nullptr);
 
 // The same by comparing every pair: the reference the index is tested against.
 std::vector<std::pair<uint32_t, uint32_t>> pairs_within_brute_force(const std::vector<uint64_t>& codes, int radius);

@@ -17,7 +17,8 @@ namespace tamis {
 // Bytes of thumbnail data URIs report.html carries by default (about 300 KB).
 inline constexpr size_t kThumbnailBudget = 300 * 1024;
 
+// `times`, when set, receives each file's wall time.
 void write_outputs(const std::filesystem::path& out_dir, const AuditResult& result,
-                   size_t thumbnail_budget = kThumbnailBudget);
+                   size_t thumbnail_budget = kThumbnailBudget, std::vector<StageTime>* times = nullptr);
 
 }  // namespace tamis

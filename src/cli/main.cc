@@ -2,6 +2,7 @@
 // of its own beyond turning outcomes into exit statuses (docs/cli.md):
 //   0 nothing breaks the policy, 1 a finding breaks it, 2 bad command line,
 //   3 the run could not be done.
+#include <chrono>
 #include <cstdio>
 #include <cstdlib>
 #include <fstream>
@@ -35,6 +36,7 @@ struct CommonOptions {
   bool quiet = false;
   bool progress = false;
   bool no_progress = false;
+  bool timings = false;
 };
 
 void add_reading_options(CLI::App* cmd, CommonOptions& o) {
@@ -46,6 +48,7 @@ void add_reading_options(CLI::App* cmd, CommonOptions& o) {
   cmd->add_flag("--quiet", o.quiet, "print nothing but errors");
   cmd->add_flag("--progress", o.progress, "show a progress line on stderr even when it is not a terminal");
   cmd->add_flag("--no-progress", o.no_progress, "never show a progress line");
+  cmd->add_flag("--timings", o.timings, "print each stage's wall time on stderr when done");
 }
 
 // Options of the judging stages, shared by `audit` and `split`.
@@ -195,10 +198,12 @@ void print_summary(const tamis::AuditResult& r, const std::filesystem::path& out
   std::printf("reports: %s\n", (out / "report.html").string().c_str());
 }
 
+const auto process_start = std::chrono::steady_clock::now();
+
 // Writes the outputs, the JUnit file when asked, and the summary; returns the exit status.
-int finish(const tamis::AuditResult& result, const std::string& out, const JudgeOptions& jo, bool quiet) {
+int finish(tamis::AuditResult& result, const std::string& out, const JudgeOptions& jo, bool quiet, bool timings) {
   try {
-    tamis::write_outputs(out, result, jo.thumbnails_kb * 1024);
+    tamis::write_outputs(out, result, jo.thumbnails_kb * 1024, timings ? &result.times : nullptr);
     if (!jo.junit.empty())
       tamis::write_file_atomically(jo.junit, [&](std::ostream& os) { tamis::write_junit(os, result); });
   } catch (const std::exception& e) {
@@ -206,6 +211,14 @@ int finish(const tamis::AuditResult& result, const std::string& out, const Judge
     return kExitCannotRun;
   }
   if (!quiet) print_summary(result, out, jo.format);
+  if (timings) {
+    double staged = 0;
+    for (const auto& t : result.times) staged += t.seconds;
+    double total = std::chrono::duration<double>(std::chrono::steady_clock::now() - process_start).count();
+    for (const auto& t : result.times) std::fprintf(stderr, "tamis: %-16s %8.3f s\n", t.stage.c_str(), t.seconds);
+    std::fprintf(stderr, "tamis: %-16s %8.3f s\n", "other", total - staged);
+    std::fprintf(stderr, "tamis: %-16s %8.3f s (since the process started)\n", "total", total);
+  }
   return tamis::policy_exit_status(result);
 }
 
@@ -265,7 +278,7 @@ int run_audit_command(const std::string& root, const std::string& out, const Spl
     std::fprintf(stderr, "tamis: %s\n", e.what());
     return kExitCannotRun;
   }
-  return finish(result, out, jo, o.quiet);
+  return finish(result, out, jo, o.quiet, o.timings);
 }
 
 int run_split_command(const std::string& dir, const std::string& out, const SplitOptions& so, const JudgeOptions& jo,
@@ -298,7 +311,7 @@ int run_split_command(const std::string& dir, const std::string& out, const Spli
     std::fprintf(stderr, "tamis: %s\n", e.what());
     return kExitCannotRun;
   }
-  return finish(result, out, jo, quiet);
+  return finish(result, out, jo, quiet, false);
 }
 
 }  // namespace
