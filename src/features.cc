@@ -35,12 +35,14 @@ std::array<uint64_t, kDihedralCount> dct_hashes(const cv::Mat& thumb32) {
   for (int u = 0; u < 8; ++u)
     for (int v = 0; v < 8; ++v) block[u][v] = d.at<double>(u, v);
   std::array<uint64_t, kDihedralCount> out{};
-  for (int t = 0; t < kDihedralCount; ++t) {
-    bool transpose = t & 4, flip_rows = t & 2, flip_cols = t & 1;
+  // A transpose only reorders the coefficients, so t and t + 4 share the median;
+  // the four sign patterns of the mirrors each need their own.
+  for (int t = 0; t < 4; ++t) {
+    const bool flip_rows = t & 2, flip_cols = t & 1;
     double c[64];
     for (int u = 0; u < 8; ++u)
       for (int v = 0; v < 8; ++v) {
-        double x = transpose ? block[v][u] : block[u][v];
+        double x = block[u][v];
         if (flip_rows && (u & 1)) x = -x;
         if (flip_cols && (v & 1)) x = -x;
         c[u * 8 + v] = x;
@@ -48,13 +50,27 @@ std::array<uint64_t, kDihedralCount> dct_hashes(const cv::Mat& thumb32) {
     double sorted[64];
     std::copy(c, c + 64, sorted);
     std::nth_element(sorted, sorted + 31, sorted + 64);
-    double lo = sorted[31];
-    double hi = *std::min_element(sorted + 32, sorted + 64);
-    double median = 0.5 * (lo + hi);
+    const double lo = sorted[31];
+    const double hi = *std::min_element(sorted + 32, sorted + 64);
+    const double median = 0.5 * (lo + hi);
+    // Bit k = 8u + v of the code is bit 63 - k.
     uint64_t code = 0;
     for (int k = 0; k < 64; ++k)
       if (c[k] > median) code |= uint64_t{1} << (63 - k);
-    out[t] = code;
+    out[static_cast<size_t>(t)] = code;
+  }
+  // Transform 4 + t: transpose, then the mirrors of t. Its coefficient at (u, v)
+  // is block[v][u] with the signs of t applied at (u, v), which is the sign
+  // pattern t' (rows and columns swapped) applied at (v, u): so its code is the
+  // transposed bit matrix of code t', and its median is that of t'.
+  for (int t = 0; t < 4; ++t) {
+    const int swapped = ((t & 1) << 1) | ((t & 2) >> 1);
+    const uint64_t src = out[static_cast<size_t>(swapped)];
+    uint64_t code = 0;
+    for (int u = 0; u < 8; ++u)
+      for (int v = 0; v < 8; ++v)
+        if (src >> (63 - (v * 8 + u)) & 1) code |= uint64_t{1} << (63 - (u * 8 + v));
+    out[static_cast<size_t>(4 + t)] = code;
   }
   return out;
 }
@@ -227,10 +243,13 @@ bool sketch_may_correlate(const ThumbSketch& a, int t, const ThumbSketch& b, dou
   // difference is at least |qa - qb| - 2.
   const double limit = 2.0 * (1.0 - min_correlation) * kSketchScale * kSketchScale;
   if (limit < 0) return true;
+  // Low frequencies come first and carry most of the energy, so most pairs are
+  // rejected after the first rows.
   int64_t sum = 0;
   for (int k = 0; k < 63; ++k) {
     int d = std::abs(maps.sign[t][k] * a[maps.from[t][k]] - b[static_cast<size_t>(k)]) - 2;
     if (d > 0) sum += int64_t{d} * d;
+    if ((k & 7) == 6 && double(sum) > limit) return false;
   }
   return double(sum) <= limit;
 }
