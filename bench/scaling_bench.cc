@@ -62,6 +62,7 @@ int main(int argc, char** argv) {
   std::sort(x.records.begin(), x.records.end(), [](const FileRecord& a, const FileRecord& b) { return a.path < b.path; });
   x.totals = {n, n, 0, 0, 0};
   double t_make = seconds_since(t0);
+  const long made_kb = peak_kb();
   t0 = Clock::now();
   x.masks = pair_masks(x.records, {});
   double t_masks = seconds_since(t0);
@@ -73,14 +74,19 @@ int main(int argc, char** argv) {
   gs.threads = threads;
   x.groups = find_groups(x.records, gs);
   double t_groups = seconds_since(t0);
+  const long groups_kb = peak_kb();
   t0 = Clock::now();
   AuditResult r = place(std::move(x), SplitSettings{});
   double t_place = seconds_since(t0);
+  const long place_kb = peak_kb();
   t0 = Clock::now();
   std::ostringstream os;
   write_manifest(os, r);
   double t_manifest = seconds_since(t0);
   const long peak = peak_kb();
+  auto per = [&](long kb) { return (kb - base_kb) * 1024.0 / double(n); };
+  std::printf("peak bytes per record: records made %.0f, after groups %.0f, after checks+split %.0f, after manifest %.0f\n",
+              per(made_kb), per(groups_kb), per(place_kb), per(peak));
   std::printf("%zu records: make %.2f s, masks %.2f s, labels %.2f s, groups %.2f s (%zu groups), checks+split %.2f s, "
               "manifest %.2f s (%.1f MB); peak RSS %.0f MB, %.0f bytes per record\n",
               n, t_make, t_masks, t_labels, t_groups, r.groups.groups.size(), t_place, t_manifest,

@@ -124,10 +124,11 @@ GroupResult find_groups(const std::vector<FileRecord>& records, const GroupSetti
       }, 64);
       for (auto& f : found) confirmed.insert(confirmed.end(), f.begin(), f.end());
     };
-    // One join of all 8 variants (id = 8 * image + t) is fastest; when its buffers
-    // (about 4 KB a file) would pass the memory budget, the variants are joined one
-    // at a time (about 1 KB a file). The join is exact, so both give the same pairs.
-    const bool one_join = double(n) * 4300.0 <= double(settings.join_memory_bytes);
+    // One join of all 8 variants (id = 8 * image + t) is fastest; when its buffer
+    // of entries (about 1.6 KB a file) would pass the memory budget, the variants
+    // are joined one at a time, each in slices within the budget. The join is
+    // exact, so both give the same pairs.
+    const bool one_join = double(n) * 1600.0 <= double(settings.join_memory_bytes);
     uint64_t found = 0;
     if (one_join) {
       std::vector<uint64_t> variants(n * kDihedralCount);
@@ -142,7 +143,8 @@ GroupResult find_groups(const std::vector<FileRecord>& records, const GroupSetti
         const PairFilter keep_t = [&](uint32_t i, uint32_t j) {
           return keep(i * kDihedralCount + static_cast<uint32_t>(t), j);
         };
-        auto hits = join_within(variant, identity, settings.radius, settings.threads, keep_t, &found);
+        auto hits = join_within(variant, identity, settings.radius, settings.threads, keep_t, &found,
+                                settings.join_memory_bytes);
         out.candidate_hits += found;
         for (auto& h : hits) h.first = h.first * kDihedralCount + static_cast<uint32_t>(t);
         confirm(hits);

@@ -160,6 +160,7 @@ class LargeBuffer {
     data_ = static_cast<uint64_t*>(p);
   }
   ~LargeBuffer() { munmap(data_, bytes_); }
+  size_t size() const { return bytes_ / sizeof(uint64_t); }
   LargeBuffer(const LargeBuffer&) = delete;
   LargeBuffer& operator=(const LargeBuffer&) = delete;
   uint64_t* data() { return data_; }
@@ -246,7 +247,7 @@ constexpr uint64_t kSideB = 0x80000000u;
 std::vector<std::pair<uint32_t, uint32_t>> hamming_join(const std::vector<uint64_t>& a_in,
                                                         const std::vector<uint64_t>* b_in, int radius,
                                                         unsigned threads, const PairFilter& keep,
-                                                        uint64_t* found_count) {
+                                                        uint64_t* found_count, size_t max_entries) {
   if (radius < 0 || radius > 32) throw std::invalid_argument("Hamming join radius must be in [0, 32]");
   const bool self = b_in == nullptr;
   if (a_in.size() > kIdMask || (b_in && b_in->size() > kIdMask))
@@ -265,12 +266,9 @@ std::vector<std::pair<uint32_t, uint32_t>> hamming_join(const std::vector<uint64
   const bool one_side = self && ra == rb;
   std::vector<std::pair<uint32_t, uint32_t>> found;
   uint64_t total_found = 0;
-  // One buffer of entries serves every table (no zero-filling: every slot is written first).
-  size_t most = 0;
-  for (int w : plan.bits)
-    most = std::max<size_t>(most, a.size() * binomial_ball(w, ra) + (one_side ? 0 : bb.size() * binomial_ball(w, rb)));
-  LargeBuffer buffer(most);
-  uint64_t* const entries = buffer.data();
+  // One buffer of entries serves every table and slice (no zero-filling: every
+  // slot is written first); it grows to the largest slice.
+  std::unique_ptr<LargeBuffer> buffer;
   int table_shift[64];
   {
     int sh = 0;
@@ -321,106 +319,121 @@ std::vector<std::pair<uint32_t, uint32_t>> hamming_join(const std::vector<uint64
       }
     }
     bucket_start[n_buckets] = count;
-    parallel_for(n_chunks, threads, [&](size_t c) {
-      size_t* pos = &place[c * n_buckets];
-      for_chunk(c, [&](uint64_t e) { entries[pos[(e >> 32) >> low]++] = e; });
-    }, 1);
-    // Tasks: runs of whole buckets holding about 64K entries each.
-    std::vector<size_t> cuts{0};
-    for (size_t d = 1; d < n_buckets; ++d)
-      if (bucket_start[d] - bucket_start[cuts.back()] >= (size_t{1} << 16)) cuts.push_back(d);
-    cuts.push_back(n_buckets);
-    std::vector<std::vector<std::pair<uint32_t, uint32_t>>> parts(cuts.size() - 1);
-    std::vector<uint64_t> part_found(parts.size(), 0);
-    // Each pair is reported once: only from the first table where its substrings
-    // are within s, and there only in its canonical bucket: the a-side key with
-    // the lowest min(d, ra) differing bits flipped (the rest flipped on side b).
-    auto first_meeting = [&](uint64_t code_a, uint64_t code_b, uint64_t key) {
-      for (int e = 0; e < k; ++e) {
-        const uint64_t me = (uint64_t{1} << plan.bits[static_cast<size_t>(e)]) - 1;
-        if (__builtin_popcountll(((code_a ^ code_b) >> table_shift[e]) & me) <= s) return false;
+    // Slices of whole buckets within the memory budget, each generated and searched in turn.
+    for (size_t d0 = 0; d0 < n_buckets;) {
+      size_t d1 = d0 + 1;
+      while (d1 < n_buckets && (max_entries == 0 || bucket_start[d1 + 1] - bucket_start[d0] <= max_entries)) ++d1;
+      const size_t base = bucket_start[d0], slice = bucket_start[d1] - base;
+      if (!buffer || buffer->size() < slice) {
+        buffer.reset();
+        buffer = std::make_unique<LargeBuffer>(slice);
       }
-      const uint64_t d = ((code_a ^ code_b) >> shift) & mask;
-      return ((((code_a >> shift) & mask) ^ low_bits(d, ra)) == key);
-    };
-    parallel_for(parts.size(), threads, [&](size_t c) {
-      auto& out = parts[c];
-      uint64_t n_found = 0;
-      auto emit = [&](uint32_t x, uint32_t y) {
-        ++n_found;
-        if (!keep || keep(x, y)) out.emplace_back(x, y);
-      };
-      thread_local std::vector<uint64_t> sorted, codes;
-      thread_local std::vector<uint32_t> counts;
-      for (size_t d = cuts[c]; d < cuts[c + 1]; ++d) {
-        const size_t b0 = bucket_start[d], n = bucket_start[d + 1] - b0;
-        if (n < 2) continue;
-        // Sort the bucket by key, keeping the generation order (side a before
-        // side b, ids ascending) within a key.
-        sorted.resize(n);
-        if (low == 0) {
-          std::copy(entries + b0, entries + b0 + n, sorted.begin());
-        } else if (low <= 16) {
-          const uint64_t lmask = (uint64_t{1} << low) - 1;
-          counts.assign((size_t{1} << low) + 1, 0);
-          for (size_t p = 0; p < n; ++p) ++counts[((entries[b0 + p] >> 32) & lmask) + 1];
-          for (size_t v = 1; v < counts.size(); ++v) counts[v] += counts[v - 1];
-          for (size_t p = 0; p < n; ++p) sorted[counts[(entries[b0 + p] >> 32) & lmask]++] = entries[b0 + p];
-        } else {
-          std::copy(entries + b0, entries + b0 + n, sorted.begin());
-          std::sort(sorted.begin(), sorted.end());  // key, then side, then id: the same order
+      uint64_t* const entries = buffer->data();  // entry p of the table at entries[p - base]
+      parallel_for(n_chunks, threads, [&](size_t c) {
+        size_t* pos = &place[c * n_buckets];
+        for_chunk(c, [&](uint64_t e) {
+          const size_t d = (e >> 32) >> low;
+          if (d >= d0 && d < d1) entries[pos[d]++ - base] = e;
+        });
+      }, 1);
+      // Tasks: runs of whole buckets holding about 64K entries each.
+      std::vector<size_t> cuts{d0};
+      for (size_t d = d0 + 1; d < d1; ++d)
+        if (bucket_start[d] - bucket_start[cuts.back()] >= (size_t{1} << 16)) cuts.push_back(d);
+      cuts.push_back(d1);
+      std::vector<std::vector<std::pair<uint32_t, uint32_t>>> parts(cuts.size() - 1);
+      std::vector<uint64_t> part_found(parts.size(), 0);
+      // Each pair is reported once: only from the first table where its substrings
+      // are within s, and there only in its canonical bucket: the a-side key with
+      // the lowest min(d, ra) differing bits flipped (the rest flipped on side b).
+      auto first_meeting = [&](uint64_t code_a, uint64_t code_b, uint64_t key) {
+        for (int e = 0; e < k; ++e) {
+          const uint64_t me = (uint64_t{1} << plan.bits[static_cast<size_t>(e)]) - 1;
+          if (__builtin_popcountll(((code_a ^ code_b) >> table_shift[e]) & me) <= s) return false;
         }
-        // Codes in entry order, so the comparisons below read memory sequentially.
-        codes.resize(n);
-        for (size_t p = 0; p < n; ++p) codes[p] = (sorted[p] & kSideB ? bb : a)[sorted[p] & kIdMask];
-        for (size_t begin = 0; begin < n;) {
-          const uint64_t key = sorted[begin] >> 32;
-          size_t end = begin;
-          while (end < n && (sorted[end] >> 32) == key) ++end;
-          if (one_side) {
-            for (size_t x = begin; x < end; ++x) {
-              const uint64_t cx = codes[x];
-              const uint32_t ix = static_cast<uint32_t>(sorted[x] & kIdMask);
-              for (size_t y = x + 1; y < end; ++y) {
-                if (hamming(cx, codes[y]) > radius) continue;
-                const uint32_t iy = static_cast<uint32_t>(sorted[y] & kIdMask);
-                if (ix == iy) continue;
-                // side a of a self-join pair is its smaller id
-                const bool x_first = ix < iy;
-                if (!first_meeting(x_first ? cx : codes[y], x_first ? codes[y] : cx, key)) continue;
-                emit(std::min(ix, iy), std::max(ix, iy));
-              }
-            }
+        const uint64_t d = ((code_a ^ code_b) >> shift) & mask;
+        return ((((code_a >> shift) & mask) ^ low_bits(d, ra)) == key);
+      };
+      parallel_for(parts.size(), threads, [&](size_t c) {
+        auto& out = parts[c];
+        uint64_t n_found = 0;
+        auto emit = [&](uint32_t x, uint32_t y) {
+          ++n_found;
+          if (!keep || keep(x, y)) out.emplace_back(x, y);
+        };
+        thread_local std::vector<uint64_t> sorted, codes;
+        thread_local std::vector<uint32_t> counts;
+        for (size_t d = cuts[c]; d < cuts[c + 1]; ++d) {
+          const size_t b0 = bucket_start[d] - base, n = bucket_start[d + 1] - bucket_start[d];
+          if (n < 2) continue;
+          // Sort the bucket by key, keeping the generation order (side a before
+          // side b, ids ascending) within a key.
+          sorted.resize(n);
+          if (low == 0) {
+            std::copy(entries + b0, entries + b0 + n, sorted.begin());
+          } else if (low <= 16) {
+            const uint64_t lmask = (uint64_t{1} << low) - 1;
+            counts.assign((size_t{1} << low) + 1, 0);
+            for (size_t p = 0; p < n; ++p) ++counts[((entries[b0 + p] >> 32) & lmask) + 1];
+            for (size_t v = 1; v < counts.size(); ++v) counts[v] += counts[v - 1];
+            for (size_t p = 0; p < n; ++p) sorted[counts[(entries[b0 + p] >> 32) & lmask]++] = entries[b0 + p];
           } else {
-            // A run is [a..., b...].
-            size_t mid = begin;
-            while (mid < end && !(sorted[mid] & kSideB)) ++mid;
-            for (size_t x = begin; x < mid; ++x) {
-              const uint64_t cx = codes[x];
-              const uint32_t ia = static_cast<uint32_t>(sorted[x] & kIdMask);
-              for (size_t y = mid; y < end; ++y) {
-                if (hamming(cx, codes[y]) > radius) continue;
-                const uint32_t ib = static_cast<uint32_t>(sorted[y] & kIdMask);
-                if (!first_meeting(cx, codes[y], key)) continue;
-                if (!self) {
-                  emit(ia, ib);
-                } else if (ia != ib) {
-                  emit(std::min(ia, ib), std::max(ia, ib));
+            std::copy(entries + b0, entries + b0 + n, sorted.begin());
+            std::sort(sorted.begin(), sorted.end());  // key, then side, then id: the same order
+          }
+          // Codes in entry order, so the comparisons below read memory sequentially.
+          codes.resize(n);
+          for (size_t p = 0; p < n; ++p) codes[p] = (sorted[p] & kSideB ? bb : a)[sorted[p] & kIdMask];
+          for (size_t begin = 0; begin < n;) {
+            const uint64_t key = sorted[begin] >> 32;
+            size_t end = begin;
+            while (end < n && (sorted[end] >> 32) == key) ++end;
+            if (one_side) {
+              for (size_t x = begin; x < end; ++x) {
+                const uint64_t cx = codes[x];
+                const uint32_t ix = static_cast<uint32_t>(sorted[x] & kIdMask);
+                for (size_t y = x + 1; y < end; ++y) {
+                  if (hamming(cx, codes[y]) > radius) continue;
+                  const uint32_t iy = static_cast<uint32_t>(sorted[y] & kIdMask);
+                  if (ix == iy) continue;
+                  // side a of a self-join pair is its smaller id
+                  const bool x_first = ix < iy;
+                  if (!first_meeting(x_first ? cx : codes[y], x_first ? codes[y] : cx, key)) continue;
+                  emit(std::min(ix, iy), std::max(ix, iy));
+                }
+              }
+            } else {
+              // A run is [a..., b...].
+              size_t mid = begin;
+              while (mid < end && !(sorted[mid] & kSideB)) ++mid;
+              for (size_t x = begin; x < mid; ++x) {
+                const uint64_t cx = codes[x];
+                const uint32_t ia = static_cast<uint32_t>(sorted[x] & kIdMask);
+                for (size_t y = mid; y < end; ++y) {
+                  if (hamming(cx, codes[y]) > radius) continue;
+                  const uint32_t ib = static_cast<uint32_t>(sorted[y] & kIdMask);
+                  if (!first_meeting(cx, codes[y], key)) continue;
+                  if (!self) {
+                    emit(ia, ib);
+                  } else if (ia != ib) {
+                    emit(std::min(ia, ib), std::max(ia, ib));
+                  }
                 }
               }
             }
+            begin = end;
           }
-          begin = end;
         }
-      }
-      if (sorted.capacity() > (size_t{1} << 20)) {  // do not pin a huge bucket's buffers
-        std::vector<uint64_t>().swap(sorted);
-        std::vector<uint64_t>().swap(codes);
-      }
-      part_found[c] = n_found;
-    }, 1);
-    for (auto& p : parts) found.insert(found.end(), p.begin(), p.end());
-    for (uint64_t f : part_found) total_found += f;
+        if (sorted.capacity() > (size_t{1} << 20)) {  // do not pin a huge bucket's buffers
+          std::vector<uint64_t>().swap(sorted);
+          std::vector<uint64_t>().swap(codes);
+        }
+        part_found[c] = n_found;
+      }, 1);
+      for (auto& p : parts) found.insert(found.end(), p.begin(), p.end());
+      for (uint64_t f : part_found) total_found += f;
+      d0 = d1;
+    }
   }
   if (found_count) *found_count = total_found;
   std::sort(found.begin(), found.end());
@@ -432,13 +445,13 @@ std::vector<std::pair<uint32_t, uint32_t>> hamming_join(const std::vector<uint64
 
 std::vector<std::pair<uint32_t, uint32_t>> pairs_within(const std::vector<uint64_t>& codes, int radius,
                                                         unsigned threads) {
-  return hamming_join(codes, nullptr, radius, threads, {}, nullptr);
+  return hamming_join(codes, nullptr, radius, threads, {}, nullptr, 0);
 }
 
 std::vector<std::pair<uint32_t, uint32_t>> join_within(const std::vector<uint64_t>& a, const std::vector<uint64_t>& b,
                                                        int radius, unsigned threads, const PairFilter& keep,
-                                                       uint64_t* found) {
-  return hamming_join(a, &b, radius, threads, keep, found);
+                                                       uint64_t* found, size_t memory_bytes) {
+  return hamming_join(a, &b, radius, threads, keep, found, memory_bytes / sizeof(uint64_t));
 }
 
 std::vector<std::pair<uint32_t, uint32_t>> pairs_within_brute_force(const std::vector<uint64_t>& codes, int radius) {

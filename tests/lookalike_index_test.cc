@@ -146,6 +146,8 @@ TEST_CASE("cross join equals brute force on skewed codes, with and without a fil
     uint64_t found = 0;
     CHECK(join_within(a, b, r, 2, keep, &found) == kept);
     CHECK(found == slow.size());
+    // In slices of at most 64 KB of entries: the same pairs.
+    CHECK(join_within(a, b, r, 2, {}, nullptr, 64 << 10) == slow);
   }
   // The self-join on the same skewed codes.
   auto codes = skewed_codes(4000, 7);

@@ -29,7 +29,9 @@ struct GroupSettings {
   int radius = 8;                // docs/lookalikes.md: how the defaults were measured
   double min_correlation = 0.995;
   unsigned threads = 0;
-  uint64_t join_memory_bytes = 1ull << 30;  // above this, flips/turns are joined one at a time (same result)
+  // The look-alike join's buffer of entries: above it, flips/turns are joined one
+  // at a time, in slices of the key space (same result, more time).
+  uint64_t join_memory_bytes = 256ull << 20;
 };
 
 struct Group {

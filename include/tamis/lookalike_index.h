@@ -68,10 +68,12 @@ using PairFilter = std::function<bool(uint32_t, uint32_t)>;
 // Every (i, j), i indexing `a` and j indexing `b`, with hamming(a[i], b[j]) <=
 // radius, sorted. The same sorted self-join technique, across two sets. With
 // `keep`, only the pairs it accepts are returned, and `found` (when set)
-// receives the number of pairs found before it was asked.
+// receives the number of pairs found before it was asked. `memory_bytes` (0: no
+// limit) bounds the join's buffer of entries: above it, the key space is
+// searched in slices, each generated afresh (same pairs, more time).
 std::vector<std::pair<uint32_t, uint32_t>> join_within(const std::vector<uint64_t>& a, const std::vector<uint64_t>& b,
                                                        int radius, unsigned threads = 0, const PairFilter& keep = {},
-                                                       uint64_t* found = nullptr);
+                                                       uint64_t* found = nullptr, size_t memory_bytes = 0);
 
 // The same by comparing every pair: the reference the index is tested against.
 std::vector<std::pair<uint32_t, uint32_t>> pairs_within_brute_force(const std::vector<uint64_t>& codes, int radius);
