@@ -6,7 +6,9 @@
 //     within Hamming distance `radius` of the second's DCT hash (candidates found
 //     exactly by join_within, lookalike_index.h), AND the independent second signal confirms it:
 //     the Pearson correlation of their 32x32 thumbnails, after that flip/turn, is
-//     at least `min_correlation`.
+//     at least `min_correlation`. (A DCT sketch, features.h, drops hits that
+//     provably cannot reach it before the correlation is computed; it never
+//     changes which pairs are joined.)
 // Groups are the connected components (union-find) of these pairs, with two or
 // more members. A group's diameter is the largest hash distance (best flip/turn)
 // between two of its members, exact for groups up to 512 members and a lower
