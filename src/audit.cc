@@ -1,7 +1,6 @@
 #include "tamis/audit.h"
 
 #include <algorithm>
-#include <chrono>
 #include <memory>
 #include <optional>
 
@@ -13,30 +12,11 @@
 
 namespace tamis {
 
-namespace {
-
-// Appends the wall time since the previous lap to `times` under `stage`.
-class StageClock {
- public:
-  explicit StageClock(std::vector<StageTime>& times) : times_(times), last_(std::chrono::steady_clock::now()) {}
-  void lap(const char* stage) {
-    auto now = std::chrono::steady_clock::now();
-    times_.push_back({stage, std::chrono::duration<double>(now - last_).count()});
-    last_ = now;
-  }
-
- private:
-  std::vector<StageTime>& times_;
-  std::chrono::steady_clock::time_point last_;
-};
-
-}  // namespace
-
 AuditIndex read_tree(const AuditSettings& settings) {
   AuditIndex r;
   r.settings = settings;
   r.settings.read.on_progress = nullptr;
-  StageClock clock(r.times);
+  StageClock clock(&r.times);
   r.walk = walk_tree(settings.root);
   clock.lap("walk");
   std::unique_ptr<RecordCache> cache;
@@ -122,7 +102,7 @@ AuditResult place(AuditIndex index, const PlaceOptions& opt) {
   r.settings.split = opt.split;
   r.settings.checks = opt.policy.thresholds;
   r.fail_on_new_only = opt.policy.fail_on_new_only;
-  StageClock clock(r.times);
+  StageClock clock(&r.times);
 
   // Checks.
   check_inventory(r.records, r.labels, r.walk, r.findings);

@@ -1,6 +1,5 @@
 #include "tamis/outputs.h"
 
-#include <chrono>
 #include <stdexcept>
 
 #include <opencv2/imgcodecs.hpp>
@@ -75,25 +74,20 @@ Thumbnails group_thumbnails(const AuditResult& r, size_t budget) {
 
 void write_outputs(const std::filesystem::path& out_dir, const AuditResult& result, size_t thumbnail_budget,
                    std::vector<StageTime>* times) {
-  auto last = std::chrono::steady_clock::now();
-  auto lap = [&](const char* what) {
-    auto now = std::chrono::steady_clock::now();
-    if (times) times->push_back({what, std::chrono::duration<double>(now - last).count()});
-    last = now;
-  };
+  StageClock clock(times);
   std::error_code ec;
   std::filesystem::create_directories(out_dir, ec);
   if (ec) throw std::runtime_error("cannot create output folder " + out_dir.string() + ": " + ec.message());
   write_file_atomically(out_dir / "manifest.csv", [&](std::ostream& os) { write_manifest(os, result); });
-  lap("manifest.csv");
+  clock.lap("manifest.csv");
   nlohmann::json report = build_report(result);
   write_file_atomically(out_dir / "report.json", [&](std::ostream& os) { os << dump_json(report) << '\n'; });
-  lap("report.json");
+  clock.lap("report.json");
   Thumbnails thumbs = group_thumbnails(result, thumbnail_budget);
   write_file_atomically(out_dir / "report.html", [&](std::ostream& os) { os << render_html(report, thumbs); });
-  lap("report.html");
+  clock.lap("report.html");
   save_index(out_dir / kIndexFileName, result);
-  lap("index.cbor");
+  clock.lap("index.cbor");
 }
 
 }  // namespace tamis

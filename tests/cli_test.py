@@ -11,6 +11,7 @@ import json
 import os
 import subprocess
 import sys
+import re
 import tempfile
 import unittest
 
@@ -103,6 +104,28 @@ class ExitStatus(unittest.TestCase):
             r = run("audit", root, "--out", os.path.join(t, "o"), "--quiet")
             self.assertEqual(r.returncode, 1)
             self.assertEqual(r.stdout, "")
+
+    def test_timings_name_every_stage_on_stderr_and_change_no_output(self):
+        with tempfile.TemporaryDirectory() as t:
+            root = os.path.join(t, "data")
+            make_clean_tree(root, per_class=3)
+            plain, timed = os.path.join(t, "plain"), os.path.join(t, "timed")
+            self.assertEqual(run("audit", root, "--out", plain, "--quiet", "--no-cache").returncode, 0)
+            r = run("audit", root, "--out", timed, "--quiet", "--no-cache", "--timings")
+            self.assertEqual(r.returncode, 0)
+            self.assertEqual(r.stdout, "")
+            stages = {}
+            for line in r.stderr.splitlines():
+                m = re.fullmatch(r"tamis: (.+?) +(-?[0-9]+\.[0-9]{3}) s( \(since the process started\))?", line)
+                self.assertIsNotNone(m, line)
+                stages[m.group(1)] = float(m.group(2))
+            for stage in ("walk", "read", "masks", "labels", "groups", "checks + split", "manifest.csv",
+                          "report.json", "report.html", "index.cbor", "total"):
+                self.assertIn(stage, stages)
+            self.assertNotIn("cache load", stages)  # no cache, no such stage
+            self.assertGreaterEqual(stages["total"], stages["read"])
+            for name in ("manifest.csv", "report.json", "report.html"):
+                self.assertEqual(read_text(os.path.join(plain, name)), read_text(os.path.join(timed, name)), name)
 
 
 SCHEMA = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "docs", "report.schema.json")

@@ -8,6 +8,7 @@
 // the thread count or the file system's listing order.
 #pragma once
 
+#include <chrono>
 #include <cstdint>
 #include <filesystem>
 #include <functional>
@@ -44,6 +45,22 @@ struct AuditSettings {
 struct StageTime {
   std::string stage;
   double seconds = 0;
+};
+
+// Appends the wall time since the previous lap (or since construction) to
+// `times` under `stage`; records nothing when `times` is null.
+class StageClock {
+ public:
+  explicit StageClock(std::vector<StageTime>* times) : times_(times), last_(std::chrono::steady_clock::now()) {}
+  void lap(const char* stage) {
+    const auto now = std::chrono::steady_clock::now();
+    if (times_) times_->push_back({stage, std::chrono::duration<double>(now - last_).count()});
+    last_ = now;
+  }
+
+ private:
+  std::vector<StageTime>* times_;
+  std::chrono::steady_clock::time_point last_;
 };
 
 struct Totals {

@@ -15,10 +15,13 @@
 //
 // pairs_within() and join_within() answer all-pairs questions without per-query
 // probing: within each table, every code is entered under its substring and every
-// substring within ceil(s/2) bits of it (s = floor(r/m)), the entries are radix-
-// sorted, and codes that meet under one key have substrings within s of each
-// other; only those are compared in full. Same pigeonhole argument, so the same
-// exact answer, with sequential instead of random memory access.
+// substring within ceil(s/2) bits of it (s = floor(r/m)), the entries are placed
+// by the key's top bits into cache-sized buckets, each bucket is sorted, and codes
+// that meet under one key have substrings within s of each other; only those are
+// compared in full. Same pigeonhole argument, so the same exact answer, with
+// sequential instead of random memory access. Before the substrings are cut, the
+// bit positions are permuted (distances are kept) so that each substring gets an
+// even share of the bits that vary: real hashes are far from uniform.
 #pragma once
 
 #include <cstddef>
