@@ -3,51 +3,68 @@
 #include <sqlite3.h>
 #include <unistd.h>
 
+#include <algorithm>
 #include <cstdlib>
+#include <numeric>
+#include <span>
 #include <stdexcept>
 
 #include <nlohmann/json.hpp>
 
 #include "record_codec.h"
+#include "tamis/memory.h"
 
 namespace tamis {
 
 using nlohmann::json;
 
-struct RecordCache::Db {
-  sqlite3* h = nullptr;
-  ~Db() {
-    if (h) sqlite3_close(h);
+namespace {
+
+// SQLite found the file damaged (or not a database at all): it is moved aside and rebuilt.
+struct Damaged : std::runtime_error {
+  using std::runtime_error::runtime_error;
+};
+
+[[noreturn]] void fail(sqlite3* db, int rc) {
+  std::string msg = std::string("cache: ") + (db ? sqlite3_errmsg(db) : sqlite3_errstr(rc));
+  const int primary = rc & 0xff;
+  if (primary == SQLITE_CORRUPT || primary == SQLITE_NOTADB) throw Damaged(msg);
+  throw std::runtime_error(msg);
+}
+
+struct Stmt {
+  sqlite3* db;
+  sqlite3_stmt* s = nullptr;
+  Stmt(sqlite3* h, const char* sql) : db(h) {
+    int rc = sqlite3_prepare_v2(db, sql, -1, &s, nullptr);
+    if (rc != SQLITE_OK) fail(db, rc);
   }
-  void exec(const char* sql) {
-    char* err = nullptr;
-    if (sqlite3_exec(h, sql, nullptr, nullptr, &err) != SQLITE_OK) {
-      std::string msg = err ? err : "unknown error";
-      sqlite3_free(err);
-      throw std::runtime_error("cache: " + msg);
+  ~Stmt() { sqlite3_finalize(s); }
+  // True for a row, false when done; throws on an error.
+  bool step() {
+    int rc = sqlite3_step(s);
+    if (rc == SQLITE_ROW) return true;
+    if (rc == SQLITE_DONE) return false;
+    fail(db, rc);
+  }
+  void run() {
+    while (step()) {
     }
   }
 };
 
-namespace {
-
-struct Stmt {
-  sqlite3_stmt* s = nullptr;
-  Stmt(sqlite3* db, const char* sql) {
-    if (sqlite3_prepare_v2(db, sql, -1, &s, nullptr) != SQLITE_OK)
-      throw std::runtime_error(std::string("cache: ") + sqlite3_errmsg(db));
-  }
-  ~Stmt() { sqlite3_finalize(s); }
-};
-
-std::string hash_key(const std::array<uint64_t, 2>& h, uint64_t size) {
-  return std::to_string(h[0]) + ":" + std::to_string(h[1]) + ":" + std::to_string(size);
+std::span<const uint8_t> blob(sqlite3_stmt* s, int col) {
+  const auto* p = static_cast<const uint8_t*>(sqlite3_column_blob(s, col));
+  return p ? std::span<const uint8_t>(p, static_cast<size_t>(sqlite3_column_bytes(s, col))) : std::span<const uint8_t>();
 }
 
 std::string meta_value(sqlite3* db, const char* key) {
   Stmt q(db, "SELECT value FROM meta WHERE key = ?");
   sqlite3_bind_text(q.s, 1, key, -1, SQLITE_STATIC);
-  if (sqlite3_step(q.s) == SQLITE_ROW) return reinterpret_cast<const char*>(sqlite3_column_text(q.s, 0));
+  if (q.step()) {
+    const auto* t = sqlite3_column_text(q.s, 0);
+    return t ? reinterpret_cast<const char*>(t) : "";
+  }
   return "";
 }
 
@@ -55,24 +72,25 @@ void set_meta(sqlite3* db, const char* key, const std::string& value) {
   Stmt q(db, "INSERT OR REPLACE INTO meta(key, value) VALUES(?, ?)");
   sqlite3_bind_text(q.s, 1, key, -1, SQLITE_STATIC);
   sqlite3_bind_text(q.s, 2, value.c_str(), -1, SQLITE_TRANSIENT);
-  if (sqlite3_step(q.s) != SQLITE_DONE) throw std::runtime_error(std::string("cache: ") + sqlite3_errmsg(db));
-}
-
-// Opens and checks the database; false when it is damaged.
-bool open_checked(const std::filesystem::path& file, sqlite3** out) {
-  if (sqlite3_open_v2(file.c_str(), out, SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE | SQLITE_OPEN_FULLMUTEX, nullptr) !=
-      SQLITE_OK)
-    return false;
-  sqlite3_busy_timeout(*out, 30000);
-  sqlite3_stmt* q = nullptr;
-  bool ok = sqlite3_prepare_v2(*out, "PRAGMA quick_check", -1, &q, nullptr) == SQLITE_OK &&
-            sqlite3_step(q) == SQLITE_ROW &&
-            std::string(reinterpret_cast<const char*>(sqlite3_column_text(q, 0))) == "ok";
-  sqlite3_finalize(q);
-  return ok;
+  q.run();
 }
 
 }  // namespace
+
+struct RecordCache::Db {
+  sqlite3* h = nullptr;
+  ~Db() { close(); }
+  void close() {
+    if (h) sqlite3_close(h);
+    h = nullptr;
+  }
+  void exec(const char* sql) {
+    char* err = nullptr;
+    int rc = sqlite3_exec(h, sql, nullptr, nullptr, &err);
+    sqlite3_free(err);
+    if (rc != SQLITE_OK) fail(h, rc);
+  }
+};
 
 std::filesystem::path default_cache_file() {
   const char* xdg = std::getenv("XDG_CACHE_HOME");
@@ -93,14 +111,36 @@ RecordCache::RecordCache(const std::filesystem::path& file, const std::filesyste
   if (file.has_parent_path()) std::filesystem::create_directories(file.parent_path(), ec);
   auto canonical = std::filesystem::weakly_canonical(root, ec);
   root_ = (ec ? std::filesystem::absolute(root) : canonical).string();
-  if (!open_checked(file, &db_->h)) {
-    if (db_->h) sqlite3_close(db_->h);
-    db_->h = nullptr;
+  try {
+    open_and_load(settings_key);
+  } catch (const Damaged&) {
+    db_->close();
     std::filesystem::rename(file, file.string() + ".damaged-" + std::to_string(getpid()), ec);
     for (const char* suffix : {"-wal", "-shm"}) std::filesystem::remove(file.string() + suffix, ec);
     rebuilt_ = true;
-    if (!open_checked(file, &db_->h)) throw std::runtime_error("cache: cannot create " + file.string());
+    try {
+      open_and_load(settings_key);
+    } catch (const Damaged& e) {
+      throw std::runtime_error(std::string("cannot rebuild ") + file.string() + ": " + e.what());
+    }
   }
+}
+
+// Damage shows as SQLITE_CORRUPT or SQLITE_NOTADB on any statement here: the
+// load reads every row of this root, so a damaged page it depends on is met.
+void RecordCache::open_and_load(const std::string& settings_key) {
+  paths_.clear();
+  stamps_.clear();
+  rows_.clear();
+  by_content_.clear();
+  int rc = sqlite3_open_v2(file_.c_str(), &db_->h, SQLITE_OPEN_READWRITE | SQLITE_OPEN_CREATE | SQLITE_OPEN_FULLMUTEX,
+                           nullptr);
+  if (rc != SQLITE_OK) {
+    std::string msg = db_->h ? sqlite3_errmsg(db_->h) : sqlite3_errstr(rc);
+    db_->close();
+    throw std::runtime_error("cache: cannot open " + file_.string() + ": " + msg);
+  }
+  sqlite3_busy_timeout(db_->h, 30000);
   db_->exec("PRAGMA journal_mode=WAL");
   db_->exec("PRAGMA synchronous=NORMAL");
   db_->exec("CREATE TABLE IF NOT EXISTS meta(key TEXT PRIMARY KEY, value TEXT NOT NULL)");
@@ -115,23 +155,81 @@ RecordCache::RecordCache(const std::filesystem::path& file, const std::filesyste
     set_meta(db_->h, "version", want);
     db_->exec("COMMIT");
   }
-  Stmt q(db_->h, "SELECT path, size, mtime, inode, data FROM records WHERE root = ?");
-  sqlite3_bind_text(q.s, 1, root_.c_str(), -1, SQLITE_TRANSIENT);
-  while (sqlite3_step(q.s) == SQLITE_ROW) {
-    try {
-      const auto* blob = static_cast<const uint8_t*>(sqlite3_column_blob(q.s, 4));
-      std::vector<uint8_t> bytes(blob, blob + sqlite3_column_bytes(q.s, 4));
-      FileRecord r = detail::record_from_json(json::from_cbor(bytes));
-      const auto* p = static_cast<const char*>(sqlite3_column_blob(q.s, 0));
-      std::string path(p, p + sqlite3_column_bytes(q.s, 0));
-      if (r.path != path) continue;  // an inconsistent row is ignored, never trusted
-      by_path_.emplace(path, std::move(r));
-    } catch (const std::exception&) {
-      continue;  // a row that does not decode is a miss
-    }
+  {  // room for every row first: a growing table would copy its records again and again
+    Stmt count(db_->h, "SELECT count(*) FROM records WHERE root = ?");
+    sqlite3_bind_text(count.s, 1, root_.c_str(), -1, SQLITE_TRANSIENT);
+    const size_t n = count.step() ? static_cast<size_t>(std::max<sqlite3_int64>(sqlite3_column_int64(count.s, 0), 0)) : 0;
+    paths_.reserve(n);
+    stamps_.reserve(n);
+    reserve_huge(rows_, n);
   }
-  for (const auto& [path, r] : by_path_)
-    if (r.features.has_content_hash) by_hash_.emplace(hash_key(r.features.content_hash, r.size), &r);
+  Stmt q(db_->h, "SELECT path, size, mtime, inode, data FROM records WHERE root = ? ORDER BY path");
+  sqlite3_bind_text(q.s, 1, root_.c_str(), -1, SQLITE_TRANSIENT);
+  while (q.step()) {
+    FileRecord& r = rows_.emplace_back();
+    if (!detail::record_from_bytes(blob(q.s, 4), r)) {  // a row that does not decode is a miss
+      rows_.pop_back();
+      continue;
+    }
+    auto p = blob(q.s, 0);
+    paths_.emplace_back(p.begin(), p.end());
+    stamps_.push_back({static_cast<uint64_t>(sqlite3_column_int64(q.s, 1)), sqlite3_column_int64(q.s, 2),
+                       static_cast<uint64_t>(sqlite3_column_int64(q.s, 3))});
+  }
+  // SQLite orders BLOBs as memcmp does, like std::string; a file that says
+  // otherwise is not trusted for the merge in match() and store().
+  if (!std::is_sorted(paths_.begin(), paths_.end()) ||
+      std::adjacent_find(paths_.begin(), paths_.end()) != paths_.end())
+    throw Damaged("cache: rows out of order");
+  taken_.assign(rows_.size(), 0);
+  for (size_t k = 0; k < rows_.size(); ++k) {
+    const auto& f = rows_[k].features;
+    if (f.has_content_hash)
+      by_content_.push_back({f.content_hash[0], f.content_hash[1], stamps_[k].size, static_cast<uint32_t>(k)});
+  }
+  std::sort(by_content_.begin(), by_content_.end());
+}
+
+std::vector<int64_t> RecordCache::match(const std::vector<WalkEntry>& entries) const {
+  std::vector<int64_t> row(entries.size(), -1);
+  size_t j = 0;
+  for (size_t i = 0; i < entries.size(); ++i) {
+    const auto& e = entries[i];
+    if (i > 0 && !(entries[i - 1].path < e.path)) {  // not sorted: look it up alone
+      auto it = std::lower_bound(paths_.begin(), paths_.end(), e.path);
+      j = static_cast<size_t>(it - paths_.begin());
+    }
+    while (j < paths_.size() && paths_[j] < e.path) ++j;
+    if (j < paths_.size() && paths_[j] == e.path && stamps_[j] == Stamp{e.size, e.mtime_ns, e.inode})
+      row[i] = static_cast<int64_t>(j);
+  }
+  return row;
+}
+
+FileRecord RecordCache::take(size_t k) {
+  FileRecord r = std::move(rows_[k]);
+  taken_[k] = 1;
+  r.path = paths_[k];
+  r.size = stamps_[k].size;
+  r.mtime_ns = stamps_[k].mtime_ns;
+  r.inode = stamps_[k].inode;
+  return r;
+}
+
+FileRecord RecordCache::copy(size_t k) const {
+  FileRecord r = rows_[k];
+  r.path = paths_[k];
+  r.size = stamps_[k].size;
+  r.mtime_ns = stamps_[k].mtime_ns;
+  r.inode = stamps_[k].inode;
+  return r;
+}
+
+int64_t RecordCache::row_with_content(const std::array<uint64_t, 2>& hash, uint64_t size) const {
+  const ContentKey key{hash[0], hash[1], size, 0};
+  auto it = std::lower_bound(by_content_.begin(), by_content_.end(), key);
+  if (it == by_content_.end() || it->h0 != key.h0 || it->h1 != key.h1 || it->size != key.size) return -1;
+  return it->row;
 }
 
 RecordCache::~RecordCache() = default;
@@ -140,11 +238,11 @@ std::optional<GroupResult> RecordCache::load_groups(uint64_t fingerprint, size_t
   try {
     Stmt q(db_->h, "SELECT fingerprint, data FROM groups WHERE root = ?");
     sqlite3_bind_text(q.s, 1, root_.c_str(), -1, SQLITE_TRANSIENT);
-    if (sqlite3_step(q.s) != SQLITE_ROW) return std::nullopt;
-    if (std::string(reinterpret_cast<const char*>(sqlite3_column_text(q.s, 0))) != std::to_string(fingerprint))
-      return std::nullopt;
-    const auto* blob = static_cast<const uint8_t*>(sqlite3_column_blob(q.s, 1));
-    json j = json::from_cbor(std::vector<uint8_t>(blob, blob + sqlite3_column_bytes(q.s, 1)));
+    if (!q.step()) return std::nullopt;
+    const auto* fp = sqlite3_column_text(q.s, 0);
+    if (!fp || std::string(reinterpret_cast<const char*>(fp)) != std::to_string(fingerprint)) return std::nullopt;
+    auto data = blob(q.s, 1);
+    json j = json::from_cbor(data.begin(), data.end());
     GroupResult g;
     g.group_of.assign(n, -1);
     for (const auto& e : j.at("groups")) {
@@ -179,57 +277,67 @@ void RecordCache::store_groups(uint64_t fingerprint, const GroupResult& g) {
   sqlite3_bind_text(ins.s, 1, root_.c_str(), -1, SQLITE_TRANSIENT);
   sqlite3_bind_text(ins.s, 2, fp.c_str(), -1, SQLITE_TRANSIENT);
   sqlite3_bind_blob(ins.s, 3, data.data(), static_cast<int>(data.size()), SQLITE_TRANSIENT);
-  if (sqlite3_step(ins.s) != SQLITE_DONE) throw std::runtime_error(std::string("cache: ") + sqlite3_errmsg(db_->h));
-}
-
-const FileRecord* RecordCache::by_content(const std::array<uint64_t, 2>& hash, uint64_t size) const {
-  auto it = by_hash_.find(hash_key(hash, size));
-  return it == by_hash_.end() ? nullptr : it->second;
+  ins.run();
 }
 
 void RecordCache::store(const std::vector<FileRecord>& records) {
+  // Records in path order (the read stage gives them so; anything else is sorted here).
+  std::vector<uint32_t> order(records.size());
+  std::iota(order.begin(), order.end(), 0u);
+  auto by_path = [&](uint32_t a, uint32_t b) { return records[a].path < records[b].path; };
+  if (!std::is_sorted(order.begin(), order.end(), by_path)) std::sort(order.begin(), order.end(), by_path);
+  // Merge with the stored rows: unchanged rows are not written again, rows of
+  // files that are gone are deleted.
+  std::vector<uint32_t> write, gone;
+  size_t j = 0;
+  for (uint32_t i : order) {
+    const FileRecord& r = records[i];
+    while (j < paths_.size() && paths_[j] < r.path) gone.push_back(static_cast<uint32_t>(j++));
+    if (j < paths_.size() && paths_[j] == r.path) {
+      const bool same = stamps_[j] == Stamp{r.size, r.mtime_ns, r.inode};
+      ++j;
+      if (same) continue;
+    }
+    write.push_back(i);
+  }
+  while (j < paths_.size()) gone.push_back(static_cast<uint32_t>(j++));
   db_->exec("BEGIN IMMEDIATE");
   try {
-    {  // rows of this root whose files are gone
-      std::unordered_map<std::string, bool> present;
-      present.reserve(records.size());
-      for (const auto& r : records) present.emplace(r.path, true);
+    {
       Stmt del(db_->h, "DELETE FROM records WHERE root = ? AND path = ?");
-      for (const auto& [path, r] : by_path_) {
-        if (present.count(path)) continue;
+      for (uint32_t k : gone) {
         sqlite3_reset(del.s);
         sqlite3_bind_text(del.s, 1, root_.c_str(), -1, SQLITE_TRANSIENT);
-        sqlite3_bind_blob(del.s, 2, path.data(), static_cast<int>(path.size()), SQLITE_TRANSIENT);
-        if (sqlite3_step(del.s) != SQLITE_DONE) throw std::runtime_error(sqlite3_errmsg(db_->h));
+        sqlite3_bind_blob(del.s, 2, paths_[k].data(), static_cast<int>(paths_[k].size()), SQLITE_TRANSIENT);
+        del.run();
       }
     }
     {  // forget roots that no longer exist, so the file does not grow without end
       std::vector<std::string> roots;
       Stmt q(db_->h, "SELECT DISTINCT root FROM records");
-      while (sqlite3_step(q.s) == SQLITE_ROW) roots.emplace_back(reinterpret_cast<const char*>(sqlite3_column_text(q.s, 0)));
+      while (q.step()) roots.emplace_back(reinterpret_cast<const char*>(sqlite3_column_text(q.s, 0)));
       for (const auto& root : roots) {
         std::error_code ec;
         if (std::filesystem::exists(root, ec) || ec) continue;
-        Stmt gone(db_->h, "DELETE FROM records WHERE root = ?");
-        sqlite3_bind_text(gone.s, 1, root.c_str(), -1, SQLITE_TRANSIENT);
-        if (sqlite3_step(gone.s) != SQLITE_DONE) throw std::runtime_error(sqlite3_errmsg(db_->h));
+        Stmt drop(db_->h, "DELETE FROM records WHERE root = ?");
+        sqlite3_bind_text(drop.s, 1, root.c_str(), -1, SQLITE_TRANSIENT);
+        drop.run();
       }
     }
     Stmt ins(db_->h, "INSERT OR REPLACE INTO records(root, path, size, mtime, inode, data) VALUES(?, ?, ?, ?, ?, ?)");
-    for (const auto& r : records) {
-      auto known = by_path_.find(r.path);  // rows that are already right are not written again
-      if (known != by_path_.end() && known->second.size == r.size && known->second.mtime_ns == r.mtime_ns &&
-          known->second.inode == r.inode)
-        continue;
-      std::vector<uint8_t> data = json::to_cbor(detail::record_to_json(r, true));
+    std::vector<uint8_t> data;
+    for (uint32_t i : write) {
+      const FileRecord& r = records[i];
+      data.clear();
+      detail::record_to_bytes(r, data);
       sqlite3_reset(ins.s);
       sqlite3_bind_text(ins.s, 1, root_.c_str(), -1, SQLITE_TRANSIENT);
       sqlite3_bind_blob(ins.s, 2, r.path.data(), static_cast<int>(r.path.size()), SQLITE_TRANSIENT);
       sqlite3_bind_int64(ins.s, 3, static_cast<sqlite3_int64>(r.size));
       sqlite3_bind_int64(ins.s, 4, r.mtime_ns);
       sqlite3_bind_int64(ins.s, 5, static_cast<sqlite3_int64>(r.inode));
-      sqlite3_bind_blob(ins.s, 6, data.data(), static_cast<int>(data.size()), SQLITE_TRANSIENT);
-      if (sqlite3_step(ins.s) != SQLITE_DONE) throw std::runtime_error(sqlite3_errmsg(db_->h));
+      sqlite3_bind_blob(ins.s, 6, data.data(), static_cast<int>(data.size()), SQLITE_STATIC);
+      ins.run();
     }
     db_->exec("COMMIT");
   } catch (...) {

@@ -11,6 +11,7 @@
 
 #include "tamis/cache.h"
 #include "tamis/features.h"
+#include "tamis/memory.h"
 #include "tamis/parallel.h"
 #include "tamis/probe.h"
 
@@ -47,15 +48,11 @@ bool read_whole(int rootfd, const std::string& rel, uint64_t expect, std::vector
 
 enum class Source { read, cached, cached_by_hash };
 
-Source read_one(int rootfd, const WalkEntry& e, const ReadOptions& opt, std::vector<uint8_t>& buf, FileRecord& r) {
-  if (opt.cache && !is_hidden_path(e.path)) {
-    auto it = opt.cache->by_path().find(e.path);
-    if (it != opt.cache->by_path().end() && it->second.size == e.size && it->second.mtime_ns == e.mtime_ns &&
-        it->second.inode == e.inode) {
-      r = it->second;
-      return Source::cached;
-    }
-  }
+// `from_cache(row)`: a copy of the cached record of that row (a row another
+// entry took is copied from that entry's record).
+template <typename FromCache>
+Source read_one(int rootfd, const WalkEntry& e, const ReadOptions& opt, std::vector<uint8_t>& buf, FileRecord& r,
+                const FromCache& from_cache) {
   r.path = e.path;
   r.size = e.size;
   r.mtime_ns = e.mtime_ns;
@@ -107,8 +104,8 @@ Source read_one(int rootfd, const WalkEntry& e, const ReadOptions& opt, std::vec
   r.features.content_hash = {h.high64, h.low64};
   r.features.has_content_hash = true;
   if (opt.cache) {  // the same bytes under another name: reuse, do not decode
-    if (const FileRecord* known = opt.cache->by_content(r.features.content_hash, e.size)) {
-      FileRecord copy = *known;
+    if (int64_t row = opt.cache->row_with_content(r.features.content_hash, e.size); row >= 0) {
+      FileRecord copy = from_cache(static_cast<size_t>(row));
       copy.path = e.path;
       copy.size = e.size;
       copy.mtime_ns = e.mtime_ns;
@@ -151,16 +148,45 @@ std::vector<FileRecord> read_files(const std::filesystem::path& root, const std:
                                    const ReadOptions& opt) {
   Fd rootfd{open(root.c_str(), O_RDONLY | O_DIRECTORY | O_CLOEXEC)};
   if (rootfd.fd < 0) throw std::runtime_error("cannot open folder " + root.string());
-  std::vector<FileRecord> records(entries.size());
+  std::vector<FileRecord> records;
+  reserve_huge(records, entries.size());
+  records.resize(entries.size());
   std::atomic<size_t> done{0};
   std::atomic<uint64_t> n_read{0}, n_cached{0}, n_hash{0};
-  parallel_for(entries.size(), opt.threads, [&](size_t i) {
-    thread_local std::vector<uint8_t> buf;
-    Source src = read_one(rootfd.fd, entries[i], opt, buf, records[i]);
-    (src == Source::cached ? n_cached : src == Source::cached_by_hash ? n_hash : n_read)++;
-    if (buf.capacity() > (64u << 20)) std::vector<uint8_t>().swap(buf);  // do not pin huge buffers
+  auto progress = [&] {
     size_t n = done.fetch_add(1, std::memory_order_relaxed) + 1;
     if (opt.on_progress) opt.on_progress(n, entries.size());
+  };
+  // First the files the cache knows by path, size, time and inode: their records
+  // are moved out of it, the files are not opened.
+  std::vector<int64_t> row_of(entries.size(), -1);
+  std::vector<int64_t> entry_of_row;
+  if (opt.cache) {
+    row_of = opt.cache->match(entries);
+    entry_of_row.assign(opt.cache->rows(), -1);
+    for (size_t i = 0; i < entries.size(); ++i) {
+      if (is_hidden_path(entries[i].path)) row_of[i] = -1;  // hidden files are never trusted to the cache
+      if (row_of[i] >= 0) entry_of_row[static_cast<size_t>(row_of[i])] = static_cast<int64_t>(i);
+    }
+    parallel_for(entries.size(), opt.threads, [&](size_t i) {
+      if (row_of[i] < 0) return;
+      records[i] = opt.cache->take(static_cast<size_t>(row_of[i]));
+      n_cached.fetch_add(1, std::memory_order_relaxed);
+      progress();
+    }, 256);
+  }
+  // Then every other file is read. A content match whose row was taken above is
+  // copied from the record it went to.
+  auto from_cache = [&](size_t row) {
+    return opt.cache->taken(row) ? records[static_cast<size_t>(entry_of_row[row])] : opt.cache->copy(row);
+  };
+  parallel_for(entries.size(), opt.threads, [&](size_t i) {
+    if (row_of[i] >= 0) return;
+    thread_local std::vector<uint8_t> buf;
+    Source src = read_one(rootfd.fd, entries[i], opt, buf, records[i], from_cache);
+    (src == Source::cached_by_hash ? n_hash : n_read)++;
+    if (buf.capacity() > (64u << 20)) std::vector<uint8_t>().swap(buf);  // do not pin huge buffers
+    progress();
   }, 8);
   if (opt.counts) *opt.counts = {n_read.load(), n_cached.load(), n_hash.load()};
   return records;

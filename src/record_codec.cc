@@ -1,5 +1,7 @@
 #include "record_codec.h"
 
+#include <algorithm>
+#include <bit>
 #include <stdexcept>
 
 namespace tamis::detail {
@@ -68,6 +70,90 @@ FileRecord record_from_json(const json& e) {
     std::copy(t.begin(), t.end(), r.features.look.thumb.begin());
   }
   return r;
+}
+
+}  // namespace tamis::detail
+
+namespace tamis::detail {
+
+namespace {
+
+void put_le(std::vector<uint8_t>& out, uint64_t v, int bytes) {
+  for (int k = 0; k < bytes; ++k) out.push_back(static_cast<uint8_t>(v >> (8 * k)));
+}
+uint64_t get_le(const uint8_t* p, int bytes) {
+  uint64_t v = 0;
+  for (int k = 0; k < bytes; ++k) v |= uint64_t(p[k]) << (8 * k);
+  return v;
+}
+void put_f32(std::vector<uint8_t>& out, float f) { put_le(out, std::bit_cast<uint32_t>(f), 4); }
+float get_f32(const uint8_t* p) { return std::bit_cast<float>(static_cast<uint32_t>(get_le(p, 4))); }
+
+}  // namespace
+
+void record_to_bytes(const FileRecord& r, std::vector<uint8_t>& out) {
+  const auto& p = r.probe;
+  const auto& f = r.features;
+  const size_t start = out.size();
+  out.reserve(start + (f.has_lookalike ? kRecordBytesFull : kRecordBytesHead));
+  for (uint8_t b : {uint8_t(r.kind), uint8_t(r.defect), uint8_t(p.format), uint8_t(p.mode), p.bit_depth}) out.push_back(b);
+  out.push_back(static_cast<uint8_t>(p.interlaced | p.has_exif << 1 | p.has_gps << 2 | f.has_content_hash << 3 |
+                                     f.has_lookalike << 4 | f.stats.channels_equal << 5));
+  put_le(out, p.orientation, 2);
+  put_le(out, p.width, 4);
+  put_le(out, p.height, 4);
+  put_le(out, p.frames, 4);
+  put_le(out, f.content_hash[0], 8);
+  put_le(out, f.content_hash[1], 8);
+  for (float v : {f.stats.luma_mean, f.stats.luma_std, f.stats.entropy, f.stats.focus}) put_f32(out, v);
+  out.push_back(f.stats.alpha_min);
+  out.push_back(f.stats.distinct);
+  if (f.has_lookalike) {
+    for (uint64_t h : f.look.phash) put_le(out, h, 8);
+    out.insert(out.end(), f.look.thumb.begin(), f.look.thumb.end());
+  }
+}
+
+bool record_from_bytes(std::span<const uint8_t> bytes, FileRecord& r) {
+  if (bytes.size() < kRecordBytesHead) return false;
+  const uint8_t* b = bytes.data();
+  const uint8_t flags = b[5];
+  const bool look = flags & 16;
+  if (flags >> 6 || bytes.size() != (look ? kRecordBytesFull : kRecordBytesHead)) return false;
+  if (b[0] > uint8_t(FileKind::ignored) || b[1] > uint8_t(Defect::no_decoder) || b[2] > uint8_t(Format::pnm) ||
+      b[3] > uint8_t(ColorMode::cmyk))
+    return false;
+  r.kind = static_cast<FileKind>(b[0]);
+  r.defect = static_cast<Defect>(b[1]);
+  auto& p = r.probe;
+  p.format = static_cast<Format>(b[2]);
+  p.mode = static_cast<ColorMode>(b[3]);
+  p.bit_depth = b[4];
+  p.interlaced = flags & 1;
+  p.has_exif = flags & 2;
+  p.has_gps = flags & 4;
+  p.orientation = static_cast<uint16_t>(get_le(b + 6, 2));
+  p.width = static_cast<uint32_t>(get_le(b + 8, 4));
+  p.height = static_cast<uint32_t>(get_le(b + 12, 4));
+  p.frames = static_cast<uint32_t>(get_le(b + 16, 4));
+  auto& f = r.features;
+  f.content_hash = {get_le(b + 20, 8), get_le(b + 28, 8)};
+  f.has_content_hash = flags & 8;
+  f.has_lookalike = look;
+  f.stats.luma_mean = get_f32(b + 36);
+  f.stats.luma_std = get_f32(b + 40);
+  f.stats.entropy = get_f32(b + 44);
+  f.stats.focus = get_f32(b + 48);
+  f.stats.alpha_min = b[52];
+  f.stats.channels_equal = flags & 32;
+  f.stats.distinct = b[53];
+  if (look) {
+    for (int t = 0; t < kDihedralCount; ++t) f.look.phash[t] = get_le(b + kRecordBytesHead + 8 * t, 8);
+    std::copy_n(b + kRecordBytesHead + 8 * kDihedralCount, 1024, f.look.thumb.begin());
+  } else {
+    f.look = {};
+  }
+  return true;
 }
 
 }  // namespace tamis::detail

@@ -5,9 +5,11 @@
 #include <sys/stat.h>
 
 #include <filesystem>
+#include <fstream>
 #include <sstream>
 #include <thread>
 
+#include "record_codec.h"
 #include "support/temp_tree.h"
 #include "tamis/audit.h"
 #include "tamis/demo.h"
@@ -86,6 +88,83 @@ TEST_CASE("cache: a damaged cache file is detected and rebuilt", "[cache][fault]
   CHECK_FALSE(again.note.empty());
   CHECK(again.out == audit(t / "data", "").out);
   CHECK(audit(t / "data", cache).counts.cached > 0);  // rebuilt and usable
+}
+
+TEST_CASE("cache: damage past the database header is detected while loading and rebuilt", "[cache][fault]") {
+  test::TempDir t, c;
+  write_demo(t / "data");
+  const fs::path cache = c / "records.sqlite";
+  audit(t / "data", cache);
+  audit(t / "data", cache);  // a checkpoint has moved the rows into the main file
+  fs::remove(cache.string() + "-wal");
+  fs::remove(cache.string() + "-shm");
+  const auto size = fs::file_size(cache);
+  REQUIRE(size > 3 * 4096);
+  {  // the first page (header and schema) stays; every later page is overwritten
+    std::fstream f(cache, std::ios::in | std::ios::out | std::ios::binary);
+    f.seekp(4096);
+    std::string junk(size - 4096, '\0');
+    for (size_t k = 0; k < junk.size(); ++k) junk[k] = static_cast<char>((k * 2654435761u) >> 13);
+    f.write(junk.data(), static_cast<std::streamsize>(junk.size()));
+  }
+  Run again = audit(t / "data", cache);
+  CHECK_FALSE(again.note.empty());
+  CHECK(again.counts.cached == 0);
+  CHECK(again.out == audit(t / "data", "").out);
+  CHECK(audit(t / "data", cache).counts.cached > 0);
+}
+
+TEST_CASE("cache: a copy of an unchanged file reuses the record its original keeps", "[cache]") {
+  test::TempDir t, c;
+  size_t n = write_demo(t / "data");
+  const fs::path cache = c / "records.sqlite";
+  audit(t / "data", cache);
+  fs::copy_file(t / "data" / "gingham" / "swatch_002.jpg", t / "data" / "gingham" / "swatch_002_copy.jpg");
+  Run copied = audit(t / "data", cache);
+  CHECK(copied.counts.cached == n - 1);     // every old file by path (the hidden one is read)
+  CHECK(copied.counts.cached_by_hash == 1);  // the copy: hashed, not decoded
+  CHECK(copied.out == audit(t / "data", "").out);
+}
+
+TEST_CASE("cache: the record bytes round-trip and every malformed row is refused", "[cache][codec]") {
+  // Truth made here: records with every field set, coded and decoded again.
+  FileRecord a;
+  a.kind = FileKind::image;
+  a.defect = Defect::none;
+  a.probe = {Format::tiff, ColorMode::cmyk, 16, true, true, true, 8, 4000, 3000, 3};
+  a.features.content_hash = {0x0123456789abcdefULL, 0xfedcba9876543210ULL};
+  a.features.has_content_hash = true;
+  a.features.has_lookalike = true;
+  for (int t = 0; t < kDihedralCount; ++t) a.features.look.phash[t] = 0x9e3779b97f4a7c15ULL * (t + 1);
+  for (size_t k = 0; k < 1024; ++k) a.features.look.thumb[k] = static_cast<uint8_t>(k * 7);
+  a.features.stats = {101.25f, 33.5f, 7.125f, 1234.5f, 17, true, 65};
+  FileRecord b;  // an unreadable file: no look-alike part
+  b.kind = FileKind::unreadable;
+  b.defect = Defect::no_decoder;
+  b.probe.format = Format::pnm;
+  for (const FileRecord* r : {&a, &b}) {
+    std::vector<uint8_t> bytes;
+    detail::record_to_bytes(*r, bytes);
+    CHECK(bytes.size() == (r->features.has_lookalike ? detail::kRecordBytesFull : detail::kRecordBytesHead));
+    FileRecord back;
+    REQUIRE(detail::record_from_bytes(bytes, back));
+    CHECK(detail::record_to_json(back, true) == detail::record_to_json(*r, true));
+    // Too short, too long: refused.
+    for (size_t len = 0; len < bytes.size(); ++len)
+      CHECK_FALSE(detail::record_from_bytes(std::span<const uint8_t>(bytes.data(), len), back));
+    auto longer = bytes;
+    longer.push_back(0);
+    CHECK_FALSE(detail::record_from_bytes(longer, back));
+    // Each enum one past its last value, and an unknown flag bit: refused.
+    const std::pair<size_t, uint8_t> bad[] = {{0, uint8_t(FileKind::ignored) + 1}, {1, uint8_t(Defect::no_decoder) + 1},
+                                              {2, uint8_t(Format::pnm) + 1},      {3, uint8_t(ColorMode::cmyk) + 1},
+                                              {5, uint8_t(bytes[5] | 64)}};
+    for (auto [at, value] : bad) {
+      auto broken = bytes;
+      broken[at] = value;
+      CHECK_FALSE(detail::record_from_bytes(broken, back));
+    }
+  }
 }
 
 TEST_CASE("cache: two audits share one cache file at once", "[cache][concurrency]") {

@@ -5,45 +5,57 @@
 // modification time and inode as when it was stored; a moved or renamed file with
 // the same bytes reuses a record found by its content hash and size (its bytes are
 // read and hashed, but not decoded). Records are stored whole (probe, hashes,
-// statistics, thumbnail), as read, before mask pairing.
+// statistics, thumbnail), as read, before mask pairing, in the fixed byte layout
+// of record_codec.h.
 //
 // The file uses WAL mode and a busy timeout, so two runs may share it; every write
 // is one transaction, so a killed run leaves the previous state. A cache whose
 // schema version or record settings differ is cleared; one that SQLite finds
-// damaged is moved aside (FILE.damaged-<pid>) and rebuilt. The last look-alike
-// groups of the root are kept too, so an unchanged set skips the Hamming join. The cache never
-// decides an output: a run with and without it writes the same files.
-// Not thread-safe: one RecordCache per run, used from the calling thread.
+// damaged while it is opened or loaded is moved aside (FILE.damaged-<pid>) and
+// rebuilt. The last look-alike groups of the root are kept too, so an unchanged
+// set skips the Hamming join. The cache never decides an output: a run with and
+// without it writes the same files.
+// Not thread-safe, except where a method says so: one RecordCache per run.
 #pragma once
 
+#include <array>
+#include <compare>
 #include <filesystem>
 #include <memory>
 #include <optional>
 #include <string>
-#include <unordered_map>
 #include <vector>
 
 #include "tamis/groups.h"
 #include "tamis/record.h"
+#include "tamis/walk.h"
 
 namespace tamis {
 
-inline constexpr int kCacheSchemaVersion = 1;
+inline constexpr int kCacheSchemaVersion = 2;  // 2: records in fixed bytes (was CBOR)
 
 class RecordCache {
  public:
   // Opens (or creates) FILE for records of `root` read with `settings_key` (a
-  // string naming every setting that changes a record). Throws std::runtime_error
-  // when the file cannot be created at all.
+  // string naming every setting that changes a record), and loads the root's
+  // records. Throws std::runtime_error when the file cannot be created at all.
   RecordCache(const std::filesystem::path& file, const std::filesystem::path& root, const std::string& settings_key);
   ~RecordCache();
   RecordCache(const RecordCache&) = delete;
   RecordCache& operator=(const RecordCache&) = delete;
 
-  // All records stored for this root, keyed by path.
-  const std::unordered_map<std::string, FileRecord>& by_path() const { return by_path_; }
-  // A stored record with this content hash and size, from any path of this root.
-  const FileRecord* by_content(const std::array<uint64_t, 2>& hash, uint64_t size) const;
+  size_t rows() const { return rows_.size(); }
+  // Per entry (sorted bytewise by path, as the walk gives them): the stored row
+  // with the same path, size, modification time and inode, or -1.
+  std::vector<int64_t> match(const std::vector<WalkEntry>& entries) const;
+  // Moves row `row` out (its record, with its path). Each row at most once;
+  // distinct rows may be taken from different threads at once.
+  FileRecord take(size_t row);
+  bool taken(size_t row) const { return taken_[row] != 0; }
+  // A row with this content hash and size (the first by path), or -1. Thread-safe.
+  int64_t row_with_content(const std::array<uint64_t, 2>& hash, uint64_t size) const;
+  // A copy of a row that was not taken. Thread-safe.
+  FileRecord copy(size_t row) const;
 
   // Makes the root's stored records equal `records` in one transaction, writing
   // only rows that changed and deleting rows of files that are gone.
@@ -60,11 +72,26 @@ class RecordCache {
 
  private:
   struct Db;
+  struct Stamp {
+    uint64_t size = 0;
+    int64_t mtime_ns = 0;
+    uint64_t inode = 0;
+    bool operator==(const Stamp&) const = default;
+  };
+  struct ContentKey {
+    uint64_t h0, h1, size;
+    uint32_t row;
+    auto operator<=>(const ContentKey&) const = default;
+  };
+  void open_and_load(const std::string& settings_key);
   std::unique_ptr<Db> db_;
   std::filesystem::path file_;
   std::string root_;
-  std::unordered_map<std::string, FileRecord> by_path_;
-  std::unordered_map<std::string, const FileRecord*> by_hash_;
+  std::vector<std::string> paths_;   // sorted bytewise
+  std::vector<Stamp> stamps_;        // per row
+  std::vector<FileRecord> rows_;     // per row; the path is in paths_
+  std::vector<uint8_t> taken_;       // per row
+  std::vector<ContentKey> by_content_;  // sorted
   bool rebuilt_ = false;
 };
 

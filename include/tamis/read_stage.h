@@ -38,7 +38,7 @@ struct ReadCounts {
 
 struct ReadOptions {
   unsigned threads = 0;                      // 0 = all cores
-  const RecordCache* cache = nullptr;        // records to reuse (cache.h); none when null
+  RecordCache* cache = nullptr;              // records to reuse (cache.h; taken out of it); none when null
   ReadCounts* counts = nullptr;              // filled when set
   uint64_t max_bytes = 4ull << 30;           // files larger than this are not read
   DecodeLimits decode;
