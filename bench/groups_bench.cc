@@ -1,7 +1,7 @@
 // The look-alike stage alone on a real tree (docs/performance.md): reads ROOT
 // once through a record cache (CACHE, filled on the first run), then times the
 // candidate join and the whole find_groups REPEATS times each.
-// Usage: groups_bench ROOT CACHE [THREADS=2] [REPEATS=3]
+// Usage: groups_bench ROOT CACHE [THREADS=2] [REPEATS=3] [JOIN_MB=the default of GroupSettings]
 #include <algorithm>
 #include <chrono>
 #include <cstdio>
@@ -34,6 +34,7 @@ int main(int argc, char** argv) {
   cache.store(records);
   GroupSettings gs;
   gs.threads = threads;
+  if (argc > 5) gs.join_memory_bytes = std::strtoull(argv[5], nullptr, 10) << 20;
   std::vector<uint64_t> identity, variants;
   for (const auto& r : records)
     if (r.kind == FileKind::image && r.features.has_lookalike) {

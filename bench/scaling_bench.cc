@@ -2,7 +2,7 @@
 // synthetic records (100 classes, random DCT codes and thumbnails, 1% planted
 // look-alike copies), timed through masks, labels, groups, checks, split and the
 // manifest, with the peak resident memory per record.
-// Usage: scaling_bench N [THREADS=2]
+// Usage: scaling_bench N [THREADS=2] [JOIN_MB=the default of GroupSettings]
 #include <sys/resource.h>
 
 #include <chrono>
@@ -72,6 +72,7 @@ int main(int argc, char** argv) {
   t0 = Clock::now();
   GroupSettings gs;
   gs.threads = threads;
+  if (argc > 3) gs.join_memory_bytes = std::strtoull(argv[3], nullptr, 10) << 20;
   x.groups = find_groups(x.records, gs);
   double t_groups = seconds_since(t0);
   const long groups_kb = peak_kb();

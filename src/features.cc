@@ -150,7 +150,7 @@ ThumbStats thumb_stats(const std::array<uint8_t, 1024>& t) {
   ThumbStats s;
   for (uint8_t v : t) {
     s.sum += v;
-    s.sum_sq += uint64_t{v} * v;
+    s.sum_sq += uint32_t{v} * v;
   }
   return s;
 }
@@ -177,7 +177,7 @@ bool thumb_is_flat(const ThumbStats& s) {
 
 namespace {
 
-constexpr double kSketchScale = 32767.0;
+constexpr double kSketchScale = 127.0;
 
 // Rows 0..7 of the orthonormal 32-point DCT-II matrix.
 struct DctRows {
@@ -231,24 +231,31 @@ ThumbSketch thumb_sketch(const std::array<uint8_t, 1024>& thumb, const ThumbStat
       double acc = 0;
       for (int x = 0; x < 32; ++x) acc += double(rows[u][x]) * dct.c[v][x];
       out[static_cast<size_t>(u * 8 + v - 1)] =
-          static_cast<int16_t>(std::lround(std::clamp(acc / norm, -1.0, 1.0) * kSketchScale));
+          static_cast<int8_t>(std::lround(std::clamp(acc / norm, -1.0, 1.0) * kSketchScale));
     }
   return out;
 }
 
 bool sketch_may_correlate(const ThumbSketch& a, int t, const ThumbSketch& b, double min_correlation) {
   static const SketchMaps maps;
-  // Each stored value is within 0.5 (rounding) plus well under 0.5 (float
-  // arithmetic on values of at most 1) of the true coefficient x 32767, so a
-  // difference is at least |qa - qb| - 2.
-  const double limit = 2.0 * (1.0 - min_correlation) * kSketchScale * kSketchScale;
+  // Each stored value is within 0.5 (rounding) plus far less than 0.001 (float
+  // arithmetic on values of at most 1, about 1e-5 x 127) of the true coefficient
+  // x 127, so a true difference is at least |qa - qb| - 1.002. The table holds
+  // that bound squared, x 1024 and rounded down, for every |qa - qb|.
+  static const std::array<uint32_t, 256> bound = [] {
+    std::array<uint32_t, 256> b{};
+    for (int d = 0; d < 256; ++d) b[static_cast<size_t>(d)] = static_cast<uint32_t>(std::floor(1024.0 * std::pow(std::max(0.0, d - 1.002), 2)));
+    return b;
+  }();
+  const double limit = 1024.0 * 2.0 * (1.0 - min_correlation) * kSketchScale * kSketchScale;
   if (limit < 0) return true;
   // Low frequencies come first and carry most of the energy, so most pairs are
   // rejected after the first rows.
-  int64_t sum = 0;
+  uint64_t sum = 0;
+  const uint8_t* from = maps.from[t];
+  const int8_t* sign = maps.sign[t];
   for (int k = 0; k < 63; ++k) {
-    int d = std::abs(maps.sign[t][k] * a[maps.from[t][k]] - b[static_cast<size_t>(k)]) - 2;
-    if (d > 0) sum += int64_t{d} * d;
+    sum += bound[static_cast<size_t>(std::abs(sign[k] * a[from[k]] - b[static_cast<size_t>(k)]))];
     if ((k & 7) == 6 && double(sum) > limit) return false;
   }
   return double(sum) <= limit;

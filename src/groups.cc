@@ -57,20 +57,22 @@ GroupResult find_groups(const std::vector<FileRecord>& records, const GroupSetti
   UnionFind uf(n);
 
   // Byte-identical files: runs of equal content hash.
-  std::vector<uint32_t> by_hash(n);
-  std::iota(by_hash.begin(), by_hash.end(), 0u);
-  auto hash_of = [&](uint32_t k) { return records[eligible[k]].features.content_hash; };
-  std::sort(by_hash.begin(), by_hash.end(), [&](uint32_t a, uint32_t b) {
-    return hash_of(a) != hash_of(b) ? hash_of(a) < hash_of(b) : a < b;
-  });
   std::vector<uint32_t> exact_root(n);
   std::iota(exact_root.begin(), exact_root.end(), 0u);
-  for (size_t k = 1; k < n; ++k)
-    if (hash_of(by_hash[k]) == hash_of(by_hash[k - 1])) {
-      uf.unite(by_hash[k - 1], by_hash[k]);
-      exact_root[by_hash[k]] = exact_root[by_hash[k - 1]];
-      ++out.exact_pairs;
-    }
+  {
+    std::vector<uint32_t> by_hash(n);
+    std::iota(by_hash.begin(), by_hash.end(), 0u);
+    auto hash_of = [&](uint32_t k) { return records[eligible[k]].features.content_hash; };
+    std::sort(by_hash.begin(), by_hash.end(), [&](uint32_t a, uint32_t b) {
+      return hash_of(a) != hash_of(b) ? hash_of(a) < hash_of(b) : a < b;
+    });
+    for (size_t k = 1; k < n; ++k)
+      if (hash_of(by_hash[k]) == hash_of(by_hash[k - 1])) {
+        uf.unite(by_hash[k - 1], by_hash[k]);
+        exact_root[by_hash[k]] = exact_root[by_hash[k - 1]];
+        ++out.exact_pairs;
+      }
+  }
 
   // Look-alikes: candidates from an exact Hamming join of each flip/turn's codes
   // with the identity codes, confirmed by the thumbnails' correlation.

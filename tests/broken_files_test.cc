@@ -81,7 +81,7 @@ std::vector<uint8_t> garbled_scan(std::vector<uint8_t> b, size_t run) {
 
 }  // namespace
 
-TEST_CASE("every kind of damaged file is unreadable with a reason; totals add up", "[fault][audit]") {
+TEST_CASE("every kind of damaged file is unreadable with a reason, and the totals add up", "[fault][audit]") {
   test::TempDir t;
   const fs::path root = t / "data";
   struct Case {

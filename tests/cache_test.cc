@@ -52,7 +52,7 @@ TEST_CASE("cache: a second audit of an unchanged tree reads no image and writes 
   CHECK(warm.out == clean.out);
 }
 
-TEST_CASE("cache: a touched file is read again; a renamed file reuses its record by content", "[cache]") {
+TEST_CASE("cache: a touched file is read again, a renamed file reuses its record by content", "[cache]") {
   test::TempDir t, c;
   write_demo(t / "data");
   const fs::path cache = c / "records.sqlite";

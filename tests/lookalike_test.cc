@@ -20,10 +20,11 @@
 using namespace tamis;
 namespace fs = std::filesystem;
 
-TEST_CASE("every copy lands in its original's group; distinct photographs never share one", "[lookalike][photos]") {
+TEST_CASE("every copy lands in its original's group, and distinct photographs never share one", "[lookalike][photos]") {
   test::TempDir t;
   const auto& photos = test::distinct_photographs();
-  // Originals in class "orig_<k>"; copies scattered over other classes, as a messy set would have them.
+  // Originals in class "originals"; copies scattered over other classes, as a messy set would have them.
+  fs::create_directories(t / "originals");
   for (size_t k = 0; k < photos.size(); ++k) {
     fs::path src = test::kVispDir / photos[k];
     REQUIRE(fs::exists(src));

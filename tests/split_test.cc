@@ -68,7 +68,7 @@ TEST_CASE("split spec parsing", "[split]") {
   CHECK_THROWS_AS(parse_split_spec(""), std::invalid_argument);
 }
 
-TEST_CASE("no group spans two splits; class shares stay near target (property test)", "[split][groups]") {
+TEST_CASE("no group spans two splits, class shares stay near target (property test)", "[split][groups]") {
   SplitMix64 rng(42);
   for (int trial = 0; trial < 200; ++trial) {
     size_t classes = 1 + rng.below(6);

@@ -65,7 +65,7 @@ TEST_CASE("path_is_inside refuses outputs inside ROOT", "[walk]") {
   CHECK_FALSE(path_is_inside(t / "data", t.path()));
 }
 
-TEST_CASE("labels come from the first folder; split folders are recognised", "[labels]") {
+TEST_CASE("labels come from the first folder, split folders are recognised", "[labels]") {
   auto rec = [](std::string p) {
     FileRecord r;
     r.path = std::move(p);

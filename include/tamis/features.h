@@ -52,7 +52,7 @@ double thumb_correlation(const std::array<uint8_t, 1024>& a, int t, const std::a
 // The same, in two steps for many comparisons: a thumbnail's sums (unchanged by
 // any flip/turn), then the correlation of an already transformed `a` with `b`.
 struct ThumbStats {
-  uint64_t sum = 0, sum_sq = 0;
+  uint32_t sum = 0, sum_sq = 0;  // at most 1024 * 255 and 1024 * 255^2 (< 2^27)
 };
 ThumbStats thumb_stats(const std::array<uint8_t, 1024>& t);
 double thumb_correlation(const std::array<uint8_t, 1024>& turned_a, const ThumbStats& sa,
@@ -68,9 +68,10 @@ bool thumb_is_flat(const ThumbStats& s);
 // scaled to unit length; the orthonormal DCT keeps that distance, and any subset
 // of the coefficients gives a lower bound. The sketch holds the low 8x8 block
 // (without the DC term, which centring makes 0) of the DCT of a', rounded to
-// int16 (x 32767). A flip/turn of the image maps the block onto itself (a
-// transpose, and sign changes at odd frequencies), so one sketch serves all 8.
-using ThumbSketch = std::array<int16_t, 63>;
+// int8 (x 127; 63 bytes an image while the look-alike stage runs). A flip/turn
+// of the image maps the block onto itself (a transpose, and sign changes at odd
+// frequencies), so one sketch serves all 8.
+using ThumbSketch = std::array<int8_t, 63>;
 // REQUIRES: !thumb_is_flat(s), s = thumb_stats(thumb).
 ThumbSketch thumb_sketch(const std::array<uint8_t, 1024>& thumb, const ThumbStats& s);
 // False only when corr(transform t of a, b) < min_correlation for certain (the

@@ -90,10 +90,10 @@ struct ImageStats {
 // Content features computed from the bytes and the decoded pixels.
 struct Features {
   std::array<uint64_t, 2> content_hash{0, 0};  // XXH3-128 of the file bytes
-  bool has_content_hash = false;
-  bool has_lookalike = false;                   // set for every readable image
   Lookalike look;
   ImageStats stats;                             // set with has_lookalike
+  bool has_content_hash = false;
+  bool has_lookalike = false;                   // set for every readable image
 };
 
 struct FileRecord {
