@@ -112,23 +112,51 @@ Decoded decode_jpeg(Bytes b, const DecodeLimits& limits) {
 // label maps have a handful; photographs have thousands.
 uint8_t count_distinct(const cv::Mat& m, int cap) {
   const int ch = m.channels();
-  std::vector<uint32_t> seen;
-  seen.reserve(static_cast<size_t>(cap));
-  uint32_t last = UINT32_MAX;
+  int count = 0;
+  if (ch == 1) {  // a bit per grey level
+    uint64_t seen[4] = {0, 0, 0, 0};
+    for (int y = 0; y < m.rows; ++y) {
+      const uint8_t* p = m.ptr<uint8_t>(y);
+      for (int x = 0; x < m.cols; ++x) {
+        const uint64_t bit = uint64_t{1} << (p[x] & 63);
+        uint64_t& word = seen[p[x] >> 6];
+        if (word & bit) continue;
+        word |= bit;
+        if (++count >= cap) return static_cast<uint8_t>(cap);
+      }
+    }
+    return static_cast<uint8_t>(count);
+  }
+  // Colours: an open-addressing set of 512 slots (cap is at most 255, so a free
+  // slot always remains). Opaque white in BGRA packs to the empty marker, so that
+  // one colour is tracked apart.
+  constexpr uint32_t kEmpty = UINT32_MAX;
+  uint32_t slots[512];
+  std::fill(std::begin(slots), std::end(slots), kEmpty);
+  bool seen_empty_value = false;
+  uint32_t last = kEmpty;
+  bool have_last = false;
   for (int y = 0; y < m.rows; ++y) {
     const uint8_t* p = m.ptr<uint8_t>(y);
     for (int x = 0; x < m.cols; ++x, p += ch) {
       uint32_t v = 0;
       for (int c = 0; c < ch; ++c) v = (v << 8) | p[c];
-      if (v == last) continue;
+      if (have_last && v == last) continue;
       last = v;
-      if (std::find(seen.begin(), seen.end(), v) == seen.end()) {
-        seen.push_back(v);
-        if (static_cast<int>(seen.size()) >= cap) return static_cast<uint8_t>(cap);
+      have_last = true;
+      if (v == kEmpty) {
+        if (seen_empty_value) continue;
+        seen_empty_value = true;
+      } else {
+        uint32_t h = (v * 0x9e3779b1u) >> 23;  // 9 bits
+        while (slots[h] != kEmpty && slots[h] != v) h = (h + 1) & 511;
+        if (slots[h] == v) continue;
+        slots[h] = v;
       }
+      if (++count >= cap) return static_cast<uint8_t>(cap);
     }
   }
-  return static_cast<uint8_t>(seen.size());
+  return static_cast<uint8_t>(count);
 }
 
 // Reads LSB-first variable-width codes from a GIF sub-block chain.

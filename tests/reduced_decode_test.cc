@@ -46,3 +46,29 @@ TEST_CASE("reduced and full JPEG decodes hash within 4 bits of each other", "[de
   }
   WARN("largest distance between reduced and full decodes: " << worst << " bits");
 }
+
+TEST_CASE("the distinct-colour count of a decode is exact up to its cap of 65", "[decode][distinct]") {
+  // Truth made here: PNGs (written by OpenCV's libpng) whose pixels take exactly k
+  // values, in 1, 3 and 4 channels, opaque white BGRA among them.
+  for (int channels : {1, 3, 4}) {
+    for (int k : {1, 2, 7, 64, 65, 66, 200}) {
+      if (channels == 1 && k > 256) continue;
+      cv::Mat img(40, 50, CV_8UC(channels));
+      for (int y = 0; y < img.rows; ++y)
+        for (int x = 0; x < img.cols; ++x) {
+          const int colour = (y * img.cols + x) % k;  // every colour used, all in the first 200 pixels
+          uint8_t* p = img.ptr<uint8_t>(y) + x * channels;
+          for (int c = 0; c < channels; ++c)
+            p[c] = colour == 0 ? 255 : static_cast<uint8_t>((colour * (37 + 50 * c)) % 251);  // 0: white
+        }
+      std::vector<uint8_t> png;
+      REQUIRE(cv::imencode(".png", img, png));
+      ProbeOutcome p = probe_bytes(png);
+      REQUIRE(p.defect == Defect::none);
+      Decoded d = decode_image(png, p.info, DecodeLimits{});
+      REQUIRE(d.defect == Defect::none);
+      INFO(channels << " channels, " << k << " colours");
+      CHECK(d.distinct == std::min(k, 65));
+    }
+  }
+}
