@@ -345,7 +345,7 @@ Decoded decode_image(std::span<const uint8_t> b, const ProbeInfo& probe, const D
   if (probe.format == Format::gif) {
     m = decode_gif_first_frame(b, out.defect);
     if (out.defect != Defect::none) return out;
-  } else {
+  } else if (!decode_png_direct(b, probe, m)) {
     try {
       cv::Mat buf(1, static_cast<int>(b.size()), CV_8U, const_cast<uint8_t*>(b.data()));
       m = cv::imdecode(buf, cv::IMREAD_UNCHANGED | cv::IMREAD_IGNORE_ORIENTATION);

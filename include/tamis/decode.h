@@ -4,12 +4,14 @@
 // side still reaches `DecodeLimits::reduced_side` (or 1/1 for small images),
 // with decoder warnings treated as corruption: a damaged JPEG is reported,
 // never passed on as a grey-filled picture. GIF (first frame) is decoded by
-// tamis's own LZW decoder (this OpenCV has none). Other formats go through
+// tamis's own LZW decoder (this OpenCV has none); the common PNG by a direct
+// path (zlib and the PNG row filters, decode_png_direct below), which gives
+// libpng's pixels and leaves every other PNG to libpng. Other formats go through
 // OpenCV's imdecode at full size and are then reduced with area averaging.
 //
 // The pixel limit is checked from the probed header before any decoding.
 // The result is 8 bits per sample, 1 (gray), 3 (BGR) or 4 (BGRA) channels.
-// Pure function of its inputs; thread-safe (no shared state).
+// Pure function of its inputs; thread-safe (no shared state but a zlib stream a thread).
 #pragma once
 
 #include <cstdint>
@@ -34,6 +36,14 @@ struct Decoded {
 };
 
 Decoded decode_image(std::span<const uint8_t> bytes, const ProbeInfo& probe, const DecodeLimits& limits);
+
+// The direct PNG path decode_image takes first: a PNG of 8 bits a sample, grey,
+// RGB or RGBA, not interlaced, without a tRNS chunk, whose IDAT data inflate to
+// exactly its rows with valid filters, is decoded here into `out` (1, 3 (BGR) or
+// 4 (BGRA) channels, as OpenCV gives it) and true is returned. Otherwise false,
+// `out` unspecified, and libpng (through OpenCV) decides. Expects a probe that
+// found no defect (chunk CRCs checked).
+bool decode_png_direct(std::span<const uint8_t> bytes, const ProbeInfo& probe, cv::Mat& out);
 
 // Decodes the first frame of a GIF to BGR (transparent pixels take their palette
 // colour). Returns an empty Mat and sets `defect` when the data is damaged.

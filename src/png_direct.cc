@@ -1,0 +1,154 @@
+// The direct PNG path of decode.h: the common PNG (8 bits a sample; grey, RGB or
+// RGBA; not interlaced; no transparency chunk) inflated with zlib and unfiltered
+// here (ISO/IEC 15948, clauses 9 and 10), with one zlib stream a thread kept
+// between files. Anything else, and anything odd about the data, is declined and
+// left to libpng (through OpenCV), which then gives the verdict.
+#include <zlib.h>
+
+#include <cstdint>
+#include <cstdlib>
+#include <cstring>
+#include <vector>
+
+#include "byte_reader.h"
+#include "tamis/decode.h"
+
+namespace tamis {
+
+using namespace detail;
+
+namespace {
+
+// One inflate state a thread, reset between files (inflateInit allocates its
+// 32 KB window once).
+class Inflater {
+ public:
+  Inflater() { ok_ = inflateInit(&z_) == Z_OK; }
+  ~Inflater() {
+    if (ok_) inflateEnd(&z_);
+  }
+  Inflater(const Inflater&) = delete;
+  Inflater& operator=(const Inflater&) = delete;
+  // Inflates the zlib stream held in `parts`, in order, into exactly `out_size`
+  // bytes. True only when the stream ends exactly there, with its checksum right,
+  // and no input is left over.
+  bool inflate_exact(const std::vector<Bytes>& parts, uint8_t* out, size_t out_size) {
+    if (!ok_ || out_size > UINT32_MAX || inflateReset(&z_) != Z_OK) return false;
+    z_.next_out = out;
+    z_.avail_out = static_cast<uInt>(out_size);
+    for (size_t p = 0; p < parts.size(); ++p) {
+      z_.next_in = const_cast<Bytef*>(parts[p].data());
+      z_.avail_in = static_cast<uInt>(parts[p].size());
+      while (z_.avail_in > 0) {
+        const uInt in_before = z_.avail_in, out_before = z_.avail_out;
+        const int rc = inflate(&z_, Z_NO_FLUSH);
+        if (rc == Z_STREAM_END) return z_.avail_out == 0 && z_.avail_in == 0 && p + 1 == parts.size();
+        if (rc != Z_OK && rc != Z_BUF_ERROR) return false;
+        if (z_.avail_in == in_before && z_.avail_out == out_before) return false;  // output full, data left
+      }
+    }
+    return false;  // the stream did not end
+  }
+
+ private:
+  z_stream z_{};
+  bool ok_ = false;
+};
+
+inline uint8_t paeth(int a, int b, int c) {
+  const int p = a + b - c;
+  const int pa = std::abs(p - a), pb = std::abs(p - b), pc = std::abs(p - c);
+  if (pa <= pb && pa <= pc) return static_cast<uint8_t>(a);
+  return static_cast<uint8_t>(pb <= pc ? b : c);
+}
+
+// Undoes the filter of one row in place (bpp bytes a pixel); false for an unknown filter.
+bool unfilter(uint8_t type, uint8_t* row, const uint8_t* prev, size_t n, size_t bpp) {
+  switch (type) {
+    case 0: return true;
+    case 1:
+      for (size_t i = bpp; i < n; ++i) row[i] = static_cast<uint8_t>(row[i] + row[i - bpp]);
+      return true;
+    case 2:
+      if (prev)
+        for (size_t i = 0; i < n; ++i) row[i] = static_cast<uint8_t>(row[i] + prev[i]);
+      return true;
+    case 3:
+      for (size_t i = 0; i < n; ++i) {
+        const int left = i >= bpp ? row[i - bpp] : 0, up = prev ? prev[i] : 0;
+        row[i] = static_cast<uint8_t>(row[i] + ((left + up) >> 1));
+      }
+      return true;
+    case 4:
+      for (size_t i = 0; i < n; ++i) {
+        const int left = i >= bpp ? row[i - bpp] : 0, up = prev ? prev[i] : 0;
+        const int up_left = (prev && i >= bpp) ? prev[i - bpp] : 0;
+        row[i] = static_cast<uint8_t>(row[i] + paeth(left, up, up_left));
+      }
+      return true;
+    default: return false;
+  }
+}
+
+}  // namespace
+
+bool decode_png_direct(std::span<const uint8_t> b, const ProbeInfo& probe, cv::Mat& out) {
+  if (probe.format != Format::png || probe.bit_depth != 8 || probe.interlaced) return false;
+  size_t channels = 0;
+  switch (probe.mode) {
+    case ColorMode::gray: channels = 1; break;
+    case ColorMode::rgb: channels = 3; break;
+    case ColorMode::rgba: channels = 4; break;
+    default: return false;
+  }
+  const size_t w = probe.width, h = probe.height;
+  if (w == 0 || h == 0 || w > (1u << 24) / channels || h > (1u << 24)) return false;
+  // The IDAT chunks, which must follow one another; a tRNS chunk would add alpha.
+  std::vector<Bytes> idat;
+  bool idat_done = false;
+  for (size_t off = 8;;) {
+    auto len = be32(b, off);
+    if (!len || *len > 0x7fffffffu || !has(b, off + 8, size_t{*len} + 4)) return false;
+    const uint8_t* type = b.data() + off + 4;
+    if (std::memcmp(type, "IDAT", 4) == 0) {
+      if (idat_done) return false;
+      if (*len > 0) idat.push_back(b.subspan(off + 8, *len));
+    } else {
+      if (!idat.empty()) idat_done = true;
+      if (std::memcmp(type, "tRNS", 4) == 0) return false;
+      if (std::memcmp(type, "IEND", 4) == 0) break;
+    }
+    off += 12 + size_t{*len};
+  }
+  if (idat.empty()) return false;
+  const size_t stride = w * channels;
+  thread_local std::vector<uint8_t> raw;
+  raw.resize(h * (stride + 1));
+  thread_local Inflater inflater;
+  if (!inflater.inflate_exact(idat, raw.data(), raw.size())) return false;
+  for (size_t y = 0; y < h; ++y) {
+    uint8_t* row = raw.data() + y * (stride + 1);
+    const uint8_t* prev = y > 0 ? raw.data() + (y - 1) * stride : nullptr;  // the previous row, unfiltered and moved
+    if (!unfilter(row[0], row + 1, prev, stride, channels)) return false;
+    // Shift the pixels left over the filter byte, so rows lie end to end.
+    std::memmove(raw.data() + y * stride, row + 1, stride);
+  }
+  out.create(static_cast<int>(h), static_cast<int>(w), CV_8UC(static_cast<int>(channels)));
+  for (size_t y = 0; y < h; ++y) {
+    const uint8_t* s = raw.data() + y * stride;
+    uint8_t* d = out.ptr<uint8_t>(static_cast<int>(y));
+    if (channels == 1) {
+      std::memcpy(d, s, stride);
+    } else {  // RGB(A) as stored; OpenCV's order is BGR(A)
+      for (size_t x = 0; x < w; ++x, s += channels, d += channels) {
+        d[0] = s[2];
+        d[1] = s[1];
+        d[2] = s[0];
+        if (channels == 4) d[3] = s[3];
+      }
+    }
+  }
+  return true;
+}
+
+}  // namespace tamis
