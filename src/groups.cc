@@ -126,17 +126,20 @@ GroupResult find_groups(const std::vector<FileRecord>& records, const GroupSetti
       }, 64);
       for (auto& f : found) confirmed.insert(confirmed.end(), f.begin(), f.end());
     };
-    // One join of all 8 variants (id = 8 * image + t) is fastest; when its buffer
-    // of entries (about 1.6 KB a file) would pass the memory budget, the variants
-    // are joined one at a time, each in slices within the budget. The join is
-    // exact, so both give the same pairs.
-    const bool one_join = double(n) * 1600.0 <= double(settings.join_memory_bytes);
+    // One join of all 8 variants (id = 8 * image + t) is fastest (one plan, one
+    // pass over the buckets); it holds the 8 codes of every image twice (as given
+    // and with their bits permuted, 128 bytes a file), so it is used while they
+    // take at most a quarter of the memory budget. Above that the variants are
+    // joined one at a time. Either way the join's buffer of entries is searched in
+    // slices of the key space within the budget. The join is exact: both give the
+    // same pairs.
+    const bool one_join = double(n) * 2.0 * kDihedralCount * sizeof(uint64_t) <= 0.25 * double(settings.join_memory_bytes);
     uint64_t found = 0;
     if (one_join) {
       std::vector<uint64_t> variants(n * kDihedralCount);
       for (size_t k = 0; k < n; ++k)
         for (int t = 0; t < kDihedralCount; ++t) variants[k * kDihedralCount + t] = records[eligible[k]].features.look.phash[t];
-      confirm(join_within(variants, identity, settings.radius, settings.threads, keep, &found));
+      confirm(join_within(variants, identity, settings.radius, settings.threads, keep, &found, settings.join_memory_bytes));
       out.candidate_hits += found;
     } else {
       std::vector<uint64_t> variant(n);

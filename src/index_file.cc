@@ -1,7 +1,9 @@
 #include "tamis/index_file.h"
 
 #include <fstream>
+#include <functional>
 #include <iterator>
+#include <map>
 #include <set>
 #include <stdexcept>
 
@@ -40,6 +42,34 @@ std::vector<std::string> strs(const json& j) {
 
 }  // namespace
 
+namespace {
+// A CBOR head (RFC 8949, 3.1): major type and length, the length in its shortest form.
+std::vector<uint8_t> cbor_head(uint8_t major, uint64_t n) {
+  std::vector<uint8_t> out;
+  const uint8_t m = static_cast<uint8_t>(major << 5);
+  int bytes = 0;
+  if (n < 24) {
+    out.push_back(static_cast<uint8_t>(m | n));
+    return out;
+  }
+  if (n <= 0xff) {
+    out.push_back(m | 24);
+    bytes = 1;
+  } else if (n <= 0xffff) {
+    out.push_back(m | 25);
+    bytes = 2;
+  } else if (n <= 0xffffffffu) {
+    out.push_back(m | 26);
+    bytes = 4;
+  } else {
+    out.push_back(m | 27);
+    bytes = 8;
+  }
+  for (int k = bytes - 1; k >= 0; --k) out.push_back(static_cast<uint8_t>(n >> (8 * k)));
+  return out;
+}
+}  // namespace
+
 void save_index(const std::filesystem::path& file, const AuditIndex& x) {
   json j;
   j["format"] = "tamis-index";
@@ -53,15 +83,10 @@ void save_index(const std::filesystem::path& file, const AuditIndex& x) {
   const auto& cs = x.settings.checks;
   j["checks"] = {{"min_side", cs.min_side}, {"input_side", cs.input_side}, {"min_class", cs.min_class},
                  {"max_imbalance", cs.max_imbalance}, {"outlier_z", cs.outlier_z}};
-  json recs = json::array();
-  for (const auto& r : x.records) {
-    recs.push_back(record_to_json(r, false));
-  }
-  j["records"] = std::move(recs);
-  std::vector<int> given;
-  for (auto s : x.labels.given_split) given.push_back(int(s));
-  j["labels"] = {{"pre_split", x.labels.pre_split}, {"names", bins(x.labels.names)}, {"label_of", x.labels.label_of},
-                 {"given_split", given}};
+  // Arrays with an entry a record are written straight into the stream below;
+  // here they are empty stand-ins that keep their place among the keys.
+  j["labels"] = {{"pre_split", x.labels.pre_split}, {"names", bins(x.labels.names)}, {"label_of", json::array()},
+                 {"given_split", json::array()}};
   json groups = json::array();
   for (const auto& g : x.groups.groups)
     groups.push_back({{"members", g.members}, {"exact", g.exact}, {"diameter", g.diameter}, {"diameter_exact", g.diameter_exact}});
@@ -72,7 +97,7 @@ void save_index(const std::filesystem::path& file, const AuditIndex& x) {
   json ev = json::array();
   for (const auto& e : x.masks.evidence)
     ev.push_back({bin(e.folder), bin(e.partner), e.layout, e.pairs, e.confirmed, e.accepted, e.decided_by});
-  j["masks"] = {{"mask_of", x.masks.mask_of}, {"image_of", x.masks.image_of}, {"evidence", ev},
+  j["masks"] = {{"mask_of", json::array()}, {"image_of", json::array()}, {"evidence", ev},
                 {"layout_roots", bins(x.masks.layout_roots)}, {"misfiled", x.masks.misfiled},
                 {"orphan_images", x.masks.orphan_images}};
   // The look-alike thumbnails of group members, for the report's picture strips.
@@ -93,9 +118,56 @@ void save_index(const std::filesystem::path& file, const AuditIndex& x) {
   j["thumbs"] = std::move(thumbs);
   j["totals"] = {x.totals.files_seen, x.totals.images, x.totals.masks, x.totals.unreadable, x.totals.ignored};
   j["walk"] = {{"links", bins(x.walk.links)}, {"unreadable_dirs", bins(x.walk.unreadable_dirs)}, {"dirs", bins(x.walk.dirs)}};
-  std::vector<uint8_t> bytes = json::to_cbor(j);
+  // The records and the per-record arrays are coded one at a time into the
+  // stream rather than built into one tree first (that tree took about 560 bytes
+  // a record). The bytes are what json::to_cbor gives for the whole object: maps
+  // with their keys in sorted order, each length and integer in its shortest form.
   write_file_atomically(file, [&](std::ostream& os) {
-    os.write(reinterpret_cast<const char*>(bytes.data()), static_cast<std::streamsize>(bytes.size()));
+    auto put = [&](const std::vector<uint8_t>& b) {
+      os.write(reinterpret_cast<const char*>(b.data()), static_cast<std::streamsize>(b.size()));
+    };
+    auto put_ints = [&](const auto& v) {
+      put(cbor_head(4, v.size()));
+      for (auto e : v) {
+        const int64_t n = static_cast<int64_t>(e);
+        put(n >= 0 ? cbor_head(0, static_cast<uint64_t>(n)) : cbor_head(1, static_cast<uint64_t>(-1 - n)));
+      }
+    };
+    const std::map<std::string, std::function<void()>> streamed = {
+        {"/records",
+         [&] {
+           put(cbor_head(4, x.records.size()));
+           std::vector<uint8_t> one;
+           for (const auto& r : x.records) {
+             one.clear();
+             json::to_cbor(record_to_json(r, false), one);
+             put(one);
+           }
+         }},
+        {"/labels/label_of", [&] { put_ints(x.labels.label_of); }},
+        {"/labels/given_split", [&] { put_ints(x.labels.given_split); }},  // -1 for none
+        {"/masks/mask_of", [&] { put_ints(x.masks.mask_of); }},
+        {"/masks/image_of", [&] { put_ints(x.masks.image_of); }},
+    };
+    j["records"] = json::array();  // stand-in
+    std::function<void(const json&, const std::string&)> put_value = [&](const json& v, const std::string& at) {
+      if (auto it = streamed.find(at); it != streamed.end()) {
+        it->second();
+      } else if (v.is_object()) {
+        put(cbor_head(5, v.size()));
+        for (const auto& [k, e] : v.items()) {
+          std::vector<uint8_t> key;
+          json::to_cbor(json(k), key);
+          put(key);
+          put_value(e, at + "/" + k);
+        }
+      } else {
+        std::vector<uint8_t> b;
+        json::to_cbor(v, b);
+        put(b);
+      }
+    };
+    put_value(j, "");
   });
 }
 

@@ -3,6 +3,7 @@
 #include <algorithm>
 #include <cstdio>
 #include <istream>
+#include <numeric>
 #include <stdexcept>
 #include <set>
 #include <string_view>
@@ -24,23 +25,27 @@ void append_csv_field(std::string& out, std::string_view field) {
   out.push_back('"');
 }
 
-std::vector<std::string> flags_per_record(const AuditResult& result) {
-  std::unordered_map<std::string_view, size_t> index;
-  index.reserve(result.records.size());
-  for (size_t i = 0; i < result.records.size(); ++i) index.emplace(result.records[i].path, i);
-  std::vector<std::set<std::string_view>> codes(result.records.size());
-  for (const auto& f : result.findings)
+RecordFlags record_flags(const AuditResult& result) {
+  RecordFlags out;
+  const auto& records = result.records;
+  for (const auto& f : result.findings) out.codes.push_back(f.code);
+  std::sort(out.codes.begin(), out.codes.end());
+  out.codes.erase(std::unique(out.codes.begin(), out.codes.end()), out.codes.end());
+  // Records are in path order (the walk's); a table of them in that order finds a path.
+  std::vector<uint32_t> by_path(records.size());
+  std::iota(by_path.begin(), by_path.end(), 0u);
+  auto path_less = [&](uint32_t a, uint32_t b) { return records[a].path < records[b].path; };
+  if (!std::is_sorted(by_path.begin(), by_path.end(), path_less)) std::sort(by_path.begin(), by_path.end(), path_less);
+  for (const auto& f : result.findings) {
+    const auto code = static_cast<uint32_t>(std::lower_bound(out.codes.begin(), out.codes.end(), f.code) - out.codes.begin());
     for (const auto& p : f.paths) {
-      auto it = index.find(p);
-      if (it != index.end()) codes[it->second].insert(f.code);
-    }
-  std::vector<std::string> out(result.records.size());
-  for (size_t i = 0; i < codes.size(); ++i) {
-    for (auto c : codes[i]) {
-      if (!out[i].empty()) out[i].push_back(';');
-      out[i].append(c);
+      auto it = std::lower_bound(by_path.begin(), by_path.end(), p,
+                                 [&](uint32_t i, const std::string& v) { return records[i].path < v; });
+      if (it != by_path.end() && records[*it].path == p) out.pairs.emplace_back(*it, code);
     }
   }
+  std::sort(out.pairs.begin(), out.pairs.end());
+  out.pairs.erase(std::unique(out.pairs.begin(), out.pairs.end()), out.pairs.end());
   return out;
 }
 
@@ -55,8 +60,15 @@ void write_manifest(std::ostream& os, const AuditResult& r) {
   }
   line.append("\r\n");
   os << line;
-  std::vector<std::string> flags = flags_per_record(r);
+  const RecordFlags flags = record_flags(r);
+  size_t next_flag = 0;  // flags.pairs are in record order
+  std::string record_codes;
   for (size_t i = 0; i < r.records.size(); ++i) {
+    record_codes.clear();
+    for (; next_flag < flags.pairs.size() && flags.pairs[next_flag].first == i; ++next_flag) {
+      if (!record_codes.empty()) record_codes.push_back(';');
+      record_codes.append(flags.codes[flags.pairs[next_flag].second]);
+    }
     const FileRecord& rec = r.records[i];
     if (!is_manifest_row(rec)) continue;
     line.clear();
@@ -76,7 +88,7 @@ void write_manifest(std::ostream& os, const AuditResult& r) {
     field(probed ? std::to_string(rec.probe.bit_depth) : "");
     field(probed ? to_string(rec.probe.format) : "");
     field(r.masks.mask_of[i] >= 0 ? std::string_view(r.records[static_cast<size_t>(r.masks.mask_of[i])].path) : "");
-    field(flags[i]);
+    field(record_codes);
     field(readable ? "" : defect_code(rec.defect));
     field(std::to_string(rec.size));
     field(probed && rec.probe.orientation ? std::to_string(rec.probe.orientation) : "");

@@ -54,26 +54,42 @@ void check_images(const std::vector<FileRecord>& records, const Labelling& label
   const size_t nc = labels.names.size();
   std::vector<std::vector<double>> mean_c(nc + 1), ent_c(nc + 1), focus_c(nc + 1);
   std::vector<double> log_aspect;
+  auto class_of = [&](size_t i) { return labels.label_of[i] >= 0 ? static_cast<size_t>(labels.label_of[i]) : nc; };
+  {  // exact sizes first: growing vectors would hold up to twice the memory
+    std::vector<size_t> n_c(nc + 1, 0);
+    for (size_t i = 0; i < records.size(); ++i)
+      if (records[i].kind == FileKind::image && records[i].features.has_lookalike) {
+        if (class_of(i) != nc) ++n_c[class_of(i)];
+        ++n_c[nc];
+      }
+    for (size_t k = 0; k <= nc; ++k) {
+      mean_c[k].reserve(n_c[k]);
+      ent_c[k].reserve(n_c[k]);
+      focus_c[k].reserve(n_c[k]);
+    }
+    log_aspect.reserve(n_c[nc]);
+  }
   for (size_t i = 0; i < records.size(); ++i) {
     const auto& r = records[i];
     if (r.kind != FileKind::image || !r.features.has_lookalike) continue;
-    size_t c = labels.label_of[i] >= 0 ? static_cast<size_t>(labels.label_of[i]) : nc;
-    for (size_t k : {c, nc}) {
+    const size_t c = class_of(i);
+    for (size_t k : {c, nc}) {  // its class, then the whole set's pool (index nc)
       mean_c[k].push_back(r.features.stats.luma_mean);
       ent_c[k].push_back(r.features.stats.entropy);
       focus_c[k].push_back(std::log1p(r.features.stats.focus));
+      if (c == nc) break;  // an image without a class goes into the pool once
     }
     log_aspect.push_back(std::log(double(r.probe.width) / r.probe.height));
   }
   // The whole set's pool is index nc; it was filled with every image above.
   std::vector<Robust> zm(nc + 1), ze(nc + 1), zf(nc + 1);
-  for (size_t k = 0; k <= nc; ++k) {
-    zm[k] = robust(mean_c[k]);
-    ze[k] = robust(ent_c[k]);
-    zf[k] = robust(focus_c[k]);
+  for (size_t k = 0; k <= nc; ++k) {  // each pool is used once: handed over, not copied
+    zm[k] = robust(std::move(mean_c[k]));
+    ze[k] = robust(std::move(ent_c[k]));
+    zf[k] = robust(std::move(focus_c[k]));
   }
   auto pick = [&](const std::vector<Robust>& z, size_t c) -> const Robust& { return z[c].usable ? z[c] : z[nc]; };
-  Robust aspect = robust(log_aspect);
+  Robust aspect = robust(std::move(log_aspect));
 
   Collector col;
   uint64_t upscaled = 0;
@@ -224,12 +240,13 @@ void check_labels(const std::vector<FileRecord>& records, const Labelling& label
                   const CheckSettings& cs, std::vector<Finding>& out) {
   const auto& names = labels.names;
   std::vector<uint64_t> counts(names.size(), 0);
-  std::vector<std::vector<std::string>> class_paths(names.size());
   for (size_t i = 0; i < records.size(); ++i)
-    if (records[i].kind == FileKind::image && labels.label_of[i] >= 0) {
-      ++counts[static_cast<size_t>(labels.label_of[i])];
-      class_paths[static_cast<size_t>(labels.label_of[i])].push_back(records[i].path);
-    }
+    if (records[i].kind == FileKind::image && labels.label_of[i] >= 0) ++counts[static_cast<size_t>(labels.label_of[i])];
+  // The paths of class k's images (only classes that get a finding are asked).
+  auto class_paths = [&](size_t k, std::vector<std::string>& to) {
+    for (size_t i = 0; i < records.size(); ++i)
+      if (records[i].kind == FileKind::image && labels.label_of[i] == static_cast<int64_t>(k)) to.push_back(records[i].path);
+  };
   // Spellings of one class.
   std::map<std::string, std::vector<size_t>> by_key;
   for (size_t k = 0; k < names.size(); ++k) by_key[label_key(names[k])].push_back(k);
@@ -245,7 +262,7 @@ void check_labels(const std::vector<FileRecord>& records, const Labelling& label
     f.message = "class names that differ only in case, spaces, '_', '-' or a plural s: " + joined +
                 " (probably one class spelled " + std::to_string(list.size()) + " ways)";
     f.details = {{"labels", list}, {"key", key}};
-    for (size_t k : members) f.paths.insert(f.paths.end(), class_paths[k].begin(), class_paths[k].end());
+    for (size_t k : members) class_paths(k, f.paths);
     out.push_back(std::move(f));
   }
   // Names one edit apart (after that normalisation), when not already the same key.
@@ -274,7 +291,7 @@ void check_labels(const std::vector<FileRecord>& records, const Labelling& label
       f.message = "class " + names[k] + " has " + std::to_string(counts[k]) + " images, fewer than " +
                   std::to_string(cs.min_class);
       f.details = {{"label", names[k]}, {"count", counts[k]}, {"min_class", cs.min_class}};
-      f.paths = class_paths[k];
+      class_paths(k, f.paths);
       out.push_back(std::move(f));
     }
   // Empty class folders: top-level folders (or second level in a pre-split tree) with no image below.

@@ -246,6 +246,29 @@ class Outputs(unittest.TestCase):
         errors = list(jsonschema.Draft202012Validator(schema).iter_errors(bad))
         self.assertGreaterEqual(len(errors), 3)
 
+    def test_the_index_is_one_well_formed_cbor_item(self):
+        # cbor2 (Debian python3-cbor2), an independent RFC 8949 decoder, reads the
+        # index that tamis writes record by record: one item, nothing after it.
+        import cbor2
+        with tempfile.TemporaryDirectory() as t:
+            root = os.path.join(t, "demo")
+            self.assertEqual(run("demo", root).returncode, 0)
+            out = os.path.join(t, "out")
+            run("audit", root, "--out", out, "--quiet")
+            with open(os.path.join(out, "index.cbor"), "rb") as f:
+                data = f.read()
+            stream = io.BytesIO(data)
+            index = cbor2.CBORDecoder(stream).decode()
+            self.assertEqual(stream.tell(), len(data))
+            self.assertEqual(list(index), sorted(index))  # keys in sorted order, as one coded object
+            report = load_json(os.path.join(out, "report.json"))
+            self.assertEqual(len(index["records"]), report["totals"]["files_seen"])
+            with open(os.path.join(out, "manifest.csv"), newline="", encoding="utf-8") as f:
+                manifest = {row["path"] for row in csv.DictReader(f)}
+            paths = {r[0].decode("utf-8") for r in index["records"]}
+            self.assertTrue(manifest <= paths)
+            self.assertEqual([r[0] for r in index["records"]], sorted(r[0] for r in index["records"]))
+
     def test_demo_audit_finds_the_planted_defects(self):
         with tempfile.TemporaryDirectory() as t:
             root = os.path.join(t, "demo")

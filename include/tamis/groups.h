@@ -31,9 +31,11 @@ struct GroupSettings {
   int radius = 8;                // docs/lookalikes.md: how the defaults were measured
   double min_correlation = 0.995;
   unsigned threads = 0;
-  // The look-alike join's buffer of entries: above it, flips/turns are joined one
-  // at a time, in slices of the key space (same result, more time).
-  uint64_t join_memory_bytes = 256ull << 20;
+  // The look-alike join's memory budget: its buffer of entries is searched in
+  // slices of the key space that fit it, and above 125,000 images (at 64 MB) the
+  // flips/turns are joined one at a time (same result, more time). 64 MB keeps a
+  // million files within 1.5 KB of memory each (docs/performance.md).
+  uint64_t join_memory_bytes = 64ull << 20;
 };
 
 struct Group {

@@ -20,8 +20,15 @@ namespace tamis {
 // Appends `field` to `out`, quoted as RFC 4180 requires.
 void append_csv_field(std::string& out, std::string_view field);
 
-// Per-record finding codes, ';'-joined and sorted, gathered from the findings' paths.
-std::vector<std::string> flags_per_record(const AuditResult& result);
+// The finding codes that name each record, gathered from the findings' paths:
+// (record index, index into `codes`) pairs, sorted, without repeats, so a
+// record's flags are one run (in the manifest: the codes ';'-joined). Memory
+// grows with the findings' paths, not with the number of records.
+struct RecordFlags {
+  std::vector<std::string_view> codes;               // distinct finding codes, sorted
+  std::vector<std::pair<uint32_t, uint32_t>> pairs;  // (record, code)
+};
+RecordFlags record_flags(const AuditResult& result);
 
 void write_manifest(std::ostream& os, const AuditResult& result);
 
