@@ -26,38 +26,119 @@ cv::Mat hash_thumbnail(const cv::Mat& reduced) {
   return out;
 }
 
+namespace {
+
+// Rows 0..7 of the orthonormal 32-point DCT-II matrix, in double.
+struct DctRows {
+  double c[8][32];
+  DctRows() {
+    const double pi = std::acos(-1.0);
+    for (int u = 0; u < 8; ++u)
+      for (int x = 0; x < 32; ++x)
+        c[u][x] = (u == 0 ? std::sqrt(1.0 / 32) : std::sqrt(2.0 / 32)) * std::cos(pi * (2 * x + 1) * u / 64.0);
+  }
+};
+
+// The low 8x8 block of the orthonormal 2-D DCT-II of a 32x32 image, block[8u + v]:
+// C P C^T restricted to rows u < 8 and columns v < 8, in double. Row y and row
+// 31 - y (and column x and 31 - x) are folded first, as C[u][31 - y] = (-1)^u C[u][y].
+// Every row of C but the first sums to 0, so for u > 0 (v > 0) a column's (row's)
+// first value is subtracted first: the result is the same, and a constant column
+// or row gives exactly 0, as scipy's DCT does (a flat image hashes to its DC bit
+// alone, not to rounding noise).
+void dct_low_block(const uint8_t* p, double block[64]) {
+  static const DctRows d;
+  double sum[16][32], dif[16][32], col_total[32];
+  for (int x = 0; x < 32; ++x) col_total[x] = 0;
+  for (int y = 0; y < 16; ++y) {
+    const uint8_t* a = p + 32 * y;
+    const uint8_t* b = p + 32 * (31 - y);
+    for (int x = 0; x < 32; ++x) {
+      const int qa = a[x] - p[x], qb = b[x] - p[x];  // exact integers
+      sum[y][x] = double(qa + qb);
+      dif[y][x] = double(qa - qb);
+      col_total[x] += double(a[x] + b[x]);
+    }
+  }
+  for (int u = 0; u < 8; ++u) {
+    double row[32] = {};
+    if (u == 0) {
+      for (int x = 0; x < 32; ++x) row[x] = d.c[0][0] * col_total[x];
+    } else {
+      const auto& src = (u & 1) ? dif : sum;
+      for (int y = 0; y < 16; ++y) {
+        const double c = d.c[u][y];
+        for (int x = 0; x < 32; ++x) row[x] += c * src[y][x];
+      }
+    }
+    double total = 0, s2[16], d2[16];
+    for (int x = 0; x < 16; ++x) {
+      const double ra = row[x] - row[0], rb = row[31 - x] - row[0];
+      s2[x] = ra + rb;
+      d2[x] = ra - rb;
+      total += row[x] + row[31 - x];
+    }
+    block[u * 8] = d.c[0][0] * total;
+    for (int v = 1; v < 8; ++v) {
+      const double* half = (v & 1) ? d2 : s2;
+      double acc = 0;
+      for (int x = 0; x < 16; ++x) acc += half[x] * d.c[v][x];
+      block[u * 8 + v] = acc;
+    }
+  }
+}
+
+}  // namespace
+
 std::array<uint64_t, kDihedralCount> dct_hashes(const cv::Mat& thumb32) {
   CV_Assert(thumb32.rows == 32 && thumb32.cols == 32 && thumb32.type() == CV_8UC1);
-  cv::Mat f, d;
-  thumb32.convertTo(f, CV_64F);
-  cv::dct(f, d);  // orthonormal DCT-II (OpenCV's scaling equals scipy's norm='ortho')
-  double block[8][8];
+  const cv::Mat t = thumb32.isContinuous() ? thumb32 : thumb32.clone();
+  double block[64];
+  dct_low_block(t.ptr<uint8_t>(0), block);
+  // A mirror negates the coefficients of odd frequency along its axis, so the
+  // coefficients fall into four classes by the parity of (u, v), each negated or
+  // not as a whole. Each class is sorted once; the median of a sign pattern is
+  // the mean of the 32nd and 33rd values of the merged classes.
+  double cls[4][16];
+  int count[4] = {0, 0, 0, 0};
   for (int u = 0; u < 8; ++u)
-    for (int v = 0; v < 8; ++v) block[u][v] = d.at<double>(u, v);
+    for (int v = 0; v < 8; ++v) {
+      const int k = 2 * (u & 1) + (v & 1);
+      cls[k][count[k]++] = block[u * 8 + v];
+    }
+  for (auto& c : cls) std::sort(c, c + 16);
   std::array<uint64_t, kDihedralCount> out{};
   // A transpose only reorders the coefficients, so t and t + 4 share the median;
   // the four sign patterns of the mirrors each need their own.
-  for (int t = 0; t < 4; ++t) {
-    const bool flip_rows = t & 2, flip_cols = t & 1;
-    double c[64];
-    for (int u = 0; u < 8; ++u)
-      for (int v = 0; v < 8; ++v) {
-        double x = block[u][v];
-        if (flip_rows && (u & 1)) x = -x;
-        if (flip_cols && (v & 1)) x = -x;
-        c[u * 8 + v] = x;
-      }
-    double sorted[64];
-    std::copy(c, c + 64, sorted);
-    std::nth_element(sorted, sorted + 31, sorted + 64);
-    const double lo = sorted[31];
-    const double hi = *std::min_element(sorted + 32, sorted + 64);
+  for (int t4 = 0; t4 < 4; ++t4) {
+    const bool flip_rows = t4 & 2, flip_cols = t4 & 1;
+    const bool negated[4] = {false, flip_cols, flip_rows, flip_rows != flip_cols};
+    auto value = [&](int k, int i) { return negated[k] ? -cls[k][15 - i] : cls[k][i]; };
+    int pos[4] = {0, 0, 0, 0};
+    double lo = 0, hi = 0;
+    for (int rank = 0; rank <= 32; ++rank) {
+      int best = -1;
+      double best_value = 0;
+      for (int k = 0; k < 4; ++k)
+        if (pos[k] < 16 && (best < 0 || value(k, pos[k]) < best_value)) {
+          best = k;
+          best_value = value(k, pos[k]);
+        }
+      ++pos[best];
+      if (rank == 31) lo = best_value;
+      hi = best_value;
+    }
     const double median = 0.5 * (lo + hi);
     // Bit k = 8u + v of the code is bit 63 - k.
     uint64_t code = 0;
-    for (int k = 0; k < 64; ++k)
-      if (c[k] > median) code |= uint64_t{1} << (63 - k);
-    out[static_cast<size_t>(t)] = code;
+    for (int u = 0; u < 8; ++u)
+      for (int v = 0; v < 8; ++v) {
+        double x = block[u * 8 + v];
+        if (flip_rows && (u & 1)) x = -x;
+        if (flip_cols && (v & 1)) x = -x;
+        if (x > median) code |= uint64_t{1} << (63 - (u * 8 + v));
+      }
+    out[static_cast<size_t>(t4)] = code;
   }
   // Transform 4 + t: transpose, then the mirrors of t. Its coefficient at (u, v)
   // is block[v][u] with the signs of t applied at (u, v), which is the sign
@@ -179,18 +260,6 @@ namespace {
 
 constexpr double kSketchScale = 127.0;
 
-// Rows 0..7 of the orthonormal 32-point DCT-II matrix.
-struct DctRows {
-  float c[8][32];
-  DctRows() {
-    const double pi = std::acos(-1.0);
-    for (int u = 0; u < 8; ++u)
-      for (int x = 0; x < 32; ++x)
-        c[u][x] = static_cast<float>((u == 0 ? std::sqrt(1.0 / 32) : std::sqrt(2.0 / 32)) *
-                                     std::cos(pi * (2 * x + 1) * u / 64.0));
-  }
-};
-
 // For transform t: where sketch entry k takes its value from, and its sign.
 struct SketchMaps {
   uint8_t from[kDihedralCount][63];
@@ -211,36 +280,25 @@ struct SketchMaps {
 }  // namespace
 
 ThumbSketch thumb_sketch(const std::array<uint8_t, 1024>& thumb, const ThumbStats& s) {
-  static const DctRows dct;
   constexpr double kN = 1024;
   const double mean = s.sum / kN;
   const double norm = std::sqrt(std::max(1e-12, double(s.sum_sq) - kN * mean * mean));
-  // rows[u][x] = sum over y of C[u][y] * (p[y][x] - mean), then block[u][v] = sum over x of rows[u][x] * C[v][x].
-  float centred[32][32];
-  for (int i = 0; i < 1024; ++i) centred[i / 32][i % 32] = static_cast<float>(thumb[static_cast<size_t>(i)] - mean);
-  float rows[8][32] = {};
-  for (int u = 0; u < 8; ++u)
-    for (int y = 0; y < 32; ++y) {
-      const float c = dct.c[u][y];
-      for (int x = 0; x < 32; ++x) rows[u][x] += c * centred[y][x];
-    }
+  // Centring the pixels changes only the DC term, which the sketch leaves out; so
+  // the block of the thumbnail itself, scaled by 1 / norm, is that of a'.
+  double block[64];
+  dct_low_block(thumb.data(), block);
   ThumbSketch out{};
-  for (int u = 0; u < 8; ++u)
-    for (int v = 0; v < 8; ++v) {
-      if (u == 0 && v == 0) continue;
-      double acc = 0;
-      for (int x = 0; x < 32; ++x) acc += double(rows[u][x]) * dct.c[v][x];
-      out[static_cast<size_t>(u * 8 + v - 1)] =
-          static_cast<int8_t>(std::lround(std::clamp(acc / norm, -1.0, 1.0) * kSketchScale));
-    }
+  for (int k = 1; k < 64; ++k)
+    out[static_cast<size_t>(k - 1)] =
+        static_cast<int8_t>(std::lround(std::clamp(block[k] / norm, -1.0, 1.0) * kSketchScale));
   return out;
 }
 
 bool sketch_may_correlate(const ThumbSketch& a, int t, const ThumbSketch& b, double min_correlation) {
   static const SketchMaps maps;
-  // Each stored value is within 0.5 (rounding) plus far less than 0.001 (float
-  // arithmetic on values of at most 1, about 1e-5 x 127) of the true coefficient
-  // x 127, so a true difference is at least |qa - qb| - 1.002. The table holds
+  // Each stored value is within 0.5 (rounding) plus far less than 0.001 (double
+  // arithmetic on values of at most 1) of the true coefficient x 127, so a true
+  // difference is at least |qa - qb| - 1.002. The table holds
   // that bound squared, x 1024 and rounded down, for every |qa - qb|.
   static const std::array<uint32_t, 256> bound = [] {
     std::array<uint32_t, 256> b{};
