@@ -200,12 +200,33 @@ ImageStats image_stats(const cv::Mat& reduced, uint8_t alpha_min) {
     cv::resize(gray, g, cv::Size(std::max(1, int(gray.cols * f + 0.5)), std::max(1, int(gray.rows * f + 0.5))), 0, 0,
                cv::INTER_AREA);
   }
-  cv::Mat lap;
-  cv::Laplacian(g, lap, CV_32F);
-  cv::Scalar m, sd;
-  cv::meanStdDev(lap, m, sd);
-  st.focus = static_cast<float>(sd[0] * sd[0]);
+  st.focus = laplacian_variance(g);
   return st;
+}
+
+float laplacian_variance(const cv::Mat& gray) {
+  CV_Assert(gray.type() == CV_8UC1 && !gray.empty());
+  // What cv::Laplacian(gray, lap, CV_32F) (ksize 1: 4-neighbour kernel, border
+  // reflected about the edge pixel) then cv::meanStdDev(lap) give, computed with
+  // integer sums: every value is a small integer, so the sums are exact in any
+  // order and the result equals OpenCV's bit for bit.
+  const int w = gray.cols, h = gray.rows;
+  auto reflect = [](int i, int n) { return n == 1 ? 0 : i < 0 ? -i : i >= n ? 2 * n - 2 - i : i; };
+  int64_t sum = 0, sum_sq = 0;
+  for (int y = 0; y < h; ++y) {
+    const uint8_t* up = gray.ptr<uint8_t>(reflect(y - 1, h));
+    const uint8_t* row = gray.ptr<uint8_t>(y);
+    const uint8_t* down = gray.ptr<uint8_t>(reflect(y + 1, h));
+    for (int x = 0; x < w; ++x) {
+      const int v = up[x] + down[x] + row[reflect(x - 1, w)] + row[reflect(x + 1, w)] - 4 * row[x];
+      sum += v;
+      sum_sq += int64_t{v} * v;
+    }
+  }
+  const double scale = 1.0 / (double(w) * double(h));
+  const double mean = double(sum) * scale;
+  const double sd = std::sqrt(std::max(double(sum_sq) * scale - mean * mean, 0.0));
+  return static_cast<float>(sd * sd);
 }
 
 void apply_dihedral(const uint8_t* src, uint8_t* dst, int n, int t) {

@@ -10,6 +10,7 @@
 #include <opencv2/imgcodecs.hpp>
 #include <opencv2/imgproc.hpp>
 
+#include "support/fashion_mnist.h"
 #include "support/photos.h"
 #include "support/temp_tree.h"
 #include "tamis/audit.h"
@@ -258,4 +259,43 @@ TEST_CASE("edit distance and the label key", "[checks][labels]") {
   CHECK(label_key("Red_Pepper") == "redpepper");
   CHECK(label_key("red-peppers") == "redpepper");
   CHECK(label_key("bus") == "bus");  // short words keep their final s
+}
+
+TEST_CASE("the sharpness statistic equals OpenCV's Laplacian variance bit for bit", "[checks][focus]") {
+  // Reference: cv::Laplacian (ksize 1) then cv::meanStdDev, as OpenCV documents them.
+  auto reference = [](const cv::Mat& g) {
+    cv::Mat lap;
+    cv::Laplacian(g, lap, CV_32F);
+    cv::Scalar m, sd;
+    cv::meanStdDev(lap, m, sd);
+    return static_cast<float>(sd[0] * sd[0]);
+  };
+  size_t compared = 0;
+  auto check = [&](const cv::Mat& g, const std::string& name) {
+    INFO(name << " " << g.cols << "x" << g.rows);
+    CHECK(laplacian_variance(g) == reference(g));
+    ++compared;
+  };
+  // Photographs (Debian visp-images-data), gray, at several sizes.
+  for (const auto& rel : test::distinct_photographs()) {
+    cv::Mat m = cv::imread((test::kVispDir / rel).string(), cv::IMREAD_GRAYSCALE);
+    REQUIRE(!m.empty());
+    for (int side : {128, 97, 31}) {
+      cv::Mat r;
+      cv::resize(m, r, cv::Size(side, side * m.rows / m.cols + 1), 0, 0, cv::INTER_AREA);
+      check(r, rel);
+    }
+  }
+  // Fashion-MNIST (Debian dataset-fashion-mnist), every 60th training image.
+  const auto fm = test::read_idx_images(test::kFashionMnistDir / "train-images-idx3-ubyte.gz");
+  for (uint32_t k = 0; k < fm.count; k += 60)
+    check(cv::Mat(28, 28, CV_8UC1, const_cast<uint8_t*>(fm.pixels.data()) + size_t{k} * 784).clone(), "fashion-mnist");
+  // Edge sizes, where the reflected border is most of the image.
+  SplitMix64 rng(11);
+  for (auto [w, h] : std::vector<std::pair<int, int>>{{1, 1}, {1, 7}, {7, 1}, {2, 2}, {3, 5}, {2, 9}}) {
+    cv::Mat g(h, w, CV_8UC1);
+    for (auto it = g.begin<uint8_t>(); it != g.end<uint8_t>(); ++it) *it = static_cast<uint8_t>(rng.below(256));
+    check(g, "noise");
+  }
+  CHECK(compared > 1000);
 }

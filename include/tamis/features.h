@@ -41,6 +41,11 @@ Lookalike lookalike_features(const cv::Mat& reduced);
 // from the full-resolution decode.
 ImageStats image_stats(const cv::Mat& reduced, uint8_t alpha_min);
 
+// The variance of the Laplacian of an 8-bit gray image (the `focus` statistic):
+// equal, bit for bit, to squaring the standard deviation cv::meanStdDev gives for
+// cv::Laplacian(gray, CV_32F), computed without either.
+float laplacian_variance(const cv::Mat& gray);
+
 // Applies dihedral transform t to a square row-major gray image of side n.
 void apply_dihedral(const uint8_t* src, uint8_t* dst, int n, int t);
 
