@@ -1,7 +1,6 @@
 #include "tamis/read_stage.h"
 
 #include <fcntl.h>
-#include <sys/stat.h>
 #include <unistd.h>
 #include <xxhash.h>
 
@@ -27,22 +26,27 @@ struct Fd {
 };
 
 // Reads the whole file into `buf` (reused across calls). False on any error or
-// when the file changed size under us.
+// when the file is no longer `expect` bytes long. Three system calls: no fstat,
+// as the walk has just seen a regular file of that size; one byte more than
+// expected is asked for, so a file that grew shows it, and a short read of a
+// regular file means its end. Whatever replaced the file since fails here: a
+// folder refuses the read, a FIFO (opened without blocking) has no data, a
+// device gives too much.
 bool read_whole(int rootfd, const std::string& rel, uint64_t expect, std::vector<uint8_t>& buf) {
-  Fd f{openat(rootfd, rel.c_str(), O_RDONLY | O_NOFOLLOW | O_CLOEXEC | O_NOCTTY)};
+  Fd f{openat(rootfd, rel.c_str(), O_RDONLY | O_NOFOLLOW | O_CLOEXEC | O_NOCTTY | O_NONBLOCK)};
   if (f.fd < 0) return false;
-  struct stat st {};
-  if (fstat(f.fd, &st) != 0 || !S_ISREG(st.st_mode)) return false;
-  uint64_t size = static_cast<uint64_t>(st.st_size);
-  if (size != expect) return false;
-  buf.resize(size);
+  buf.resize(expect + 1);
   size_t got = 0;
-  while (got < size) {
-    ssize_t n = read(f.fd, buf.data() + got, size - got);
+  while (got <= expect) {
+    const size_t want = expect + 1 - got;
+    ssize_t n = read(f.fd, buf.data() + got, want);
     if (n < 0 && errno == EINTR) continue;
-    if (n <= 0) return false;
+    if (n < 0) return false;
     got += static_cast<size_t>(n);
+    if (n == 0 || static_cast<size_t>(n) < want) break;  // the end of the file
   }
+  if (got != expect) return false;
+  buf.resize(expect);
   return true;
 }
 
