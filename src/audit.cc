@@ -17,7 +17,7 @@ AuditIndex read_tree(const AuditSettings& settings) {
   r.settings = settings;
   r.settings.read.on_progress = nullptr;
   StageClock clock(&r.times);
-  r.walk = walk_tree(settings.root);
+  r.walk = walk_tree(settings.root, settings.read.threads);
   clock.lap("walk");
   std::unique_ptr<RecordCache> cache;
   if (!settings.cache_file.empty()) {

@@ -36,7 +36,8 @@ struct WalkResult {
 };
 
 // Walks ROOT. Throws std::runtime_error when ROOT itself is not a readable folder.
-WalkResult walk_tree(const std::filesystem::path& root);
+// `threads` stat the files (0 = all cores); the result does not depend on it.
+WalkResult walk_tree(const std::filesystem::path& root, unsigned threads = 0);
 
 // True when `child` is ROOT or lies inside it (after resolving both to canonical
 // paths where they exist). Used to refuse outputs inside the data set.
