@@ -406,13 +406,17 @@ std::vector<std::pair<uint32_t, uint32_t>> hamming_join(const std::vector<uint64
               // A run is [a..., b...].
               size_t mid = begin;
               while (mid < end && !(sorted[mid] & kSideB)) ++mid;
+              // The comparisons run over local pointers and a local radius
+              // (no reloads through captures); the rare hits are handled apart.
+              const uint64_t* const cb = codes.data();
+              const int r = radius;
               for (size_t x = begin; x < mid; ++x) {
-                const uint64_t cx = codes[x];
-                const uint32_t ia = static_cast<uint32_t>(sorted[x] & kIdMask);
+                const uint64_t cx = cb[x];
                 for (size_t y = mid; y < end; ++y) {
-                  if (hamming(cx, codes[y]) > radius) continue;
+                  if (__builtin_popcountll(cx ^ cb[y]) > r) [[likely]] continue;
+                  const uint32_t ia = static_cast<uint32_t>(sorted[x] & kIdMask);
                   const uint32_t ib = static_cast<uint32_t>(sorted[y] & kIdMask);
-                  if (!first_meeting(cx, codes[y], key)) continue;
+                  if (!first_meeting(cx, cb[y], key)) continue;
                   if (!self) {
                     emit(ia, ib);
                   } else if (ia != ib) {
