@@ -1,6 +1,7 @@
 #include "tamis/manifest.h"
 
 #include <algorithm>
+#include <charconv>
 #include <cstdio>
 #include <istream>
 #include <numeric>
@@ -94,18 +95,20 @@ void write_manifest(std::ostream& os, const AuditResult& r) {
     field(probed && rec.probe.orientation ? std::to_string(rec.probe.orientation) : "");
     field(probed ? std::to_string(rec.probe.frames) : "");
     if (rec.features.has_content_hash) {
-      char hex[33];
-      std::snprintf(hex, sizeof hex, "%016llx%016llx", static_cast<unsigned long long>(rec.features.content_hash[0]),
-                    static_cast<unsigned long long>(rec.features.content_hash[1]));
-      line.append(hex);
+      for (uint64_t h : rec.features.content_hash)
+        for (int shift = 60; shift >= 0; shift -= 4) line.push_back("0123456789abcdef"[(h >> shift) & 15]);
     }
     line.push_back(',');
     if (r.split.fold[i] >= 0) line.append(std::to_string(r.split.fold[i]));
     if (rec.features.has_lookalike) {
+      // std::to_chars with a precision writes what printf's "%.Nf" writes.
       const auto& st = rec.features.stats;
-      char buf[96];
-      std::snprintf(buf, sizeof buf, ",%.1f,%.1f,%.2f,%.1f", st.luma_mean, st.luma_std, st.entropy, st.focus);
-      line.append(buf);
+      char buf[64];
+      for (auto [v, digits] : {std::pair{st.luma_mean, 1}, {st.luma_std, 1}, {st.entropy, 2}, {st.focus, 1}}) {
+        line.push_back(',');
+        auto res = std::to_chars(buf, buf + sizeof buf, v, std::chars_format::fixed, digits);
+        line.append(buf, res.ptr);
+      }
     } else {
       line.append(",,,,");
     }
