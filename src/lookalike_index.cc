@@ -111,38 +111,53 @@ uint64_t binomial_ball(int bits, int k) {  // number of bit strings within dista
 struct JoinPlan {
   int m = 1;
   std::vector<int> bits;  // width of each substring
+  int ra = 0, rb = 0;     // substring radius expanded on side a and on side b (ra + rb = radius / m)
 };
 
-// Picks the table count with the least estimated work (entries to sort plus
+// Picks the table count, and for a cross join how the substring radius s is
+// shared between the sides, with the least estimated work (entries to sort plus
 // expected comparisons) among layouts whose substrings are at most 30 bits wide
 // and whose entries fit in memory. `na`, `nb`: sizes of the two sides (equal
-// and `self` for a self-join).
+// and `self` for a self-join, which shares s evenly). Expanding only the smaller
+// side of a lopsided cross join (8 flips/turns against one identity code each)
+// makes far fewer entries, and each pair then meets in one bucket only.
+// An entry is generated twice, sorted and its code gathered: measured on the
+// Fashion-MNIST join (8 x 70,000 codes against 70,000) it costs about as much as
+// 16 code comparisons (the weight 4 used before chose 3 tables with both sides
+// expanded, 1.1 s; this weight chooses 5 tables with only the identity side
+// expanded, 0.7 s). Uniform codes of a million-code self-join keep 3 tables.
+constexpr double kEntryCost = 16.0;
+
 JoinPlan plan_join(size_t na, size_t nb, bool self, int radius) {
   JoinPlan best;
   double best_cost = -1;
   for (int m = 1; m <= 64; ++m) {
     if ((64 + m - 1) / m > 30) continue;  // keys must fit the entry's 32-bit key field
-    int s = radius / m;
-    int ra = (s + 1) / 2, rb = s / 2;
-    bool one_side = self && ra == rb;
-    double cost = 0;
-    bool fits = true;
-    std::vector<int> widths;
-    for (int k = 0; k < m; ++k) {
-      int w = 64 / m + (k < 64 % m ? 1 : 0);
-      widths.push_back(w);
-      double ea = double(na) * double(binomial_ball(w, ra)), eb = double(nb) * double(binomial_ball(w, rb));
-      double entries = one_side ? ea : ea + eb;
-      if (entries > double(1u << 30)) fits = false;
-      double buckets = std::ldexp(1.0, w);
-      double compares = one_side ? ea * ea / (2 * buckets) : ea * eb / buckets;
-      cost += 4.0 * entries + compares;
-    }
-    if (!fits) continue;
-    if (best_cost < 0 || cost < best_cost) {
-      best_cost = cost;
-      best.m = m;
-      best.bits = widths;
+    const int s = radius / m;
+    for (int ra = self ? (s + 1) / 2 : 0; ra <= (self ? (s + 1) / 2 : s); ++ra) {
+      const int rb = s - ra;
+      const bool one_side = self && ra == rb;
+      double cost = 0;
+      bool fits = true;
+      std::vector<int> widths;
+      for (int k = 0; k < m; ++k) {
+        int w = 64 / m + (k < 64 % m ? 1 : 0);
+        widths.push_back(w);
+        double ea = double(na) * double(binomial_ball(w, ra)), eb = double(nb) * double(binomial_ball(w, rb));
+        double entries = one_side ? ea : ea + eb;
+        if (entries > double(1u << 30)) fits = false;
+        double buckets = std::ldexp(1.0, w);
+        double compares = one_side ? ea * ea / (2 * buckets) : ea * eb / buckets;
+        cost += kEntryCost * entries + compares;
+      }
+      if (!fits) continue;
+      if (best_cost < 0 || cost < best_cost) {
+        best_cost = cost;
+        best.m = m;
+        best.bits = widths;
+        best.ra = ra;
+        best.rb = rb;
+      }
     }
   }
   if (best_cost < 0) throw std::invalid_argument("Hamming join: no table layout fits in memory");
@@ -262,7 +277,7 @@ std::vector<std::pair<uint32_t, uint32_t>> hamming_join(const std::vector<uint64
   }
   const std::vector<uint64_t>& bb = self ? a : b_permuted;
   const int s = radius / plan.m;
-  const int ra = (s + 1) / 2, rb = s / 2;
+  const int ra = plan.ra, rb = plan.rb;
   const bool one_side = self && ra == rb;
   std::vector<std::pair<uint32_t, uint32_t>> found;
   uint64_t total_found = 0;
