@@ -114,14 +114,16 @@ class ExitStatus(unittest.TestCase):
             r = run("audit", root, "--out", timed, "--quiet", "--no-cache", "--timings")
             self.assertEqual(r.returncode, 0)
             self.assertEqual(r.stdout, "")
-            stages = {}
+            stages, pieces = {}, {}
             for line in r.stderr.splitlines():
-                m = re.fullmatch(r"tamis: (.+?) +(-?[0-9]+\.[0-9]{3}) s( \(since the process started\))?", line)
+                m = re.fullmatch(r"tamis: ( *)(.+?) +(-?[0-9]+\.[0-9]{3}) s( \(since the process started\))?", line)
                 self.assertIsNotNone(m, line)
-                stages[m.group(1)] = float(m.group(2))
-            for stage in ("walk", "read", "masks", "labels", "groups", "checks + split", "manifest.csv",
-                          "report.json", "report.html", "index.cbor", "total"):
+                (pieces if m.group(1) else stages)[m.group(2)] = float(m.group(3))
+            for stage in ("walk", "read", "masks", "labels", "groups", "checks + split", "outputs", "other", "total"):
                 self.assertIn(stage, stages)
+            # The output files, written two at a time, are shown under "outputs", not added up.
+            self.assertEqual(set(pieces), {"manifest.csv", "report.json", "report.html", "index.cbor"})
+            self.assertGreaterEqual(stages["other"], 0.0)
             self.assertNotIn("cache load", stages)  # no cache, no such stage
             self.assertGreaterEqual(stages["total"], stages["read"])
             for name in ("manifest.csv", "report.json", "report.html"):

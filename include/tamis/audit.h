@@ -45,6 +45,7 @@ struct AuditSettings {
 struct StageTime {
   std::string stage;
   double seconds = 0;
+  bool overlapped = false;  // part of a stage whose pieces ran at once: shown, not added up
 };
 
 // Appends the wall time since the previous lap (or since construction) to

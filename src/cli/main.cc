@@ -213,9 +213,12 @@ int finish(tamis::AuditResult& result, const std::string& out, const JudgeOption
   if (!quiet) print_summary(result, out, jo.format);
   if (timings) {
     double staged = 0;
-    for (const auto& t : result.times) staged += t.seconds;
+    for (const auto& t : result.times)
+      if (!t.overlapped) staged += t.seconds;
     double total = std::chrono::duration<double>(std::chrono::steady_clock::now() - process_start).count();
-    for (const auto& t : result.times) std::fprintf(stderr, "tamis: %-16s %8.3f s\n", t.stage.c_str(), t.seconds);
+    for (const auto& t : result.times)  // pieces of a stage that ran at once are indented under it
+      std::fprintf(stderr, "tamis: %s%-*s %8.3f s\n", t.overlapped ? "  " : "", t.overlapped ? 14 : 16, t.stage.c_str(),
+                   t.seconds);
     std::fprintf(stderr, "tamis: %-16s %8.3f s\n", "other", total - staged);
     std::fprintf(stderr, "tamis: %-16s %8.3f s (since the process started)\n", "total", total);
   }
