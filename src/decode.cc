@@ -11,6 +11,7 @@
 #include <opencv2/imgproc.hpp>
 
 #include "byte_reader.h"
+#include "tamis/codecs.h"
 
 namespace tamis {
 
@@ -346,12 +347,7 @@ Decoded decode_image(std::span<const uint8_t> b, const ProbeInfo& probe, const D
     m = decode_gif_first_frame(b, out.defect);
     if (out.defect != Defect::none) return out;
   } else if (!decode_png_direct(b, probe, m)) {
-    try {
-      cv::Mat buf(1, static_cast<int>(b.size()), CV_8U, const_cast<uint8_t*>(b.data()));
-      m = cv::imdecode(buf, cv::IMREAD_UNCHANGED | cv::IMREAD_IGNORE_ORIENTATION);
-    } catch (const cv::Exception&) {
-      m.release();
-    }
+    m = opencv_imdecode(b, cv::IMREAD_UNCHANGED | cv::IMREAD_IGNORE_ORIENTATION);
   }
   if (m.empty()) {
     out.defect = Defect::decode_failed;

@@ -8,6 +8,7 @@
 #include <opencv2/imgcodecs.hpp>
 #include <opencv2/imgproc.hpp>
 
+#include "tamis/codecs.h"
 #include "tamis/random.h"
 
 namespace tamis {
@@ -77,7 +78,11 @@ cv::Mat herringbone(SplitMix64& rng, cv::Size size) {
 
 void save(const std::filesystem::path& p, const cv::Mat& img, const std::vector<int>& params, size_t& n) {
   std::filesystem::create_directories(p.parent_path());
-  if (!cv::imwrite(p.string(), img, params)) throw std::runtime_error("cannot write " + p.string());
+  std::vector<uint8_t> bytes;
+  if (!opencv_imencode(p.extension().string(), img, bytes, params)) throw std::runtime_error("cannot write " + p.string());
+  std::ofstream os(p, std::ios::binary);
+  os.write(reinterpret_cast<const char*>(bytes.data()), static_cast<std::streamsize>(bytes.size()));
+  if (!os) throw std::runtime_error("cannot write " + p.string());
   ++n;
 }
 
@@ -140,8 +145,8 @@ size_t write_demo(const std::filesystem::path& dir) {
   save(dir / "polka_dots" / name(98, "jpg"), mirrored, std::vector<int>{cv::IMWRITE_JPEG_QUALITY, 70}, n);
   // A truncated JPEG: the upload stopped halfway.
   {
-    std::vector<uchar> bytes;
-    cv::imencode(".jpg", first_gingham, bytes, jpeg);
+    std::vector<uint8_t> bytes;
+    opencv_imencode(".jpg", first_gingham, bytes, jpeg);
     bytes.resize(bytes.size() / 2);
     save_text(dir / "gingham" / name(97, "jpg"), std::string(bytes.begin(), bytes.end()), n);
   }

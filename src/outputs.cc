@@ -1,10 +1,11 @@
 #include "tamis/outputs.h"
 
+#include <turbojpeg.h>
+
 #include <exception>
 #include <stdexcept>
 #include <thread>
-
-#include <opencv2/imgcodecs.hpp>
+#include <vector>
 
 #include "tamis/atomic_file.h"
 #include "tamis/index_file.h"
@@ -32,15 +33,28 @@ std::string base64(const std::vector<uchar>& in) {
   return out;
 }
 
+// A gray image as baseline JPEG (libjpeg-turbo); empty on failure.
+std::vector<uint8_t> gray_jpeg(const uint8_t* pixels, int width, int height, int quality) {
+  std::vector<uint8_t> out;
+  tjhandle tj = tjInitCompress();
+  if (!tj) return out;
+  unsigned char* buf = nullptr;
+  unsigned long size = 0;
+  if (tjCompress2(tj, pixels, width, width, height, TJPF_GRAY, &buf, &size, TJSAMP_GRAY, quality, 0) == 0)
+    out.assign(buf, buf + size);
+  tjFree(buf);
+  tjDestroy(tj);
+  return out;
+}
+
 // JPEG thumbnails (the 32x32 look-alike thumbnails, shown at 64 px) of the groups'
 // first members, within `budget` bytes of data URIs.
 Thumbnails group_thumbnails(const AuditResult& r, size_t budget) {
   Thumbnails out;
   size_t used = 0;
   auto uri_of = [&](const FileRecord& rec) {
-    cv::Mat t(32, 32, CV_8UC1, const_cast<uint8_t*>(rec.features.look.thumb.data()));
-    std::vector<uchar> jpg;
-    if (!cv::imencode(".jpg", t, jpg, {cv::IMWRITE_JPEG_QUALITY, 85})) return std::string();
+    std::vector<uint8_t> jpg = gray_jpeg(rec.features.look.thumb.data(), 32, 32, 85);
+    if (jpg.empty()) return std::string();
     return "data:image/jpeg;base64," + base64(jpg);
   };
   // A few image/mask pairs first (key "#masks": image, mask, image, mask, ...).

@@ -248,6 +248,29 @@ class Outputs(unittest.TestCase):
         errors = list(jsonschema.Draft202012Validator(schema).iter_errors(bad))
         self.assertGreaterEqual(len(errors), 3)
 
+    def test_opencv_codecs_are_loaded_only_when_a_file_needs_them(self):
+        # The binary does not link libopencv_imgcodecs (about 120 libraries more to
+        # map at start-up); a TIFF and a 16-bit PNG (written by Pillow) still decode,
+        # through the library opened on demand.
+        ldd = subprocess.run(["ldd", TAMIS], capture_output=True, text=True)
+        self.assertEqual(ldd.returncode, 0)
+        self.assertNotIn("libopencv_imgcodecs", ldd.stdout)
+        from PIL import Image
+        with tempfile.TemporaryDirectory() as t:
+            root = os.path.join(t, "data")
+            os.makedirs(os.path.join(root, "a"))
+            Image.new("RGB", (40, 30), (200, 10, 10)).save(os.path.join(root, "a", "red.tif"))
+            Image.new("I;16", (20, 50), 4000).save(os.path.join(root, "a", "deep.png"))
+            out = os.path.join(t, "out")
+            run("audit", root, "--out", out, "--quiet", "--no-cache")
+            with open(os.path.join(out, "manifest.csv"), newline="", encoding="utf-8") as f:
+                rows = {r["path"]: r for r in csv.DictReader(f)}
+            self.assertEqual((rows["a/red.tif"]["width"], rows["a/red.tif"]["height"], rows["a/red.tif"]["reason"]),
+                             ("40", "30", ""))
+            self.assertEqual((rows["a/deep.png"]["width"], rows["a/deep.png"]["height"], rows["a/deep.png"]["reason"]),
+                             ("20", "50", ""))
+            self.assertEqual(rows["a/deep.png"]["bit_depth"], "16")
+
     def test_the_index_is_one_well_formed_cbor_item(self):
         # cbor2 (Debian python3-cbor2), an independent RFC 8949 decoder, reads the
         # index that tamis writes record by record: one item, nothing after it.
