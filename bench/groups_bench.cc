@@ -30,7 +30,12 @@ int main(int argc, char** argv) {
   ReadOptions ro;
   ro.threads = threads;
   ro.cache = &cache;
+  std::vector<int64_t> thumbnail_row;
+  ro.thumbnail_row = &thumbnail_row;
   std::vector<FileRecord> records = read_files(argv[1], w.files, ro);
+  std::vector<uint32_t> all(records.size());
+  for (uint32_t i = 0; i < all.size(); ++i) all[i] = i;
+  if (!cache.load_thumbnails(records, thumbnail_row, all).empty()) return 1;  // the join needs every thumbnail
   cache.store(records);
   GroupSettings gs;
   gs.threads = threads;

@@ -34,10 +34,40 @@ AuditIndex read_tree(const AuditSettings& settings) {
   ReadOptions ro = settings.read;
   ro.cache = cache.get();
   ro.counts = &r.counts;
+  std::vector<int64_t> thumbnail_row;  // records whose thumbnail is still in the cache
+  ro.thumbnail_row = &thumbnail_row;
   if (cache) clock.lap("cache load");
   r.records = read_files(settings.root, r.walk.files, ro);
   clock.lap("read");
+  // Thumbnails of records that came from the cache, loaded only where needed; a
+  // file whose stored thumbnail has gone (another run changed the cache) is read again.
+  auto load_thumbnails = [&](const std::vector<uint32_t>& which) {
+    if (!cache || which.empty()) return;
+    std::vector<uint32_t> missing;
+    try {
+      missing = cache->load_thumbnails(r.records, thumbnail_row, which);
+    } catch (const std::exception& e) {
+      missing = which;
+      r.cache_note = std::string("the cache could not be read: ") + e.what();
+    }
+    for (uint32_t i : which) thumbnail_row[i] = -1;
+    if (missing.empty()) return;
+    std::vector<WalkEntry> again;
+    for (uint32_t i : missing) again.push_back(r.walk.files[i]);
+    ReadOptions plain = settings.read;
+    plain.on_progress = nullptr;
+    std::vector<FileRecord> fresh = read_files(settings.root, again, plain);
+    for (size_t k = 0; k < missing.size(); ++k) r.records[missing[k]] = std::move(fresh[k]);
+    r.counts.read += missing.size();
+  };
   if (cache) {
+    // A record copied from another row by content is stored under its own path:
+    // with its thumbnail.
+    std::vector<uint32_t> copies;
+    for (uint32_t i = 0; i < r.records.size(); ++i)
+      if (thumbnail_row[i] >= 0 && cache->path_of(static_cast<size_t>(thumbnail_row[i])) != r.records[i].path)
+        copies.push_back(i);
+    load_thumbnails(copies);
     try {
       cache->store(r.records);  // as read, before mask pairing changes kinds
     } catch (const std::exception& e) {
@@ -45,8 +75,6 @@ AuditIndex read_tree(const AuditSettings& settings) {
     }
   }
   if (cache) clock.lap("cache store");
-  r.walk.files.clear();
-  r.walk.files.shrink_to_fit();
   r.masks = pair_masks(r.records, settings.masks);
   clock.lap("masks");
   r.labels = assign_labels(r.records, r.masks.layout_roots);
@@ -73,7 +101,20 @@ AuditIndex read_tree(const AuditSettings& settings) {
   }
   if (cached_groups) {
     r.groups = std::move(*cached_groups);
+    // The outputs show the thumbnails of group members and of masked images.
+    std::vector<uint32_t> shown;
+    for (const auto& g : r.groups.groups) shown.insert(shown.end(), g.members.begin(), g.members.end());
+    for (uint32_t i = 0; i < r.records.size(); ++i)
+      if (r.masks.mask_of[i] >= 0) {
+        shown.push_back(i);
+        shown.push_back(static_cast<uint32_t>(r.masks.mask_of[i]));
+      }
+    load_thumbnails(shown);
   } else {
+    std::vector<uint32_t> all;
+    for (uint32_t i = 0; i < r.records.size(); ++i)
+      if (thumbnail_row.size() > i && thumbnail_row[i] >= 0) all.push_back(i);
+    load_thumbnails(all);
     r.groups = find_groups(r.records, gs);
     if (cache) {
       try {
@@ -84,6 +125,10 @@ AuditIndex read_tree(const AuditSettings& settings) {
     }
   }
   clock.lap(cached_groups ? "groups (cached)" : "groups");
+  // Every thumbnail an output shows is loaded now; the others stay in the cache
+  // (those records hold zeros there, and nothing reads them).
+  r.walk.files.clear();
+  r.walk.files.shrink_to_fit();
   for (const auto& rec : r.records) {
     ++r.totals.files_seen;
     switch (rec.kind) {

@@ -7,6 +7,7 @@
 #include <cstdlib>
 #include <numeric>
 #include <span>
+#include <string_view>
 #include <stdexcept>
 
 #include <nlohmann/json.hpp>
@@ -147,10 +148,13 @@ void RecordCache::open_and_load(const std::string& settings_key) {
   db_->exec("CREATE TABLE IF NOT EXISTS groups(root TEXT PRIMARY KEY, fingerprint TEXT NOT NULL, data BLOB NOT NULL)");
   db_->exec("CREATE TABLE IF NOT EXISTS records(root TEXT NOT NULL, path BLOB NOT NULL, size INTEGER NOT NULL,"
             " mtime INTEGER NOT NULL, inode INTEGER NOT NULL, data BLOB NOT NULL, PRIMARY KEY(root, path))");
+  db_->exec("CREATE TABLE IF NOT EXISTS thumbs(root TEXT NOT NULL, path BLOB NOT NULL, data BLOB NOT NULL,"
+            " PRIMARY KEY(root, path))");
   const std::string want = std::to_string(kCacheSchemaVersion) + "|" + settings_key;
   if (meta_value(db_->h, "version") != want) {
     db_->exec("BEGIN IMMEDIATE");
     db_->exec("DELETE FROM records");
+    db_->exec("DELETE FROM thumbs");
     db_->exec("DELETE FROM groups");
     set_meta(db_->h, "version", want);
     db_->exec("COMMIT");
@@ -216,6 +220,19 @@ FileRecord RecordCache::take(size_t k) {
   return r;
 }
 
+std::vector<FileRecord> RecordCache::take_all() {
+  std::vector<FileRecord> out = std::move(rows_);
+  rows_.clear();  // every row is taken: copy() is never asked for one
+  for (size_t k = 0; k < out.size(); ++k) {
+    out[k].path = paths_[k];
+    out[k].size = stamps_[k].size;
+    out[k].mtime_ns = stamps_[k].mtime_ns;
+    out[k].inode = stamps_[k].inode;
+  }
+  taken_.assign(out.size(), 1);
+  return out;
+}
+
 FileRecord RecordCache::copy(size_t k) const {
   FileRecord r = rows_[k];
   r.path = paths_[k];
@@ -223,6 +240,48 @@ FileRecord RecordCache::copy(size_t k) const {
   r.mtime_ns = stamps_[k].mtime_ns;
   r.inode = stamps_[k].inode;
   return r;
+}
+
+std::vector<uint32_t> RecordCache::load_thumbnails(std::vector<FileRecord>& records,
+                                                   const std::vector<int64_t>& source_row,
+                                                   const std::vector<uint32_t>& which) {
+  // Rows wanted, each with the records that take its thumbnail.
+  std::vector<std::pair<uint32_t, uint32_t>> wanted;  // (row, record)
+  for (uint32_t i : which)
+    if (source_row[i] >= 0) wanted.emplace_back(static_cast<uint32_t>(source_row[i]), i);
+  std::sort(wanted.begin(), wanted.end());
+  std::vector<uint8_t> found(wanted.size(), 0);
+  auto fill = [&](size_t w, std::span<const uint8_t> data) {
+    auto& thumb = records[wanted[w].second].features.look.thumb;
+    if (data.size() != thumb.size()) return;
+    std::copy(data.begin(), data.end(), thumb.begin());
+    found[w] = 1;
+  };
+  if (wanted.size() * 8 >= paths_.size()) {  // many: one pass over the table in path order
+    Stmt q(db_->h, "SELECT path, data FROM thumbs WHERE root = ? ORDER BY path");
+    sqlite3_bind_text(q.s, 1, root_.c_str(), -1, SQLITE_TRANSIENT);
+    size_t w = 0;
+    while (w < wanted.size() && q.step()) {
+      auto p = blob(q.s, 0);
+      const std::string_view path(reinterpret_cast<const char*>(p.data()), p.size());
+      while (w < wanted.size() && std::string_view(paths_[wanted[w].first]) < path) ++w;
+      for (; w < wanted.size() && std::string_view(paths_[wanted[w].first]) == path; ++w) fill(w, blob(q.s, 1));
+    }
+  } else {  // a few: one lookup each
+    Stmt q(db_->h, "SELECT data FROM thumbs WHERE root = ? AND path = ?");
+    for (size_t w = 0; w < wanted.size(); ++w) {
+      sqlite3_reset(q.s);
+      sqlite3_bind_text(q.s, 1, root_.c_str(), -1, SQLITE_TRANSIENT);
+      const std::string& path = paths_[wanted[w].first];
+      sqlite3_bind_blob(q.s, 2, path.data(), static_cast<int>(path.size()), SQLITE_STATIC);
+      if (q.step()) fill(w, blob(q.s, 0));
+    }
+  }
+  std::vector<uint32_t> missing;
+  for (size_t w = 0; w < wanted.size(); ++w)
+    if (!found[w]) missing.push_back(wanted[w].second);
+  std::sort(missing.begin(), missing.end());
+  return missing;
 }
 
 int64_t RecordCache::row_with_content(const std::array<uint64_t, 2>& hash, uint64_t size) const {
@@ -304,12 +363,14 @@ void RecordCache::store(const std::vector<FileRecord>& records) {
   db_->exec("BEGIN IMMEDIATE");
   try {
     {
-      Stmt del(db_->h, "DELETE FROM records WHERE root = ? AND path = ?");
-      for (uint32_t k : gone) {
-        sqlite3_reset(del.s);
-        sqlite3_bind_text(del.s, 1, root_.c_str(), -1, SQLITE_TRANSIENT);
-        sqlite3_bind_blob(del.s, 2, paths_[k].data(), static_cast<int>(paths_[k].size()), SQLITE_TRANSIENT);
-        del.run();
+      for (const char* sql : {"DELETE FROM records WHERE root = ? AND path = ?", "DELETE FROM thumbs WHERE root = ? AND path = ?"}) {
+        Stmt del(db_->h, sql);
+        for (uint32_t k : gone) {
+          sqlite3_reset(del.s);
+          sqlite3_bind_text(del.s, 1, root_.c_str(), -1, SQLITE_TRANSIENT);
+          sqlite3_bind_blob(del.s, 2, paths_[k].data(), static_cast<int>(paths_[k].size()), SQLITE_TRANSIENT);
+          del.run();
+        }
       }
     }
     {  // forget roots that no longer exist, so the file does not grow without end
@@ -319,12 +380,16 @@ void RecordCache::store(const std::vector<FileRecord>& records) {
       for (const auto& root : roots) {
         std::error_code ec;
         if (std::filesystem::exists(root, ec) || ec) continue;
-        Stmt drop(db_->h, "DELETE FROM records WHERE root = ?");
-        sqlite3_bind_text(drop.s, 1, root.c_str(), -1, SQLITE_TRANSIENT);
-        drop.run();
+        for (const char* sql : {"DELETE FROM records WHERE root = ?", "DELETE FROM thumbs WHERE root = ?"}) {
+          Stmt drop(db_->h, sql);
+          sqlite3_bind_text(drop.s, 1, root.c_str(), -1, SQLITE_TRANSIENT);
+          drop.run();
+        }
       }
     }
     Stmt ins(db_->h, "INSERT OR REPLACE INTO records(root, path, size, mtime, inode, data) VALUES(?, ?, ?, ?, ?, ?)");
+    Stmt ins_thumb(db_->h, "INSERT OR REPLACE INTO thumbs(root, path, data) VALUES(?, ?, ?)");
+    Stmt del_thumb(db_->h, "DELETE FROM thumbs WHERE root = ? AND path = ?");
     std::vector<uint8_t> data;
     for (uint32_t i : write) {
       const FileRecord& r = records[i];
@@ -338,6 +403,13 @@ void RecordCache::store(const std::vector<FileRecord>& records) {
       sqlite3_bind_int64(ins.s, 5, static_cast<sqlite3_int64>(r.inode));
       sqlite3_bind_blob(ins.s, 6, data.data(), static_cast<int>(data.size()), SQLITE_STATIC);
       ins.run();
+      Stmt& t = r.features.has_lookalike ? ins_thumb : del_thumb;
+      sqlite3_reset(t.s);
+      sqlite3_bind_text(t.s, 1, root_.c_str(), -1, SQLITE_TRANSIENT);
+      sqlite3_bind_blob(t.s, 2, r.path.data(), static_cast<int>(r.path.size()), SQLITE_TRANSIENT);
+      if (r.features.has_lookalike)
+        sqlite3_bind_blob(t.s, 3, r.features.look.thumb.data(), static_cast<int>(r.features.look.thumb.size()), SQLITE_STATIC);
+      t.run();
     }
     db_->exec("COMMIT");
   } catch (...) {

@@ -153,8 +153,6 @@ std::vector<FileRecord> read_files(const std::filesystem::path& root, const std:
   Fd rootfd{open(root.c_str(), O_RDONLY | O_DIRECTORY | O_CLOEXEC)};
   if (rootfd.fd < 0) throw std::runtime_error("cannot open folder " + root.string());
   std::vector<FileRecord> records;
-  reserve_huge(records, entries.size());
-  records.resize(entries.size());
   std::atomic<size_t> done{0};
   std::atomic<uint64_t> n_read{0}, n_cached{0}, n_hash{0};
   auto progress = [&] {
@@ -165,33 +163,62 @@ std::vector<FileRecord> read_files(const std::filesystem::path& root, const std:
   // are moved out of it, the files are not opened.
   std::vector<int64_t> row_of(entries.size(), -1);
   std::vector<int64_t> entry_of_row;
+  bool adopted = false;
   if (opt.cache) {
     row_of = opt.cache->match(entries);
+    bool one_to_one = opt.cache->rows() == entries.size();
+    for (size_t i = 0; i < entries.size() && one_to_one; ++i) one_to_one = row_of[i] == static_cast<int64_t>(i);
     entry_of_row.assign(opt.cache->rows(), -1);
     for (size_t i = 0; i < entries.size(); ++i) {
       if (is_hidden_path(entries[i].path)) row_of[i] = -1;  // hidden files are never trusted to the cache
       if (row_of[i] >= 0) entry_of_row[static_cast<size_t>(row_of[i])] = static_cast<int64_t>(i);
     }
-    parallel_for(entries.size(), opt.threads, [&](size_t i) {
-      if (row_of[i] < 0) return;
-      records[i] = opt.cache->take(static_cast<size_t>(row_of[i]));
-      n_cached.fetch_add(1, std::memory_order_relaxed);
-      progress();
-    }, 256);
+    if (one_to_one) {  // an unchanged tree: the cache's table becomes the result, no record is copied
+      records = opt.cache->take_all();
+      adopted = true;
+      for (size_t i = 0; i < entries.size(); ++i)
+        if (row_of[i] >= 0) {
+          ++n_cached;
+          progress();
+        }
+    }
+  }
+  if (!adopted) {
+    reserve_huge(records, entries.size());
+    records.resize(entries.size());
+    if (opt.cache)
+      parallel_for(entries.size(), opt.threads, [&](size_t i) {
+        if (row_of[i] < 0) return;
+        records[i] = opt.cache->take(static_cast<size_t>(row_of[i]));
+        n_cached.fetch_add(1, std::memory_order_relaxed);
+        progress();
+      }, 256);
   }
   // Then every other file is read. A content match whose row was taken above is
   // copied from the record it went to.
+  std::vector<int64_t> copied_row(opt.cache ? entries.size() : 0, -1);  // rows copied by content
   auto from_cache = [&](size_t row) {
     return opt.cache->taken(row) ? records[static_cast<size_t>(entry_of_row[row])] : opt.cache->copy(row);
   };
   parallel_for(entries.size(), opt.threads, [&](size_t i) {
     if (row_of[i] >= 0) return;
     thread_local std::vector<uint8_t> buf;
-    Source src = read_one(rootfd.fd, entries[i], opt, buf, records[i], from_cache);
+    if (adopted) records[i] = FileRecord{};  // it held the stored record of a hidden file
+    Source src = read_one(rootfd.fd, entries[i], opt, buf, records[i], [&](size_t row) {
+      copied_row[i] = static_cast<int64_t>(row);
+      return from_cache(row);
+    });
     (src == Source::cached_by_hash ? n_hash : n_read)++;
     if (buf.capacity() > (64u << 20)) std::vector<uint8_t>().swap(buf);  // do not pin huge buffers
     progress();
   }, 8);
+  if (opt.thumbnail_row) {
+    opt.thumbnail_row->assign(entries.size(), -1);
+    for (size_t i = 0; i < entries.size(); ++i) {
+      const int64_t row = row_of[i] >= 0 ? row_of[i] : (opt.cache ? copied_row[i] : -1);
+      if (row >= 0 && records[i].features.has_lookalike) (*opt.thumbnail_row)[i] = row;
+    }
+  }
   if (opt.counts) *opt.counts = {n_read.load(), n_cached.load(), n_hash.load()};
   return records;
 }

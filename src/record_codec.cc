@@ -95,7 +95,7 @@ void record_to_bytes(const FileRecord& r, std::vector<uint8_t>& out) {
   const auto& p = r.probe;
   const auto& f = r.features;
   const size_t start = out.size();
-  out.reserve(start + (f.has_lookalike ? kRecordBytesFull : kRecordBytesHead));
+  out.reserve(start + (f.has_lookalike ? kRecordBytesLookalike : kRecordBytesHead));
   for (uint8_t b : {uint8_t(r.kind), uint8_t(r.defect), uint8_t(p.format), uint8_t(p.mode), p.bit_depth}) out.push_back(b);
   out.push_back(static_cast<uint8_t>(p.interlaced | p.has_exif << 1 | p.has_gps << 2 | f.has_content_hash << 3 |
                                      f.has_lookalike << 4 | f.stats.channels_equal << 5));
@@ -108,10 +108,8 @@ void record_to_bytes(const FileRecord& r, std::vector<uint8_t>& out) {
   for (float v : {f.stats.luma_mean, f.stats.luma_std, f.stats.entropy, f.stats.focus}) put_f32(out, v);
   out.push_back(f.stats.alpha_min);
   out.push_back(f.stats.distinct);
-  if (f.has_lookalike) {
+  if (f.has_lookalike)
     for (uint64_t h : f.look.phash) put_le(out, h, 8);
-    out.insert(out.end(), f.look.thumb.begin(), f.look.thumb.end());
-  }
 }
 
 bool record_from_bytes(std::span<const uint8_t> bytes, FileRecord& r) {
@@ -119,7 +117,7 @@ bool record_from_bytes(std::span<const uint8_t> bytes, FileRecord& r) {
   const uint8_t* b = bytes.data();
   const uint8_t flags = b[5];
   const bool look = flags & 16;
-  if (flags >> 6 || bytes.size() != (look ? kRecordBytesFull : kRecordBytesHead)) return false;
+  if (flags >> 6 || bytes.size() != (look ? kRecordBytesLookalike : kRecordBytesHead)) return false;
   if (b[0] > uint8_t(FileKind::ignored) || b[1] > uint8_t(Defect::no_decoder) || b[2] > uint8_t(Format::pnm) ||
       b[3] > uint8_t(ColorMode::cmyk))
     return false;
@@ -147,12 +145,9 @@ bool record_from_bytes(std::span<const uint8_t> bytes, FileRecord& r) {
   f.stats.alpha_min = b[52];
   f.stats.channels_equal = flags & 32;
   f.stats.distinct = b[53];
-  if (look) {
+  f.look = {};
+  if (look)
     for (int t = 0; t < kDihedralCount; ++t) f.look.phash[t] = get_le(b + kRecordBytesHead + 8 * t, 8);
-    std::copy_n(b + kRecordBytesHead + 8 * kDihedralCount, 1024, f.look.thumb.begin());
-  } else {
-    f.look = {};
-  }
   return true;
 }
 

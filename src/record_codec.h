@@ -33,13 +33,16 @@ FileRecord record_from_json(const nlohmann::json& e);
 //   6 orientation u16, 8 width u32, 12 height u32, 16 frames u32,
 //   20 content hash (two u64), 36 luma mean, 40 luma std, 44 entropy, 48 focus (f32),
 //   52 alpha_min u8, 53 distinct u8;
-//   with has_lookalike: 54 the 8 DCT hashes (u64), 118 the thumbnail (1024 bytes).
+//   with has_lookalike: 54 the 8 DCT hashes (u64).
+// The 32x32 thumbnail is not in these bytes: the cache keeps it apart (1,024 raw
+// bytes), to be read only when needed.
 inline constexpr size_t kRecordBytesHead = 54;
-inline constexpr size_t kRecordBytesFull = kRecordBytesHead + 8 * kDihedralCount + 1024;
-// Appends the record's bytes (head, plus hashes and thumbnail for a look-alike record).
+inline constexpr size_t kRecordBytesLookalike = kRecordBytesHead + 8 * kDihedralCount;
+// Appends the record's bytes (head, plus the hashes for a look-alike record).
 void record_to_bytes(const FileRecord& r, std::vector<uint8_t>& out);
-// Fills every field but path, size, mtime_ns and inode; false when the bytes are
-// not exactly one well-formed record (then `r` is unspecified).
+// Fills every field but path, size, mtime_ns, inode and the thumbnail (zeroed);
+// false when the bytes are not exactly one well-formed record (then `r` is
+// unspecified).
 bool record_from_bytes(std::span<const uint8_t> bytes, FileRecord& r);
 
 }  // namespace tamis::detail

@@ -6,7 +6,9 @@
 // the same bytes reuses a record found by its content hash and size (its bytes are
 // read and hashed, but not decoded). Records are stored whole (probe, hashes,
 // statistics, thumbnail), as read, before mask pairing, in the fixed byte layout
-// of record_codec.h.
+// of record_codec.h; the 1 KB thumbnails sit in a table of their own and are
+// read only for the records that need them (load_thumbnails): an unchanged set
+// with cached groups reads those of its groups' members only.
 //
 // The file uses WAL mode and a busy timeout, so two runs may share it; every write
 // is one transaction, so a killed run leaves the previous state. A cache whose
@@ -32,7 +34,7 @@
 
 namespace tamis {
 
-inline constexpr int kCacheSchemaVersion = 2;  // 2: records in fixed bytes (was CBOR)
+inline constexpr int kCacheSchemaVersion = 3;  // 2: records in fixed bytes (was CBOR); 3: thumbnails apart
 
 class RecordCache {
  public:
@@ -44,21 +46,34 @@ class RecordCache {
   RecordCache(const RecordCache&) = delete;
   RecordCache& operator=(const RecordCache&) = delete;
 
-  size_t rows() const { return rows_.size(); }
+  size_t rows() const { return paths_.size(); }
   // Per entry (sorted bytewise by path, as the walk gives them): the stored row
   // with the same path, size, modification time and inode, or -1.
   std::vector<int64_t> match(const std::vector<WalkEntry>& entries) const;
-  // Moves row `row` out (its record, with its path). Each row at most once;
-  // distinct rows may be taken from different threads at once.
+  // Moves row `row` out (its record, with its path; the thumbnail not yet
+  // loaded, all zeros). Each row at most once; distinct rows may be taken from
+  // different threads at once.
   FileRecord take(size_t row);
   bool taken(size_t row) const { return taken_[row] != 0; }
+  // All rows at once, in row order, when the caller's entries match them one to
+  // one (the common unchanged tree): the table is handed over, not copied.
+  std::vector<FileRecord> take_all();
   // A row with this content hash and size (the first by path), or -1. Thread-safe.
   int64_t row_with_content(const std::array<uint64_t, 2>& hash, uint64_t size) const;
-  // A copy of a row that was not taken. Thread-safe.
+  // A copy of a row that was not taken (the thumbnail not loaded). Thread-safe.
   FileRecord copy(size_t row) const;
+  const std::string& path_of(size_t row) const { return paths_[row]; }
+
+  // Loads the stored thumbnail of row source_row[i] into records[i] for each i in
+  // `which` (rows < 0 are skipped). Returns the indices whose thumbnail is not in
+  // the file (another run removed it): their files must be read again.
+  std::vector<uint32_t> load_thumbnails(std::vector<FileRecord>& records, const std::vector<int64_t>& source_row,
+                                        const std::vector<uint32_t>& which);
 
   // Makes the root's stored records equal `records` in one transaction, writing
   // only rows that changed and deleting rows of files that are gone.
+  // REQUIRES: every record that is new or changed holds its thumbnail (a record
+  // copied from another row by content: load_thumbnails first).
   void store(const std::vector<FileRecord>& records);
 
   // The look-alike groups of an unchanged set: stored under a fingerprint of every

@@ -40,6 +40,10 @@ struct ReadOptions {
   unsigned threads = 0;                      // 0 = all cores
   RecordCache* cache = nullptr;              // records to reuse (cache.h; taken out of it); none when null
   ReadCounts* counts = nullptr;              // filled when set
+  // Filled when set (with a cache): per record, the cache row whose stored
+  // thumbnail is the record's (it came from the cache, its thumbnail not yet
+  // loaded: RecordCache::load_thumbnails), or -1 (read from its file).
+  std::vector<int64_t>* thumbnail_row = nullptr;
   uint64_t max_bytes = 4ull << 30;           // files larger than this are not read
   DecodeLimits decode;
   std::function<void(size_t done, size_t total)> on_progress;
