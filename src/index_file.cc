@@ -111,16 +111,12 @@ void save_index(const std::filesystem::path& file, const AuditIndex& x) {
       shown.insert(static_cast<uint32_t>(x.masks.mask_of[i]));
       ++pairs;
     }
-  for (uint32_t m : shown) {
-    const auto& t = x.records[m].features.look.thumb;
-    thumbs.push_back(json::array({m, json::binary(std::vector<uint8_t>(t.begin(), t.end()))}));
-  }
-  j["thumbs"] = std::move(thumbs);
+  j["thumbs"] = std::move(thumbs);  // a stand-in: written one thumbnail at a time below
   j["totals"] = {x.totals.files_seen, x.totals.images, x.totals.masks, x.totals.unreadable, x.totals.ignored};
   j["walk"] = {{"links", bins(x.walk.links)}, {"unreadable_dirs", bins(x.walk.unreadable_dirs)}, {"dirs", bins(x.walk.dirs)}};
-  // The records and the per-record arrays are coded one at a time into the
-  // stream rather than built into one tree first (that tree took about 560 bytes
-  // a record). The bytes are what json::to_cbor gives for the whole object: maps
+  // The records, the per-record arrays and the thumbnails are coded one at a
+  // time into the stream rather than built into one tree first (that tree took
+  // about 560 bytes a record). The bytes are what json::to_cbor gives for the whole object: maps
   // with their keys in sorted order, each length and integer in its shortest form.
   write_file_atomically(file, [&](std::ostream& os) {
     auto put = [&](const std::vector<uint8_t>& b) {
@@ -147,6 +143,17 @@ void save_index(const std::filesystem::path& file, const AuditIndex& x) {
         {"/labels/label_of", [&] { put_ints(x.labels.label_of); }},
         {"/labels/given_split", [&] { put_ints(x.labels.given_split); }},  // -1 for none
         {"/masks/mask_of", [&] { put_ints(x.masks.mask_of); }},
+        {"/thumbs",
+         [&] {
+           put(cbor_head(4, shown.size()));
+           std::vector<uint8_t> one;
+           for (uint32_t m : shown) {
+             const auto& t = x.records[m].features.look.thumb;
+             one.clear();
+             json::to_cbor(json::array({m, json::binary(std::vector<uint8_t>(t.begin(), t.end()))}), one);
+             put(one);
+           }
+         }},
         {"/masks/image_of", [&] { put_ints(x.masks.image_of); }},
     };
     j["records"] = json::array();  // stand-in
