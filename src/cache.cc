@@ -281,6 +281,7 @@ std::vector<uint32_t> RecordCache::load_thumbnails(std::vector<FileRecord>& reco
   for (size_t w = 0; w < wanted.size(); ++w)
     if (!found[w]) missing.push_back(wanted[w].second);
   std::sort(missing.begin(), missing.end());
+  missing.erase(std::unique(missing.begin(), missing.end()), missing.end());
   return missing;
 }
 

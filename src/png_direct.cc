@@ -103,6 +103,7 @@ bool decode_png_direct(std::span<const uint8_t> b, const ProbeInfo& probe, cv::M
   }
   const size_t w = probe.width, h = probe.height;
   if (w == 0 || h == 0 || w > (1u << 24) / channels || h > (1u << 24)) return false;
+  if (uint64_t{h} * (w * channels + 1) > (uint64_t{1} << 31)) return false;  // huge: libpng (and its limits) decide
   // The IDAT chunks, which must follow one another; a tRNS chunk would add alpha.
   std::vector<Bytes> idat;
   bool idat_done = false;
