@@ -113,7 +113,7 @@ AuditIndex read_tree(const AuditSettings& settings) {
   } else {
     std::vector<uint32_t> all;
     for (uint32_t i = 0; i < r.records.size(); ++i)
-      if (thumbnail_row.size() > i && thumbnail_row[i] >= 0) all.push_back(i);
+      if (thumbnail_row[i] >= 0) all.push_back(i);
     load_thumbnails(all);
     r.groups = find_groups(r.records, gs);
     if (cache) {

@@ -210,35 +210,31 @@ std::vector<int64_t> RecordCache::match(const std::vector<WalkEntry>& entries) c
   return row;
 }
 
-FileRecord RecordCache::take(size_t k) {
-  FileRecord r = std::move(rows_[k]);
-  taken_[k] = 1;
+void RecordCache::identify(FileRecord& r, size_t k) const {
   r.path = paths_[k];
   r.size = stamps_[k].size;
   r.mtime_ns = stamps_[k].mtime_ns;
   r.inode = stamps_[k].inode;
+}
+
+FileRecord RecordCache::take(size_t k) {
+  FileRecord r = std::move(rows_[k]);
+  taken_[k] = 1;
+  identify(r, k);
   return r;
 }
 
 std::vector<FileRecord> RecordCache::take_all() {
   std::vector<FileRecord> out = std::move(rows_);
   rows_.clear();  // every row is taken: copy() is never asked for one
-  for (size_t k = 0; k < out.size(); ++k) {
-    out[k].path = paths_[k];
-    out[k].size = stamps_[k].size;
-    out[k].mtime_ns = stamps_[k].mtime_ns;
-    out[k].inode = stamps_[k].inode;
-  }
+  for (size_t k = 0; k < out.size(); ++k) identify(out[k], k);
   taken_.assign(out.size(), 1);
   return out;
 }
 
 FileRecord RecordCache::copy(size_t k) const {
   FileRecord r = rows_[k];
-  r.path = paths_[k];
-  r.size = stamps_[k].size;
-  r.mtime_ns = stamps_[k].mtime_ns;
-  r.inode = stamps_[k].inode;
+  identify(r, k);
   return r;
 }
 

@@ -9,6 +9,13 @@ namespace tamis {
 
 namespace {
 constexpr double kFlatSd = 2.0;  // grey levels: below this a thumbnail is flat
+
+// A thumbnail's standard deviation in grey levels, from its sums.
+double thumb_sd(const ThumbStats& s) {
+  constexpr double kN = 1024;
+  const double m = s.sum / kN;
+  return std::sqrt(std::max(0.0, double(s.sum_sq) - kN * m * m) / kN);
+}
 }  // namespace
 
 cv::Mat hash_thumbnail(const cv::Mat& reduced) {
@@ -264,18 +271,13 @@ double thumb_correlation(const std::array<uint8_t, 1024>& ta, const ThumbStats& 
   for (int i = 0; i < 1024; ++i) dot += uint32_t{ta[i]} * b[i];
   const double ma = sa.sum / kN, mb = sb.sum / kN;
   const double saa = double(sa.sum_sq) - kN * ma * ma, sbb = double(sb.sum_sq) - kN * mb * mb;
-  const double sda = std::sqrt(std::max(0.0, saa) / kN), sdb = std::sqrt(std::max(0.0, sbb) / kN);
+  const double sda = thumb_sd(sa), sdb = thumb_sd(sb);
   if (sda < kFlatSd && sdb < kFlatSd) return std::abs(ma - mb) <= 4.0 ? 1.0 : 0.0;
   if (sda < kFlatSd || sdb < kFlatSd) return 0.0;
   return (double(dot) - kN * ma * mb) / std::sqrt(saa * sbb);
 }
 
-bool thumb_is_flat(const ThumbStats& s) {
-  constexpr double kN = 1024;
-  const double m = s.sum / kN;
-  const double sd = std::sqrt(std::max(0.0, double(s.sum_sq) - kN * m * m) / kN);
-  return sd < kFlatSd;
-}
+bool thumb_is_flat(const ThumbStats& s) { return thumb_sd(s) < kFlatSd; }
 
 namespace {
 

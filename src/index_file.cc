@@ -40,9 +40,6 @@ std::vector<std::string> strs(const json& j) {
   return out;
 }
 
-}  // namespace
-
-namespace {
 // A CBOR head (RFC 8949, 3.1): major type and length, the length in its shortest form.
 std::vector<uint8_t> cbor_head(uint8_t major, uint64_t n) {
   std::vector<uint8_t> out;

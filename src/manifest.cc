@@ -2,13 +2,10 @@
 
 #include <algorithm>
 #include <charconv>
-#include <cstdio>
 #include <istream>
 #include <numeric>
 #include <stdexcept>
-#include <set>
 #include <string_view>
-#include <unordered_map>
 
 namespace tamis {
 

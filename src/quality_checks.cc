@@ -240,12 +240,16 @@ void check_labels(const std::vector<FileRecord>& records, const Labelling& label
                   const CheckSettings& cs, std::vector<Finding>& out) {
   const auto& names = labels.names;
   std::vector<uint64_t> counts(names.size(), 0);
+  // Each class's images as record indices (4 bytes each; the paths are copied
+  // only for classes that get a finding).
+  std::vector<std::vector<uint32_t>> members_of(names.size());
   for (size_t i = 0; i < records.size(); ++i)
-    if (records[i].kind == FileKind::image && labels.label_of[i] >= 0) ++counts[static_cast<size_t>(labels.label_of[i])];
-  // The paths of class k's images (only classes that get a finding are asked).
+    if (records[i].kind == FileKind::image && labels.label_of[i] >= 0) {
+      ++counts[static_cast<size_t>(labels.label_of[i])];
+      members_of[static_cast<size_t>(labels.label_of[i])].push_back(static_cast<uint32_t>(i));
+    }
   auto class_paths = [&](size_t k, std::vector<std::string>& to) {
-    for (size_t i = 0; i < records.size(); ++i)
-      if (records[i].kind == FileKind::image && labels.label_of[i] == static_cast<int64_t>(k)) to.push_back(records[i].path);
+    for (uint32_t i : members_of[k]) to.push_back(records[i].path);
   };
   // Spellings of one class.
   std::map<std::string, std::vector<size_t>> by_key;

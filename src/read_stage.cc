@@ -50,7 +50,7 @@ bool read_whole(int rootfd, const std::string& rel, uint64_t expect, std::vector
   return true;
 }
 
-enum class Source { read, cached, cached_by_hash };
+enum class Source { read, cached_by_hash };  // (hits by path never reach read_one)
 
 // `from_cache(row)`: a copy of the cached record of that row (a row another
 // entry took is copied from that entry's record).

@@ -99,6 +99,8 @@ class RecordCache {
     auto operator<=>(const ContentKey&) const = default;
   };
   void open_and_load(const std::string& settings_key);
+  // Row k's path, size, modification time and inode (kept apart from its record) into r.
+  void identify(FileRecord& r, size_t k) const;
   std::unique_ptr<Db> db_;
   std::filesystem::path file_;
   std::string root_;
