@@ -10,6 +10,7 @@
 #include "tamis/lookalike_index.h"
 #include "tamis/parallel.h"
 #include "tamis/random.h"
+#include "tamis/simd.h"
 
 using namespace tamis;
 
@@ -133,6 +134,13 @@ std::vector<uint64_t> skewed_codes(size_t n, uint64_t seed) {
 }  // namespace
 
 TEST_CASE("cross join equals brute force on skewed codes, with and without a filter", "[lookalike][index]") {
+  // Both compare loops: AVX-512 (where this processor has it) and one at a time.
+  const bool wide = GENERATE(true, false);
+  allow_wide_paths(wide);
+  INFO((wide && wide_popcount_usable() ? "AVX-512 compare loop" : "one-at-a-time compare loop"));
+  struct Restore {
+    ~Restore() { allow_wide_paths(true); }
+  } restore;
   for (int r : {0, 2, 5, 8, 12}) {
     auto a = skewed_codes(3000, 40 + r), b = skewed_codes(800, 90 + r);
     Pairs slow = cross_brute_force(a, b, r);

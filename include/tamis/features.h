@@ -75,8 +75,11 @@ bool thumb_is_flat(const ThumbStats& s);
 // (without the DC term, which centring makes 0) of the DCT of a', rounded to
 // int8 (x 127; 63 bytes an image while the look-alike stage runs). A flip/turn
 // of the image maps the block onto itself (a transpose, and sign changes at odd
-// frequencies), so one sketch serves all 8.
-using ThumbSketch = std::array<int8_t, 63>;
+// frequencies), so one sketch serves all 8. The 63 values fill a 64-byte line
+// whose last byte is 0, so a sketch is one aligned load for the wide path.
+struct alignas(64) ThumbSketch {
+  std::array<int8_t, 64> c{};  // c[k - 1]: coefficient k = 8u + v of the block, k = 1..63; c[63] = 0
+};
 // REQUIRES: !thumb_is_flat(s), s = thumb_stats(thumb).
 ThumbSketch thumb_sketch(const std::array<uint8_t, 1024>& thumb, const ThumbStats& s);
 // False only when corr(transform t of a, b) < min_correlation for certain (the

@@ -21,7 +21,8 @@
 // compared in full. Same pigeonhole argument, so the same exact answer, with
 // sequential instead of random memory access. Before the substrings are cut, the
 // bit positions are permuted (distances are kept) so that each substring gets an
-// even share of the bits that vary: real hashes are far from uniform.
+// even share of the bits that vary: real hashes are far from uniform. The joins
+// compare eight codes an instruction where the processor allows (simd.h).
 #pragma once
 
 #include <cstddef>
