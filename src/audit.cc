@@ -17,8 +17,6 @@ AuditIndex read_tree(const AuditSettings& settings) {
   r.settings = settings;
   r.settings.read.on_progress = nullptr;
   StageClock clock(&r.times);
-  r.walk = walk_tree(settings.root, settings.read.threads);
-  clock.lap("walk");
   std::unique_ptr<RecordCache> cache;
   if (!settings.cache_file.empty()) {
     const auto& d = settings.read.decode;
@@ -31,12 +29,16 @@ AuditIndex read_tree(const AuditSettings& settings) {
       r.cache_note = std::string("the cache cannot be used: ") + e.what();
     }
   }
+  if (cache) clock.lap("cache load");
+  // Files are stat'ed by the walk only when stored records may match them;
+  // otherwise every file is opened anyway, and stamped from its descriptor.
+  r.walk = walk_tree(settings.root, settings.read.threads, cache && cache->rows() > 0);
+  clock.lap("walk");
   ReadOptions ro = settings.read;
   ro.cache = cache.get();
   ro.counts = &r.counts;
   std::vector<int64_t> thumbnail_row;  // records whose thumbnail is still in the cache
   ro.thumbnail_row = &thumbnail_row;
-  if (cache) clock.lap("cache load");
   r.records = read_files(settings.root, r.walk.files, ro);
   clock.lap("read");
   // Thumbnails of records that came from the cache, loaded only where needed; a

@@ -1,6 +1,7 @@
 #include "tamis/read_stage.h"
 
 #include <fcntl.h>
+#include <sys/stat.h>
 #include <unistd.h>
 #include <xxhash.h>
 
@@ -25,21 +26,25 @@ struct Fd {
   }
 };
 
-// Reads the whole file into `buf` (reused across calls). False on any error or
-// when the file is no longer `expect` bytes long. Three system calls: no fstat,
-// as the walk has just seen a regular file of that size; one byte more than
-// expected is asked for, so a file that grew shows it, and a short read of a
-// regular file means its end. Whatever replaced the file since fails here: a
-// folder refuses the read, a FIFO (opened without blocking) has no data, a
-// device gives too much.
-bool read_whole(int rootfd, const std::string& rel, uint64_t expect, std::vector<uint8_t>& buf) {
-  Fd f{openat(rootfd, rel.c_str(), O_RDONLY | O_NOFOLLOW | O_CLOEXEC | O_NOCTTY | O_NONBLOCK)};
-  if (f.fd < 0) return false;
+// Opens `rel` for reading: read-only, never through a symbolic link, without
+// blocking (whatever replaced the file since it was listed fails the read: a
+// folder refuses it, a FIFO has no data, a device gives too much).
+int open_file(int rootfd, const std::string& rel) {
+  return openat(rootfd, rel.c_str(), O_RDONLY | O_NOFOLLOW | O_CLOEXEC | O_NOCTTY | O_NONBLOCK);
+}
+
+// Reads the whole open file into `buf` (reused across calls). False on any error
+// or when the file is no longer `expect` bytes long. No fstat: the walk (or the
+// caller, from this descriptor) has just seen a regular file of that size; one
+// byte more than expected is asked for, so a file that grew shows it, and a
+// short read of a regular file means its end.
+bool read_whole(int fd, uint64_t expect, std::vector<uint8_t>& buf) {
+  if (fd < 0) return false;
   buf.resize(expect + 1);
   size_t got = 0;
   while (got <= expect) {
     const size_t want = expect + 1 - got;
-    ssize_t n = read(f.fd, buf.data() + got, want);
+    ssize_t n = read(fd, buf.data() + got, want);
     if (n < 0 && errno == EINTR) continue;
     if (n < 0) return false;
     got += static_cast<size_t>(n);
@@ -48,6 +53,12 @@ bool read_whole(int rootfd, const std::string& rel, uint64_t expect, std::vector
   if (got != expect) return false;
   buf.resize(expect);
   return true;
+}
+
+void set_stamp(FileRecord& r, const struct stat& st) {
+  r.size = static_cast<uint64_t>(st.st_size);
+  r.mtime_ns = static_cast<int64_t>(st.st_mtim.tv_sec) * 1000000000LL + st.st_mtim.tv_nsec;
+  r.inode = st.st_ino;
 }
 
 enum class Source { read, cached_by_hash };  // (hits by path never reach read_one)
@@ -68,10 +79,21 @@ Source read_one(int rootfd, const WalkEntry& e, const ReadOptions& opt, std::vec
   if (is_hidden_path(e.path)) {
     r.kind = FileKind::ignored;
     r.defect = Defect::hidden;
+    struct stat st {};
+    if (!e.stamped && fstatat(rootfd, e.path.c_str(), &st, AT_SYMLINK_NOFOLLOW) == 0) set_stamp(r, st);
     return Source::read;
   }
   bool image_name = format_from_extension(e.path) != Format::unknown || has_other_image_extension(e.path);
-  if (e.size > opt.max_bytes) {
+  // A file the walk did not stat is stamped from its open descriptor.
+  Fd f;
+  bool opened = true;
+  if (!e.stamped) {
+    f.fd = open_file(rootfd, e.path);
+    struct stat st {};
+    opened = f.fd >= 0 && fstat(f.fd, &st) == 0 && S_ISREG(st.st_mode);
+    if (opened) set_stamp(r, st);
+  }
+  if (opened && r.size > opt.max_bytes) {
     if (image_name) {
       unreadable(Defect::too_many_bytes);
       return Source::read;
@@ -80,7 +102,8 @@ Source read_one(int rootfd, const WalkEntry& e, const ReadOptions& opt, std::vec
     r.defect = Defect::not_an_image;
     return Source::read;
   }
-  if (!read_whole(rootfd, e.path, e.size, buf)) {
+  if (opened && f.fd < 0) f.fd = open_file(rootfd, e.path);
+  if (!opened || !read_whole(f.fd, r.size, buf)) {
     // A file we cannot read is only "ours" if it claims to be an image.
     if (image_name) {
       unreadable(Defect::io_error);
@@ -108,12 +131,12 @@ Source read_one(int rootfd, const WalkEntry& e, const ReadOptions& opt, std::vec
   r.features.content_hash = {h.high64, h.low64};
   r.features.has_content_hash = true;
   if (opt.cache) {  // the same bytes under another name: reuse, do not decode
-    if (int64_t row = opt.cache->row_with_content(r.features.content_hash, e.size); row >= 0) {
+    if (int64_t row = opt.cache->row_with_content(r.features.content_hash, r.size); row >= 0) {
       FileRecord copy = from_cache(static_cast<size_t>(row));
       copy.path = e.path;
-      copy.size = e.size;
-      copy.mtime_ns = e.mtime_ns;
-      copy.inode = e.inode;
+      copy.size = r.size;
+      copy.mtime_ns = r.mtime_ns;
+      copy.inode = r.inode;
       r = std::move(copy);
       return Source::cached_by_hash;
     }

@@ -34,7 +34,7 @@ int64_t to_ns(const struct timespec& ts) {
 // types sort the entries; regular files are then stat'ed in parallel.
 class TreeWalker {
  public:
-  TreeWalker(int rootfd, WalkResult& out) : rootfd_(rootfd), out_(out) {}
+  TreeWalker(int rootfd, WalkResult& out, bool stat_files) : rootfd_(rootfd), out_(out), stat_files_(stat_files) {}
 
   void run(unsigned threads) {
     std::vector<std::string> stack{""};
@@ -43,6 +43,16 @@ class TreeWalker {
       stack.pop_back();
       std::vector<std::string> subdirs = list_dir(rel);
       for (auto it = subdirs.rbegin(); it != subdirs.rend(); ++it) stack.push_back(std::move(*it));
+    }
+    if (!stat_files_) {  // typed as regular files by the listing; stamped when read
+      out_.files.reserve(pending_.size());
+      for (auto& p : pending_) {
+        WalkEntry w;
+        w.path = std::move(p);
+        w.stamped = false;
+        out_.files.push_back(std::move(w));
+      }
+      return;
     }
     // Size, time and inode of every regular file: one fstatat each, on all
     // threads. An entry that changed since it was listed goes where its stat says.
@@ -124,19 +134,20 @@ class TreeWalker {
 
   int rootfd_;
   WalkResult& out_;
+  bool stat_files_;
   std::set<std::pair<dev_t, ino_t>> visited_;
   std::vector<std::string> pending_;  // regular files by their folder entry, to stat
 };
 
 }  // namespace
 
-WalkResult walk_tree(const std::filesystem::path& root, unsigned threads) {
+WalkResult walk_tree(const std::filesystem::path& root, unsigned threads, bool stat_files) {
   int fd = open(root.c_str(), O_RDONLY | O_DIRECTORY | O_CLOEXEC);
   if (fd < 0) {
     throw std::runtime_error("cannot open folder " + root.string() + ": " + std::strerror(errno));
   }
   WalkResult out;
-  TreeWalker(fd, out).run(threads);
+  TreeWalker(fd, out, stat_files).run(threads);
   close(fd);
   auto by_path = [](const WalkEntry& a, const WalkEntry& b) { return a.path < b.path; };
   std::sort(out.files.begin(), out.files.end(), by_path);

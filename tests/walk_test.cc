@@ -1,6 +1,7 @@
 // Walk tests: order, links, loops, hidden and stray files.
 #include <catch2/catch.hpp>
 
+#include <sys/stat.h>
 #include <unistd.h>
 
 #include <algorithm>
@@ -92,5 +93,36 @@ TEST_CASE("labels come from the first folder, split folders are recognised", "[l
   SECTION("a class named like a split does not make the tree pre-split") {
     std::vector<FileRecord> rs{rec("test/a.png"), rec("oak/b.png")};
     CHECK_FALSE(assign_labels(rs).pre_split);
+  }
+}
+
+TEST_CASE("a walk that does not stat lists the same files, and the read stage stamps them as stat(2) does",
+          "[walk][read]") {
+  // The reference is the stat(2) system call itself, on each path.
+  test::TempDir t;
+  for (const char* n : {"a/x.png", "a/y.txt", "b/.hidden.png", ".top/z.png", "b/sub/w.jpg"})
+    test::write_text(t / n, std::string(n) + " some bytes");
+  fs::create_symlink(t / "a/x.png", t / "a/alias.png");
+  WalkResult with = walk_tree(t.path(), 2, true), without = walk_tree(t.path(), 2, false);
+  REQUIRE(with.files.size() == 5);
+  REQUIRE(without.files.size() == with.files.size());
+  CHECK(without.links == with.links);
+  ReadOptions ro;
+  ro.threads = 2;
+  std::vector<FileRecord> a = read_files(t.path(), with.files, ro), b = read_files(t.path(), without.files, ro);
+  for (size_t i = 0; i < with.files.size(); ++i) {
+    INFO(with.files[i].path);
+    CHECK(with.files[i].stamped);
+    CHECK_FALSE(without.files[i].stamped);
+    CHECK(without.files[i].path == with.files[i].path);
+    struct stat st {};
+    REQUIRE(lstat((t / with.files[i].path).c_str(), &st) == 0);
+    for (const FileRecord* r : {&a[i], &b[i]}) {
+      CHECK(r->size == static_cast<uint64_t>(st.st_size));
+      CHECK(r->mtime_ns == static_cast<int64_t>(st.st_mtim.tv_sec) * 1000000000LL + st.st_mtim.tv_nsec);
+      CHECK(r->inode == st.st_ino);
+    }
+    CHECK(a[i].kind == b[i].kind);
+    CHECK(a[i].defect == b[i].defect);
   }
 }

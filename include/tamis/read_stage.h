@@ -6,7 +6,8 @@
 // limits); compute the content features from the same bytes and pixels.
 // Anything that fails makes the file `unreadable` with a Defect; nothing here
 // throws for a bad file. Files are opened read-only and never followed through
-// a symbolic link.
+// a symbolic link. An entry the walk did not stat (stamped = false) gets its
+// size, time and inode from the open descriptor.
 //
 // With a cache, a file whose path, size, modification time and inode match a
 // stored record is not opened; one whose bytes hash to a stored record is not

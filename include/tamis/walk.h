@@ -26,6 +26,7 @@ struct WalkEntry {
   int64_t mtime_ns = 0;
   uint64_t inode = 0;
   uint64_t device = 0;
+  bool stamped = true;  // size, time, inode and device filled (false: not stat'ed, see walk_tree)
 };
 
 struct WalkResult {
@@ -37,7 +38,11 @@ struct WalkResult {
 
 // Walks ROOT. Throws std::runtime_error when ROOT itself is not a readable folder.
 // `threads` stat the files (0 = all cores); the result does not depend on it.
-WalkResult walk_tree(const std::filesystem::path& root, unsigned threads = 0);
+// With `stat_files` false, files the folder listing already types as regular are
+// not stat'ed (stamped = false): for a caller that opens every file anyway and
+// takes the stamp from the open descriptor (the read stage without cache rows),
+// which saves one path lookup a file.
+WalkResult walk_tree(const std::filesystem::path& root, unsigned threads = 0, bool stat_files = true);
 
 // True when `child` is ROOT or lies inside it (after resolving both to canonical
 // paths where they exist). Used to refuse outputs inside the data set.
