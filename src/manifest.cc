@@ -34,12 +34,26 @@ RecordFlags record_flags(const AuditResult& result) {
   std::iota(by_path.begin(), by_path.end(), 0u);
   auto path_less = [&](uint32_t a, uint32_t b) { return records[a].path < records[b].path; };
   if (!std::is_sorted(by_path.begin(), by_path.end(), path_less)) std::sort(by_path.begin(), by_path.end(), path_less);
+  auto below = [&](uint32_t i, const std::string& v) { return records[i].path < v; };
   for (const auto& f : result.findings) {
     const auto code = static_cast<uint32_t>(std::lower_bound(out.codes.begin(), out.codes.end(), f.code) - out.codes.begin());
+    // A finding's paths are sorted (sort_findings): each is searched for from
+    // where the last was found, by galloping (steps 1, 2, 4, ... then halving),
+    // so a finding naming every file costs a pass, not a binary search a path.
+    const bool sorted = std::is_sorted(f.paths.begin(), f.paths.end());
+    auto from = by_path.begin();
     for (const auto& p : f.paths) {
-      auto it = std::lower_bound(by_path.begin(), by_path.end(), p,
-                                 [&](uint32_t i, const std::string& v) { return records[i].path < v; });
+      if (!sorted) from = by_path.begin();
+      size_t step = 1;
+      auto to = from;
+      while (to != by_path.end() && below(*to, p)) {
+        from = to + 1;
+        to = static_cast<size_t>(by_path.end() - from) > step ? from + static_cast<long>(step) : by_path.end();
+        step *= 2;
+      }
+      auto it = std::lower_bound(from, to, p, below);
       if (it != by_path.end() && records[*it].path == p) out.pairs.emplace_back(*it, code);
+      from = it;
     }
   }
   std::sort(out.pairs.begin(), out.pairs.end());

@@ -11,17 +11,24 @@ namespace tamis {
 
 namespace {
 
+// Paths by finding code, and the measurements of the first few files of each
+// (built only for those: `measure` is called while a code has under 50).
 struct Collector {
-  std::map<std::string, std::vector<std::string>> paths;  // code -> paths
-  std::map<std::string, nlohmann::json> examples;         // code -> measurements of the first few files
-  void add(const std::string& code, const FileRecord& r, nlohmann::json measure = nullptr) {
-    auto& v = paths[code];
-    v.push_back(r.path);
-    if (!measure.is_null()) {
-      auto& e = examples[code];
-      if (e.is_null()) e = nlohmann::json::array();
-      if (e.size() < 50) e.push_back({{"path", r.path}, {"measure", measure}});
-    }
+  std::map<std::string, std::vector<std::string>, std::less<>> paths;  // code -> paths
+  std::map<std::string, nlohmann::json, std::less<>> examples;         // code -> measurements
+  template <typename Map>
+  static typename Map::mapped_type& slot(Map& m, std::string_view code) {
+    auto it = m.find(code);
+    if (it == m.end()) it = m.emplace(std::string(code), typename Map::mapped_type{}).first;
+    return it->second;
+  }
+  void add(std::string_view code, const FileRecord& r) { slot(paths, code).push_back(r.path); }
+  template <typename Measure>
+  void add(std::string_view code, const FileRecord& r, const Measure& measure) {
+    add(code, r);
+    auto& e = slot(examples, code);
+    if (e.is_null()) e = nlohmann::json::array();
+    if (e.size() < 50) e.push_back({{"path", r.path}, {"measure", measure()}});
   }
 };
 
@@ -100,7 +107,7 @@ void check_images(const std::vector<FileRecord>& records, const Labelling& label
     const auto& st = r.features.stats;
     const size_t c = labels.label_of[i] >= 0 ? static_cast<size_t>(labels.label_of[i]) : nc;
     const uint32_t shorter = std::min(p.width, p.height);
-    if (shorter < cs.min_side) col.add("tiny-image", r, {{"width", p.width}, {"height", p.height}});
+    if (shorter < cs.min_side) col.add("tiny-image", r, [&] { return nlohmann::json{{"width", p.width}, {"height", p.height}}; });
     if (shorter < cs.input_side) {
       ++upscaled;
       col.add("below-input-size", r);
@@ -108,11 +115,15 @@ void check_images(const std::vector<FileRecord>& records, const Labelling& label
     if (aspect.usable) {
       double la = std::log(double(p.width) / p.height);
       if (std::abs(la - aspect.median) > std::log(2.0))
-        col.add("odd-aspect", r, {{"aspect", round2(double(p.width) / p.height)}, {"set_median", round2(std::exp(aspect.median))}});
+        col.add("odd-aspect", r, [&] {
+          return nlohmann::json{{"aspect", round2(double(p.width) / p.height)}, {"set_median", round2(std::exp(aspect.median))}};
+        });
     }
     if (r.features.has_lookalike) {
-      nlohmann::json m = {{"mean", round2(st.luma_mean)}, {"std", round2(st.luma_std)}, {"entropy", round2(st.entropy)},
-                          {"focus", round2(st.focus)}};
+      auto m = [&] {
+        return nlohmann::json{{"mean", round2(st.luma_mean)}, {"std", round2(st.luma_std)},
+                              {"entropy", round2(st.entropy)}, {"focus", round2(st.focus)}};
+      };
       if (st.luma_std < 3.0) {
         col.add("near-uniform", r, m);
       } else {
@@ -126,20 +137,23 @@ void check_images(const std::vector<FileRecord>& records, const Labelling& label
       if (colour && st.channels_equal) col.add("gray-as-rgb", r);
       bool alpha = p.mode == ColorMode::rgba || p.mode == ColorMode::graya;
       if (alpha && st.alpha_min == 255) col.add("alpha-unused", r);
-      if (st.alpha_min < 255) col.add("transparency", r, {{"alpha_min", st.alpha_min}});
+      if (st.alpha_min < 255) col.add("transparency", r, [&] { return nlohmann::json{{"alpha_min", st.alpha_min}}; });
     }
-    if (p.bit_depth > 8) col.add("deep-bit-depth", r, {{"bit_depth", p.bit_depth}});
+    if (p.bit_depth > 8) col.add("deep-bit-depth", r, [&] { return nlohmann::json{{"bit_depth", p.bit_depth}}; });
     if (p.mode == ColorMode::palette) col.add("palette-image", r);
     if (p.mode == ColorMode::cmyk) col.add("cmyk-image", r);
-    if (p.frames > 1) col.add("multi-frame", r, {{"frames", p.frames}});
+    if (p.frames > 1) col.add("multi-frame", r, [&] { return nlohmann::json{{"frames", p.frames}}; });
     Format by_name = format_from_extension(r.path);
     if (by_name != p.format)
-      col.add("extension-mismatch", r, {{"bytes", to_string(p.format)}, {"extension", to_string(by_name)}});
+      col.add("extension-mismatch", r, [&] {
+        return nlohmann::json{{"bytes", to_string(p.format)}, {"extension", to_string(by_name)}};
+      });
     if (p.orientation >= 2) {
       bool swaps = p.orientation >= 5;
-      col.add("exif-rotated", r,
-              {{"orientation", p.orientation}, {"stored", {p.width, p.height}},
-               {"displayed", {swaps ? p.height : p.width, swaps ? p.width : p.height}}});
+      col.add("exif-rotated", r, [&] {
+        return nlohmann::json{{"orientation", p.orientation}, {"stored", {p.width, p.height}},
+                              {"displayed", {swaps ? p.height : p.width, swaps ? p.width : p.height}}};
+      });
     }
     if (p.has_gps) col.add("gps-location", r);
   }

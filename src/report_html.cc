@@ -35,6 +35,21 @@ std::string str(const json& j) {
 }
 std::string esc(const json& j) { return html_escape(str(j)); }
 
+// The member `key` of object `j` by reference, or an empty array / object when
+// it is missing (json::value() would copy it: a finding's paths can be 70,000).
+const json& array_at(const json& j, const char* key) {
+  static const json empty = json::array();
+  if (!j.is_object()) return empty;
+  auto it = j.find(key);
+  return it != j.end() ? *it : empty;
+}
+const json& object_at(const json& j, const char* key) {
+  static const json empty = json::object();
+  if (!j.is_object()) return empty;
+  auto it = j.find(key);
+  return it != j.end() ? *it : empty;
+}
+
 const char* kStyle = R"CSS(
 :root{--ink:#1d2a30;--paper:#f6f1e9;--card:#fffdf8;--rule:#d9cfbf;--teal:#0f4c5c;--ochre:#e36414;--moss:#5f7f3a;--plum:#7a3b69}
 *{box-sizing:border-box}body{margin:0;font:15px/1.45 system-ui,-apple-system,"Segoe UI",sans-serif;color:var(--ink);background:var(--paper)}
@@ -70,7 +85,7 @@ void tiles(std::ostringstream& o, const json& t) {
 }
 
 void classes(std::ostringstream& o, const json& report) {
-  const json& cl = report.value("classes", json::array());
+  const json& cl = array_at(report, "classes");
   o << "<section id=\"classes\"><h2>Classes and splits</h2>";
   if (cl.empty()) {
     o << "<p class=\"note\">No labelled images.</p></section>\n";
@@ -92,7 +107,7 @@ void classes(std::ostringstream& o, const json& report) {
   for (const auto& c : cl) {
     if (shown++ == kMaxRows) break;
     uint64_t n = c.value("count", uint64_t{0});
-    const json& s = c.value("splits", json::object());
+    const json& s = object_at(c, "splits");
     uint64_t tr = s.value("train", uint64_t{0}), va = s.value("val", uint64_t{0}), te = s.value("test", uint64_t{0});
     uint64_t ex = c.value("excluded", uint64_t{0});
     double w = largest ? 100.0 * n / largest : 0;
@@ -110,8 +125,8 @@ void classes(std::ostringstream& o, const json& report) {
 
 void storage(std::ostringstream& o, const json& report) {
   o << "<section id=\"storage\"><h2>Formats and colour modes</h2><table><tr><th>format</th><th class=\"num\">images</th></tr>";
-  const json formats = report.value("formats", json::object());
-  const json modes = report.value("modes", json::object());
+  const json& formats = object_at(report, "formats");
+  const json& modes = object_at(report, "modes");
   for (const auto& [k, v] : formats.items())
     o << "<tr><td>" << html_escape(k) << "</td><td class=\"num\">" << esc(v) << "</td></tr>";
   o << "</table><br><table><tr><th>mode / bits per sample</th><th class=\"num\">images</th></tr>";
@@ -122,7 +137,7 @@ void storage(std::ostringstream& o, const json& report) {
 
 std::string join_labels(const json& g) {
   std::string out;
-  for (const auto& l : g.value("labels", json::array())) out += (out.empty() ? "" : ", ") + str(l);
+  for (const auto& l : array_at(g, "labels")) out += (out.empty() ? "" : ", ") + str(l);
   return out;
 }
 
@@ -136,8 +151,8 @@ std::string class_of_path(const std::string& p, bool pre_split) {
 }
 
 void findings(std::ostringstream& o, const json& report) {
-  const json& fs = report.value("findings", json::array());
-  const bool pre_split = report.value("layout", json::object()).value("pre_split", false);
+  const json& fs = array_at(report, "findings");
+  const bool pre_split = object_at(report, "layout").value("pre_split", false);
   o << "<section id=\"findings\"><h2>Findings</h2>";
   if (fs.empty()) {
     o << "<p class=\"note\">Nothing to report.</p></section>\n";
@@ -145,7 +160,7 @@ void findings(std::ostringstream& o, const json& report) {
   }
   std::set<std::string> codes, classes;
   for (const auto& f : fs) codes.insert(str(f.value("code", json(""))));
-  for (const auto& c : report.value("classes", json::array())) classes.insert(str(c.value("label", json(""))));
+  for (const auto& c : array_at(report, "classes")) classes.insert(str(c.value("label", json(""))));
   o << "<div class=\"filters\"><label>severity <select id=\"f-sev\"><option value=\"\">all</option>"
        "<option>error</option><option>warning</option><option>info</option></select></label>"
        "<label>code <select id=\"f-code\"><option value=\"\">all</option>";
@@ -159,13 +174,13 @@ void findings(std::ostringstream& o, const json& report) {
   for (const auto& f : fs) {
     if (shown++ == kMaxRows) break;
     std::string sev = str(f.value("severity", json("info")));
-    const json& paths = f.value("paths", json::array());
+    const json& paths = array_at(f, "paths");
     std::set<std::string> row_classes;
     for (const auto& p : paths) {
       std::string c = class_of_path(str(p), pre_split);
       if (!c.empty()) row_classes.insert(c);
     }
-    const json& details = f.value("details", json::object());
+    const json& details = object_at(f, "details");
     if (details.contains("label") && details["label"].is_string()) row_classes.insert(details["label"].get<std::string>());
     if (details.contains("labels") && details["labels"].is_array())
       for (const auto& l : details["labels"]) if (l.is_string()) row_classes.insert(l.get<std::string>());
@@ -194,7 +209,7 @@ void findings(std::ostringstream& o, const json& report) {
 }
 
 void sizes(std::ostringstream& o, const json& report) {
-  const json& sz = report.value("sizes", json::array());
+  const json& sz = array_at(report, "sizes");
   if (sz.empty()) return;
   // Log-log scatter of stored width x height; circle area grows with the count.
   double max_side = 16;
@@ -239,19 +254,19 @@ void sizes(std::ostringstream& o, const json& report) {
 }
 
 void mask_pairs(std::ostringstream& o, const json& report, const Thumbnails& thumbs) {
-  const json& m = report.value("masks", json::object());
-  const json& pairs = m.value("pairs", json::array());
+  const json& m = object_at(report, "masks");
+  const json& pairs = array_at(m, "pairs");
   if (pairs.empty()) return;
   o << "<section id=\"masks\"><h2>Masks and their images</h2><p class=\"note\">" << pairs.size()
     << " images have a mask or annotation twin; masks are not counted as images or classes.</p><table class=\"narrow\">"
        "<tr><th>class</th><th class=\"num\">pairs</th></tr>";
-  for (const auto& c : m.value("pairs_per_class", json::array()))
+  for (const auto& c : array_at(m, "pairs_per_class"))
     o << "<tr><td class=\"path\">" << esc(c.value("label", json(""))) << "</td><td class=\"num\">"
       << esc(c.value("pairs", json(0))) << "</td></tr>";
   o << "</table><table class=\"narrow\"><tr><th>folder</th><th>beside</th><th>layout</th><th class=\"num\">pairs</th>"
        "<th class=\"num\">confirmed</th><th>masks?</th></tr>";
   size_t k = 0;
-  for (const auto& e : m.value("folders", json::array())) {
+  for (const auto& e : array_at(m, "folders")) {
     if (k++ == 50) break;
     o << "<tr><td class=\"path\">" << esc(e.value("folder", json(""))) << "</td><td class=\"path\">"
       << esc(e.value("partner", json(""))) << "</td><td>" << esc(e.value("layout", json(""))) << "</td><td class=\"num\">"
@@ -271,7 +286,7 @@ void mask_pairs(std::ostringstream& o, const json& report, const Thumbnails& thu
 }
 
 void groups(std::ostringstream& o, const json& report, const Thumbnails& thumbs) {
-  const json& gs = report.value("groups", json::array());
+  const json& gs = array_at(report, "groups");
   if (gs.empty()) return;
   o << "<section id=\"groups\"><h2>Copies and look-alikes</h2><p class=\"note\">" << gs.size()
     << " groups; each strip shows the first images of a group (its 32x32 look-alike thumbnails) with their paths.</p>";
@@ -283,10 +298,10 @@ void groups(std::ostringstream& o, const json& report, const Thumbnails& thumbs)
     }
     std::string id = str(g.value("id", json("")));
     o << "<div class=\"group\"><div class=\"gh\"><b>" << html_escape(id) << "</b> " << esc(g.value("kind", json("")))
-      << " · " << g.value("paths", json::array()).size() << " images · " << html_escape(join_labels(g)) << "</div><div class=\"strip\">";
+      << " · " << array_at(g, "paths").size() << " images · " << html_escape(join_labels(g)) << "</div><div class=\"strip\">";
     auto it = thumbs.find(id);
     size_t k = 0;
-    for (const auto& p : g.value("paths", json::array())) {
+    for (const auto& p : array_at(g, "paths")) {
       if (k++ == 8) break;
       std::string path = str(p);
       std::string uri;
@@ -304,7 +319,7 @@ void groups(std::ostringstream& o, const json& report, const Thumbnails& thumbs)
 }
 
 void ignored(std::ostringstream& o, const json& report) {
-  const json& ig = report.value("ignored", json::array());
+  const json& ig = array_at(report, "ignored");
   if (ig.empty()) return;
   o << "<section id=\"ignored\"><h2>Files left aside</h2><table><tr><th>path</th><th>why</th></tr>";
   size_t shown = 0;
@@ -340,15 +355,15 @@ return up?x-y:y-x;});up=!up;rows.forEach(function(r){t.tBodies[0].appendChild(r)
 
 std::string render_html(const json& report, const Thumbnails& thumbs) {
   std::ostringstream o;
-  const json& tool = report.value("tool", json::object());
+  const json& tool = object_at(report, "tool");
   o << "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
        "<meta http-equiv=\"Content-Security-Policy\" content=\"default-src 'none'; style-src 'unsafe-inline'; img-src data:; script-src '"
     << kScriptHash << "'\">"
        "<meta name=\"viewport\" content=\"width=device-width,initial-scale=1\"><title>tamis audit</title><style>"
     << kStyle << "</style></head><body>\n<header><h1>tamis audit</h1><p>" << esc(tool.value("name", json("tamis")))
     << " " << esc(tool.value("version", json(""))) << " · seed "
-    << esc(report.value("settings", json::object()).value("seed", json(1))) << "</p></header><main>\n";
-  tiles(o, report.value("totals", json::object()));
+    << esc(object_at(report, "settings").value("seed", json(1))) << "</p></header><main>\n";
+  tiles(o, object_at(report, "totals"));
   findings(o, report);
   classes(o, report);
   groups(o, report, thumbs);
