@@ -67,7 +67,7 @@ std::vector<uint8_t> cbor_head(uint8_t major, uint64_t n) {
 }
 }  // namespace
 
-void save_index(const std::filesystem::path& file, const AuditIndex& x) {
+void save_index(const std::filesystem::path& file, const AuditIndex& x, StagedFiles* staged) {
   json j;
   j["format"] = "tamis-index";
   j["version"] = kIndexVersion;
@@ -115,7 +115,7 @@ void save_index(const std::filesystem::path& file, const AuditIndex& x) {
   // time into the stream rather than built into one tree first (that tree took
   // about 560 bytes a record). The bytes are what json::to_cbor gives for the whole object: maps
   // with their keys in sorted order, each length and integer in its shortest form.
-  write_file_atomically(file, [&](std::ostream& os) {
+  auto write = [&](std::ostream& os) {
     auto put = [&](const std::vector<uint8_t>& b) {
       os.write(reinterpret_cast<const char*>(b.data()), static_cast<std::streamsize>(b.size()));
     };
@@ -172,7 +172,12 @@ void save_index(const std::filesystem::path& file, const AuditIndex& x) {
       }
     };
     put_value(j, "");
-  });
+  };
+  if (staged) {
+    staged->write(file, write);
+  } else {
+    write_file_atomically(file, write);
+  }
 }
 
 AuditIndex load_index(const std::filesystem::path& file) {

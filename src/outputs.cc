@@ -95,17 +95,19 @@ void write_outputs(const std::filesystem::path& out_dir, const AuditResult& resu
   std::filesystem::create_directories(out_dir, ec);
   if (ec) throw std::runtime_error("cannot create output folder " + out_dir.string() + ": " + ec.message());
   // Two at a time: the reports on a second thread, the manifest and the index on
-  // this one. Each only reads the result.
+  // this one. Each only reads the result. All four are put in place together
+  // once all are written (a failure leaves the previous outputs as they were).
+  StagedFiles staged;
   std::vector<StageTime> report_times, table_times;
   std::exception_ptr report_error;
   std::thread reports([&] {
     try {
       StageClock c(&report_times);
       nlohmann::json report = build_report(result);
-      write_file_atomically(out_dir / "report.json", [&](std::ostream& os) { os << dump_json(report) << '\n'; });
+      staged.write(out_dir / "report.json", [&](std::ostream& os) { os << dump_json(report) << '\n'; });
       c.lap("report.json");
       Thumbnails thumbs = group_thumbnails(result, thumbnail_budget);
-      write_file_atomically(out_dir / "report.html", [&](std::ostream& os) { os << render_html(report, thumbs); });
+      staged.write(out_dir / "report.html", [&](std::ostream& os) { os << render_html(report, thumbs); });
       c.lap("report.html");
     } catch (...) {
       report_error = std::current_exception();
@@ -114,9 +116,9 @@ void write_outputs(const std::filesystem::path& out_dir, const AuditResult& resu
   std::exception_ptr table_error;
   try {
     StageClock c(&table_times);
-    write_file_atomically(out_dir / "manifest.csv", [&](std::ostream& os) { write_manifest(os, result); });
+    staged.write(out_dir / "manifest.csv", [&](std::ostream& os) { write_manifest(os, result); });
     c.lap("manifest.csv");
-    save_index(out_dir / kIndexFileName, result);
+    save_index(out_dir / kIndexFileName, result, &staged);
     c.lap("index.cbor");
   } catch (...) {
     table_error = std::current_exception();
@@ -124,6 +126,7 @@ void write_outputs(const std::filesystem::path& out_dir, const AuditResult& resu
   reports.join();
   if (table_error) std::rethrow_exception(table_error);
   if (report_error) std::rethrow_exception(report_error);
+  staged.commit();
   clock.lap("outputs");
   if (times) {  // each file's own time, overlapping the other thread's
     for (const auto* part : {&table_times, &report_times})

@@ -4,7 +4,11 @@
 
 #include <filesystem>
 #include <functional>
+#include <mutex>
 #include <ostream>
+#include <thread>
+#include <utility>
+#include <vector>
 
 namespace tamis {
 
@@ -12,5 +16,26 @@ namespace tamis {
 // fsyncs it, then renames it to `target`. On any failure the temporary file is
 // removed and std::runtime_error is thrown; `target` is then left as it was.
 void write_file_atomically(const std::filesystem::path& target, const std::function<void(std::ostream&)>& write);
+
+// Several output files put in place together: each is written under a temporary
+// name (from any thread) and its fsync starts at once on a thread of its own (the
+// wait for the disk overlaps the making of the next file); commit() waits for
+// them all, then renames each into place. A file whose
+// writing failed throws from write(); temporaries never committed are removed
+// when the set is destroyed, so a failed run leaves the previous outputs as they were.
+class StagedFiles {
+ public:
+  StagedFiles() = default;
+  StagedFiles(const StagedFiles&) = delete;
+  StagedFiles& operator=(const StagedFiles&) = delete;
+  ~StagedFiles();
+  void write(const std::filesystem::path& target, const std::function<void(std::ostream&)>& write);
+  void commit();
+
+ private:
+  std::mutex mu_;
+  std::vector<std::pair<std::filesystem::path, std::filesystem::path>> staged_;  // (temporary, target)
+  std::vector<std::thread> syncs_;
+};
 
 }  // namespace tamis

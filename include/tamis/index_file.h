@@ -16,11 +16,15 @@
 
 namespace tamis {
 
+class StagedFiles;
+
 inline constexpr int kIndexVersion = 1;
 inline constexpr size_t kMaskPairsShown = 12;  // image/mask pairs whose thumbnails the index keeps for the report
 inline constexpr const char* kIndexFileName = "index.cbor";
 
-void save_index(const std::filesystem::path& file, const AuditIndex& index);
+// With `staged`, the file is written under a temporary name and put in place by
+// staged->commit() (atomic_file.h); without, at once.
+void save_index(const std::filesystem::path& file, const AuditIndex& index, StagedFiles* staged = nullptr);
 AuditIndex load_index(const std::filesystem::path& file);
 
 }  // namespace tamis
