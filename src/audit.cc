@@ -3,6 +3,7 @@
 #include <algorithm>
 #include <memory>
 #include <optional>
+#include <thread>
 
 #include <xxhash.h>
 
@@ -17,23 +18,33 @@ AuditIndex read_tree(const AuditSettings& settings) {
   r.settings = settings;
   r.settings.read.on_progress = nullptr;
   StageClock clock(&r.times);
+  // The cache loads on a thread of its own while the tree is listed; files are
+  // stat'ed only when stored records may match them (otherwise every file is
+  // opened anyway, and stamped from its descriptor).
   std::unique_ptr<RecordCache> cache;
+  std::thread loader;
   if (!settings.cache_file.empty()) {
-    const auto& d = settings.read.decode;
-    std::string key = std::string(kToolVersion) + "|" + std::to_string(d.max_pixels) + "|" +
-                      std::to_string(d.reduced_side) + "|" + std::to_string(settings.read.max_bytes);
-    try {
-      cache = std::make_unique<RecordCache>(settings.cache_file, settings.root, key);
-      if (cache->rebuilt()) r.cache_note = "the cache file was damaged; it was moved aside and rebuilt";
-    } catch (const std::exception& e) {
-      r.cache_note = std::string("the cache cannot be used: ") + e.what();
-    }
+    loader = std::thread([&] {
+      const auto& d = settings.read.decode;
+      std::string key = std::string(kToolVersion) + "|" + std::to_string(d.max_pixels) + "|" +
+                        std::to_string(d.reduced_side) + "|" + std::to_string(settings.read.max_bytes);
+      try {
+        cache = std::make_unique<RecordCache>(settings.cache_file, settings.root, key);
+        if (cache->rebuilt()) r.cache_note = "the cache file was damaged; it was moved aside and rebuilt";
+      } catch (const std::exception& e) {
+        r.cache_note = std::string("the cache cannot be used: ") + e.what();
+      }
+    });
   }
-  if (cache) clock.lap("cache load");
-  // Files are stat'ed by the walk only when stored records may match them;
-  // otherwise every file is opened anyway, and stamped from its descriptor.
-  r.walk = walk_tree(settings.root, settings.read.threads, cache && cache->rows() > 0);
-  clock.lap("walk");
+  try {
+    r.walk = walk_tree(settings.root, settings.read.threads, false);
+  } catch (...) {
+    if (loader.joinable()) loader.join();
+    throw;
+  }
+  if (loader.joinable()) loader.join();
+  if (cache && cache->rows() > 0) stamp_files(settings.root, r.walk, settings.read.threads);
+  clock.lap(settings.cache_file.empty() ? "walk" : "walk + cache load");
   ReadOptions ro = settings.read;
   ro.cache = cache.get();
   ro.counts = &r.counts;

@@ -31,12 +31,12 @@ int64_t to_ns(const struct timespec& ts) {
 // Lists one folder at a time, closing it before descending, so deep trees cost
 // no more open descriptors than one; folders are visited depth-first in bytewise
 // order (the final order comes from sorting anyway). The file system's entry
-// types sort the entries; regular files are then stat'ed in parallel.
+// types sort the entries; regular files are stat'ed afterwards (stamp_files).
 class TreeWalker {
  public:
-  TreeWalker(int rootfd, WalkResult& out, bool stat_files) : rootfd_(rootfd), out_(out), stat_files_(stat_files) {}
+  TreeWalker(int rootfd, WalkResult& out) : rootfd_(rootfd), out_(out) {}
 
-  void run(unsigned threads) {
+  void run() {
     std::vector<std::string> stack{""};
     while (!stack.empty()) {
       std::string rel = std::move(stack.back());
@@ -44,38 +44,12 @@ class TreeWalker {
       std::vector<std::string> subdirs = list_dir(rel);
       for (auto it = subdirs.rbegin(); it != subdirs.rend(); ++it) stack.push_back(std::move(*it));
     }
-    if (!stat_files_) {  // typed as regular files by the listing; stamped when read
-      out_.files.reserve(pending_.size());
-      for (auto& p : pending_) {
-        WalkEntry w;
-        w.path = std::move(p);
-        w.stamped = false;
-        out_.files.push_back(std::move(w));
-      }
-      return;
-    }
-    // Size, time and inode of every regular file: one fstatat each, on all
-    // threads. An entry that changed since it was listed goes where its stat says.
-    std::vector<struct stat> st(pending_.size());
-    std::vector<uint8_t> ok(pending_.size(), 0);
-    parallel_for(pending_.size(), threads, [&](size_t i) {
-      ok[i] = fstatat(rootfd_, pending_[i].c_str(), &st[i], AT_SYMLINK_NOFOLLOW) == 0;
-    }, 256);
     out_.files.reserve(pending_.size());
-    for (size_t i = 0; i < pending_.size(); ++i) {
-      if (!ok[i] || S_ISDIR(st[i].st_mode)) {
-        out_.unreadable_dirs.push_back(std::move(pending_[i]));  // vanished, unreadable or replaced by a folder
-      } else if (S_ISLNK(st[i].st_mode)) {
-        out_.links.push_back(std::move(pending_[i]));
-      } else if (S_ISREG(st[i].st_mode)) {
-        WalkEntry w;
-        w.path = std::move(pending_[i]);
-        w.size = static_cast<uint64_t>(st[i].st_size);
-        w.mtime_ns = to_ns(st[i].st_mtim);
-        w.inode = st[i].st_ino;
-        w.device = st[i].st_dev;
-        out_.files.push_back(std::move(w));
-      }
+    for (auto& p : pending_) {  // typed as regular files by the listing; stamped later
+      WalkEntry w;
+      w.path = std::move(p);
+      w.stamped = false;
+      out_.files.push_back(std::move(w));
     }
   }
 
@@ -134,7 +108,6 @@ class TreeWalker {
 
   int rootfd_;
   WalkResult& out_;
-  bool stat_files_;
   std::set<std::pair<dev_t, ino_t>> visited_;
   std::vector<std::string> pending_;  // regular files by their folder entry, to stat
 };
@@ -147,14 +120,61 @@ WalkResult walk_tree(const std::filesystem::path& root, unsigned threads, bool s
     throw std::runtime_error("cannot open folder " + root.string() + ": " + std::strerror(errno));
   }
   WalkResult out;
-  TreeWalker(fd, out, stat_files).run(threads);
+  TreeWalker(fd, out).run();
   close(fd);
   auto by_path = [](const WalkEntry& a, const WalkEntry& b) { return a.path < b.path; };
   std::sort(out.files.begin(), out.files.end(), by_path);
   std::sort(out.links.begin(), out.links.end());
   std::sort(out.unreadable_dirs.begin(), out.unreadable_dirs.end());
   std::sort(out.dirs.begin(), out.dirs.end());
+  if (stat_files) stamp_files(root, out, threads);
   return out;
+}
+
+void stamp_files(const std::filesystem::path& root, WalkResult& walk, unsigned threads) {
+  int fd = open(root.c_str(), O_RDONLY | O_DIRECTORY | O_CLOEXEC);
+  if (fd < 0) {
+    throw std::runtime_error("cannot open folder " + root.string() + ": " + std::strerror(errno));
+  }
+  // Size, time and inode of every file not yet stamped: one fstatat each, on all
+  // threads. An entry that changed since it was listed goes where its stat says.
+  auto& files = walk.files;
+  std::vector<struct stat> st(files.size());
+  std::vector<uint8_t> ok(files.size(), 0);
+  parallel_for(files.size(), threads, [&](size_t i) {
+    if (!files[i].stamped) ok[i] = fstatat(fd, files[i].path.c_str(), &st[i], AT_SYMLINK_NOFOLLOW) == 0;
+  }, 256);
+  close(fd);
+  size_t kept = 0;
+  bool moved = false;
+  for (size_t i = 0; i < files.size(); ++i) {
+    WalkEntry& w = files[i];
+    if (!w.stamped) {
+      if (!ok[i] || S_ISDIR(st[i].st_mode)) {
+        walk.unreadable_dirs.push_back(std::move(w.path));  // vanished, unreadable or replaced by a folder
+        moved = true;
+        continue;
+      }
+      if (S_ISLNK(st[i].st_mode)) {
+        walk.links.push_back(std::move(w.path));
+        moved = true;
+        continue;
+      }
+      if (!S_ISREG(st[i].st_mode)) continue;  // a FIFO, socket or device now: not a file of the set
+      w.size = static_cast<uint64_t>(st[i].st_size);
+      w.mtime_ns = to_ns(st[i].st_mtim);
+      w.inode = st[i].st_ino;
+      w.device = st[i].st_dev;
+      w.stamped = true;
+    }
+    if (kept != i) files[kept] = std::move(w);
+    ++kept;
+  }
+  files.resize(kept);
+  if (moved) {
+    std::sort(walk.links.begin(), walk.links.end());
+    std::sort(walk.unreadable_dirs.begin(), walk.unreadable_dirs.end());
+  }
 }
 
 bool path_is_inside(const std::filesystem::path& root, const std::filesystem::path& child) {

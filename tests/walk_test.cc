@@ -126,3 +126,30 @@ TEST_CASE("a walk that does not stat lists the same files, and the read stage st
     CHECK(a[i].defect == b[i].defect);
   }
 }
+
+TEST_CASE("stamping after the listing: files changed in between go where their stat says", "[walk]") {
+  // Truth constructed here: between the listing and the stamping one file is
+  // removed, one replaced by a symbolic link and one by a folder.
+  test::TempDir t;
+  for (const char* n : {"c/a.png", "c/b.png", "c/gone.png", "c/link.png", "c/now_dir.png"}) test::write_text(t / n, n);
+  WalkResult w = walk_tree(t.path(), 2, false);
+  REQUIRE(w.files.size() == 5);
+  fs::remove(t / "c/gone.png");
+  fs::remove(t / "c/link.png");
+  fs::create_symlink(t / "c/a.png", t / "c/link.png");
+  fs::remove(t / "c/now_dir.png");
+  fs::create_directory(t / "c/now_dir.png");
+  stamp_files(t.path(), w, 2);
+  std::vector<std::string> files;
+  for (const auto& e : w.files) {
+    files.push_back(e.path);
+    CHECK(e.stamped);
+    struct stat st {};
+    REQUIRE(lstat((t / e.path).c_str(), &st) == 0);
+    CHECK(e.size == static_cast<uint64_t>(st.st_size));
+    CHECK(e.inode == st.st_ino);
+  }
+  CHECK(files == std::vector<std::string>{"c/a.png", "c/b.png"});
+  CHECK(w.links == std::vector<std::string>{"c/link.png"});
+  CHECK(w.unreadable_dirs == std::vector<std::string>{"c/gone.png", "c/now_dir.png"});
+}

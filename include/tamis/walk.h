@@ -44,6 +44,12 @@ struct WalkResult {
 // which saves one path lookup a file.
 WalkResult walk_tree(const std::filesystem::path& root, unsigned threads = 0, bool stat_files = true);
 
+// Stats every entry of `walk` not yet stamped (on `threads`), as walk_tree with
+// `stat_files` does: an entry that is no longer a regular file moves to `links`
+// or `unreadable_dirs` (kept sorted). For a caller that listed first and decides
+// later whether stamps are needed (the audit, while its cache loads).
+void stamp_files(const std::filesystem::path& root, WalkResult& walk, unsigned threads = 0);
+
 // True when `child` is ROOT or lies inside it (after resolving both to canonical
 // paths where they exist). Used to refuse outputs inside the data set.
 bool path_is_inside(const std::filesystem::path& root, const std::filesystem::path& child);
