@@ -32,11 +32,13 @@ int main(int argc, char** argv) {
   ro.cache = &cache;
   std::vector<int64_t> thumbnail_row;
   ro.thumbnail_row = &thumbnail_row;
+  ThumbnailTable thumbs;
+  ro.thumbs = &thumbs;
   std::vector<FileRecord> records = read_files(argv[1], w.files, ro);
   std::vector<uint32_t> all(records.size());
   for (uint32_t i = 0; i < all.size(); ++i) all[i] = i;
-  if (!cache.load_thumbnails(records, thumbnail_row, all).empty()) return 1;  // the join needs every thumbnail
-  cache.store(records);
+  if (!cache.load_thumbnails(thumbs, thumbnail_row, all).empty()) return 1;  // the join needs every thumbnail
+  cache.store(records, thumbs);
   GroupSettings gs;
   gs.threads = threads;
   if (argc > 5) gs.join_memory_bytes = std::strtoull(argv[5], nullptr, 10) << 20;
@@ -57,7 +59,7 @@ int main(int argc, char** argv) {
     auto hits = getenv("NOJOIN") ? std::vector<std::pair<uint32_t, uint32_t>>{} : join_within(variants, identity, gs.radius, threads);
     double t_join = seconds_since(t0);
     t0 = Clock::now();
-    GroupResult g = find_groups(records, gs);
+    GroupResult g = find_groups(records, thumbs, gs);
     double t_groups = seconds_since(t0);
     std::printf("join %.3f s (%zu hits); find_groups %.3f s: %llu candidate hits, %llu confirmed pairs, %zu groups\n",
                 t_join, hits.size(), t_groups, (unsigned long long)g.candidate_hits,

@@ -33,6 +33,7 @@ int main(int argc, char** argv) {
   AuditIndex x;
   x.settings.read.threads = threads;
   x.records.resize(n);
+  std::vector<Thumbnail> made_thumbs(n);
   SplitMix64 rng(7);
   for (size_t i = 0; i < n; ++i) {
     FileRecord& r = x.records[i];
@@ -49,17 +50,31 @@ int main(int argc, char** argv) {
     r.features.content_hash = {rng.next(), rng.next()};
     r.features.has_content_hash = true;
     r.features.has_lookalike = true;
-    for (auto& b : r.features.look.thumb) b = static_cast<uint8_t>(rng.below(256));
+    Thumbnail& thumb = made_thumbs[i];
+    for (auto& b : thumb) b = static_cast<uint8_t>(rng.below(256));
     if (i % 100 == 99) {  // a look-alike copy of the previous image
       r.features.look = x.records[i - 1].features.look;
       r.features.look.phash[0] ^= 1ULL << rng.below(64);
+      thumb = made_thumbs[i - 1];
     } else {
-      cv::Mat t(32, 32, CV_8UC1, r.features.look.thumb.data());
+      cv::Mat t(32, 32, CV_8UC1, thumb.data());
       r.features.look.phash = dct_hashes(t);
     }
     r.features.stats = {120.0f + float(rng.below(40)), 40.0f, 7.0f, 900.0f + float(rng.below(500)), 255, false, 65};
   }
-  std::sort(x.records.begin(), x.records.end(), [](const FileRecord& a, const FileRecord& b) { return a.path < b.path; });
+  {  // records in path order, each thumbnail with its record
+    std::vector<uint32_t> order(n);
+    for (uint32_t i = 0; i < n; ++i) order[i] = i;
+    std::sort(order.begin(), order.end(), [&](uint32_t a, uint32_t b) { return x.records[a].path < x.records[b].path; });
+    std::vector<FileRecord> sorted(n);
+    x.thumbs.assign_all(n);
+    for (size_t k = 0; k < n; ++k) {
+      sorted[k] = std::move(x.records[order[k]]);
+      x.thumbs.at(k) = made_thumbs[order[k]];
+    }
+    x.records = std::move(sorted);
+    std::vector<Thumbnail>().swap(made_thumbs);
+  }
   x.totals = {n, n, 0, 0, 0};
   double t_make = seconds_since(t0);
   const long made_kb = peak_kb();
@@ -73,7 +88,7 @@ int main(int argc, char** argv) {
   GroupSettings gs;
   gs.threads = threads;
   if (argc > 3) gs.join_memory_bytes = std::strtoull(argv[3], nullptr, 10) << 20;
-  x.groups = find_groups(x.records, gs);
+  x.groups = find_groups(x.records, x.thumbs, gs);
   double t_groups = seconds_since(t0);
   const long groups_kb = peak_kb();
   t0 = Clock::now();

@@ -50,6 +50,7 @@ AuditIndex read_tree(const AuditSettings& settings) {
   ro.counts = &r.counts;
   std::vector<int64_t> thumbnail_row;  // records whose thumbnail is still in the cache
   ro.thumbnail_row = &thumbnail_row;
+  ro.thumbs = &r.thumbs;
   r.records = read_files(settings.root, r.walk.files, ro);
   clock.lap("read");
   // Thumbnails of records that came from the cache, loaded only where needed; a
@@ -58,7 +59,7 @@ AuditIndex read_tree(const AuditSettings& settings) {
     if (!cache || which.empty()) return;
     std::vector<uint32_t> missing;
     try {
-      missing = cache->load_thumbnails(r.records, thumbnail_row, which);
+      missing = cache->load_thumbnails(r.thumbs, thumbnail_row, which);
     } catch (const std::exception& e) {
       missing = which;
       r.cache_note = std::string("the cache could not be read: ") + e.what();
@@ -69,8 +70,14 @@ AuditIndex read_tree(const AuditSettings& settings) {
     for (uint32_t i : missing) again.push_back(r.walk.files[i]);
     ReadOptions plain = settings.read;
     plain.on_progress = nullptr;
+    ThumbnailTable fresh_thumbs;
+    plain.thumbs = &fresh_thumbs;
     std::vector<FileRecord> fresh = read_files(settings.root, again, plain);
-    for (size_t k = 0; k < missing.size(); ++k) r.records[missing[k]] = std::move(fresh[k]);
+    r.thumbs.make_room(missing);
+    for (size_t k = 0; k < missing.size(); ++k) {
+      r.records[missing[k]] = std::move(fresh[k]);
+      r.thumbs.at(missing[k]) = fresh_thumbs.at(k);
+    }
     r.counts.read += missing.size();
   };
   if (cache) {
@@ -82,7 +89,7 @@ AuditIndex read_tree(const AuditSettings& settings) {
         copies.push_back(i);
     load_thumbnails(copies);
     try {
-      cache->store(r.records);  // as read, before mask pairing changes kinds
+      cache->store(r.records, r.thumbs);  // as read, before mask pairing changes kinds
     } catch (const std::exception& e) {
       r.cache_note = std::string("the cache could not be updated: ") + e.what();
     }
@@ -128,7 +135,7 @@ AuditIndex read_tree(const AuditSettings& settings) {
     for (uint32_t i = 0; i < r.records.size(); ++i)
       if (thumbnail_row[i] >= 0) all.push_back(i);
     load_thumbnails(all);
-    r.groups = find_groups(r.records, gs);
+    r.groups = find_groups(r.records, r.thumbs, gs);
     if (cache) {
       try {
         cache->store_groups(fingerprint, r.groups);
@@ -138,8 +145,7 @@ AuditIndex read_tree(const AuditSettings& settings) {
     }
   }
   clock.lap(cached_groups ? "groups (cached)" : "groups");
-  // Every thumbnail an output shows is loaded now; the others stay in the cache
-  // (those records hold zeros there, and nothing reads them).
+  // Every thumbnail an output shows is loaded now; the others stay in the cache.
   r.walk.files.clear();
   r.walk.files.shrink_to_fit();
   for (const auto& rec : r.records) {

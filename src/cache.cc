@@ -238,17 +238,21 @@ FileRecord RecordCache::copy(size_t k) const {
   return r;
 }
 
-std::vector<uint32_t> RecordCache::load_thumbnails(std::vector<FileRecord>& records,
-                                                   const std::vector<int64_t>& source_row,
+std::vector<uint32_t> RecordCache::load_thumbnails(ThumbnailTable& thumbs, const std::vector<int64_t>& source_row,
                                                    const std::vector<uint32_t>& which) {
   // Rows wanted, each with the records that take its thumbnail.
   std::vector<std::pair<uint32_t, uint32_t>> wanted;  // (row, record)
+  std::vector<uint32_t> receiving;
   for (uint32_t i : which)
-    if (source_row[i] >= 0) wanted.emplace_back(static_cast<uint32_t>(source_row[i]), i);
+    if (source_row[i] >= 0) {
+      wanted.emplace_back(static_cast<uint32_t>(source_row[i]), i);
+      receiving.push_back(i);
+    }
+  thumbs.make_room(receiving);
   std::sort(wanted.begin(), wanted.end());
   std::vector<uint8_t> found(wanted.size(), 0);
   auto fill = [&](size_t w, std::span<const uint8_t> data) {
-    auto& thumb = records[wanted[w].second].features.look.thumb;
+    auto& thumb = thumbs.at(wanted[w].second);
     if (data.size() != thumb.size()) return;
     std::copy(data.begin(), data.end(), thumb.begin());
     found[w] = 1;
@@ -336,7 +340,7 @@ void RecordCache::store_groups(uint64_t fingerprint, const GroupResult& g) {
   ins.run();
 }
 
-void RecordCache::store(const std::vector<FileRecord>& records) {
+void RecordCache::store(const std::vector<FileRecord>& records, const ThumbnailTable& thumbs) {
   // Records in path order (the read stage gives them so; anything else is sorted here).
   std::vector<uint32_t> order(records.size());
   std::iota(order.begin(), order.end(), 0u);
@@ -400,12 +404,14 @@ void RecordCache::store(const std::vector<FileRecord>& records) {
       sqlite3_bind_int64(ins.s, 5, static_cast<sqlite3_int64>(r.inode));
       sqlite3_bind_blob(ins.s, 6, data.data(), static_cast<int>(data.size()), SQLITE_STATIC);
       ins.run();
-      Stmt& t = r.features.has_lookalike ? ins_thumb : del_thumb;
+      // A record without its thumbnail at hand (not expected) stores none: the
+      // next run that needs it reads the file again.
+      const bool with_thumb = r.features.has_lookalike && thumbs.has(i);
+      Stmt& t = with_thumb ? ins_thumb : del_thumb;
       sqlite3_reset(t.s);
       sqlite3_bind_text(t.s, 1, root_.c_str(), -1, SQLITE_TRANSIENT);
       sqlite3_bind_blob(t.s, 2, r.path.data(), static_cast<int>(r.path.size()), SQLITE_TRANSIENT);
-      if (r.features.has_lookalike)
-        sqlite3_bind_blob(t.s, 3, r.features.look.thumb.data(), static_cast<int>(r.features.look.thumb.size()), SQLITE_STATIC);
+      if (with_thumb) sqlite3_bind_blob(t.s, 3, thumbs.at(i).data(), static_cast<int>(thumbs.at(i).size()), SQLITE_STATIC);
       t.run();
     }
     db_->exec("COMMIT");

@@ -2,6 +2,7 @@
 
 #include <algorithm>
 #include <numeric>
+#include <stdexcept>
 
 #include "tamis/features.h"
 #include "tamis/lookalike_index.h"
@@ -41,18 +42,22 @@ constexpr size_t kExactDiameterLimit = 512;
 
 std::string group_id(int64_t index) { return "g" + std::to_string(index + 1); }
 
-int lookalike_distance(const Lookalike& a, const Lookalike& b) {
+int lookalike_distance(const LookalikeCodes& a, const LookalikeCodes& b) {
   int best = 64;
   for (int t = 0; t < kDihedralCount; ++t) best = std::min(best, hamming(a.phash[t], b.phash[0]));
   return best;
 }
 
-GroupResult find_groups(const std::vector<FileRecord>& records, const GroupSettings& settings) {
+GroupResult find_groups(const std::vector<FileRecord>& records, const ThumbnailTable& thumbs,
+                        const GroupSettings& settings) {
   GroupResult out;
   out.group_of.assign(records.size(), -1);
   std::vector<uint32_t> eligible;  // record indices of readable images
   for (uint32_t i = 0; i < records.size(); ++i)
-    if (records[i].kind == FileKind::image && records[i].features.has_lookalike) eligible.push_back(i);
+    if (records[i].kind == FileKind::image && records[i].features.has_lookalike) {
+      if (!thumbs.has(i)) throw std::logic_error("find_groups: an image without its thumbnail");
+      eligible.push_back(i);
+    }
   const size_t n = eligible.size();
   UnionFind uf(n);
 
@@ -85,7 +90,7 @@ GroupResult find_groups(const std::vector<FileRecord>& records, const GroupSetti
     std::vector<uint8_t> flat(n);
     std::vector<ThumbSketch> sketch(n);
     parallel_for(n, settings.threads, [&](size_t k) {
-      const auto& thumb = records[eligible[k]].features.look.thumb;
+      const auto& thumb = thumbs.at(eligible[k]);
       stats[k] = thumb_stats(thumb);
       flat[k] = thumb_is_flat(stats[k]);
       if (!flat[k]) sketch[k] = thumb_sketch(thumb, stats[k]);
@@ -116,10 +121,10 @@ GroupResult find_groups(const std::vector<FileRecord>& records, const GroupSetti
         const uint32_t i = hits[starts[g]].first / kDihedralCount;
         const int t = static_cast<int>(hits[starts[g]].first % kDihedralCount);
         std::array<uint8_t, 1024> turned;
-        apply_dihedral(records[eligible[i]].features.look.thumb.data(), turned.data(), 32, t);
+        apply_dihedral(thumbs.at(eligible[i]).data(), turned.data(), 32, t);
         for (size_t h = starts[g]; h < starts[g + 1]; ++h) {
           const uint32_t j = hits[h].second;
-          if (thumb_correlation(turned, stats[i], records[eligible[j]].features.look.thumb, stats[j]) >=
+          if (thumb_correlation(turned, stats[i], thumbs.at(eligible[j]), stats[j]) >=
               settings.min_correlation)
             found[g].emplace_back(std::min(i, j), std::max(i, j));
         }

@@ -144,8 +144,9 @@ void save_index(const std::filesystem::path& file, const AuditIndex& x, StagedFi
          [&] {
            put(cbor_head(4, shown.size()));
            std::vector<uint8_t> one;
+           static const Thumbnail none{};
            for (uint32_t m : shown) {
-             const auto& t = x.records[m].features.look.thumb;
+             const auto& t = x.thumbs.has(m) ? x.thumbs.at(m) : none;
              one.clear();
              json::to_cbor(json::array({m, json::binary(std::vector<uint8_t>(t.begin(), t.end()))}), one);
              put(one);
@@ -267,11 +268,17 @@ AuditIndex load_index(const std::filesystem::path& file) {
     x.groups.exact_pairs = gr.at("exact_pairs").get<uint64_t>();
     x.groups.candidate_hits = gr.at("candidate_hits").get<uint64_t>();
     x.groups.confirmed_pairs = gr.at("confirmed_pairs").get<uint64_t>();
+    x.thumbs.assign_none(n);
+    std::vector<uint32_t> with_thumb;
     for (const auto& e : j.at("thumbs")) {
       uint32_t m = e.at(0).get<uint32_t>();
+      if (m >= n || e.at(1).get_binary().size() != 1024) throw std::runtime_error("thumbnail out of range");
+      with_thumb.push_back(m);
+    }
+    x.thumbs.make_room(with_thumb);
+    for (const auto& e : j.at("thumbs")) {
       const auto& b = e.at(1).get_binary();
-      if (m >= n || b.size() != 1024) throw std::runtime_error("thumbnail out of range");
-      std::copy(b.begin(), b.end(), x.records[m].features.look.thumb.begin());
+      std::copy(b.begin(), b.end(), x.thumbs.at(e.at(0).get<uint32_t>()).begin());
     }
     auto t = j.at("totals").get<std::vector<uint64_t>>();
     if (t.size() != 5) throw std::runtime_error("totals");

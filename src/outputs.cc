@@ -52,8 +52,9 @@ std::vector<uint8_t> gray_jpeg(const uint8_t* pixels, int width, int height, int
 Thumbnails group_thumbnails(const AuditResult& r, size_t budget) {
   Thumbnails out;
   size_t used = 0;
-  auto uri_of = [&](const FileRecord& rec) {
-    std::vector<uint8_t> jpg = gray_jpeg(rec.features.look.thumb.data(), 32, 32, 85);
+  auto uri_of = [&](size_t record) {
+    if (!r.thumbs.has(record)) return std::string();
+    std::vector<uint8_t> jpg = gray_jpeg(r.thumbs.at(record).data(), 32, 32, 85);
     if (jpg.empty()) return std::string();
     return "data:image/jpeg;base64," + base64(jpg);
   };
@@ -63,7 +64,7 @@ Thumbnails group_thumbnails(const AuditResult& r, size_t budget) {
     if (r.masks.mask_of[i] < 0) continue;
     const FileRecord& img = r.records[i];
     const FileRecord& mask = r.records[static_cast<size_t>(r.masks.mask_of[i])];
-    std::string a = uri_of(img), b = uri_of(mask);
+    std::string a = uri_of(i), b = uri_of(static_cast<size_t>(r.masks.mask_of[i]));
     if (a.empty() || b.empty() || used + a.size() + b.size() > budget) break;
     used += a.size() + b.size();
     out["#masks"].emplace_back(img.path, std::move(a));
@@ -76,7 +77,7 @@ Thumbnails group_thumbnails(const AuditResult& r, size_t budget) {
     for (size_t k = 0; k < g.members.size() && k < 8; ++k) {
       const FileRecord& rec = r.records[g.members[k]];
       if (!rec.features.has_lookalike) continue;
-      std::string uri = uri_of(rec);
+      std::string uri = uri_of(g.members[k]);
       if (uri.empty()) continue;
       if (used + uri.size() > budget) return out;
       used += uri.size();

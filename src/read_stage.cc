@@ -67,7 +67,7 @@ enum class Source { read, cached_by_hash };  // (hits by path never reach read_o
 // entry took is copied from that entry's record).
 template <typename FromCache>
 Source read_one(int rootfd, const WalkEntry& e, const ReadOptions& opt, std::vector<uint8_t>& buf, FileRecord& r,
-                const FromCache& from_cache) {
+                Thumbnail* thumb, const FromCache& from_cache) {
   r.path = e.path;
   r.size = e.size;
   r.mtime_ns = e.mtime_ns;
@@ -150,7 +150,9 @@ Source read_one(int rootfd, const WalkEntry& e, const ReadOptions& opt, std::vec
     unreadable(d.defect);
     return Source::read;
   }
-  r.features.look = lookalike_features(d.reduced);
+  const Lookalike look = lookalike_features(d.reduced);
+  r.features.look = look;
+  if (thumb) *thumb = look.thumb;
   r.features.stats = image_stats(d.reduced, d.alpha_min);
   r.features.stats.distinct = d.distinct;
   r.features.has_lookalike = true;
@@ -217,8 +219,19 @@ std::vector<FileRecord> read_files(const std::filesystem::path& root, const std:
         progress();
       }, 256);
   }
-  // Then every other file is read. A content match whose row was taken above is
-  // copied from the record it went to.
+  // Then every other file is read (each with a thumbnail slot). A content match
+  // whose row was taken above is copied from the record it went to.
+  if (opt.thumbs) {
+    std::vector<uint32_t> to_read;
+    for (size_t i = 0; i < entries.size(); ++i)
+      if (row_of[i] < 0) to_read.push_back(static_cast<uint32_t>(i));
+    if (to_read.size() == entries.size()) {
+      opt.thumbs->assign_all(entries.size());
+    } else {
+      opt.thumbs->assign_none(entries.size());
+      opt.thumbs->make_room(to_read);
+    }
+  }
   std::vector<int64_t> copied_row(opt.cache ? entries.size() : 0, -1);  // rows copied by content
   auto from_cache = [&](size_t row) {
     return opt.cache->taken(row) ? records[static_cast<size_t>(entry_of_row[row])] : opt.cache->copy(row);
@@ -227,7 +240,8 @@ std::vector<FileRecord> read_files(const std::filesystem::path& root, const std:
     if (row_of[i] >= 0) return;
     thread_local std::vector<uint8_t> buf;
     if (adopted) records[i] = FileRecord{};  // it held the stored record of a hidden file
-    Source src = read_one(rootfd.fd, entries[i], opt, buf, records[i], [&](size_t row) {
+    Thumbnail* thumb = opt.thumbs ? &opt.thumbs->at(i) : nullptr;
+    Source src = read_one(rootfd.fd, entries[i], opt, buf, records[i], thumb, [&](size_t row) {
       copied_row[i] = static_cast<int64_t>(row);
       return from_cache(row);
     });

@@ -1,5 +1,7 @@
 #include "tamis/record.h"
 
+#include <algorithm>
+
 namespace tamis {
 
 std::string_view to_string(Format f) {
@@ -77,6 +79,34 @@ std::string_view defect_message(Defect d) {
     case Defect::no_decoder: return "an image format this build cannot decode";
   }
   return "";
+}
+
+void ThumbnailTable::assign_all(size_t records) {
+  n_ = records;
+  all_ = true;
+  slot_.clear();
+  slot_.shrink_to_fit();
+  data_.assign(records, Thumbnail{});
+}
+
+void ThumbnailTable::assign_none(size_t records) {
+  n_ = records;
+  all_ = false;
+  slot_.assign(records, kNone);
+  data_.clear();
+  data_.shrink_to_fit();
+}
+
+void ThumbnailTable::make_room(const std::vector<uint32_t>& which) {
+  if (all_) return;
+  size_t more = 0;
+  for (uint32_t r : which) more += r < n_ && slot_[r] == kNone;
+  if (data_.capacity() < data_.size() + more) data_.reserve(std::max(data_.size() + more, 2 * data_.capacity()));
+  for (uint32_t r : which)
+    if (r < n_ && slot_[r] == kNone) {
+      slot_[r] = static_cast<uint32_t>(data_.size());
+      data_.emplace_back();
+    }
 }
 
 }  // namespace tamis

@@ -25,15 +25,12 @@ json record_to_json(const FileRecord& r, bool with_lookalike) {
                         p.has_gps, p.orientation, p.width, p.height, p.frames, r.features.content_hash[0],
                         r.features.content_hash[1], r.features.has_content_hash, r.features.has_lookalike,
                         st.luma_mean, st.luma_std, st.entropy, st.focus, st.alpha_min, st.channels_equal, st.distinct});
-  if (with_lookalike) {
-    e.push_back(r.features.look.phash);
-    e.push_back(json::binary(std::vector<uint8_t>(r.features.look.thumb.begin(), r.features.look.thumb.end())));
-  }
+  if (with_lookalike) e.push_back(r.features.look.phash);
   return e;
 }
 
 FileRecord record_from_json(const json& e) {
-  if (!e.is_array() || (e.size() != 27 && e.size() != 29)) throw std::runtime_error("malformed record");
+  if (!e.is_array() || (e.size() != 27 && e.size() != 28)) throw std::runtime_error("malformed record");
   FileRecord r;
   const auto& path = e[0].get_binary();
   r.path.assign(path.begin(), path.end());
@@ -63,12 +60,7 @@ FileRecord record_from_json(const json& e) {
   st.alpha_min = e[24].get<uint8_t>();
   st.channels_equal = e[25].get<bool>();
   st.distinct = e[26].get<uint8_t>();
-  if (e.size() == 29) {
-    r.features.look.phash = e[27].get<std::array<uint64_t, kDihedralCount>>();
-    const auto& t = e[28].get_binary();
-    if (t.size() != r.features.look.thumb.size()) throw std::runtime_error("record: thumbnail size");
-    std::copy(t.begin(), t.end(), r.features.look.thumb.begin());
-  }
+  if (e.size() == 28) r.features.look.phash = e[27].get<std::array<uint64_t, kDihedralCount>>();
   return r;
 }
 

@@ -21,8 +21,8 @@
 
 namespace tamis::detail {
 
-// `with_lookalike`: also the 8 DCT hashes and the 32x32 thumbnail (the cache
-// needs them to skip decoding; the index keeps only the groups they produced).
+// `with_lookalike`: also the 8 DCT hashes (the index keeps only the groups they
+// produced; thumbnails are not part of a record, see ThumbnailTable).
 nlohmann::json record_to_json(const FileRecord& r, bool with_lookalike);
 FileRecord record_from_json(const nlohmann::json& e);
 

@@ -160,7 +160,6 @@ TEST_CASE("cache: the record bytes round-trip and every malformed row is refused
   a.features.has_content_hash = true;
   a.features.has_lookalike = true;
   for (int t = 0; t < kDihedralCount; ++t) a.features.look.phash[t] = 0x9e3779b97f4a7c15ULL * (t + 1);
-  for (size_t k = 0; k < 1024; ++k) a.features.look.thumb[k] = static_cast<uint8_t>(k * 7);
   a.features.stats = {101.25f, 33.5f, 7.125f, 1234.5f, 17, true, 65};
   FileRecord b;  // an unreadable file: no look-alike part
   b.kind = FileKind::unreadable;
@@ -172,9 +171,7 @@ TEST_CASE("cache: the record bytes round-trip and every malformed row is refused
     CHECK(bytes.size() == (r->features.has_lookalike ? detail::kRecordBytesLookalike : detail::kRecordBytesHead));
     FileRecord back;
     REQUIRE(detail::record_from_bytes(bytes, back));
-    FileRecord want = *r;  // the thumbnail is kept apart from these bytes
-    want.features.look.thumb = {};
-    CHECK(detail::record_to_json(back, true) == detail::record_to_json(want, true));
+    CHECK(detail::record_to_json(back, true) == detail::record_to_json(*r, true));
     // Too short, too long: refused.
     for (size_t len = 0; len < bytes.size(); ++len)
       CHECK_FALSE(detail::record_from_bytes(std::span<const uint8_t>(bytes.data(), len), back));
@@ -209,4 +206,27 @@ TEST_CASE("cache: two audits share one cache file at once", "[cache][concurrency
   Run wa = audit(t / "a", cache), wb = audit(t / "b", cache);
   CHECK(wa.counts.cached > 0);
   CHECK(wb.counts.cached > 0);
+}
+
+TEST_CASE("the thumbnail table gives slots on demand, each record its own", "[cache][thumbs]") {
+  // Truth constructed here: each slot is written with its record's number.
+  ThumbnailTable t;
+  t.assign_none(10);
+  for (size_t i = 0; i < 10; ++i) CHECK_FALSE(t.has(i));
+  t.make_room({7, 2, 7, 9});
+  t.make_room({2, 4});
+  for (size_t i = 0; i < 10; ++i) CHECK(t.has(i) == (i == 2 || i == 4 || i == 7 || i == 9));
+  CHECK_FALSE(t.has(10));
+  for (uint32_t i : {2u, 4u, 7u, 9u}) {
+    CHECK(t.at(i) == Thumbnail{});  // a new slot holds zeros
+    t.at(i).fill(static_cast<uint8_t>(i));
+  }
+  for (uint32_t i : {2u, 4u, 7u, 9u}) CHECK(t.at(i)[1023] == i);
+  t.assign_all(3);
+  for (size_t i = 0; i < 3; ++i) CHECK(t.has(i));
+  CHECK_FALSE(t.has(3));
+  t.at(1).fill(5);
+  CHECK(t.at(0)[0] == 0);
+  CHECK(t.at(1)[0] == 5);
+  CHECK(sizeof(FileRecord) < 256);  // the thumbnail is not in the record
 }

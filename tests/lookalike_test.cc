@@ -122,7 +122,7 @@ TEST_CASE("Fashion-MNIST: no exact groups, few look-alike groups", "[lookalike][
   for (uint64_t budget : {uint64_t{0}, uint64_t{1} << 20}) {
     GroupSettings low;
     low.join_memory_bytes = budget;
-    GroupResult one_by_one = find_groups(r.records, low);
+    GroupResult one_by_one = find_groups(r.records, r.thumbs, low);
     INFO("join memory " << budget);
     CHECK(one_by_one.confirmed_pairs == r.groups.confirmed_pairs);
     CHECK(one_by_one.candidate_hits == r.groups.candidate_hits);
@@ -208,10 +208,13 @@ TEST_CASE("find_groups equals the definition checked pair by pair", "[lookalike]
     records[i].features.content_hash = {i, 0};
     records[i].features.look = looks[i];
   }
+  ThumbnailTable thumbs;
+  thumbs.assign_all(looks.size());
+  for (size_t i = 0; i < looks.size(); ++i) thumbs.at(i) = looks[i].thumb;
   for (double c : {0.9, 0.995}) {
     GroupSettings gs;
     gs.min_correlation = c;
-    GroupResult got = find_groups(records, gs);
+    GroupResult got = find_groups(records, thumbs, gs);
     std::set<std::pair<uint32_t, uint32_t>> pairs;
     uint64_t hits = 0;
     for (uint32_t i = 0; i < records.size(); ++i)

@@ -74,6 +74,10 @@ struct AuditIndex {
   AuditSettings settings;           // root, read and group settings of the reading run
   WalkResult walk;                  // walk.files is released once read; links and dirs kept
   std::vector<FileRecord> records;  // sorted by path, one per regular file
+  // Thumbnails at hand after read_tree: every image's when the groups were made
+  // afresh; those of group members and mask pairs (what the reports show) when
+  // they came from the cache or the saved index.
+  ThumbnailTable thumbs;
   MaskPairing masks;                // which records are masks, and whose
   Labelling labels;
   GroupResult groups;               // groups.group_of: per record, index into groups.groups or -1

@@ -50,8 +50,8 @@ class RecordCache {
   // Per entry (sorted bytewise by path, as the walk gives them): the stored row
   // with the same path, size, modification time and inode, or -1.
   std::vector<int64_t> match(const std::vector<WalkEntry>& entries) const;
-  // Moves row `row` out (its record, with its path; the thumbnail not yet
-  // loaded, all zeros). Each row at most once; distinct rows may be taken from
+  // Moves row `row` out (its record, with its path; the thumbnail stays in the
+  // cache until load_thumbnails). Each row at most once; distinct rows may be taken from
   // different threads at once.
   FileRecord take(size_t row);
   bool taken(size_t row) const { return taken_[row] != 0; }
@@ -64,17 +64,18 @@ class RecordCache {
   FileRecord copy(size_t row) const;
   const std::string& path_of(size_t row) const { return paths_[row]; }
 
-  // Loads the stored thumbnail of row source_row[i] into records[i] for each i in
-  // `which` (rows < 0 are skipped). Returns the indices whose thumbnail is not in
-  // the file (another run removed it): their files must be read again.
-  std::vector<uint32_t> load_thumbnails(std::vector<FileRecord>& records, const std::vector<int64_t>& source_row,
+  // Loads the stored thumbnail of row source_row[i] into thumbs (record i, a slot
+  // made where needed) for each i in `which` (rows < 0 are skipped). Returns the
+  // indices whose thumbnail is not in the file (another run removed it): their
+  // files must be read again.
+  std::vector<uint32_t> load_thumbnails(ThumbnailTable& thumbs, const std::vector<int64_t>& source_row,
                                         const std::vector<uint32_t>& which);
 
   // Makes the root's stored records equal `records` in one transaction, writing
   // only rows that changed and deleting rows of files that are gone.
-  // REQUIRES: every record that is new or changed holds its thumbnail (a record
-  // copied from another row by content: load_thumbnails first).
-  void store(const std::vector<FileRecord>& records);
+  // REQUIRES: every image that is new or changed has its thumbnail in `thumbs` (a
+  // record copied from another row by content: load_thumbnails first).
+  void store(const std::vector<FileRecord>& records, const ThumbnailTable& thumbs);
 
   // The look-alike groups of an unchanged set: stored under a fingerprint of every
   // grouped record's path and content hash and of the group settings; loaded

@@ -53,12 +53,14 @@ struct GroupResult {
   uint64_t confirmed_pairs = 0;     // hits confirmed by the thumbnail correlation
 };
 
-GroupResult find_groups(const std::vector<FileRecord>& records, const GroupSettings& settings);
+// REQUIRES: thumbs.has(i) for every readable image i (the correlation needs them).
+GroupResult find_groups(const std::vector<FileRecord>& records, const ThumbnailTable& thumbs,
+                        const GroupSettings& settings);
 
 // The id a group is known by in every output: "g1", "g2", … (index + 1).
 std::string group_id(int64_t index);
 
 // Smallest hash distance between a and b over the 8 flips/turns of a.
-int lookalike_distance(const Lookalike& a, const Lookalike& b);
+int lookalike_distance(const LookalikeCodes& a, const LookalikeCodes& b);
 
 }  // namespace tamis

@@ -45,6 +45,9 @@ struct ReadOptions {
   // thumbnail is the record's (it came from the cache, its thumbnail not yet
   // loaded: RecordCache::load_thumbnails), or -1 (read from its file).
   std::vector<int64_t>* thumbnail_row = nullptr;
+  // Filled when set: the thumbnail of every image read from its file (records
+  // from the cache get no slot here; their thumbnails stay in the cache).
+  ThumbnailTable* thumbs = nullptr;
   uint64_t max_bytes = 4ull << 30;           // files larger than this are not read
   DecodeLimits decode;
   std::function<void(size_t done, size_t total)> on_progress;

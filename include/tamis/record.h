@@ -3,13 +3,15 @@
 // A FileRecord is created by the walk (path, size, times), filled in by the probe
 // (format, geometry, EXIF facts) and by decode/features (readability, hashes), and
 // read by every later stage. Records are plain values; a stage that fills a field
-// owns it. Records are kept compact: the path is the only heap string.
+// owns it. Records are kept compact: the path is the only heap string, and the
+// 1 KB look-alike thumbnail lives in a ThumbnailTable beside the records.
 #pragma once
 
 #include <array>
 #include <cstdint>
 #include <string>
 #include <string_view>
+#include <vector>
 
 namespace tamis {
 
@@ -70,10 +72,45 @@ struct ProbeInfo {
 // t = 0 is the identity. (features.h computes the codes.)
 inline constexpr int kDihedralCount = 8;
 
-// Look-alike signals of one image (features.h).
-struct Lookalike {
+// The look-alike codes of one image, as its record holds them (features.h).
+struct LookalikeCodes {
   std::array<uint64_t, kDihedralCount> phash{};  // phash[t] = DCT hash of transform t of the image
-  std::array<uint8_t, 1024> thumb{};             // the 32x32 gray thumbnail the hash is made from, row-major
+};
+
+// The 32x32 gray thumbnail the codes are made from, row-major (1 KB).
+using Thumbnail = std::array<uint8_t, 1024>;
+
+// Look-alike signals of one image as features.h computes them: the codes and the
+// thumbnail. A record keeps the codes; the thumbnail goes to a ThumbnailTable.
+struct Lookalike : LookalikeCodes {
+  Thumbnail thumb{};
+};
+
+// The thumbnails of records, kept apart from the records (a record is then about
+// 190 bytes instead of 1.2 KB): the look-alike stage needs every image's, the
+// reports only a few, and a run that reuses cached groups loads just those. Indexed
+// by record; a record may have no slot.
+class ThumbnailTable {
+ public:
+  // A table for `records` records, each with a slot (zeros until written): for a
+  // read stage that fills them all.
+  void assign_all(size_t records);
+  // A table for `records` records, none with a slot.
+  void assign_none(size_t records);
+  // Gives each record of `which` a slot (zeros) where it has none. Not
+  // thread-safe; afterwards, threads may write the slots of distinct records.
+  void make_room(const std::vector<uint32_t>& which);
+  bool has(size_t record) const { return all_ ? record < n_ : record < slot_.size() && slot_[record] != kNone; }
+  Thumbnail& at(size_t record) { return data_[all_ ? record : slot_[record]]; }  // REQUIRES has(record)
+  const Thumbnail& at(size_t record) const { return data_[all_ ? record : slot_[record]]; }
+  size_t records() const { return n_; }
+
+ private:
+  static constexpr uint32_t kNone = UINT32_MAX;
+  size_t n_ = 0;
+  bool all_ = false;              // record i in slot i
+  std::vector<uint32_t> slot_;    // otherwise: per record, its slot or kNone
+  std::vector<Thumbnail> data_;
 };
 
 // Pixel statistics of the reduced decode (features.h), for the quality checks.
@@ -90,7 +127,7 @@ struct ImageStats {
 // Content features computed from the bytes and the decoded pixels.
 struct Features {
   std::array<uint64_t, 2> content_hash{0, 0};  // XXH3-128 of the file bytes
-  Lookalike look;
+  LookalikeCodes look;                          // the thumbnail is in a ThumbnailTable
   ImageStats stats;                             // set with has_lookalike
   bool has_content_hash = false;
   bool has_lookalike = false;                   // set for every readable image
