@@ -226,7 +226,7 @@ std::vector<FileRecord> read_files(const std::filesystem::path& root, const std:
     for (size_t i = 0; i < entries.size(); ++i)
       if (row_of[i] < 0) to_read.push_back(static_cast<uint32_t>(i));
     if (to_read.size() == entries.size()) {
-      opt.thumbs->assign_all(entries.size());
+      opt.thumbs->assign_all(entries.size(), false);  // every slot is written below, by its thread
     } else {
       opt.thumbs->assign_none(entries.size());
       opt.thumbs->make_room(to_read);
@@ -241,6 +241,7 @@ std::vector<FileRecord> read_files(const std::filesystem::path& root, const std:
     thread_local std::vector<uint8_t> buf;
     if (adopted) records[i] = FileRecord{};  // it held the stored record of a hidden file
     Thumbnail* thumb = opt.thumbs ? &opt.thumbs->at(i) : nullptr;
+    if (thumb) thumb->fill(0);  // stays zeros unless the file is an image
     Source src = read_one(rootfd.fd, entries[i], opt, buf, records[i], thumb, [&](size_t row) {
       copied_row[i] = static_cast<int64_t>(row);
       return from_cache(row);

@@ -2,6 +2,8 @@
 
 #include <algorithm>
 
+#include "tamis/memory.h"
+
 namespace tamis {
 
 std::string_view to_string(Format f) {
@@ -81,17 +83,39 @@ std::string_view defect_message(Defect d) {
   return "";
 }
 
-void ThumbnailTable::assign_all(size_t records) {
+ThumbnailTable::ThumbnailTable(const ThumbnailTable& other)
+    : n_(other.n_), all_(other.all_), slot_(other.slot_), data_(other.data_) {
+  if (other.dense_) {
+    dense_.reset(new Thumbnail[std::max<size_t>(n_, 1)]);
+    std::copy_n(other.dense_.get(), n_, dense_.get());
+  }
+}
+
+ThumbnailTable& ThumbnailTable::operator=(const ThumbnailTable& other) {
+  if (this != &other) {
+    ThumbnailTable copy(other);
+    *this = std::move(copy);
+  }
+  return *this;
+}
+
+void ThumbnailTable::assign_all(size_t records, bool zeroed) {
   n_ = records;
   all_ = true;
   slot_.clear();
   slot_.shrink_to_fit();
-  data_.assign(records, Thumbnail{});
+  data_.clear();
+  data_.shrink_to_fit();
+  dense_.reset();
+  dense_.reset(new Thumbnail[std::max<size_t>(records, 1)]);  // default-initialised: not written yet
+  advise_huge_pages(dense_.get(), records * sizeof(Thumbnail));
+  if (zeroed) std::fill_n(dense_.get(), records, Thumbnail{});
 }
 
 void ThumbnailTable::assign_none(size_t records) {
   n_ = records;
   all_ = false;
+  dense_.reset();
   slot_.assign(records, kNone);
   data_.clear();
   data_.shrink_to_fit();

@@ -9,6 +9,7 @@
 
 #include <array>
 #include <cstdint>
+#include <memory>
 #include <string>
 #include <string_view>
 #include <vector>
@@ -92,24 +93,31 @@ struct Lookalike : LookalikeCodes {
 // by record; a record may have no slot.
 class ThumbnailTable {
  public:
-  // A table for `records` records, each with a slot (zeros until written): for a
-  // read stage that fills them all.
-  void assign_all(size_t records);
+  ThumbnailTable() = default;
+  ThumbnailTable(const ThumbnailTable& other);
+  ThumbnailTable& operator=(const ThumbnailTable& other);
+  ThumbnailTable(ThumbnailTable&&) noexcept = default;
+  ThumbnailTable& operator=(ThumbnailTable&&) noexcept = default;
+  // A table for `records` records, each with a slot: zeros until written, or,
+  // with `zeroed` false, undefined until the caller writes every slot (the read
+  // stage, whose threads then touch the fresh memory, each its own slots).
+  void assign_all(size_t records, bool zeroed = true);
   // A table for `records` records, none with a slot.
   void assign_none(size_t records);
   // Gives each record of `which` a slot (zeros) where it has none. Not
   // thread-safe; afterwards, threads may write the slots of distinct records.
   void make_room(const std::vector<uint32_t>& which);
   bool has(size_t record) const { return all_ ? record < n_ : record < slot_.size() && slot_[record] != kNone; }
-  Thumbnail& at(size_t record) { return data_[all_ ? record : slot_[record]]; }  // REQUIRES has(record)
-  const Thumbnail& at(size_t record) const { return data_[all_ ? record : slot_[record]]; }
+  Thumbnail& at(size_t record) { return all_ ? dense_[record] : data_[slot_[record]]; }  // REQUIRES has(record)
+  const Thumbnail& at(size_t record) const { return all_ ? dense_[record] : data_[slot_[record]]; }
   size_t records() const { return n_; }
 
  private:
   static constexpr uint32_t kNone = UINT32_MAX;
   size_t n_ = 0;
-  bool all_ = false;              // record i in slot i
-  std::vector<uint32_t> slot_;    // otherwise: per record, its slot or kNone
+  bool all_ = false;                     // record i in dense_[i]
+  std::unique_ptr<Thumbnail[]> dense_;
+  std::vector<uint32_t> slot_;           // otherwise: per record, its slot in data_ or kNone
   std::vector<Thumbnail> data_;
 };
 
