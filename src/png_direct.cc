@@ -1,5 +1,6 @@
 // The direct PNG path of decode.h: the common PNG (8 bits a sample; grey, RGB or
-// RGBA; not interlaced; no transparency chunk) inflated with zlib and unfiltered
+// RGBA; not interlaced; no transparency chunk) inflated (inflate.h, or zlib for
+// what that declines) and unfiltered
 // here (ISO/IEC 15948, clauses 9 and 10), with one zlib stream a thread kept
 // between files. Anything else, and anything odd about the data, is declined and
 // left to libpng (through OpenCV), which then gives the verdict.
@@ -12,6 +13,7 @@
 
 #include "byte_reader.h"
 #include "tamis/decode.h"
+#include "tamis/inflate.h"
 
 namespace tamis {
 
@@ -33,6 +35,15 @@ class Inflater {
   // bytes. True only when the stream ends exactly there, with its checksum right,
   // and no input is left over.
   bool inflate_exact(const std::vector<Bytes>& parts, uint8_t* out, size_t out_size) {
+    // Our small-stream decoder first (inflate.h): it gives zlib's bytes or
+    // declines, and zlib then decides.
+    if (parts.size() == 1) {
+      if (inflate_small(parts[0], out, out_size)) return true;
+    } else {
+      joined_.clear();
+      for (const auto& p : parts) joined_.insert(joined_.end(), p.begin(), p.end());
+      if (inflate_small(joined_, out, out_size)) return true;
+    }
     if (!ok_ || out_size > UINT32_MAX || inflateReset(&z_) != Z_OK) return false;
     z_.next_out = out;
     z_.avail_out = static_cast<uInt>(out_size);
@@ -53,6 +64,7 @@ class Inflater {
  private:
   z_stream z_{};
   bool ok_ = false;
+  std::vector<uint8_t> joined_;  // the IDAT parts end to end, when there are several
 };
 
 inline uint8_t paeth(int a, int b, int c) {
