@@ -4,6 +4,7 @@
 #include <cctype>
 #include <map>
 #include <set>
+#include <string_view>
 
 namespace tamis {
 
@@ -58,10 +59,22 @@ std::string drop_ext(const std::string& p) {
   return p.substr(0, dot);
 }
 // "0001_mask" -> "0001" (a trailing separator + token), or "" when there is none.
-std::string drop_token(const std::string& stem) {
+std::string_view drop_token(std::string_view stem) {
   for (size_t k = stem.size(); k-- > 1;)
-    if (is_sep(stem[k])) return is_token(std::string_view(stem).substr(k + 1)) ? stem.substr(0, k) : "";
-  return "";
+    if (is_sep(stem[k])) return is_token(stem.substr(k + 1)) ? stem.substr(0, k) : std::string_view();
+  return {};
+}
+std::string_view parent_view(std::string_view p) {
+  size_t s = p.rfind('/');
+  return s == std::string_view::npos ? std::string_view() : p.substr(0, s);
+}
+std::string_view stem_view(std::string_view p) {  // drop_ext without a copy
+  size_t slash = p.rfind('/');
+  size_t dot = p.rfind('.');
+  if (dot == std::string_view::npos || (slash != std::string_view::npos && dot < slash) ||
+      dot == (slash == std::string_view::npos ? 0 : slash + 1))
+    return p;
+  return p.substr(0, dot);
 }
 
 }  // namespace
@@ -85,9 +98,14 @@ MaskPairing pair_masks(std::vector<FileRecord>& records, const MaskSettings& set
   out.image_of.assign(records.size(), -1);
   // Every folder that directly or indirectly holds an image, and each folder's children.
   std::set<std::string> folders;
+  std::string_view last_folder;  // records are in path order: a folder's files come together
   for (const auto& r : records) {
     if (r.kind != FileKind::image) continue;
-    for (std::string f = parent_of(r.path); !f.empty(); f = parent_of(f)) folders.insert(f);
+    const size_t slash = r.path.rfind('/');
+    const std::string_view folder = slash == std::string::npos ? std::string_view() : std::string_view(r.path).substr(0, slash);
+    if (folder.empty() || folder == last_folder) continue;
+    last_folder = folder;
+    for (std::string f(folder); !f.empty(); f = parent_of(f)) folders.insert(f);
   }
   std::map<std::string, std::vector<std::string>> children;  // parent -> sub-folders, sorted
   for (const auto& f : folders) children[parent_of(f)].push_back(f);
@@ -122,7 +140,7 @@ MaskPairing pair_masks(std::vector<FileRecord>& records, const MaskSettings& set
       std::string stem = drop_ext(records[i].path.substr(mask_dir.size() + 1));
       auto it = photos.find(stem);
       if (it == photos.end()) {
-        std::string cut = drop_token(stem);
+        std::string cut(drop_token(stem));
         if (!cut.empty()) it = photos.find(cut);
       }
       if (it == photos.end()) continue;
@@ -189,16 +207,24 @@ MaskPairing pair_masks(std::vector<FileRecord>& records, const MaskSettings& set
 
   // Suffix pairs inside one folder: "X.ext" and "X<sep><token>.ext".
   std::map<std::pair<std::string, std::string>, std::vector<std::pair<uint32_t, uint32_t>>> groups;  // (folder, token)
-  std::map<std::string, uint32_t> by_stem;
-  for (uint32_t i = 0; i < records.size(); ++i)
-    if (records[i].kind == FileKind::image) by_stem.emplace(drop_ext(records[i].path), i);
+  // First the images whose name ends in a separator and a token with a letter
+  // (most sets have none: then no table of stems is made).
+  std::vector<std::pair<uint32_t, size_t>> candidates;  // (record, length of the stem without the token)
   for (uint32_t i = 0; i < records.size(); ++i) {
     if (records[i].kind != FileKind::image) continue;
-    std::string stem = drop_ext(records[i].path);
-    std::string cut = drop_token(stem);
-    if (cut.empty() || parent_of(cut) != parent_of(stem)) continue;
-    std::string token = stem.substr(cut.size() + 1);
-    if (!has_letter(token)) continue;
+    const std::string_view stem = stem_view(records[i].path);
+    const std::string_view cut = drop_token(stem);
+    if (cut.empty() || parent_view(cut) != parent_view(stem)) continue;
+    if (!has_letter(stem.substr(cut.size() + 1))) continue;
+    candidates.emplace_back(i, cut.size());
+  }
+  std::map<std::string, uint32_t> by_stem;
+  if (!candidates.empty())
+    for (uint32_t i = 0; i < records.size(); ++i)
+      if (records[i].kind == FileKind::image) by_stem.emplace(drop_ext(records[i].path), i);
+  for (auto [i, cut_size] : candidates) {
+    const std::string stem = drop_ext(records[i].path);
+    const std::string cut = stem.substr(0, cut_size), token = stem.substr(cut_size + 1);
     auto it = by_stem.find(cut);
     if (it == by_stem.end() || it->second == i) continue;
     groups[{parent_of(stem), lower(token)}].emplace_back(i, it->second);
