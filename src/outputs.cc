@@ -104,11 +104,17 @@ void write_outputs(const std::filesystem::path& out_dir, const AuditResult& resu
   std::thread reports([&] {
     try {
       StageClock c(&report_times);
-      nlohmann::json report = build_report(result);
-      staged.write(out_dir / "report.json", [&](std::ostream& os) { os << dump_json(report) << '\n'; });
+      // The findings' path lists go from the findings straight into the file.
+      nlohmann::json report = build_report_without_paths(result);
+      staged.write(out_dir / "report.json", [&](std::ostream& os) {
+        std::string text;
+        write_report_json(text, report, result.findings);
+        os << text;
+      });
       c.lap("report.json");
       Thumbnails thumbs = group_thumbnails(result, thumbnail_budget);
-      staged.write(out_dir / "report.html", [&](std::ostream& os) { os << render_html(report, thumbs); });
+      staged.write(out_dir / "report.html",
+                   [&](std::ostream& os) { os << render_html(report, thumbs, &result.findings); });
       c.lap("report.html");
     } catch (...) {
       report_error = std::current_exception();

@@ -150,7 +150,7 @@ std::string class_of_path(const std::string& p, bool pre_split) {
   return b == std::string::npos ? "" : p.substr(a + 1, b - a - 1);
 }
 
-void findings(std::ostringstream& o, const json& report) {
+void findings(std::ostringstream& o, const json& report, const std::vector<Finding>* finding_list) {
   const json& fs = array_at(report, "findings");
   const bool pre_split = object_at(report, "layout").value("pre_split", false);
   o << "<section id=\"findings\"><h2>Findings</h2>";
@@ -171,13 +171,23 @@ void findings(std::ostringstream& o, const json& report) {
   o << "<table id=\"findings-table\"><thead><tr><th data-sort=\"0\">severity</th><th data-sort=\"1\">code</th>"
        "<th>what</th><th data-sort=\"3\" style=\"width:38%\">files</th></tr></thead><tbody>";
   size_t shown = 0;
+  std::vector<std::string> from_json;
   for (const auto& f : fs) {
-    if (shown++ == kMaxRows) break;
+    if (shown == kMaxRows) break;
+    const size_t row = shown++;
     std::string sev = str(f.value("severity", json("info")));
-    const json& paths = array_at(f, "paths");
+    // The paths from the findings themselves when given (the report then holds none).
+    const std::vector<std::string>* list = &from_json;
+    if (finding_list && row < finding_list->size() && !f.contains("paths")) {
+      list = &(*finding_list)[row].paths;
+    } else {
+      from_json.clear();
+      for (const auto& p : array_at(f, "paths")) from_json.push_back(str(p));
+    }
+    const std::vector<std::string>& paths = *list;
     std::set<std::string> row_classes;
     for (const auto& p : paths) {
-      std::string c = class_of_path(str(p), pre_split);
+      std::string c = class_of_path(p, pre_split);
       if (!c.empty()) row_classes.insert(c);
     }
     const json& details = object_at(f, "details");
@@ -199,7 +209,7 @@ void findings(std::ostringstream& o, const json& report) {
         o << "<div class=\"note\">… and " << paths.size() - 8 << " more (see report.json)</div>";
         break;
       }
-      o << "<div class=\"path\">" << esc(p) << "</div>";
+      o << "<div class=\"path\">" << html_escape(p) << "</div>";
     }
     o << "</td></tr>";
   }
@@ -353,7 +363,7 @@ if(x===undefined){x=a.cells[col].textContent;y=b.cells[col].textContent;return u
 return up?x-y:y-x;});up=!up;rows.forEach(function(r){t.tBodies[0].appendChild(r);});});});apply();})();
 )JS";
 
-std::string render_html(const json& report, const Thumbnails& thumbs) {
+std::string render_html(const json& report, const Thumbnails& thumbs, const std::vector<Finding>* finding_paths) {
   std::ostringstream o;
   const json& tool = object_at(report, "tool");
   o << "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
@@ -364,7 +374,7 @@ std::string render_html(const json& report, const Thumbnails& thumbs) {
     << " " << esc(tool.value("version", json(""))) << " · seed "
     << esc(object_at(report, "settings").value("seed", json(1))) << "</p></header><main>\n";
   tiles(o, object_at(report, "totals"));
-  findings(o, report);
+  findings(o, report, finding_paths);
   classes(o, report);
   groups(o, report, thumbs);
   mask_pairs(o, report, thumbs);

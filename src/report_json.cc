@@ -3,7 +3,9 @@
 #include <algorithm>
 #include <array>
 #include <map>
+#include <functional>
 #include <set>
+#include <string_view>
 
 #include "tamis/version.h"
 
@@ -35,7 +37,17 @@ json settings_json(const AuditSettings& s) {
   };
 }
 
-json build_report(const AuditResult& r) {
+namespace {
+json build_report_impl(const AuditResult& r, bool with_paths);
+}  // namespace
+
+json build_report(const AuditResult& r) { return build_report_impl(r, true); }
+
+json build_report_without_paths(const AuditResult& r) { return build_report_impl(r, false); }
+
+namespace {
+
+json build_report_impl(const AuditResult& r, bool with_paths) {
   const AuditSettings& s = r.settings;
   json j;
   j["schema_version"] = kReportSchemaVersion;
@@ -156,8 +168,8 @@ json build_report(const AuditResult& r) {
   json findings = json::array();
   for (size_t k = 0; k < r.findings.size(); ++k) {
     const auto& f = r.findings[k];
-    json jf = {{"code", f.code}, {"severity", to_string(f.severity)}, {"paths", f.paths},
-               {"message", f.message}, {"details", f.details}};
+    json jf = {{"code", f.code}, {"severity", to_string(f.severity)}, {"message", f.message}, {"details", f.details}};
+    if (with_paths) jf["paths"] = f.paths;
     if (r.baseline.present) jf["baseline"] = r.known[k] ? "known" : "new";
     findings.push_back(std::move(jf));
   }
@@ -182,6 +194,117 @@ json build_report(const AuditResult& r) {
   return j;
 }
 
+}  // namespace
+
 std::string dump_json(const json& j) { return j.dump(2, ' ', false, json::error_handler_t::replace); }
+
+namespace {
+
+// A string as nlohmann::json writes it (quoted, escaped, invalid UTF-8 replaced):
+// printable ASCII without quote or backslash as it is, anything else by nlohmann.
+void append_string(std::string& out, std::string_view s) {
+  bool plain = true;
+  for (unsigned char c : s)
+    if (c < 0x20 || c > 0x7e || c == '"' || c == '\\') {
+      plain = false;
+      break;
+    }
+  if (plain) {
+    out.push_back('"');
+    out.append(s);
+    out.push_back('"');
+  } else {
+    out.append(json(std::string(s)).dump(-1, ' ', false, json::error_handler_t::replace));
+  }
+}
+
+void indent_to(std::string& out, int n) { out.append(static_cast<size_t>(n), ' '); }
+
+// nlohmann::json's dump(2) layout, written here so that a finding's paths can
+// come straight from the Finding: `paths_of(k)`, when set, gives the paths of
+// the k-th element of the top-level "findings" array, written under "paths".
+using PathsOf = std::function<const std::vector<std::string>*(size_t)>;
+
+void append_json(std::string& out, const json& v, int indent, const PathsOf& paths_of, bool findings_array) {
+  switch (v.type()) {
+    case json::value_t::string: append_string(out, v.get_ref<const std::string&>()); return;
+    case json::value_t::object: {
+      if (v.empty()) {
+        out.append("{}");
+        return;
+      }
+      out.append("{\n");
+      bool first = true;
+      for (auto it = v.begin(); it != v.end(); ++it) {
+        if (!first) out.append(",\n");
+        first = false;
+        indent_to(out, indent + 2);
+        append_string(out, it.key());
+        out.append(": ");
+        append_json(out, it.value(), indent + 2, paths_of, indent == 0 && it.key() == "findings");
+      }
+      out.push_back('\n');
+      indent_to(out, indent);
+      out.push_back('}');
+      return;
+    }
+    case json::value_t::array: {
+      if (v.empty()) {
+        out.append("[]");
+        return;
+      }
+      out.append("[\n");
+      for (size_t k = 0; k < v.size(); ++k) {
+        if (k) out.append(",\n");
+        indent_to(out, indent + 2);
+        const std::vector<std::string>* paths = findings_array && paths_of ? paths_of(k) : nullptr;
+        if (paths && v[k].is_object() && !v[k].contains("paths")) {
+          // A finding (small but for its paths): written with a marker under
+          // "paths", which takes its place in key order, then the marker replaced.
+          // Only "severity" (a fixed word) comes after "paths", so the last
+          // occurrence of the marker is the one.
+          json with = v[k];
+          with["paths"] = "\x01paths";
+          std::string part;
+          append_json(part, with, indent + 2, {}, false);
+          const std::string quoted = "\"\\u0001paths\"";
+          const size_t at = part.rfind(quoted);
+          std::string list;
+          if (paths->empty()) {
+            list = "[]";
+          } else {
+            list = "[\n";
+            for (size_t p = 0; p < paths->size(); ++p) {
+              if (p) list.append(",\n");
+              indent_to(list, indent + 6);
+              append_string(list, (*paths)[p]);
+            }
+            list.push_back('\n');
+            indent_to(list, indent + 4);
+            list.push_back(']');
+          }
+          out.append(part, 0, at);
+          out.append(list);
+          out.append(part, at + quoted.size());
+        } else {
+          append_json(out, v[k], indent + 2, paths_of, false);
+        }
+      }
+      out.push_back('\n');
+      indent_to(out, indent);
+      out.push_back(']');
+      return;
+    }
+    default: out.append(v.dump(-1, ' ', false, json::error_handler_t::replace)); return;
+  }
+}
+
+}  // namespace
+
+void write_report_json(std::string& out, const json& report_without_paths, const std::vector<Finding>& findings) {
+  append_json(out, report_without_paths, 0,
+              [&](size_t k) { return k < findings.size() ? &findings[k].paths : nullptr; }, false);
+  out.push_back('\n');
+}
 
 }  // namespace tamis

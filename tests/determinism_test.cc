@@ -14,6 +14,7 @@
 #include "tamis/audit.h"
 #include "tamis/demo.h"
 #include "tamis/manifest.h"
+#include "tamis/report_html.h"
 #include "tamis/report_json.h"
 
 using namespace tamis;
@@ -72,4 +73,45 @@ TEST_CASE("staged outputs appear together, and a failed set leaves the previous 
   CHECK(content("a.txt") == "new a");
   CHECK(content("b.txt") == "new b");
   CHECK(listing() == std::vector<std::string>{"a.txt", "b.txt"});
+}
+
+TEST_CASE("report.json written with the findings' paths streamed equals nlohmann::json's own dump", "[outputs]") {
+  // The reference is nlohmann::json's serialiser (dump with indent 2) of the full
+  // report; the streamed writer must give the same bytes, and the page the same
+  // HTML, on the demo set and on findings whose paths need escaping (quotes,
+  // backslashes, control characters, invalid UTF-8, non-ASCII names).
+  test::TempDir t;
+  write_demo(t.path());
+  AuditSettings s;
+  s.root = t.path();
+  s.read.threads = 2;
+  AuditResult r = run_audit(s);
+  REQUIRE(!r.findings.empty());
+  auto check = [](const AuditResult& res) {
+    std::string streamed;
+    const nlohmann::json slim = build_report_without_paths(res);
+    write_report_json(streamed, slim, res.findings);
+    const nlohmann::json full = build_report(res);
+    CHECK(streamed == dump_json(full) + "\n");
+    CHECK(render_html(slim, {}, &res.findings) == render_html(full));
+  };
+  check(r);
+  Finding odd;
+  odd.code = "zz-odd-names";
+  odd.severity = Severity::info;
+  odd.message = "names that need escaping";
+  odd.paths = {"a/quote\"d.png", "a/back\\slash.png", std::string("a/ctrl\x01\x1f.png"), "a/\xff\xfe invalid.png",
+               "a/\xc3\xa9t\xc3\xa9.png", "a/del\x7f.png", "a/\x01paths"};
+  r.findings.push_back(odd);
+  Finding none;
+  none.code = "zz-no-paths";
+  none.message = "a finding that names no file";
+  none.details = {{"path", "\x01paths"}};
+  r.findings.push_back(none);
+  check(r);
+  // Compared with a baseline: each finding gains a "baseline" member.
+  r.baseline.present = true;
+  r.known.assign(r.findings.size(), false);
+  for (size_t k = 0; k < r.known.size(); k += 2) r.known[k] = true;
+  check(r);
 }

@@ -17,6 +17,8 @@
 
 #include <nlohmann/json.hpp>
 
+#include "tamis/findings.h"
+
 namespace tamis {
 
 // Escapes & < > " ' for use in HTML text and attribute values.
@@ -26,7 +28,10 @@ std::string html_escape(std::string_view s);
 using Thumbnails = std::map<std::string, std::vector<std::pair<std::string, std::string>>>;
 
 // Renders the page from the report JSON (so the page never shows a number the
-// JSON does not hold) and the group thumbnails.
-std::string render_html(const nlohmann::json& report, const Thumbnails& thumbs = {});
+// JSON does not hold) and the group thumbnails. A report made without the
+// findings' paths (build_report_without_paths) takes them from `findings`, the
+// list it was made from.
+std::string render_html(const nlohmann::json& report, const Thumbnails& thumbs = {},
+                        const std::vector<Finding>* findings = nullptr);
 
 }  // namespace tamis

@@ -23,4 +23,14 @@ nlohmann::json build_report(const AuditResult& result);
 // Serialises with 2-space indent; invalid UTF-8 replaced, never thrown on.
 std::string dump_json(const nlohmann::json& j);
 
+// The same report without the findings' path lists (a finding may name every
+// file of the set: 70,000 JSON strings for Fashion-MNIST's tiny images), and the
+// writer that adds them from the findings themselves: write_report_json(out,
+// build_report_without_paths(r), r.findings) appends exactly
+// dump_json(build_report(r)) + "\n" (tests compare them), without a JSON value
+// for each path.
+nlohmann::json build_report_without_paths(const AuditResult& result);
+void write_report_json(std::string& out, const nlohmann::json& report_without_paths,
+                       const std::vector<Finding>& findings);
+
 }  // namespace tamis
