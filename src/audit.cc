@@ -1,6 +1,7 @@
 #include "tamis/audit.h"
 
 #include <algorithm>
+#include <exception>
 #include <memory>
 #include <optional>
 #include <thread>
@@ -168,14 +169,8 @@ AuditResult place(AuditIndex index, const PlaceOptions& opt) {
   r.fail_on_new_only = opt.policy.fail_on_new_only;
   StageClock clock(&r.times);
 
-  // Checks.
-  check_inventory(r.records, r.labels, r.walk, r.findings);
-  check_masks(r.records, r.masks, r.findings);
-  check_groups(r.records, r.labels, r.groups, r.settings.groups, r.findings);
-  check_images(r.records, r.labels, r.settings.checks, r.findings);
-  check_labels(r.records, r.labels, r.walk, r.settings.checks, r.findings);
-
-  // Split.
+  // The split on a second thread while the checks run: neither reads what the
+  // other writes, and each writes its own part of the result.
   const SplitSettings& split = opt.split;
   const bool keep_folders = r.labels.pre_split && !split.resplit;
   std::vector<SplitItem> items(r.records.size());
@@ -200,9 +195,30 @@ AuditResult place(AuditIndex index, const PlaceOptions& opt) {
       else
         r.split.why[i] = Exclusion::not_eligible;
     }
-  } else {
-    r.split = assign_splits(items, r.labels.names, split);
   }
+  std::exception_ptr split_error;
+  std::thread splitter;
+  if (!keep_folders) {
+    splitter = std::thread([&] {
+      try {
+        r.split = assign_splits(items, r.labels.names, split);
+      } catch (...) {
+        split_error = std::current_exception();
+      }
+    });
+  }
+  try {
+    check_inventory(r.records, r.labels, r.walk, r.findings);
+    check_masks(r.records, r.masks, r.findings);
+    check_groups(r.records, r.labels, r.groups, r.settings.groups, r.findings);
+    check_images(r.records, r.labels, r.settings.checks, r.findings);
+    check_labels(r.records, r.labels, r.walk, r.settings.checks, r.findings);
+  } catch (...) {
+    if (splitter.joinable()) splitter.join();
+    throw;
+  }
+  if (splitter.joinable()) splitter.join();
+  if (split_error) std::rethrow_exception(split_error);
   check_split(r.records, r.labels, r.split, split, keep_folders, r.findings);
   clock.lap("checks + split");
 
