@@ -92,7 +92,7 @@ TEST_CASE("small-stream inflate gives zlib's bytes at every level and strategy",
           ++declined;
           continue;
         }
-        CHECK(std::memcmp(out.data(), data.data(), data.size()) == 0);
+        CHECK((data.empty() || std::memcmp(out.data(), data.data(), data.size()) == 0));
         CHECK(out[data.size()] == 0xAA);  // nothing written past the end
         // The wrong size, or a byte after the stream: declined.
         if (!data.empty()) CHECK_FALSE(inflate_small(z, out.data(), data.size() - 1));
