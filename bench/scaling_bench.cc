@@ -32,11 +32,18 @@ int main(int argc, char** argv) {
   auto t0 = Clock::now();
   AuditIndex x;
   x.settings.read.threads = threads;
+  // Records are made straight in path order (by class, then number), each
+  // thumbnail in its record's slot: nothing is copied or sorted afterwards.
+  std::vector<uint32_t> order(n), pos(n);
+  for (uint32_t i = 0; i < n; ++i) order[i] = i;
+  std::sort(order.begin(), order.end(), [](uint32_t a, uint32_t b) { return a % 100 != b % 100 ? a % 100 < b % 100 : a < b; });
+  for (uint32_t k = 0; k < n; ++k) pos[order[k]] = k;
   x.records.resize(n);
-  std::vector<Thumbnail> made_thumbs(n);
+  x.thumbs.assign_all(n);
   SplitMix64 rng(7);
-  for (size_t i = 0; i < n; ++i) {
-    FileRecord& r = x.records[i];
+  for (size_t k = 0; k < n; ++k) {
+    const size_t i = order[k];
+    FileRecord& r = x.records[k];
     char path[64];
     std::snprintf(path, sizeof path, "class%03zu/img_%08zu.jpg", i % 100, i);
     r.path = path;
@@ -50,31 +57,20 @@ int main(int argc, char** argv) {
     r.features.content_hash = {rng.next(), rng.next()};
     r.features.has_content_hash = true;
     r.features.has_lookalike = true;
-    Thumbnail& thumb = made_thumbs[i];
+    Thumbnail& thumb = x.thumbs.at(k);
     for (auto& b : thumb) b = static_cast<uint8_t>(rng.below(256));
-    if (i % 100 == 99) {  // a look-alike copy of the previous image
-      r.features.look = x.records[i - 1].features.look;
+    if (i % 100 == 99) {  // a look-alike copy of image i - 1 (class 98: made before)
+      r.features.look = x.records[pos[i - 1]].features.look;
       r.features.look.phash[0] ^= 1ULL << rng.below(64);
-      thumb = made_thumbs[i - 1];
+      thumb = x.thumbs.at(pos[i - 1]);
     } else {
       cv::Mat t(32, 32, CV_8UC1, thumb.data());
       r.features.look.phash = dct_hashes(t);
     }
     r.features.stats = {120.0f + float(rng.below(40)), 40.0f, 7.0f, 900.0f + float(rng.below(500)), 255, false, 65};
   }
-  {  // records in path order, each thumbnail with its record
-    std::vector<uint32_t> order(n);
-    for (uint32_t i = 0; i < n; ++i) order[i] = i;
-    std::sort(order.begin(), order.end(), [&](uint32_t a, uint32_t b) { return x.records[a].path < x.records[b].path; });
-    std::vector<FileRecord> sorted(n);
-    x.thumbs.assign_all(n);
-    for (size_t k = 0; k < n; ++k) {
-      sorted[k] = std::move(x.records[order[k]]);
-      x.thumbs.at(k) = made_thumbs[order[k]];
-    }
-    x.records = std::move(sorted);
-    std::vector<Thumbnail>().swap(made_thumbs);
-  }
+  std::vector<uint32_t>().swap(order);
+  std::vector<uint32_t>().swap(pos);
   x.totals = {n, n, 0, 0, 0};
   double t_make = seconds_since(t0);
   const long made_kb = peak_kb();
