@@ -3,7 +3,6 @@
 #include <algorithm>
 #include <array>
 #include <map>
-#include <functional>
 #include <set>
 #include <string_view>
 
@@ -220,28 +219,58 @@ void append_string(std::string& out, std::string_view s) {
 
 void indent_to(std::string& out, int n) { out.append(static_cast<size_t>(n), ' '); }
 
-// nlohmann::json's dump(2) layout, written here so that a finding's paths can
-// come straight from the Finding: `paths_of(k)`, when set, gives the paths of
-// the k-th element of the top-level "findings" array, written under "paths".
-using PathsOf = std::function<const std::vector<std::string>*(size_t)>;
+// An array of strings in dump(2) layout, at `indent`.
+void append_strings(std::string& out, const std::vector<std::string>& items, int indent) {
+  if (items.empty()) {
+    out.append("[]");
+    return;
+  }
+  out.append("[\n");
+  for (size_t k = 0; k < items.size(); ++k) {
+    if (k) out.append(",\n");
+    indent_to(out, indent + 2);
+    append_string(out, items[k]);
+  }
+  out.push_back('\n');
+  indent_to(out, indent);
+  out.push_back(']');
+}
 
-void append_json(std::string& out, const json& v, int indent, const PathsOf& paths_of, bool findings_array) {
+// nlohmann::json's dump(2) layout, written here so that a finding's paths can
+// come straight from the Finding. `findings`, when set, holds the elements of
+// the top-level "findings" array; `paths`, when set, is written as the member
+// "paths" of the object `v` (in its place in key order, as the object's own
+// members are sorted).
+void append_json(std::string& out, const json& v, int indent, const std::vector<Finding>* findings,
+                 const std::vector<std::string>* paths) {
   switch (v.type()) {
     case json::value_t::string: append_string(out, v.get_ref<const std::string&>()); return;
     case json::value_t::object: {
-      if (v.empty()) {
+      if (v.empty() && !paths) {
         out.append("{}");
         return;
       }
       out.append("{\n");
       bool first = true;
-      for (auto it = v.begin(); it != v.end(); ++it) {
+      auto member = [&](const std::string& key) {
         if (!first) out.append(",\n");
         first = false;
         indent_to(out, indent + 2);
-        append_string(out, it.key());
+        append_string(out, key);
         out.append(": ");
-        append_json(out, it.value(), indent + 2, paths_of, indent == 0 && it.key() == "findings");
+      };
+      for (auto it = v.begin(); it != v.end(); ++it) {
+        if (paths && it.key() > "paths") {
+          member("paths");
+          append_strings(out, *paths, indent + 2);
+          paths = nullptr;
+        }
+        member(it.key());
+        append_json(out, it.value(), indent + 2, indent == 0 && it.key() == "findings" ? findings : nullptr, nullptr);
+      }
+      if (paths) {
+        member("paths");
+        append_strings(out, *paths, indent + 2);
       }
       out.push_back('\n');
       indent_to(out, indent);
@@ -257,38 +286,8 @@ void append_json(std::string& out, const json& v, int indent, const PathsOf& pat
       for (size_t k = 0; k < v.size(); ++k) {
         if (k) out.append(",\n");
         indent_to(out, indent + 2);
-        const std::vector<std::string>* paths = findings_array && paths_of ? paths_of(k) : nullptr;
-        if (paths && v[k].is_object() && !v[k].contains("paths")) {
-          // A finding (small but for its paths): written with a marker under
-          // "paths", which takes its place in key order, then the marker replaced.
-          // Only "severity" (a fixed word) comes after "paths", so the last
-          // occurrence of the marker is the one.
-          json with = v[k];
-          with["paths"] = "\x01paths";
-          std::string part;
-          append_json(part, with, indent + 2, {}, false);
-          const std::string quoted = "\"\\u0001paths\"";
-          const size_t at = part.rfind(quoted);
-          std::string list;
-          if (paths->empty()) {
-            list = "[]";
-          } else {
-            list = "[\n";
-            for (size_t p = 0; p < paths->size(); ++p) {
-              if (p) list.append(",\n");
-              indent_to(list, indent + 6);
-              append_string(list, (*paths)[p]);
-            }
-            list.push_back('\n');
-            indent_to(list, indent + 4);
-            list.push_back(']');
-          }
-          out.append(part, 0, at);
-          out.append(list);
-          out.append(part, at + quoted.size());
-        } else {
-          append_json(out, v[k], indent + 2, paths_of, false);
-        }
+        const bool finding = findings && k < findings->size() && v[k].is_object() && !v[k].contains("paths");
+        append_json(out, v[k], indent + 2, nullptr, finding ? &(*findings)[k].paths : nullptr);
       }
       out.push_back('\n');
       indent_to(out, indent);
@@ -302,8 +301,7 @@ void append_json(std::string& out, const json& v, int indent, const PathsOf& pat
 }  // namespace
 
 void write_report_json(std::string& out, const json& report_without_paths, const std::vector<Finding>& findings) {
-  append_json(out, report_without_paths, 0,
-              [&](size_t k) { return k < findings.size() ? &findings[k].paths : nullptr; }, false);
+  append_json(out, report_without_paths, 0, &findings, nullptr);
   out.push_back('\n');
 }
 
