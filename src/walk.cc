@@ -44,7 +44,7 @@ class TreeWalker {
       std::vector<std::string> subdirs = list_dir(rel);
       for (auto it = subdirs.rbegin(); it != subdirs.rend(); ++it) stack.push_back(std::move(*it));
     }
-    out_.files.reserve(pending_.size());
+    out_.files.reserve(out_.files.size() + pending_.size());
     for (auto& p : pending_) {  // typed as regular files by the listing; stamped later
       WalkEntry w;
       w.path = std::move(p);
@@ -98,8 +98,14 @@ class TreeWalker {
         out_.links.push_back(std::move(child));
       } else if (S_ISDIR(cst.st_mode)) {
         subdirs.push_back(std::move(child));
-      } else if (S_ISREG(cst.st_mode)) {
-        pending_.push_back(std::move(child));
+      } else if (S_ISREG(cst.st_mode)) {  // stat'ed already: stamped now, not again later
+        WalkEntry w;
+        w.path = std::move(child);
+        w.size = static_cast<uint64_t>(cst.st_size);
+        w.mtime_ns = to_ns(cst.st_mtim);
+        w.inode = cst.st_ino;
+        w.device = cst.st_dev;
+        out_.files.push_back(std::move(w));
       }
     }
     std::sort(subdirs.begin(), subdirs.end());
@@ -109,7 +115,7 @@ class TreeWalker {
   int rootfd_;
   WalkResult& out_;
   std::set<std::pair<dev_t, ino_t>> visited_;
-  std::vector<std::string> pending_;  // regular files by their folder entry, to stat
+  std::vector<std::string> pending_;  // files the listing typed as regular: not stat'ed yet
 };
 
 }  // namespace
