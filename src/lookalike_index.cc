@@ -259,39 +259,18 @@ std::array<int, 64> deal_bits(const std::vector<uint64_t>& a, const std::vector<
   return to;
 }
 
-// Calls on_hit(x, y) for every x < nx, y < ny with hamming(xs[x], ys[y]) <= r:
-// the join's inner loop. The longer side runs innermost.
+// Calls on_hit(y) for every y < ny with hamming(cx, ys[y]) <= r: the join's
+// inner loop, one code against a run of codes.
 template <typename OnHit>
-void close_pairs_scalar(const uint64_t* xs, size_t nx, const uint64_t* ys, size_t ny, int r, OnHit&& on_hit) {
-  if (nx > ny) {
-    for (size_t y = 0; y < ny; ++y) {
-      const uint64_t cy = ys[y];
-      for (size_t x = 0; x < nx; ++x)
-        if (__builtin_popcountll(xs[x] ^ cy) <= r) [[unlikely]] on_hit(x, y);
-    }
-    return;
-  }
-  for (size_t x = 0; x < nx; ++x) {
-    const uint64_t cx = xs[x];
-    for (size_t y = 0; y < ny; ++y)
-      if (__builtin_popcountll(cx ^ ys[y]) <= r) [[unlikely]] on_hit(x, y);
-  }
-}
-
-// on_hit(x, y) for every x < y < n with hamming(c[x], c[y]) <= r.
-template <typename OnHit>
-void close_pairs_within_scalar(const uint64_t* c, size_t n, int r, OnHit&& on_hit) {
-  for (size_t x = 0; x < n; ++x) {
-    const uint64_t cx = c[x];
-    for (size_t y = x + 1; y < n; ++y)
-      if (__builtin_popcountll(cx ^ c[y]) <= r) [[unlikely]] on_hit(x, y);
-  }
+void close_run_plain(uint64_t cx, const uint64_t* ys, size_t ny, int r, OnHit&& on_hit) {
+  for (size_t y = 0; y < ny; ++y)
+    if (__builtin_popcountll(cx ^ ys[y]) <= r) [[unlikely]] on_hit(y);
 }
 
 #if defined(__x86_64__)
 #define TAMIS_WIDE_COMPARE 1
 // The same with AVX-512's population count: eight distances an instruction.
-// Exact integer arithmetic, so the hits are the same as the scalar loop's.
+// Exact integer arithmetic, so the hits are the same as the plain loop's.
 template <typename OnHit>
 __attribute__((target("avx512f,avx512vpopcntdq"))) void close_run_wide(uint64_t cx, const uint64_t* ys, size_t ny,
                                                                          int r, OnHit&& on_hit) {
@@ -313,32 +292,33 @@ __attribute__((target("avx512f,avx512vpopcntdq"))) void close_run_wide(uint64_t 
 #endif
 
 template <typename OnHit>
-void close_pairs(const uint64_t* xs, size_t nx, const uint64_t* ys, size_t ny, int r, bool wide, OnHit&& on_hit) {
+void close_run(uint64_t cx, const uint64_t* ys, size_t ny, int r, bool wide, OnHit&& on_hit) {
 #ifdef TAMIS_WIDE_COMPARE
   if (wide) {
-    if (nx > ny) {
-      for (size_t y = 0; y < ny; ++y) close_run_wide(ys[y], xs, nx, r, [&](size_t x) { on_hit(x, y); });
-    } else {
-      for (size_t x = 0; x < nx; ++x) close_run_wide(xs[x], ys, ny, r, [&](size_t y) { on_hit(x, y); });
-    }
+    close_run_wide(cx, ys, ny, r, on_hit);
     return;
   }
 #endif
   (void)wide;
-  close_pairs_scalar(xs, nx, ys, ny, r, on_hit);
+  close_run_plain(cx, ys, ny, r, on_hit);
 }
 
+// on_hit(x, y) for every x < nx, y < ny with hamming(xs[x], ys[y]) <= r; the
+// longer side runs innermost.
+template <typename OnHit>
+void close_pairs(const uint64_t* xs, size_t nx, const uint64_t* ys, size_t ny, int r, bool wide, OnHit&& on_hit) {
+  if (nx > ny) {
+    for (size_t y = 0; y < ny; ++y) close_run(ys[y], xs, nx, r, wide, [&](size_t x) { on_hit(x, y); });
+  } else {
+    for (size_t x = 0; x < nx; ++x) close_run(xs[x], ys, ny, r, wide, [&](size_t y) { on_hit(x, y); });
+  }
+}
+
+// on_hit(x, y) for every x < y < n with hamming(c[x], c[y]) <= r.
 template <typename OnHit>
 void close_pairs_within(const uint64_t* c, size_t n, int r, bool wide, OnHit&& on_hit) {
-#ifdef TAMIS_WIDE_COMPARE
-  if (wide) {
-    for (size_t x = 0; x + 1 < n; ++x)
-      close_run_wide(c[x], c + x + 1, n - x - 1, r, [&](size_t y) { on_hit(x, x + 1 + y); });
-    return;
-  }
-#endif
-  (void)wide;
-  close_pairs_within_scalar(c, n, r, on_hit);
+  for (size_t x = 0; x + 1 < n; ++x)
+    close_run(c[x], c + x + 1, n - x - 1, r, wide, [&](size_t y) { on_hit(x, x + 1 + y); });
 }
 
 constexpr uint64_t kIdMask = 0x7fffffffu;
