@@ -24,10 +24,18 @@ void check_inventory(const std::vector<FileRecord>& records, const Labelling& la
   }
   for (auto& [defect, paths] : unreadable) {
     Finding f;
-    f.code = "unreadable";
-    f.severity = Severity::error;
-    f.message = plural(paths.size(), "file cannot be read: ", "files cannot be read: ") +
-                std::string(defect_message(defect));
+    if (is_undecodable_variant(defect)) {  // not damage: a file this build cannot decode
+      f.code = "undecodable-variant";
+      f.severity = Severity::warning;
+      f.message = plural(paths.size(), "file is not damaged but cannot be decoded here: ",
+                         "files are not damaged but cannot be decoded here: ") +
+                  std::string(defect_message(defect));
+    } else {
+      f.code = "unreadable";
+      f.severity = Severity::error;
+      f.message = plural(paths.size(), "file cannot be read: ", "files cannot be read: ") +
+                  std::string(defect_message(defect));
+    }
     f.details = {{"reason", defect_code(defect)}, {"count", paths.size()}};
     f.paths = std::move(paths);
     out.push_back(std::move(f));

@@ -1,6 +1,10 @@
 #include "tamis/decode.h"
 
-#include <turbojpeg.h>
+#include <csetjmp>
+#include <cstdio>
+
+#include <jpeglib.h>
+#include <jerror.h>
 
 #include <algorithm>
 #include <memory>
@@ -18,19 +22,6 @@ namespace tamis {
 using namespace detail;
 
 namespace {
-
-struct TjHandle {
-  tjhandle h = tjInitDecompress();
-  ~TjHandle() {
-    if (h) tjDestroy(h);
-  }
-};
-
-// One decompressor per thread, made on first use.
-tjhandle thread_decompressor() {
-  thread_local TjHandle handle;
-  return handle.h;
-}
 
 cv::Mat to_8bit(const cv::Mat& m) {
   if (m.depth() == CV_8U) return m;
@@ -50,42 +41,116 @@ cv::Mat reduce(const cv::Mat& m, uint32_t side) {
   return out;
 }
 
+// libjpeg's error handling: errors and corrupt-data warnings both end the decode
+// (longjmp back to jpeg_decode_scaled), so a damaged JPEG is reported rather than
+// passed on grey-filled.
+struct JpegError {
+  jpeg_error_mgr mgr;
+  jmp_buf jump;
+  bool warning = false;
+};
+
+[[noreturn]] void jpeg_on_error(j_common_ptr c) {
+  auto* e = reinterpret_cast<JpegError*>(c->err);
+  longjmp(e->jump, 1);
+}
+
+void jpeg_on_message(j_common_ptr c, int level) {
+  auto* e = reinterpret_cast<JpegError*>(c->err);
+  if (level < 0) {  // a corrupt-data warning: stop here
+    e->warning = true;
+    longjmp(e->jump, 1);
+  }
+}
+
+void jpeg_silent(j_common_ptr) {}
+
+// Errors that a valid file of a variant this libjpeg does not implement raises
+// (12-bit samples, lossless or hierarchical JPEG, ...), as opposed to damage.
+bool unsupported_variant(int code) {
+  switch (code) {
+    case JERR_BAD_PRECISION:
+    case JERR_SOF_UNSUPPORTED:
+    case JERR_NOTIMPL:
+    case JERR_FRACT_SAMPLE_NOTIMPL:
+    case JERR_ARITH_NOTIMPL:
+    case JERR_CCIR601_NOTIMPL:
+    case JERR_CONVERSION_NOTIMPL:
+      return true;
+    default:
+      return false;
+  }
+}
+
+struct JpegDecompressor {
+  jpeg_decompress_struct cinfo{};
+  JpegError err;
+  JpegDecompressor() {
+    cinfo.err = jpeg_std_error(&err.mgr);
+    err.mgr.error_exit = jpeg_on_error;
+    err.mgr.emit_message = jpeg_on_message;
+    err.mgr.output_message = jpeg_silent;
+    jpeg_create_decompress(&cinfo);
+  }
+  ~JpegDecompressor() { jpeg_destroy_decompress(&cinfo); }
+  JpegDecompressor(const JpegDecompressor&) = delete;
+  JpegDecompressor& operator=(const JpegDecompressor&) = delete;
+};
+
+// The libjpeg calls, at the smallest DCT scale (n/8) whose shorter side still
+// reaches the wanted side; false when libjpeg gave up (dec.err says why). Every
+// object that outlives a longjmp is the caller's (this frame's locals are plain
+// values set before any libjpeg call or not read after a jump).
+bool jpeg_decode_scaled(JpegDecompressor& dec, Bytes b, const DecodeLimits& limits, cv::Mat& m, unsigned& num) {
+  jpeg_decompress_struct& ci = dec.cinfo;
+  if (setjmp(dec.err.jump)) return false;
+  jpeg_mem_src(&ci, b.data(), static_cast<unsigned long>(b.size()));
+  jpeg_read_header(&ci, TRUE);
+  const uint32_t shorter = std::min(ci.image_width, ci.image_height);
+  num = 8;  // sizes round up, as libjpeg's output dimensions do; n ascending: the first that reaches is the smallest
+  for (unsigned n = 1; n < 8; ++n)
+    if ((uint64_t{shorter} * n + 7) / 8 >= limits.reduced_side) {
+      num = n;
+      break;
+    }
+  ci.scale_num = num;
+  ci.scale_denom = 8;
+  if (ci.jpeg_color_space == JCS_GRAYSCALE)
+    ci.out_color_space = JCS_GRAYSCALE;
+  else if (ci.jpeg_color_space == JCS_CMYK || ci.jpeg_color_space == JCS_YCCK)
+    ci.out_color_space = JCS_CMYK;
+  else
+    ci.out_color_space = JCS_EXT_BGR;
+  jpeg_start_decompress(&ci);
+  const int ch = ci.out_color_space == JCS_GRAYSCALE ? 1 : ci.out_color_space == JCS_CMYK ? 4 : 3;
+  if (static_cast<int>(ci.output_components) != ch || ci.output_width == 0 || ci.output_height == 0) {
+    jpeg_abort_decompress(&ci);
+    return false;
+  }
+  m.create(static_cast<int>(ci.output_height), static_cast<int>(ci.output_width), CV_8UC(ch));
+  while (ci.output_scanline < ci.output_height) {
+    JSAMPROW row = m.ptr<uint8_t>(static_cast<int>(ci.output_scanline));
+    jpeg_read_scanlines(&ci, &row, 1);
+  }
+  jpeg_finish_decompress(&ci);
+  return true;
+}
+
+// Any sampling layout libjpeg reads is read (it scales every layout). A fresh
+// decompressor per file: a failed decode leaves nothing behind for the next file.
 Decoded decode_jpeg(Bytes b, const DecodeLimits& limits) {
   Decoded out;
-  tjhandle tj = thread_decompressor();
-  int w = 0, h = 0, subsamp = 0, colorspace = 0;
-  if (!tj || tjDecompressHeader3(tj, b.data(), b.size(), &w, &h, &subsamp, &colorspace) != 0) {
-    out.defect = Defect::decode_failed;
+  JpegDecompressor dec;
+  cv::Mat m;
+  unsigned num = 8;
+  if (!jpeg_decode_scaled(dec, b, limits, m, num)) {
+    out.defect = dec.err.warning                                ? Defect::decode_warning
+                 : unsupported_variant(dec.err.mgr.msg_code) ? Defect::unsupported_variant
+                                                                : Defect::decode_failed;
     return out;
   }
-  int nsf = 0;
-  tjscalingfactor* sf = tjGetScalingFactors(&nsf);
-  // Smallest scale whose shorter side still reaches the wanted side.
-  tjscalingfactor best{1, 1};
-  int best_short = std::min(w, h);
-  for (int i = 0; i < nsf; ++i) {
-    int sw = TJSCALED(w, sf[i]), sh = TJSCALED(h, sf[i]);
-    int s = std::min(sw, sh);
-    if (s >= static_cast<int>(limits.reduced_side) && s < best_short) {
-      best = sf[i];
-      best_short = s;
-    }
-  }
-  int sw = TJSCALED(w, best), sh = TJSCALED(h, best);
-  int pf = TJPF_BGR, ch = 3;
-  if (colorspace == TJCS_GRAY) {
-    pf = TJPF_GRAY;
-    ch = 1;
-  } else if (colorspace == TJCS_CMYK || colorspace == TJCS_YCCK) {
-    pf = TJPF_CMYK;
-    ch = 4;
-  }
-  cv::Mat m(sh, sw, CV_8UC(ch));
-  int rc = tjDecompress2(tj, b.data(), b.size(), m.data, sw, static_cast<int>(m.step), sh, pf, 0);
-  if (rc != 0) {
-    out.defect = tjGetErrorCode(tj) == TJERR_WARNING ? Defect::decode_warning : Defect::decode_failed;
-    return out;
-  }
+  const int sw = m.cols, sh = m.rows, ch = m.channels();
+  const uint32_t w = dec.cinfo.image_width, h = dec.cinfo.image_height;
   if (ch == 4) {  // Adobe CMYK JPEGs store inverted ink values; turn into BGR
     cv::Mat bgr(sh, sw, CV_8UC3);
     for (int y = 0; y < sh; ++y) {
@@ -100,10 +165,10 @@ Decoded decode_jpeg(Bytes b, const DecodeLimits& limits) {
     }
     m = bgr;
   }
-  // TJSCALED rounds up: a last column/row standing for a partial 8x8 block would
+  // Output sizes round up: a last column/row standing for a partial 8x8 block would
   // weigh as much as a whole one and shift the picture by up to a pixel (a flipped
   // copy shifts the other way). Keep only the pixels that stand for whole samples.
-  int exact_w = w * best.num / best.denom, exact_h = h * best.num / best.denom;
+  const int exact_w = static_cast<int>(uint64_t{w} * num / 8), exact_h = static_cast<int>(uint64_t{h} * num / 8);
   if (exact_w > 0 && exact_h > 0 && (exact_w < sw || exact_h < sh)) m = m(cv::Rect(0, 0, exact_w, exact_h));
   out.reduced = reduce(m, limits.reduced_side);
   return out;

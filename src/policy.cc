@@ -12,6 +12,7 @@ using nlohmann::json;
 const std::map<std::string, Severity>& finding_catalogue() {
   static const std::map<std::string, Severity> c{
       {"unreadable", Severity::error},          {"too-many-unreadable", Severity::error},
+      {"undecodable-variant", Severity::warning},
       {"no-label", Severity::warning},          {"link-not-followed", Severity::info},
       {"folder-unreadable", Severity::warning}, {"exact-duplicate", Severity::warning},
       {"near-duplicate", Severity::warning},    {"label-conflict", Severity::error},

@@ -59,6 +59,7 @@ std::string_view defect_code(Defect d) {
     case Defect::decode_failed: return "decode-failed";
     case Defect::decode_warning: return "corrupt-data";
     case Defect::no_decoder: return "no-decoder";
+    case Defect::unsupported_variant: return "unsupported-variant";
   }
   return "none";
 }
@@ -79,6 +80,8 @@ std::string_view defect_message(Defect d) {
     case Defect::decode_failed: return "the decoder rejected the image data";
     case Defect::decode_warning: return "the decoder reported corrupt image data";
     case Defect::no_decoder: return "an image format this build cannot decode";
+    case Defect::unsupported_variant:
+      return "a variant of the format that this build's decoder does not implement (for example 12-bit or lossless JPEG)";
   }
   return "";
 }

@@ -45,7 +45,12 @@ enum class Defect : uint8_t {
   decode_failed,      // the decoder refused the data
   decode_warning,     // the decoder reported corrupt data (it would fill with grey)
   no_decoder,         // a format this build cannot decode
+  unsupported_variant,  // a valid file of a variant the decoder does not implement (12-bit, lossless JPEG)
 };
+
+// A file that is no damaged file but one this build cannot decode (no_decoder,
+// unsupported_variant): reported as a warning, not as an unreadable error.
+inline bool is_undecodable_variant(Defect d) { return d == Defect::no_decoder || d == Defect::unsupported_variant; }
 
 std::string_view to_string(Format f);
 std::string_view to_string(ColorMode m);
