@@ -51,6 +51,8 @@ AuditIndex read_tree(const AuditSettings& settings) {
   ro.counts = &r.counts;
   std::vector<int64_t> thumbnail_row;  // records whose thumbnail is still in the cache
   ro.thumbnail_row = &thumbnail_row;
+  std::vector<uint32_t> by_content;  // records reused by content hash: stored anew below
+  ro.by_content = &by_content;
   ro.thumbs = &r.thumbs;
   r.records = read_files(settings.root, r.walk.files, ro);
   clock.lap("read");
@@ -82,13 +84,9 @@ AuditIndex read_tree(const AuditSettings& settings) {
     r.counts.read += missing.size();
   };
   if (cache) {
-    // A record copied from another row by content is stored under its own path:
-    // with its thumbnail.
-    std::vector<uint32_t> copies;
-    for (uint32_t i = 0; i < r.records.size(); ++i)
-      if (thumbnail_row[i] >= 0 && cache->path_of(static_cast<size_t>(thumbnail_row[i])) != r.records[i].path)
-        copies.push_back(i);
-    load_thumbnails(copies);
+    // A record reused by content (a touched, rewritten, copied or moved file) is
+    // stored anew, under its own path and stamp: with its thumbnail, loaded first.
+    load_thumbnails(by_content);
     try {
       cache->store(r.records, r.thumbs);  // as read, before mask pairing changes kinds
     } catch (const std::exception& e) {

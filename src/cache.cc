@@ -292,6 +292,15 @@ int64_t RecordCache::row_with_content(const std::array<uint64_t, 2>& hash, uint6
   return it->row;
 }
 
+std::vector<size_t> RecordCache::rows_with_content(const std::array<uint64_t, 2>& hash, uint64_t size) const {
+  std::vector<size_t> rows;
+  const ContentKey key{hash[0], hash[1], size, 0};
+  for (auto it = std::lower_bound(by_content_.begin(), by_content_.end(), key);
+       it != by_content_.end() && it->h0 == key.h0 && it->h1 == key.h1 && it->size == key.size; ++it)
+    rows.push_back(it->row);
+  return rows;
+}
+
 RecordCache::~RecordCache() = default;
 
 std::optional<GroupResult> RecordCache::load_groups(uint64_t fingerprint, size_t n) const {

@@ -5,7 +5,9 @@
 #include <unistd.h>
 #include <xxhash.h>
 
+#include <algorithm>
 #include <atomic>
+#include <map>
 #include <cerrno>
 #include <stdexcept>
 
@@ -250,6 +252,33 @@ std::vector<FileRecord> read_files(const std::filesystem::path& root, const std:
     if (buf.capacity() > (64u << 20)) std::vector<uint8_t>().swap(buf);  // do not pin huge buffers
     progress();
   }, 8);
+  uint64_t moved = 0;
+  if (opt.cache) {
+    // Files moved or renamed: per content, the new paths (content matches under a
+    // path no row has) that stored paths gone from the tree can account for. A copy
+    // (its source still there) and a touched or rewritten file did not move.
+    auto listed = [&](const std::string& p) {
+      auto it = std::lower_bound(entries.begin(), entries.end(), p,
+                                 [](const WalkEntry& e, const std::string& q) { return e.path < q; });
+      return it != entries.end() && it->path == p;
+    };
+    std::map<int64_t, std::pair<uint64_t, size_t>> new_paths;  // by the content's first row: count, an entry
+    for (size_t i = 0; i < entries.size(); ++i) {
+      if (copied_row[i] < 0) continue;
+      if (opt.by_content) opt.by_content->push_back(static_cast<uint32_t>(i));
+      if (!opt.cache->has_path(entries[i].path)) {
+        auto& [count, entry] = new_paths.try_emplace(copied_row[i], 0, i).first->second;
+        ++count;
+      }
+    }
+    for (const auto& [row, seen] : new_paths) {
+      const auto& [n, entry] = seen;
+      const FileRecord& r = records[entry];
+      uint64_t gone = 0;
+      for (size_t k : opt.cache->rows_with_content(r.features.content_hash, r.size)) gone += !listed(opt.cache->path_of(k));
+      moved += std::min(n, gone);
+    }
+  }
   if (opt.thumbnail_row) {
     opt.thumbnail_row->assign(entries.size(), -1);
     for (size_t i = 0; i < entries.size(); ++i) {
@@ -257,7 +286,7 @@ std::vector<FileRecord> read_files(const std::filesystem::path& root, const std:
       if (row >= 0 && records[i].features.has_lookalike) (*opt.thumbnail_row)[i] = row;
     }
   }
-  if (opt.counts) *opt.counts = {n_read.load(), n_cached.load(), n_hash.load()};
+  if (opt.counts) *opt.counts = {n_read.load(), n_cached.load(), n_hash.load(), moved};
   return records;
 }
 

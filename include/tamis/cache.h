@@ -20,6 +20,7 @@
 // Not thread-safe, except where a method says so: one RecordCache per run.
 #pragma once
 
+#include <algorithm>
 #include <array>
 #include <compare>
 #include <filesystem>
@@ -60,6 +61,10 @@ class RecordCache {
   std::vector<FileRecord> take_all();
   // A row with this content hash and size (the first by path), or -1. Thread-safe.
   int64_t row_with_content(const std::array<uint64_t, 2>& hash, uint64_t size) const;
+  // Every row with this content hash and size, ascending. Thread-safe.
+  std::vector<size_t> rows_with_content(const std::array<uint64_t, 2>& hash, uint64_t size) const;
+  // True when a row has this path. Thread-safe.
+  bool has_path(const std::string& path) const { return std::binary_search(paths_.begin(), paths_.end(), path); }
   // A copy of a row that was not taken (the thumbnail not loaded). Thread-safe.
   FileRecord copy(size_t row) const;
   const std::string& path_of(size_t row) const { return paths_[row]; }

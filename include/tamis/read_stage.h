@@ -34,7 +34,8 @@ class RecordCache;
 struct ReadCounts {
   uint64_t read = 0;            // files opened and decoded (or found not to be images)
   uint64_t cached = 0;          // records reused from the cache by path, size, time and inode
-  uint64_t cached_by_hash = 0;  // records reused by content hash (moved or renamed files)
+  uint64_t cached_by_hash = 0;  // records reused by content hash (touched, rewritten, copied, moved files)
+  uint64_t moved = 0;           // of those, files whose stored path is no longer in the tree (moved or renamed)
 };
 
 struct ReadOptions {
@@ -45,6 +46,10 @@ struct ReadOptions {
   // thumbnail is the record's (it came from the cache, its thumbnail not yet
   // loaded: RecordCache::load_thumbnails), or -1 (read from its file).
   std::vector<int64_t>* thumbnail_row = nullptr;
+  // Filled when set (with a cache): the records reused by content hash (a
+  // touched, rewritten, copied or moved file), ascending. The cache stores them
+  // anew, so their thumbnails must be loaded before RecordCache::store.
+  std::vector<uint32_t>* by_content = nullptr;
   // Filled when set: the thumbnail of every image read from its file (records
   // from the cache get no slot here; their thumbnails stay in the cache).
   ThumbnailTable* thumbs = nullptr;

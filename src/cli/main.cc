@@ -161,7 +161,8 @@ void print_summary(const tamis::AuditResult& r, const std::filesystem::path& out
                         {"groups", r.groups.groups.size()}, {"errors", errors}, {"warnings", warnings}, {"infos", infos},
                         {"failing", failing}, {"exit_status", tamis::policy_exit_status(r)},
                         {"reports", (out / "report.html").string()},
-                        {"read", r.counts.read}, {"cached", r.counts.cached}, {"cached_by_hash", r.counts.cached_by_hash}};
+                        {"read", r.counts.read}, {"cached", r.counts.cached}, {"cached_by_hash", r.counts.cached_by_hash},
+                        {"moved_or_renamed", r.counts.moved}};
     if (r.baseline.present)
       j["baseline"] = {{"findings_new", r.baseline.findings_new}, {"findings_gone", r.baseline.findings_gone},
                        {"files_added", r.baseline.files_added.size()}, {"files_removed", r.baseline.files_removed.size()}};
@@ -191,8 +192,9 @@ void print_summary(const tamis::AuditResult& r, const std::filesystem::path& out
                 r.baseline.findings_new, r.baseline.findings_gone, r.baseline.files_added.size(),
                 r.baseline.files_removed.size());
   if (r.counts.read + r.counts.cached + r.counts.cached_by_hash > 0)
-    std::printf("read %llu files, %llu from the cache, %llu moved or renamed\n", (unsigned long long)r.counts.read,
-                (unsigned long long)r.counts.cached, (unsigned long long)r.counts.cached_by_hash);
+    std::printf("read %llu files, %llu from the cache (%llu of them by content), %llu moved or renamed\n",
+                (unsigned long long)r.counts.read, (unsigned long long)(r.counts.cached + r.counts.cached_by_hash),
+                (unsigned long long)r.counts.cached_by_hash, (unsigned long long)r.counts.moved);
   std::printf("policy: %s%s%s\n", failing ? red : green,
               failing ? (std::to_string(failing) + " error findings break it").c_str() : "passes", off);
   std::printf("reports: %s\n", (out / "report.html").string().c_str());
