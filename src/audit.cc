@@ -109,6 +109,9 @@ AuditIndex read_tree(const AuditSettings& settings) {
     const double corr = gs.min_correlation;
     XXH3_64bits_update(st, &gs.radius, sizeof gs.radius);
     XXH3_64bits_update(st, &corr, sizeof corr);
+    const double local = gs.max_local, chroma = gs.max_chroma;
+    XXH3_64bits_update(st, &local, sizeof local);
+    XXH3_64bits_update(st, &chroma, sizeof chroma);
     for (const auto& rec : r.records) {
       XXH3_64bits_update(st, rec.path.data(), rec.path.size() + 1);
       XXH3_64bits_update(st, &rec.kind, sizeof rec.kind);

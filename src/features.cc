@@ -359,25 +359,49 @@ void apply_dihedral(const uint8_t* src, uint8_t* dst, int n, int t) {
     }
 }
 
+void turn_thumbnail(const Thumbnail& src, Thumbnail& dst, int t) {
+  apply_dihedral(src.data(), dst.data(), kThumbSide, t);
+  apply_dihedral(src.data() + kGrayBytes, dst.data() + kGrayBytes, kChromaSide, t);
+  apply_dihedral(src.data() + kGrayBytes + kChromaPlane, dst.data() + kGrayBytes + kChromaPlane, kChromaSide, t);
+}
+
 Lookalike lookalike_features(const cv::Mat& reduced) {
   Lookalike f;
   cv::Mat t32 = hash_thumbnail(reduced);
   f.phash = dct_hashes(t32);
   for (int y = 0; y < 32; ++y) std::copy(t32.ptr<uint8_t>(y), t32.ptr<uint8_t>(y) + 32, f.thumb.begin() + y * 32);
+  // Chroma at 8x8 (area-averaged); a gray image's is neutral.
+  uint8_t* cb = f.thumb.data() + kGrayBytes;
+  uint8_t* cr = cb + kChromaPlane;
+  if (reduced.channels() == 1) {
+    std::fill(cb, cb + 2 * kChromaPlane, uint8_t{128});
+  } else {
+    cv::Mat bgr = reduced, ycc, small;
+    if (reduced.channels() == 4) cv::cvtColor(reduced, bgr, cv::COLOR_BGRA2BGR);
+    cv::cvtColor(bgr, ycc, cv::COLOR_BGR2YCrCb);
+    const bool shrink = ycc.cols >= kChromaSide && ycc.rows >= kChromaSide;
+    cv::resize(ycc, small, cv::Size(kChromaSide, kChromaSide), 0, 0, shrink ? cv::INTER_AREA : cv::INTER_LINEAR);
+    for (int y = 0; y < kChromaSide; ++y)
+      for (int x = 0; x < kChromaSide; ++x) {
+        const cv::Vec3b p = small.at<cv::Vec3b>(y, x);
+        cr[y * kChromaSide + x] = p[1];
+        cb[y * kChromaSide + x] = p[2];
+      }
+  }
   return f;
 }
 
-ThumbStats thumb_stats(const std::array<uint8_t, 1024>& t) {
+ThumbStats thumb_stats(const Thumbnail& thumb) {
   ThumbStats s;
-  for (uint8_t v : t) {
+  for (size_t i = 0; i < kGrayBytes; ++i) {
+    const uint8_t v = thumb[i];
     s.sum += v;
     s.sum_sq += uint32_t{v} * v;
   }
   return s;
 }
 
-double thumb_correlation(const std::array<uint8_t, 1024>& ta, const ThumbStats& sa, const std::array<uint8_t, 1024>& b,
-                         const ThumbStats& sb) {
+double thumb_correlation(const Thumbnail& ta, const ThumbStats& sa, const Thumbnail& b, const ThumbStats& sb) {
   constexpr double kN = 1024;
   uint32_t dot = 0;  // at most 1024 * 255 * 255 < 2^32
   for (int i = 0; i < 1024; ++i) dot += uint32_t{ta[i]} * b[i];
@@ -478,7 +502,7 @@ __attribute__((target("avx512f,avx512bw,avx512vbmi"))) bool sketch_may_correlate
 
 }  // namespace
 
-ThumbSketch thumb_sketch(const std::array<uint8_t, 1024>& thumb, const ThumbStats& s) {
+ThumbSketch thumb_sketch(const Thumbnail& thumb, const ThumbStats& s) {
   constexpr double kN = 1024;
   const double mean = s.sum / kN;
   const double norm = std::sqrt(std::max(1e-12, double(s.sum_sq) - kN * mean * mean));
@@ -502,9 +526,9 @@ bool sketch_may_correlate(const ThumbSketch& a, int t, const ThumbSketch& b, dou
   return sketch_may_correlate_plain(a, t, b, limit);
 }
 
-double thumb_correlation(const std::array<uint8_t, 1024>& a, int t, const std::array<uint8_t, 1024>& b) {
-  std::array<uint8_t, 1024> ta;
-  apply_dihedral(a.data(), ta.data(), 32, t);
+double thumb_correlation(const Thumbnail& a, int t, const Thumbnail& b) {
+  Thumbnail ta;
+  turn_thumbnail(a, ta, t);
   return thumb_correlation(ta, thumb_stats(a), b, thumb_stats(b));
 }
 

@@ -109,6 +109,7 @@ GroupResult find_groups(const std::vector<FileRecord>& records, const ThumbnailT
     for (size_t k = 0; k < n; ++k)
       for (int t = 0; t < kDihedralCount; ++t) self_hits += hamming(records[eligible[k]].features.look.phash[t], identity[k]) <= settings.radius;
     std::vector<std::pair<uint32_t, uint32_t>> confirmed;
+    const MatchSettings match{settings.min_correlation, settings.max_local, settings.max_chroma};
     // Kept hits (8 * image + t, j), sorted by their first member: turn each
     // (image, t) thumbnail once, then compare it with its partners.
     auto confirm = [&](const std::vector<std::pair<uint32_t, uint32_t>>& hits) {
@@ -120,12 +121,11 @@ GroupResult find_groups(const std::vector<FileRecord>& records, const ThumbnailT
       parallel_for(found.size(), settings.threads, [&](size_t g) {
         const uint32_t i = hits[starts[g]].first / kDihedralCount;
         const int t = static_cast<int>(hits[starts[g]].first % kDihedralCount);
-        std::array<uint8_t, 1024> turned;
-        apply_dihedral(thumbs.at(eligible[i]).data(), turned.data(), 32, t);
+        Thumbnail turned;
+        turn_thumbnail(thumbs.at(eligible[i]), turned, t);
         for (size_t h = starts[g]; h < starts[g + 1]; ++h) {
           const uint32_t j = hits[h].second;
-          if (thumb_correlation(turned, stats[i], thumbs.at(eligible[j]), stats[j]) >=
-              settings.min_correlation)
+          if (match_thumbnails(turned, stats[i], thumbs.at(eligible[j]), stats[j], match).joined)
             found[g].emplace_back(std::min(i, j), std::max(i, j));
         }
       }, 64);

@@ -76,7 +76,10 @@ void save_index(const std::filesystem::path& file, const AuditIndex& x, StagedFi
                {"reduced_side", x.settings.read.decode.reduced_side},
                {"max_bytes", x.settings.read.max_bytes}};
   j["mask_settings"] = {{"force", bins(x.settings.masks.force)}, {"forbid", bins(x.settings.masks.forbid)}};
-  j["groups_settings"] = {{"radius", x.settings.groups.radius}, {"min_correlation", x.settings.groups.min_correlation}};
+  j["groups_settings"] = {{"radius", x.settings.groups.radius},
+                          {"min_correlation", x.settings.groups.min_correlation},
+                          {"max_local", x.settings.groups.max_local},
+                          {"max_chroma", x.settings.groups.max_chroma}};
   const auto& cs = x.settings.checks;
   j["checks"] = {{"min_side", cs.min_side}, {"input_side", cs.input_side}, {"min_class", cs.min_class},
                  {"max_imbalance", cs.max_imbalance}, {"outlier_z", cs.outlier_z}};
@@ -199,6 +202,8 @@ AuditIndex load_index(const std::filesystem::path& file) {
     x.settings.read.max_bytes = rd.at("max_bytes").get<uint64_t>();
     x.settings.groups.radius = j.at("groups_settings").at("radius").get<int>();
     x.settings.groups.min_correlation = j.at("groups_settings").at("min_correlation").get<double>();
+    x.settings.groups.max_local = j.at("groups_settings").at("max_local").get<double>();
+    x.settings.groups.max_chroma = j.at("groups_settings").at("max_chroma").get<double>();
     x.settings.masks.force = strs(j.at("mask_settings").at("force"));
     x.settings.masks.forbid = strs(j.at("mask_settings").at("forbid"));
     const json& ck = j.at("checks");
@@ -272,7 +277,7 @@ AuditIndex load_index(const std::filesystem::path& file) {
     std::vector<uint32_t> with_thumb;
     for (const auto& e : j.at("thumbs")) {
       uint32_t m = e.at(0).get<uint32_t>();
-      if (m >= n || e.at(1).get_binary().size() != 1024) throw std::runtime_error("thumbnail out of range");
+      if (m >= n || e.at(1).get_binary().size() != Thumbnail{}.size()) throw std::runtime_error("thumbnail out of range");
       with_thumb.push_back(m);
     }
     x.thumbs.make_room(with_thumb);

@@ -26,6 +26,8 @@ json settings_json(const AuditSettings& s) {
       {"reduced_side", s.read.decode.reduced_side},
       {"lookalike_radius", s.groups.radius},
       {"lookalike_min_correlation", s.groups.min_correlation},
+      {"lookalike_max_local", s.groups.max_local},
+      {"lookalike_max_chroma", s.groups.max_chroma},
       {"min_side", s.checks.min_side},
       {"input_side", s.checks.input_side},
       {"min_class", s.checks.min_class},

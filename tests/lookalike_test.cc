@@ -194,8 +194,8 @@ TEST_CASE("the DCT sketch never rejects a pair that reaches the correlation thre
 
 TEST_CASE("find_groups equals the definition checked pair by pair", "[lookalike][groups]") {
   // Groups are the connected components of pairs (i, j) such that some flip/turn t
-  // of i has a hash within the radius of j's and thumbnails that correlate
-  // enough: here every pair and every t is tried, with no index and no sketch.
+  // of i has a hash within the radius of j's and thumbnails that match (match.h):
+  // here every pair and every t is tried, with no index and no sketch.
   auto looks = real_thumbnails(3000);
   std::vector<FileRecord> records(looks.size());
   for (size_t i = 0; i < looks.size(); ++i) {
@@ -223,7 +223,8 @@ TEST_CASE("find_groups equals the definition checked pair by pair", "[lookalike]
         for (int t = 0; t < kDihedralCount; ++t) {
           if (hamming(looks[i].phash[t], looks[j].phash[0]) > gs.radius) continue;
           ++hits;
-          if (thumb_correlation(looks[i].thumb, t, looks[j].thumb) >= c) pairs.emplace(std::min(i, j), std::max(i, j));
+          if (match_thumbnails(looks[i].thumb, t, looks[j].thumb, MatchSettings{c, gs.max_local, gs.max_chroma}).joined)
+            pairs.emplace(std::min(i, j), std::max(i, j));
         }
       }
     INFO("threshold " << c << ": " << pairs.size() << " pairs");

@@ -35,7 +35,7 @@
 
 namespace tamis {
 
-inline constexpr int kCacheSchemaVersion = 3;  // 2: records in fixed bytes (was CBOR); 3: thumbnails apart
+inline constexpr int kCacheSchemaVersion = 4;  // 2: records in fixed bytes (was CBOR); 3: thumbnails apart; 4: thumbnails with 8x8 chroma
 
 class RecordCache {
  public:

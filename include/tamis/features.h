@@ -48,20 +48,21 @@ float laplacian_variance(const cv::Mat& gray);
 
 // Applies dihedral transform t to a square row-major gray image of side n.
 void apply_dihedral(const uint8_t* src, uint8_t* dst, int n, int t);
+// Applies it to a whole thumbnail (the gray plane and both chroma planes).
+void turn_thumbnail(const Thumbnail& src, Thumbnail& dst, int t);
 
 // Pearson correlation of a's transform t with b (32x32 thumbnails). Two nearly
 // uniform thumbnails (standard deviation below 2 grey levels) correlate 1 when
 // their means are within 4 levels, else 0; one uniform and one not: 0.
-double thumb_correlation(const std::array<uint8_t, 1024>& a, int t, const std::array<uint8_t, 1024>& b);
+double thumb_correlation(const Thumbnail& a, int t, const Thumbnail& b);
 
 // The same, in two steps for many comparisons: a thumbnail's sums (unchanged by
 // any flip/turn), then the correlation of an already transformed `a` with `b`.
 struct ThumbStats {
   uint32_t sum = 0, sum_sq = 0;  // at most 1024 * 255 and 1024 * 255^2 (< 2^27)
 };
-ThumbStats thumb_stats(const std::array<uint8_t, 1024>& t);
-double thumb_correlation(const std::array<uint8_t, 1024>& turned_a, const ThumbStats& sa,
-                         const std::array<uint8_t, 1024>& b, const ThumbStats& sb);
+ThumbStats thumb_stats(const Thumbnail& t);
+double thumb_correlation(const Thumbnail& turned_a, const ThumbStats& sa, const Thumbnail& b, const ThumbStats& sb);
 
 // True when thumb_correlation treats the thumbnail as flat (standard deviation
 // below 2 grey levels): its correlations follow the flat rule above.
@@ -81,7 +82,7 @@ struct alignas(64) ThumbSketch {
   std::array<int8_t, 64> c{};  // c[k - 1]: coefficient k = 8u + v of the block, k = 1..63; c[63] = 0
 };
 // REQUIRES: !thumb_is_flat(s), s = thumb_stats(thumb).
-ThumbSketch thumb_sketch(const std::array<uint8_t, 1024>& thumb, const ThumbStats& s);
+ThumbSketch thumb_sketch(const Thumbnail& thumb, const ThumbStats& s);
 // False only when corr(transform t of a, b) < min_correlation for certain (the
 // bound allows for the rounding of the sketches and of their computation).
 bool sketch_may_correlate(const ThumbSketch& a, int t, const ThumbSketch& b, double min_correlation);

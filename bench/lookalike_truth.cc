@@ -1,0 +1,145 @@
+// Look-alike truth on planted sets, both sides (docs/lookalikes.md):
+//  - recall per copy kind (tests/support/planted.h: resampling, flips/turns,
+//    re-encoding, tone, colour, blur, sharpening, noise) on Fashion-MNIST images,
+//    the visp photographs and rendered colour scenes;
+//  - distinct pictures joined: every pair within a rendered scene (shared smooth
+//    backdrop; objects that stand out in hue: other, moved, recoloured, small);
+//  - Fashion-MNIST images grouped by find_groups (70,000 distinct images);
+//  - the trade-off: the same for a grid of (max_local, max_chroma).
+// Usage: lookalike_truth FASHION_MNIST_TREE [SOURCES_STEP]
+#include <algorithm>
+#include <chrono>
+#include <cstdio>
+#include <filesystem>
+#include <map>
+
+#include <opencv2/imgcodecs.hpp>
+
+#include "support/photos.h"
+#include "support/planted.h"
+#include "support/temp_tree.h"
+#include "tamis/decode.h"
+#include "tamis/features.h"
+#include "tamis/groups.h"
+#include "tamis/lookalike_index.h"
+#include "tamis/match.h"
+#include "tamis/probe.h"
+
+using namespace tamis;
+
+static Lookalike features_of(const std::vector<uint8_t>& bytes) {
+  ProbeOutcome p = probe_bytes(bytes);
+  Decoded d = decode_image(bytes, p.info, DecodeLimits{});
+  if (d.defect != Defect::none) throw std::runtime_error("decode failed");
+  return lookalike_features(d.reduced);
+}
+
+static bool joined(const Lookalike& a, const Lookalike& b, const GroupSettings& gs) {
+  const MatchSettings ms{gs.min_correlation, gs.max_local, gs.max_chroma};
+  for (int t = 0; t < kDihedralCount; ++t) {
+    if (hamming(a.phash[t], b.phash[0]) <= gs.radius && match_thumbnails(a.thumb, t, b.thumb, ms).joined) return true;
+    if (hamming(b.phash[t], a.phash[0]) <= gs.radius && match_thumbnails(b.thumb, t, a.thumb, ms).joined) return true;
+  }
+  return false;
+}
+
+int main(int argc, char** argv) {
+  if (argc < 2) return 2;
+  const size_t step = argc > 2 ? std::stoul(argv[2]) : 100;
+  std::vector<std::filesystem::path> files;
+  for (const auto& e : std::filesystem::recursive_directory_iterator(argv[1]))
+    if (e.is_regular_file()) files.push_back(e.path());
+  std::sort(files.begin(), files.end());
+  struct Source { std::string family; cv::Mat pixels; Lookalike look; };
+  std::vector<Source> sources;
+  for (size_t k = 0; k < files.size(); k += step)
+    sources.push_back({"fashion-mnist", cv::imread(files[k].string(), cv::IMREAD_UNCHANGED), {}});
+  for (const auto& rel : test::distinct_photographs())
+    sources.push_back({"visp", cv::imread((test::kVispDir / rel).string(), cv::IMREAD_UNCHANGED), {}});
+  for (const auto& sc : test::rendered_scenes(40, 1, 160, 120, 7)) sources.push_back({"scenes", sc.pictures[0], {}});
+  for (auto& s : sources) s.look = features_of(test::encode_copy(s.pixels, 0));
+  // Copies, made once.
+  struct Copy { size_t source; size_t kind; Lookalike look; };
+  std::vector<Copy> copies;
+  const auto& kinds = test::planted_kinds();
+  for (size_t si = 0; si < sources.size(); ++si)
+    for (size_t ki = 0; ki < kinds.size(); ++ki) {
+      if (kinds[ki].colour_only && sources[si].pixels.channels() != 3) continue;
+      copies.push_back({si, ki, features_of(test::encode_copy(kinds[ki].make(sources[si].pixels), kinds[ki].jpeg_quality))});
+    }
+  const auto scenes = test::rendered_scenes(60, 10, 160, 120, 99);
+  std::vector<std::vector<Lookalike>> scene_looks;
+  for (const auto& sc : scenes) {
+    scene_looks.emplace_back();
+    for (const auto& p : sc.pictures) scene_looks.back().push_back(features_of(test::encode_copy(p, 90)));
+  }
+  // Fashion-MNIST records for find_groups.
+  std::vector<FileRecord> records(files.size());
+  ThumbnailTable thumbs;
+  thumbs.assign_all(files.size());
+  for (size_t i = 0; i < files.size(); ++i) {
+    const Lookalike l = features_of(test::read_bytes(files[i]));
+    records[i].path = files[i].string();
+    records[i].kind = FileKind::image;
+    records[i].features.has_lookalike = records[i].features.has_content_hash = true;
+    records[i].features.content_hash = {i, 1};
+    records[i].features.look = l;
+    thumbs.at(i) = l.thumb;
+  }
+
+  auto evaluate = [&](const GroupSettings& gs, bool detail) {
+    std::map<std::string, std::pair<int, int>> per_kind;  // found, total
+    std::map<std::string, std::pair<int, int>> per_family;
+    for (const auto& c : copies) {
+      const bool ok = joined(c.look, sources[c.source].look, gs);
+      auto& k = per_kind[kinds[c.kind].name];
+      k.first += ok;
+      ++k.second;
+      auto& f = per_family[sources[c.source].family];
+      f.first += ok;
+      ++f.second;
+    }
+    std::map<std::string, int> wrong;
+    int distinct_pairs = 0, distinct_joined = 0;
+    for (size_t s = 0; s < scenes.size(); ++s)
+      for (size_t i = 0; i < scene_looks[s].size(); ++i)
+        for (size_t j = i + 1; j < scene_looks[s].size(); ++j) {
+          ++distinct_pairs;
+          if (joined(scene_looks[s][i], scene_looks[s][j], gs)) {
+            ++distinct_joined;
+            ++wrong[scenes[s].how[i] + " / " + scenes[s].how[j]];
+          }
+        }
+    const GroupResult g = find_groups(records, thumbs, gs);
+    size_t grouped = 0;
+    for (const auto& grp : g.groups) grouped += grp.members.size();
+    int worst_found = 1, worst_total = 1;
+    std::string worst;
+    for (const auto& [name, ft] : per_kind)
+      if (double(ft.first) / ft.second < double(worst_found) / worst_total) {
+        worst_found = ft.first;
+        worst_total = ft.second;
+        worst = name;
+      }
+    std::printf("local %.3f chroma %.2f corr %.3f | lowest recall %s %d/%d | distinct joined %d/%d | fashion-mnist grouped %zu\n",
+                gs.max_local, gs.max_chroma, gs.min_correlation, worst.c_str(), worst_found, worst_total, distinct_joined,
+                distinct_pairs, grouped);
+    if (!detail) return;
+    std::printf("%-26s %s\n", "kind", "found / copies");
+    for (const auto& [name, ft] : per_kind) std::printf("%-26s %4d / %4d  %.3f\n", name.c_str(), ft.first, ft.second, double(ft.first) / ft.second);
+    for (const auto& [name, ft] : per_family) std::printf("family %-19s %4d / %4d\n", name.c_str(), ft.first, ft.second);
+    for (const auto& [how, n] : wrong) std::printf("joined distinct: %-40s %d\n", how.c_str(), n);
+  };
+  GroupSettings defaults;
+  std::printf("== defaults\n");
+  evaluate(defaults, true);
+  std::printf("== trade-off\n");
+  for (double l : {0.03, 0.045, 0.06, 0.09, 0.16})
+    for (double c : {0.2, 0.35, 0.6, 10.0}) {
+      GroupSettings gs;
+      gs.max_local = l;
+      gs.max_chroma = c;
+      evaluate(gs, false);
+    }
+  return 0;
+}

@@ -1,0 +1,39 @@
+// Test support: planted sets for look-alike truth, both sides.
+//  - planted_kinds(): the copies the look-alike search must join to their source,
+//    many kinds and strengths (resampling with every interpolation, flips and
+//    turns, re-encoding, tone and colour changes, light blur, sharpening, noise);
+//  - rendered_scenes(): pictures that must NOT be joined: scenes that share one
+//    smooth backdrop (a two-colour gradient) and differ by their objects, which
+//    stand out from the backdrop in hue more than in brightness: other objects,
+//    the same object moved, the same object in another colour, a small object
+//    moved. The truth is constructed: every pair within a scene is distinct.
+// Deterministic (seeded SplitMix64).
+#pragma once
+
+#include <cstdint>
+#include <functional>
+#include <string>
+#include <vector>
+
+#include <opencv2/core.hpp>
+
+namespace tamis::test {
+
+struct PlantedKind {
+  std::string name;
+  std::function<cv::Mat(const cv::Mat&)> make;  // the copied pixels (8-bit, 1 or 3 channels)
+  int jpeg_quality;                              // 0: PNG
+  bool colour_only = false;                      // a change of colour: planted on colour sources only
+};
+
+const std::vector<PlantedKind>& planted_kinds();
+
+struct Scene {
+  std::vector<cv::Mat> pictures;  // BGR, all sharing one backdrop
+  std::vector<std::string> how;   // per picture: how it differs from picture 0
+};
+
+// `count` scenes of `per_scene` pictures (width x height), from `seed`.
+std::vector<Scene> rendered_scenes(int count, int per_scene, int width, int height, uint64_t seed);
+
+}  // namespace tamis::test
