@@ -65,18 +65,11 @@ def build_tree(root, rng):
     img.filter(ImageFilter.GaussianBlur(0.5)).save(os.path.join(root, "moss", "images", "soft.png"))
 
 
-def images(root):
+def listed(root, sub):
+    """The files of every class's `sub` folder ("images" or "masks"), sorted."""
     out = []
     for c in CLASSES:
-        d = os.path.join(root, c, "images")
-        out += [os.path.join(d, n) for n in sorted(os.listdir(d))]
-    return out
-
-
-def masks(root):
-    out = []
-    for c in CLASSES:
-        d = os.path.join(root, c, "masks")
+        d = os.path.join(root, c, sub)
         out += [os.path.join(d, n) for n in sorted(os.listdir(d))]
     return out
 
@@ -85,7 +78,7 @@ def edit(root, rng):
     """One random edit; returns (description, files moved by it)."""
     kind = rng.choice(["touch", "rewrite", "rename", "copy", "delete", "pixels", "mask_pixels", "new_mask",
                        "remove_mask"])
-    imgs = images(root)
+    imgs = listed(root, "images")
     # Half the edits hit members of the look-alike group (whose thumbnails the report shows).
     family = [q for q in imgs if any(k in os.path.basename(q) for k in ("lichen_0", "mirror", "reencoded", "soft"))]
     p = rng.choice(family if family and rng.random() < 0.5 else imgs)
@@ -117,7 +110,7 @@ def edit(root, rng):
         ImageDraw.Draw(img).rectangle((2, 2, 12, 12), fill=tuple(rng.randrange(256) for _ in range(3)))
         img.save(p)
         return f"pixels {p}", 0
-    ms = masks(root)
+    ms = listed(root, "masks")
     if kind == "mask_pixels" and ms:
         m = rng.choice(ms)
         img = Image.open(m).convert("L")
