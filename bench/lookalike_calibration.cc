@@ -19,6 +19,7 @@
 #include <opencv2/imgcodecs.hpp>
 
 #include "support/photos.h"
+#include "support/planted.h"
 #include "support/temp_tree.h"
 #include "tamis/decode.h"
 #include "tamis/features.h"
@@ -27,13 +28,6 @@
 #include "tamis/probe.h"
 
 using namespace tamis;
-
-static Lookalike features_of_bytes(const std::vector<uint8_t>& bytes) {
-  ProbeOutcome p = probe_bytes(bytes);
-  Decoded d = decode_image(bytes, p.info, DecodeLimits{});
-  if (d.defect != Defect::none) throw std::runtime_error("decode failed");
-  return lookalike_features(d.reduced);
-}
 
 static double best_corr(const Lookalike& a, const Lookalike& b, int* dist_out) {
   int best_d = 65, best_t = 0;
@@ -52,10 +46,10 @@ int main(int argc, char** argv) {
   int max_dist = 0;
   for (const auto& rel : test::distinct_photographs()) {
     auto orig_bytes = test::read_bytes(test::kVispDir / rel);
-    Lookalike o = features_of_bytes(orig_bytes);
+    Lookalike o = test::lookalike_of_bytes(orig_bytes);
     cv::Mat pixels = cv::imread((test::kVispDir / rel).string(), cv::IMREAD_UNCHANGED);
     for (const auto& k : test::copy_kinds()) {
-      Lookalike c = features_of_bytes(test::encode_copy(k.make(pixels), k.jpeg_quality));
+      Lookalike c = test::lookalike_of_bytes(test::encode_copy(k.make(pixels), k.jpeg_quality));
       int d;
       double corr = best_corr(c, o, &d);
       std::printf("%-52s %-18s dist %2d corr %.4f\n", rel.c_str(), k.name.c_str(), d, corr);
@@ -75,7 +69,7 @@ int main(int argc, char** argv) {
       if (std::filesystem::exists(test::kVispDir / name)) distinct.push_back(name);
     }
   std::vector<Lookalike> feats;
-  for (const auto& rel : distinct) feats.push_back(features_of_bytes(test::read_bytes(test::kVispDir / rel)));
+  for (const auto& rel : distinct) feats.push_back(test::lookalike_of_bytes(test::read_bytes(test::kVispDir / rel)));
   int min_distinct = 64;
   double max_distinct_corr = -1;
   std::map<int, int> hist;
@@ -99,7 +93,7 @@ int main(int argc, char** argv) {
     for (const auto& e : std::filesystem::recursive_directory_iterator(argv[1]))
       if (e.is_regular_file()) files.push_back(e.path());
     std::sort(files.begin(), files.end());
-    for (const auto& f : files) fm.push_back(features_of_bytes(test::read_bytes(f)));
+    for (const auto& f : files) fm.push_back(test::lookalike_of_bytes(test::read_bytes(f)));
     std::vector<uint64_t> codes;
     for (const auto& f : fm) codes.push_back(f.phash[0]);
     const int max_r = 10;

@@ -18,30 +18,9 @@
 #include "support/photos.h"
 #include "support/planted.h"
 #include "support/temp_tree.h"
-#include "tamis/decode.h"
-#include "tamis/features.h"
 #include "tamis/groups.h"
-#include "tamis/lookalike_index.h"
-#include "tamis/match.h"
-#include "tamis/probe.h"
 
 using namespace tamis;
-
-static Lookalike features_of(const std::vector<uint8_t>& bytes) {
-  ProbeOutcome p = probe_bytes(bytes);
-  Decoded d = decode_image(bytes, p.info, DecodeLimits{});
-  if (d.defect != Defect::none) throw std::runtime_error("decode failed");
-  return lookalike_features(d.reduced);
-}
-
-static bool joined(const Lookalike& a, const Lookalike& b, const GroupSettings& gs) {
-  const MatchSettings ms{gs.min_correlation, gs.max_local, gs.max_chroma};
-  for (int t = 0; t < kDihedralCount; ++t) {
-    if (hamming(a.phash[t], b.phash[0]) <= gs.radius && match_thumbnails(a.thumb, t, b.thumb, ms).joined) return true;
-    if (hamming(b.phash[t], a.phash[0]) <= gs.radius && match_thumbnails(b.thumb, t, a.thumb, ms).joined) return true;
-  }
-  return false;
-}
 
 int main(int argc, char** argv) {
   if (argc < 2) return 2;
@@ -57,7 +36,7 @@ int main(int argc, char** argv) {
   for (const auto& rel : test::distinct_photographs())
     sources.push_back({"visp", cv::imread((test::kVispDir / rel).string(), cv::IMREAD_UNCHANGED), {}});
   for (const auto& sc : test::rendered_scenes(40, 1, 160, 120, 7)) sources.push_back({"scenes", sc.pictures[0], {}});
-  for (auto& s : sources) s.look = features_of(test::encode_copy(s.pixels, 0));
+  for (auto& s : sources) s.look = test::lookalike_of_bytes(test::encode_copy(s.pixels, 0));
   // Copies, made once.
   struct Copy { size_t source; size_t kind; Lookalike look; };
   std::vector<Copy> copies;
@@ -65,20 +44,20 @@ int main(int argc, char** argv) {
   for (size_t si = 0; si < sources.size(); ++si)
     for (size_t ki = 0; ki < kinds.size(); ++ki) {
       if (kinds[ki].colour_only && sources[si].pixels.channels() != 3) continue;
-      copies.push_back({si, ki, features_of(test::encode_copy(kinds[ki].make(sources[si].pixels), kinds[ki].jpeg_quality))});
+      copies.push_back({si, ki, test::lookalike_of_bytes(test::encode_copy(kinds[ki].make(sources[si].pixels), kinds[ki].jpeg_quality))});
     }
   const auto scenes = test::rendered_scenes(60, 10, 160, 120, 99);
   std::vector<std::vector<Lookalike>> scene_looks;
   for (const auto& sc : scenes) {
     scene_looks.emplace_back();
-    for (const auto& p : sc.pictures) scene_looks.back().push_back(features_of(test::encode_copy(p, 90)));
+    for (const auto& p : sc.pictures) scene_looks.back().push_back(test::lookalike_of_bytes(test::encode_copy(p, 90)));
   }
   // Fashion-MNIST records for find_groups.
   std::vector<FileRecord> records(files.size());
   ThumbnailTable thumbs;
   thumbs.assign_all(files.size());
   for (size_t i = 0; i < files.size(); ++i) {
-    const Lookalike l = features_of(test::read_bytes(files[i]));
+    const Lookalike l = test::lookalike_of_bytes(test::read_bytes(files[i]));
     records[i].path = files[i].string();
     records[i].kind = FileKind::image;
     records[i].features.has_lookalike = records[i].features.has_content_hash = true;
@@ -91,7 +70,7 @@ int main(int argc, char** argv) {
     std::map<std::string, std::pair<int, int>> per_kind;  // found, total
     std::map<std::string, std::pair<int, int>> per_family;
     for (const auto& c : copies) {
-      const bool ok = joined(c.look, sources[c.source].look, gs);
+      const bool ok = test::pair_joined(c.look, sources[c.source].look, gs);
       auto& k = per_kind[kinds[c.kind].name];
       k.first += ok;
       ++k.second;
@@ -105,7 +84,7 @@ int main(int argc, char** argv) {
       for (size_t i = 0; i < scene_looks[s].size(); ++i)
         for (size_t j = i + 1; j < scene_looks[s].size(); ++j) {
           ++distinct_pairs;
-          if (joined(scene_looks[s][i], scene_looks[s][j], gs)) {
+          if (test::pair_joined(scene_looks[s][i], scene_looks[s][j], gs)) {
             ++distinct_joined;
             ++wrong[scenes[s].how[i] + " / " + scenes[s].how[j]];
           }
@@ -122,7 +101,7 @@ int main(int argc, char** argv) {
         worst = name;
       }
     std::printf("local %.3f chroma %.2f corr %.3f | lowest recall %s %d/%d | distinct joined %d/%d | fashion-mnist grouped %zu\n",
-                gs.max_local, gs.max_chroma, gs.min_correlation, worst.c_str(), worst_found, worst_total, distinct_joined,
+                gs.match.max_local, gs.match.max_chroma, gs.match.min_correlation, worst.c_str(), worst_found, worst_total, distinct_joined,
                 distinct_pairs, grouped);
     if (!detail) return;
     std::printf("%-26s %s\n", "kind", "found / copies");
@@ -137,8 +116,8 @@ int main(int argc, char** argv) {
   for (double l : {0.03, 0.045, 0.06, 0.09, 0.16})
     for (double c : {0.2, 0.35, 0.6, 10.0}) {
       GroupSettings gs;
-      gs.max_local = l;
-      gs.max_chroma = c;
+      gs.match.max_local = l;
+      gs.match.max_chroma = c;
       evaluate(gs, false);
     }
   return 0;

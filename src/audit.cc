@@ -106,10 +106,10 @@ AuditIndex read_tree(const AuditSettings& settings) {
   if (cache) {
     XXH3_state_t* st = XXH3_createState();
     XXH3_64bits_reset(st);
-    const double corr = gs.min_correlation;
+    const double corr = gs.match.min_correlation;
     XXH3_64bits_update(st, &gs.radius, sizeof gs.radius);
     XXH3_64bits_update(st, &corr, sizeof corr);
-    const double local = gs.max_local, chroma = gs.max_chroma;
+    const double local = gs.match.max_local, chroma = gs.match.max_chroma;
     XXH3_64bits_update(st, &local, sizeof local);
     XXH3_64bits_update(st, &chroma, sizeof chroma);
     for (const auto& rec : r.records) {

@@ -16,14 +16,13 @@ namespace tamis {
 
 namespace {
 constexpr double kFlatSd = 2.0;  // grey levels: below this a thumbnail is flat
+}  // namespace
 
-// A thumbnail's standard deviation in grey levels, from its sums.
 double thumb_sd(const ThumbStats& s) {
   constexpr double kN = 1024;
   const double m = s.sum / kN;
   return std::sqrt(std::max(0.0, double(s.sum_sq) - kN * m * m) / kN);
 }
-}  // namespace
 
 cv::Mat hash_thumbnail(const cv::Mat& reduced) {
   cv::Mat gray;

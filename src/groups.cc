@@ -102,14 +102,13 @@ GroupResult find_groups(const std::vector<FileRecord>& records, const ThumbnailT
       if (i == j) return false;
       if (flat[i] || flat[j]) return true;
       return sketch_may_correlate(sketch[i], static_cast<int>(variant % kDihedralCount), sketch[j],
-                                  settings.min_correlation);
+                                  settings.match.min_correlation);
     };
     // Hits of an image with itself are counted by the join but are no candidates.
     uint64_t self_hits = 0;
     for (size_t k = 0; k < n; ++k)
       for (int t = 0; t < kDihedralCount; ++t) self_hits += hamming(records[eligible[k]].features.look.phash[t], identity[k]) <= settings.radius;
     std::vector<std::pair<uint32_t, uint32_t>> confirmed;
-    const MatchSettings match{settings.min_correlation, settings.max_local, settings.max_chroma};
     // Kept hits (8 * image + t, j), sorted by their first member: turn each
     // (image, t) thumbnail once, then compare it with its partners.
     auto confirm = [&](const std::vector<std::pair<uint32_t, uint32_t>>& hits) {
@@ -125,7 +124,7 @@ GroupResult find_groups(const std::vector<FileRecord>& records, const ThumbnailT
         turn_thumbnail(thumbs.at(eligible[i]), turned, t);
         for (size_t h = starts[g]; h < starts[g + 1]; ++h) {
           const uint32_t j = hits[h].second;
-          if (match_thumbnails(turned, stats[i], thumbs.at(eligible[j]), stats[j], match).joined)
+          if (match_thumbnails(turned, stats[i], thumbs.at(eligible[j]), stats[j], settings.match).joined)
             found[g].emplace_back(std::min(i, j), std::max(i, j));
         }
       }, 64);

@@ -77,9 +77,9 @@ void save_index(const std::filesystem::path& file, const AuditIndex& x, StagedFi
                {"max_bytes", x.settings.read.max_bytes}};
   j["mask_settings"] = {{"force", bins(x.settings.masks.force)}, {"forbid", bins(x.settings.masks.forbid)}};
   j["groups_settings"] = {{"radius", x.settings.groups.radius},
-                          {"min_correlation", x.settings.groups.min_correlation},
-                          {"max_local", x.settings.groups.max_local},
-                          {"max_chroma", x.settings.groups.max_chroma}};
+                          {"min_correlation", x.settings.groups.match.min_correlation},
+                          {"max_local", x.settings.groups.match.max_local},
+                          {"max_chroma", x.settings.groups.match.max_chroma}};
   const auto& cs = x.settings.checks;
   j["checks"] = {{"min_side", cs.min_side}, {"input_side", cs.input_side}, {"min_class", cs.min_class},
                  {"max_imbalance", cs.max_imbalance}, {"outlier_z", cs.outlier_z}};
@@ -201,9 +201,9 @@ AuditIndex load_index(const std::filesystem::path& file) {
     x.settings.read.decode.reduced_side = rd.at("reduced_side").get<uint32_t>();
     x.settings.read.max_bytes = rd.at("max_bytes").get<uint64_t>();
     x.settings.groups.radius = j.at("groups_settings").at("radius").get<int>();
-    x.settings.groups.min_correlation = j.at("groups_settings").at("min_correlation").get<double>();
-    x.settings.groups.max_local = j.at("groups_settings").at("max_local").get<double>();
-    x.settings.groups.max_chroma = j.at("groups_settings").at("max_chroma").get<double>();
+    x.settings.groups.match.min_correlation = j.at("groups_settings").at("min_correlation").get<double>();
+    x.settings.groups.match.max_local = j.at("groups_settings").at("max_local").get<double>();
+    x.settings.groups.match.max_chroma = j.at("groups_settings").at("max_chroma").get<double>();
     x.settings.masks.force = strs(j.at("mask_settings").at("force"));
     x.settings.masks.forbid = strs(j.at("mask_settings").at("forbid"));
     const json& ck = j.at("checks");

@@ -8,19 +8,13 @@ namespace tamis {
 
 namespace {
 
-constexpr double kFlatSd = 2.0;     // grey levels, as features.cc
 constexpr double kChromaNoise = 1.5;  // levels a cell: the floor under the target's variation
 constexpr double kColourless = 2.0;   // chroma standard deviation below which a side has no colour
-
-double sd_of(const ThumbStats& s) {
-  const double m = s.sum / 1024.0;
-  return std::sqrt(std::max(0.0, double(s.sum_sq) / 1024.0 - m * m));
-}
 
 // Largest mean square of (za - zb) over 8x8 windows at a step of 4.
 double local_residual(const uint8_t* a, const ThumbStats& sa, const uint8_t* b, const ThumbStats& sb) {
   const double ma = sa.sum / 1024.0, mb = sb.sum / 1024.0;
-  const double ia = 1.0 / sd_of(sa), ib = 1.0 / sd_of(sb);
+  const double ia = 1.0 / thumb_sd(sa), ib = 1.0 / thumb_sd(sb);
   // Squared residuals summed over 4x4 cells, then windows of 2x2 cells.
   std::array<double, 64> cell{};
   for (int y = 0; y < kThumbSide; ++y)
@@ -37,63 +31,53 @@ double local_residual(const uint8_t* a, const ThumbStats& sa, const uint8_t* b, 
   return worst;
 }
 
-// Variation of a thumbnail's chroma (sum of squares about the mean, both planes).
-double chroma_ss(const uint8_t* c) {
-  double total = 0;
-  for (int plane = 0; plane < 2; ++plane) {
-    double s = 0, s2 = 0;
-    for (size_t k = 0; k < kChromaPlane; ++k) {
-      const double v = c[plane * kChromaPlane + k];
-      s += v;
-      s2 += v * v;
-    }
-    total += s2 - s * s / double(kChromaPlane);
+// A thumbnail's chroma centred on its means, as complex values z = Cb + i Cr.
+struct CentredChroma {
+  std::array<double, kChromaPlane> u{}, v{};
+  double ss = 0;  // sum of |z|^2: the chroma's variation
+};
+
+CentredChroma centred_chroma(const Thumbnail& t) {
+  CentredChroma c;
+  const uint8_t* u = t.data() + kGrayBytes;
+  const uint8_t* v = u + kChromaPlane;
+  double mu = 0, mv = 0;
+  for (size_t k = 0; k < kChromaPlane; ++k) {
+    mu += u[k];
+    mv += v[k];
   }
-  return total;
+  mu /= double(kChromaPlane);
+  mv /= double(kChromaPlane);
+  for (size_t k = 0; k < kChromaPlane; ++k) {
+    c.u[k] = u[k] - mu;
+    c.v[k] = v[k] - mv;
+    c.ss += c.u[k] * c.u[k] + c.v[k] * c.v[k];
+  }
+  return c;
 }
 
 // Share of the target's chroma variation that no global colour change of the
-// source explains: z_t = alpha z_s + beta over the 64 cells, z = Cb + i Cr
-// centred on neutral, alpha and beta complex (a hue rotation with a saturation
-// scale, and a white-balance shift), fitted by least squares. A general affine
-// map of the chroma plane would be too free: with a two-colour backdrop it maps
-// the backdrop onto itself and any object colour onto any other. -1 when
-// neither side has colour.
+// source explains: z_t = alpha z_s + beta over the 64 cells, alpha and beta
+// complex (a hue rotation with a saturation scale, and a white-balance shift),
+// fitted by least squares. beta absorbs the means; alpha = <t, s> / <s, s>
+// (complex inner product), and the residual is |t|^2 - |<t, s>|^2 / |s|^2. A
+// general affine map of the chroma plane would be too free: with a two-colour
+// backdrop it maps the backdrop onto itself and any object colour onto any
+// other. -1 when neither side has colour.
 double chroma_unexplained(const Thumbnail& a, const Thumbnail& b) {
-  const double ssa = chroma_ss(a.data() + kGrayBytes), ssb = chroma_ss(b.data() + kGrayBytes);
-  const double floor_ss = 2.0 * 64.0 * kColourless * kColourless;
-  if (ssa < floor_ss && ssb < floor_ss) return -1;
+  const CentredChroma ca = centred_chroma(a), cb = centred_chroma(b);
+  const double floor_ss = 2.0 * double(kChromaPlane) * kColourless * kColourless;
+  if (ca.ss < floor_ss && cb.ss < floor_ss) return -1;
   // Fit the less colourful side (target) from the more colourful (source).
-  const Thumbnail& src = ssa >= ssb ? a : b;
-  const Thumbnail& dst = ssa >= ssb ? b : a;
-  const double ss_target = std::min(ssa, ssb);
-  const uint8_t* su = src.data() + kGrayBytes;
-  const uint8_t* sv = su + kChromaPlane;
-  const uint8_t* du = dst.data() + kGrayBytes;
-  const uint8_t* dv = du + kChromaPlane;
-  // Centred complex values; alpha = <d, s> / <s, s> (complex inner product), beta absorbs the means.
-  double msu = 0, msv = 0, mdu = 0, mdv = 0;
+  const CentredChroma& src = ca.ss >= cb.ss ? ca : cb;
+  const CentredChroma& dst = ca.ss >= cb.ss ? cb : ca;
+  double re = 0, im = 0;
   for (size_t k = 0; k < kChromaPlane; ++k) {
-    msu += su[k] / 64.0;
-    msv += sv[k] / 64.0;
-    mdu += du[k] / 64.0;
-    mdv += dv[k] / 64.0;
+    re += dst.u[k] * src.u[k] + dst.v[k] * src.v[k];  // Re(t conj(s))
+    im += dst.v[k] * src.u[k] - dst.u[k] * src.v[k];  // Im(t conj(s))
   }
-  double ss = 0, re = 0, im = 0;
-  for (size_t k = 0; k < kChromaPlane; ++k) {
-    const double xu = su[k] - msu, xv = sv[k] - msv, yu = du[k] - mdu, yv = dv[k] - mdv;
-    ss += xu * xu + xv * xv;
-    re += yu * xu + yv * xv;  // Re(y conj(x))
-    im += yv * xu - yu * xv;  // Im(y conj(x))
-  }
-  const double ar = ss > 0 ? re / ss : 0, ai = ss > 0 ? im / ss : 0;
-  double res = 0;
-  for (size_t k = 0; k < kChromaPlane; ++k) {
-    const double xu = su[k] - msu, xv = sv[k] - msv, yu = du[k] - mdu, yv = dv[k] - mdv;
-    const double pu = ar * xu - ai * xv, pv = ar * xv + ai * xu;
-    res += (yu - pu) * (yu - pu) + (yv - pv) * (yv - pv);
-  }
-  return res / (ss_target + 2.0 * 64.0 * kChromaNoise * kChromaNoise);
+  const double res = std::max(0.0, dst.ss - (src.ss > 0 ? (re * re + im * im) / src.ss : 0.0));
+  return res / (dst.ss + 2.0 * double(kChromaPlane) * kChromaNoise * kChromaNoise);
 }
 
 }  // namespace
@@ -103,7 +87,7 @@ Match match_thumbnails(const Thumbnail& ta, const ThumbStats& sa, const Thumbnai
   Match m;
   m.correlation = static_cast<float>(thumb_correlation(ta, sa, b, sb));
   if (m.correlation < s.min_correlation) return m;
-  if (sd_of(sa) < kFlatSd || sd_of(sb) < kFlatSd) {  // the flat rule decided
+  if (thumb_is_flat(sa) || thumb_is_flat(sb)) {  // the flat rule decided
     m.joined = true;
     return m;
   }

@@ -87,9 +87,9 @@ Policy parse_policy(const std::string& text) {
       if (!value.is_object()) throw PolicyError("policy: lookalike must be an object");
       for (const auto& [name, v] : value.items()) {
         if (name == "radius") p.lookalike.radius = static_cast<int>(number_at(v, "lookalike.radius", 0, 16));
-        else if (name == "min_correlation") p.lookalike.min_correlation = number_at(v, "lookalike.min_correlation", 0.5, 1);
-        else if (name == "max_local") p.lookalike.max_local = number_at(v, "lookalike.max_local", 0, 4);
-        else if (name == "max_chroma") p.lookalike.max_chroma = number_at(v, "lookalike.max_chroma", 0, 100);
+        else if (name == "min_correlation") p.lookalike.match.min_correlation = number_at(v, "lookalike.min_correlation", 0.5, 1);
+        else if (name == "max_local") p.lookalike.match.max_local = number_at(v, "lookalike.max_local", 0, 4);
+        else if (name == "max_chroma") p.lookalike.match.max_chroma = number_at(v, "lookalike.max_chroma", 0, 100);
         else throw PolicyError("policy: lookalike." + name + ": no such setting (radius, min_correlation, max_local, max_chroma)");
       }
     } else if (key == "fail_on") {

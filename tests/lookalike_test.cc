@@ -213,7 +213,7 @@ TEST_CASE("find_groups equals the definition checked pair by pair", "[lookalike]
   for (size_t i = 0; i < looks.size(); ++i) thumbs.at(i) = looks[i].thumb;
   for (double c : {0.9, 0.995}) {
     GroupSettings gs;
-    gs.min_correlation = c;
+    gs.match.min_correlation = c;
     GroupResult got = find_groups(records, thumbs, gs);
     std::set<std::pair<uint32_t, uint32_t>> pairs;
     uint64_t hits = 0;
@@ -223,7 +223,7 @@ TEST_CASE("find_groups equals the definition checked pair by pair", "[lookalike]
         for (int t = 0; t < kDihedralCount; ++t) {
           if (hamming(looks[i].phash[t], looks[j].phash[0]) > gs.radius) continue;
           ++hits;
-          if (match_thumbnails(looks[i].thumb, t, looks[j].thumb, MatchSettings{c, gs.max_local, gs.max_chroma}).joined)
+          if (match_thumbnails(looks[i].thumb, t, looks[j].thumb, gs.match).joined)
             pairs.emplace(std::min(i, j), std::max(i, j));
         }
       }

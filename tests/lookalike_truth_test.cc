@@ -28,25 +28,6 @@
 
 using namespace tamis;
 
-namespace {
-
-Lookalike features_of(const std::vector<uint8_t>& bytes) {
-  ProbeOutcome p = probe_bytes(bytes);
-  Decoded d = decode_image(bytes, p.info, DecodeLimits{});
-  REQUIRE(d.defect == Defect::none);
-  return lookalike_features(d.reduced);
-}
-
-bool joined(const Lookalike& a, const Lookalike& b, const MatchSettings& ms, int radius = 8) {
-  for (int t = 0; t < kDihedralCount; ++t) {
-    if (hamming(a.phash[t], b.phash[0]) <= radius && match_thumbnails(a.thumb, t, b.thumb, ms).joined) return true;
-    if (hamming(b.phash[t], a.phash[0]) <= radius && match_thumbnails(b.thumb, t, a.thumb, ms).joined) return true;
-  }
-  return false;
-}
-
-}  // namespace
-
 TEST_CASE("planted copies of every kind found today are joined to their source", "[lookalike][truth]") {
   std::vector<cv::Mat> sources;
   const auto fm = test::fashion_mnist_tree();
@@ -61,16 +42,16 @@ TEST_CASE("planted copies of every kind found today are joined to their source",
   // Kinds at recall >= 0.99 in bench/lookalike_truth (docs/lookalikes.md).
   const std::set<std::string> held = {"mirror", "upside-down", "turn-90", "turn-180", "transpose", "png",
                                       "jpeg-q95", "double-nearest", "gray"};
-  const MatchSettings ms;
+  const GroupSettings gs;
   std::map<std::string, std::pair<int, int>> per_kind;
   for (const auto& k : test::planted_kinds()) {
     if (!held.count(k.name)) continue;
     for (const auto& src : sources) {
       if (k.colour_only && src.channels() != 3) continue;
-      const Lookalike a = features_of(test::encode_copy(src, 0));
-      const Lookalike b = features_of(test::encode_copy(k.make(src), k.jpeg_quality));
+      const Lookalike a = test::lookalike_of_bytes(test::encode_copy(src, 0));
+      const Lookalike b = test::lookalike_of_bytes(test::encode_copy(k.make(src), k.jpeg_quality));
       auto& pk = per_kind[k.name];
-      pk.first += joined(a, b, ms);
+      pk.first += test::pair_joined(a, b, gs);
       ++pk.second;
     }
   }
@@ -88,19 +69,19 @@ TEST_CASE("pictures on a shared backdrop that differ in one object are rarely jo
   // below is the measured count (bench/lookalike_truth: 54 of 2,700 on 60 scenes)
   // with a margin, so that a change that loosens the checks fails here.
   const auto scenes = test::rendered_scenes(40, 10, 160, 120, 99);
-  const MatchSettings ms;
-  MatchSettings corr_only = ms;
-  corr_only.max_local = 1e9;
-  corr_only.max_chroma = 1e9;
+  const GroupSettings gs;
+  GroupSettings corr_only = gs;
+  corr_only.match.max_local = 1e9;
+  corr_only.match.max_chroma = 1e9;
   int pairs = 0, joined_now = 0, joined_by_correlation = 0;
   for (const auto& sc : scenes) {
     std::vector<Lookalike> looks;
-    for (const auto& p : sc.pictures) looks.push_back(features_of(test::encode_copy(p, 90)));
+    for (const auto& p : sc.pictures) looks.push_back(test::lookalike_of_bytes(test::encode_copy(p, 90)));
     for (size_t i = 0; i < looks.size(); ++i)
       for (size_t j = i + 1; j < looks.size(); ++j) {
         ++pairs;
-        joined_now += joined(looks[i], looks[j], ms);
-        joined_by_correlation += joined(looks[i], looks[j], corr_only);
+        joined_now += test::pair_joined(looks[i], looks[j], gs);
+        joined_by_correlation += test::pair_joined(looks[i], looks[j], corr_only);
       }
   }
   INFO(joined_now << " joined of " << pairs << " (by correlation alone: " << joined_by_correlation << ")");
@@ -118,7 +99,7 @@ TEST_CASE("the colour check tells a recoloured object from a global colour chang
   cv::Mat a = base.clone(), b = base.clone();
   cv::circle(a, {60, 45}, 20, cv::Scalar(40, 200, 120), cv::FILLED);   // BGR: green-ish
   cv::circle(b, {60, 45}, 20, cv::Scalar(200, 120, 135), cv::FILLED);  // purple-ish, about the same luma
-  const Lookalike la = features_of(test::encode_copy(a, 0)), lb = features_of(test::encode_copy(b, 0));
+  const Lookalike la = test::lookalike_of_bytes(test::encode_copy(a, 0)), lb = test::lookalike_of_bytes(test::encode_copy(b, 0));
   const MatchSettings ms;
   const Match recoloured = match_thumbnails(la.thumb, 0, lb.thumb, ms);
   INFO("recoloured: correlation " << recoloured.correlation << " local " << recoloured.local << " chroma " << recoloured.chroma);
@@ -126,7 +107,7 @@ TEST_CASE("the colour check tells a recoloured object from a global colour chang
   // Conversion to gray keeps the match (the colour check has nothing to explain).
   cv::Mat gray;
   cv::cvtColor(a, gray, cv::COLOR_BGR2GRAY);
-  const Match to_gray = match_thumbnails(la.thumb, 0, features_of(test::encode_copy(gray, 0)).thumb, ms);
+  const Match to_gray = match_thumbnails(la.thumb, 0, test::lookalike_of_bytes(test::encode_copy(gray, 0)).thumb, ms);
   INFO("gray: correlation " << to_gray.correlation << " chroma " << to_gray.chroma);
   CHECK(to_gray.joined);
 }

@@ -62,6 +62,8 @@ struct ThumbStats {
   uint32_t sum = 0, sum_sq = 0;  // at most 1024 * 255 and 1024 * 255^2 (< 2^27)
 };
 ThumbStats thumb_stats(const Thumbnail& t);
+// A gray thumbnail's standard deviation in grey levels, from its sums.
+double thumb_sd(const ThumbStats& s);
 double thumb_correlation(const Thumbnail& turned_a, const ThumbStats& sa, const Thumbnail& b, const ThumbStats& sb);
 
 // True when thumb_correlation treats the thumbnail as flat (standard deviation

@@ -6,9 +6,9 @@
 //     within Hamming distance `radius` of the second's DCT hash (candidates found
 //     exactly by join_within, lookalike_index.h), AND the independent second signal confirms it:
 //     the thumbnails, after that flip/turn, match (match.h: Pearson correlation of
-//     the 32x32 gray thumbnails at least `min_correlation`, no window of 8x8 whose
-//     residual exceeds `max_local`, and colour differences a global colour change
-//     explains, within `max_chroma`). (A DCT sketch, features.h, drops hits that
+//     the 32x32 gray thumbnails at least `match.min_correlation`, no window of
+//     8x8 whose residual exceeds `match.max_local`, and colour differences a global
+//     colour change explains, within `match.max_chroma`). (A DCT sketch, features.h, drops hits that
 //     provably cannot reach it before the correlation is computed; it never
 //     changes which pairs are joined.)
 // Groups are the connected components (union-find) of these pairs, with two or
@@ -32,9 +32,7 @@ namespace tamis {
 
 struct GroupSettings {
   int radius = 8;                // docs/lookalikes.md: how the defaults were measured
-  double min_correlation = 0.995;
-  double max_local = MatchSettings{}.max_local;    // match.h
-  double max_chroma = MatchSettings{}.max_chroma;  // match.h
+  MatchSettings match;           // how a hash hit is confirmed (match.h)
   unsigned threads = 0;
   // The look-alike join's memory budget: its buffer of entries is searched in
   // slices of the key space that fit it, and above 125,000 images (at 64 MB) the

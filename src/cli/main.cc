@@ -244,9 +244,7 @@ int run_audit_command(const std::string& root, const std::string& out, const Spl
   place.baseline = have_baseline ? &baseline : nullptr;
   settings.checks = place.policy.thresholds;
   settings.groups.radius = place.policy.lookalike.radius;
-  settings.groups.min_correlation = place.policy.lookalike.min_correlation;
-  settings.groups.max_local = place.policy.lookalike.max_local;
-  settings.groups.max_chroma = place.policy.lookalike.max_chroma;
+  settings.groups.match = place.policy.lookalike.match;
   if (!o.no_cache) {
     settings.cache_file = o.cache.empty() ? tamis::default_cache_file() : fs::path(o.cache);
     if (o.cache.empty() && tamis::path_is_inside(root, settings.cache_file)) settings.cache_file.clear();

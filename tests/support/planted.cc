@@ -2,9 +2,15 @@
 
 #include <algorithm>
 #include <cmath>
+#include <stdexcept>
 
 #include <opencv2/imgproc.hpp>
 
+#include "tamis/decode.h"
+#include "tamis/features.h"
+#include "tamis/lookalike_index.h"
+#include "tamis/match.h"
+#include "tamis/probe.h"
 #include "tamis/random.h"
 
 namespace tamis::test {
@@ -115,6 +121,21 @@ const std::vector<PlantedKind>& planted_kinds() {
     return v;
   }();
   return k;
+}
+
+Lookalike lookalike_of_bytes(const std::vector<uint8_t>& bytes) {
+  const ProbeOutcome p = probe_bytes(bytes);
+  const Decoded d = decode_image(bytes, p.info, DecodeLimits{});
+  if (p.defect != Defect::none || d.defect != Defect::none) throw std::runtime_error("the planted file does not decode");
+  return lookalike_features(d.reduced);
+}
+
+bool pair_joined(const Lookalike& a, const Lookalike& b, const GroupSettings& gs) {
+  for (int t = 0; t < kDihedralCount; ++t) {
+    if (hamming(a.phash[t], b.phash[0]) <= gs.radius && match_thumbnails(a.thumb, t, b.thumb, gs.match).joined) return true;
+    if (hamming(b.phash[t], a.phash[0]) <= gs.radius && match_thumbnails(b.thumb, t, a.thumb, gs.match).joined) return true;
+  }
+  return false;
 }
 
 std::vector<Scene> rendered_scenes(int count, int per_scene, int w, int h, uint64_t seed) {

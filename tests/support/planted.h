@@ -17,6 +17,9 @@
 
 #include <opencv2/core.hpp>
 
+#include "tamis/groups.h"
+#include "tamis/record.h"
+
 namespace tamis::test {
 
 struct PlantedKind {
@@ -32,6 +35,14 @@ struct Scene {
   std::vector<cv::Mat> pictures;  // BGR, all sharing one backdrop
   std::vector<std::string> how;   // per picture: how it differs from picture 0
 };
+
+// The look-alike features of a file's bytes, probed and decoded as an audit does
+// (throws when the bytes do not decode).
+Lookalike lookalike_of_bytes(const std::vector<uint8_t>& bytes);
+
+// Whether find_groups would join a and b as a pair: some flip/turn of either has
+// a hash within the radius of the other's and the thumbnails match (match.h).
+bool pair_joined(const Lookalike& a, const Lookalike& b, const GroupSettings& gs);
 
 // `count` scenes of `per_scene` pictures (width x height), from `seed`.
 std::vector<Scene> rendered_scenes(int count, int per_scene, int width, int height, uint64_t seed);
