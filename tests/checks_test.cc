@@ -14,6 +14,7 @@
 #include "support/photos.h"
 #include "support/temp_tree.h"
 #include "tamis/audit.h"
+#include "tamis/policy.h"
 #include "tamis/checks.h"
 #include "tamis/decode.h"
 #include "tamis/features.h"
@@ -299,4 +300,19 @@ TEST_CASE("the sharpness statistic equals OpenCV's Laplacian variance bit for bi
     check(g, "noise");
   }
   CHECK(compared > 1000);
+}
+
+TEST_CASE("the policy's lookalike section sets the look-alike sensitivity and refuses what it does not know", "[policy][lookalike]") {
+  const Policy p = parse_policy(R"({"lookalike": {"radius": 6, "min_correlation": 0.99, "max_local": 0.04, "max_chroma": 0.5}})");
+  CHECK(p.lookalike.radius == 6);
+  CHECK(p.lookalike.match.min_correlation == 0.99);
+  CHECK(p.lookalike.match.max_local == 0.04);
+  CHECK(p.lookalike.match.max_chroma == 0.5);
+  const Policy d = parse_policy("{}");
+  CHECK(d.lookalike.radius == GroupSettings{}.radius);
+  CHECK(d.lookalike.match.max_local == MatchSettings{}.max_local);
+  CHECK_THROWS_AS(parse_policy(R"({"lookalike": {"max_blur": 1}})"), PolicyError);
+  CHECK_THROWS_AS(parse_policy(R"({"lookalike": {"radius": 40}})"), PolicyError);
+  CHECK_THROWS_AS(parse_policy(R"({"lookalike": {"min_correlation": 1.5}})"), PolicyError);
+  CHECK_THROWS_AS(parse_policy(R"({"lookalike": 3})"), PolicyError);
 }

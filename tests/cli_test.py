@@ -362,6 +362,28 @@ class Policy(unittest.TestCase):
             self.assertEqual(self.audit(root, out, "--policy", p).returncode, 1)
             validate_report(self, os.path.join(out, "report.json"))
 
+    def test_the_lookalike_section_reaches_the_groups_and_the_cache_key(self):
+        # The demo holds one byte-identical pair and one look-alike pair (a re-encoded
+        # copy). A policy that asks for a perfect match keeps the first only, with the
+        # cache as without it (the groups' cache key holds the look-alike settings).
+        with tempfile.TemporaryDirectory() as t:
+            root = os.path.join(t, "demo")
+            self.assertEqual(run("demo", root).returncode, 0)
+            cache = os.path.join(t, "cache.sqlite")
+            strict = self.write_policy(t, {"lookalike": {"min_correlation": 1.0, "max_local": 0}})
+            kinds = {}
+            for name, extra in (("default", []), ("strict", ["--policy", strict]), ("default-again", [])):
+                out = os.path.join(t, name)
+                self.audit(root, out, "--cache", cache, *extra)
+                report = load_json(os.path.join(out, "report.json"))
+                kinds[name] = sorted(g["kind"] for g in report["groups"])
+                if name == "strict":
+                    self.assertEqual(report["settings"]["lookalike_max_local"], 0)
+                    self.assertEqual(report["settings"]["lookalike_min_correlation"], 1.0)
+            self.assertEqual(kinds["default"], ["exact", "near"])
+            self.assertEqual(kinds["strict"], ["exact"])
+            self.assertEqual(kinds["default-again"], ["exact", "near"])
+
     def test_a_bad_policy_exits_2_naming_the_key(self):
         with tempfile.TemporaryDirectory() as t:
             root = os.path.join(t, "data")

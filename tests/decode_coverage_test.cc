@@ -204,3 +204,31 @@ TEST_CASE("a failed decode changes no other file's result, on any thread count",
       CHECK(summary == first);
   }
 }
+
+TEST_CASE("a JPEG of a variant libjpeg does not implement is not called damaged", "[decode][variant]") {
+  // The truth is the JPEG standard (ITU-T T.81, table B.1): SOF3 marks the lossless
+  // process and a frame precision of 12 the extended one; this build's libjpeg
+  // implements neither (8-bit only). A frame header rewritten so is a file of
+  // that variant, not damage; a Huffman table emptied is damage.
+  cv::Mat pic(40, 56, CV_8UC3, cv::Scalar(30, 120, 200));
+  cv::circle(pic, {20, 20}, 12, cv::Scalar(200, 40, 90), cv::FILLED);
+  std::vector<uint8_t> jpeg;
+  REQUIRE(cv::imencode(".jpg", pic, jpeg));
+  size_t sof = 0;
+  for (size_t i = 2; i + 1 < jpeg.size() && !sof; ++i)
+    if (jpeg[i] == 0xFF && jpeg[i + 1] == 0xC0) sof = i;
+  REQUIRE(sof > 0);
+  auto decode = [](const std::vector<uint8_t>& b) {
+    const ProbeOutcome p = probe_bytes(b);
+    return p.defect != Defect::none ? p.defect : decode_image(b, p.info, DecodeLimits{}).defect;
+  };
+  CHECK(decode(jpeg) == Defect::none);
+  std::vector<uint8_t> lossless = jpeg;
+  lossless[sof + 1] = 0xC3;
+  CHECK(decode(lossless) == Defect::unsupported_variant);
+  std::vector<uint8_t> twelve_bit = jpeg;
+  twelve_bit[sof + 4] = 12;  // P, after the marker and the 2-byte length
+  CHECK(decode(twelve_bit) == Defect::unsupported_variant);
+  CHECK(is_undecodable_variant(Defect::unsupported_variant));
+  CHECK(decode(damage_jpeg(jpeg, 0)) != Defect::unsupported_variant);
+}
