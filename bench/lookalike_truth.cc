@@ -5,8 +5,10 @@
 //  - distinct pictures joined: every pair within a rendered scene (shared smooth
 //    backdrop; objects that stand out in hue: other, moved, recoloured, small);
 //  - Fashion-MNIST images grouped by find_groups (70,000 distinct images);
-//  - the trade-off: the same for a grid of (max_local, max_chroma).
-// Usage: lookalike_truth FASHION_MNIST_TREE [SOURCES_STEP]
+//  - the trade-off: the same for a grid of correlation thresholds and of
+//    (max_local, max_chroma).
+// Usage: lookalike_truth FASHION_MNIST_TREE [SOURCES_STEP [DETAIL]]
+// (DETAIL: any third argument prints the recall per kind at every threshold)
 #include <algorithm>
 #include <chrono>
 #include <cstdio>
@@ -112,6 +114,12 @@ int main(int argc, char** argv) {
   GroupSettings defaults;
   std::printf("== defaults\n");
   evaluate(defaults, true);
+  std::printf("== correlation threshold\n");
+  for (double c : {0.98, 0.985, 0.99, 0.992, 0.994, 0.996, 0.998}) {
+    GroupSettings gs;
+    gs.match.min_correlation = c;
+    evaluate(gs, argc > 3);
+  }
   std::printf("== trade-off\n");
   for (double l : {0.03, 0.045, 0.06, 0.09, 0.16})
     for (double c : {0.2, 0.35, 0.6, 10.0}) {

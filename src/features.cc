@@ -52,6 +52,8 @@ struct DctRows {
   }
 };
 
+}  // namespace
+
 // The low 8x8 block of the orthonormal 2-D DCT-II of a 32x32 image, block[8u + v]:
 // C P C^T restricted to rows u < 8 and columns v < 8, in double. Row y and row
 // 31 - y (and column x and 31 - x) are folded first, as C[u][31 - y] = (-1)^u C[u][y].
@@ -101,7 +103,7 @@ void dct_low_block(const uint8_t* p, double block[64]) {
   }
 }
 
-}  // namespace
+
 
 namespace {
 
@@ -345,6 +347,89 @@ float laplacian_variance(const cv::Mat& gray) {
   const double mean = double(sum) * scale;
   const double sd = std::sqrt(std::max(double(sum_sq) * scale - mean * mean, 0.0));
   return static_cast<float>(sd * sd);
+}
+
+namespace {
+
+// cos(pi (2x + 1) u / 64) scaled for the orthonormal DCT, x < 16 (rows 31 - x by symmetry).
+struct DctTable {
+  float c[32][16];
+  DctTable() {
+    for (int u = 0; u < 32; ++u)
+      for (int x = 0; x < 16; ++x)
+        c[u][x] = static_cast<float>((u ? std::sqrt(2.0 / 32) : std::sqrt(1.0 / 32)) *
+                                     std::cos(3.14159265358979323846 * (2 * x + 1) * u / 64.0));
+  }
+};
+const DctTable& dct_table() {
+  static const DctTable t;
+  return t;
+}
+
+// One separable pass: out[x][u] = sum_y c[u][y'] in[y][x] over the folded rows,
+// written transposed, so that two passes give the 2-D transform.
+void dct_pass(const float (*in)[32], float (*out)[32]) {
+  const DctTable& t = dct_table();
+  float sum[16][32], dif[16][32];
+  for (int y = 0; y < 16; ++y)
+    for (int x = 0; x < 32; ++x) {
+      sum[y][x] = in[y][x] + in[31 - y][x];
+      dif[y][x] = in[y][x] - in[31 - y][x];
+    }
+  for (int u = 0; u < 32; ++u) {
+    float row[32] = {};
+    const auto& src = (u & 1) ? dif : sum;
+    for (int y = 0; y < 16; ++y) {
+      const float c = t.c[u][y];
+      for (int x = 0; x < 32; ++x) row[x] += c * src[y][x];
+    }
+    for (int x = 0; x < 32; ++x) out[x][u] = row[x];
+  }
+}
+
+// The inverse pass: out[x][y] = sum_u c[u][y] in[u][x], written transposed.
+void idct_pass(const float (*in)[32], float (*out)[32]) {
+  const DctTable& t = dct_table();
+  for (int y = 0; y < 16; ++y) {
+    float even[32] = {}, odd[32] = {};
+    for (int u = 0; u < 32; u += 2) {
+      const float ce = t.c[u][y], co = t.c[u + 1][y];
+      for (int x = 0; x < 32; ++x) {
+        even[x] += ce * in[u][x];
+        odd[x] += co * in[u + 1][x];
+      }
+    }
+    for (int x = 0; x < 32; ++x) {
+      out[x][y] = even[x] + odd[x];
+      out[x][31 - y] = even[x] - odd[x];
+    }
+  }
+}
+
+}  // namespace
+
+void dct32(const uint8_t* gray, float* out) {
+  float in[32][32], mid[32][32];
+  for (int y = 0; y < 32; ++y)
+    for (int x = 0; x < 32; ++x) in[y][x] = gray[32 * y + x];
+  dct_pass(in, mid);  // mid[x][u]
+  dct_pass(mid, reinterpret_cast<float(*)[32]>(out));  // out[u][v]
+}
+
+void idct32(const float* coef, float* out) {
+  float mid[32][32];
+  idct_pass(reinterpret_cast<const float(*)[32]>(coef), mid);  // mid[v][y]
+  idct_pass(mid, reinterpret_cast<float(*)[32]>(out));         // out[y][x]
+}
+
+void turn_coefficients(const float* src, float* dst, int t) {
+  const bool transpose = t & 4, flip_rows = t & 2, flip_cols = t & 1;
+  for (int u = 0; u < 32; ++u)
+    for (int v = 0; v < 32; ++v) {
+      float c = transpose ? src[32 * v + u] : src[32 * u + v];
+      if ((flip_rows && (u & 1)) != (flip_cols && (v & 1))) c = -c;
+      dst[32 * u + v] = c;
+    }
 }
 
 void apply_dihedral(const uint8_t* src, uint8_t* dst, int n, int t) {

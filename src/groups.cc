@@ -84,25 +84,20 @@ GroupResult find_groups(const std::vector<FileRecord>& records, const ThumbnailT
   std::vector<uint64_t> identity(n);
   for (size_t k = 0; k < n; ++k) identity[k] = records[eligible[k]].features.look.phash[0];
   if (n > 1) {
-    // Per image: the thumbnail's sums, and for a thumbnail that is not flat the
-    // DCT sketch that rejects most hash hits before the correlation is computed.
-    std::vector<ThumbStats> stats(n);
-    std::vector<uint8_t> flat(n);
-    std::vector<ThumbSketch> sketch(n);
-    parallel_for(n, settings.threads, [&](size_t k) {
-      const auto& thumb = thumbs.at(eligible[k]);
-      stats[k] = thumb_stats(thumb);
-      flat[k] = thumb_is_flat(stats[k]);
-      if (!flat[k]) sketch[k] = thumb_sketch(thumb, stats[k]);
-    }, 256);
-    // A hit (8 * image + t, j) goes on to the correlation unless it pairs an
-    // image with itself or the sketches prove the correlation too low.
+    // Per image: the match profile (match.h, 128 bytes): the thumbnail's sums,
+    // spectral moments and low DCT coefficients, whose bounds reject most hash
+    // hits before any thumbnail is compared.
+    std::vector<MatchProfile> profile(n);
+    parallel_for(n, settings.threads, [&](size_t k) { profile[k] = match_profile(thumbs.at(eligible[k])); }, 256);
+    // A hit (8 * image + t, j) goes on to the confirmation unless it pairs an
+    // image with itself or the profiles prove that the thumbnails cannot match
+    // (neither as they are nor with any blur step the pair would try).
     const PairFilter keep = [&](uint32_t variant, uint32_t j) {
       const uint32_t i = variant / kDihedralCount;
       if (i == j) return false;
-      if (flat[i] || flat[j]) return true;
-      return sketch_may_correlate(sketch[i], static_cast<int>(variant % kDihedralCount), sketch[j],
-                                  settings.match.min_correlation);
+      if (profile[i].flat || profile[j].flat) return true;
+      const int t = static_cast<int>(variant % kDihedralCount);
+      return match_may_join(profile[i], t, profile[j], settings.match);
     };
     // Hits of an image with itself are counted by the join but are no candidates.
     uint64_t self_hits = 0;
@@ -122,9 +117,10 @@ GroupResult find_groups(const std::vector<FileRecord>& records, const ThumbnailT
         const int t = static_cast<int>(hits[starts[g]].first % kDihedralCount);
         Thumbnail turned;
         turn_thumbnail(thumbs.at(eligible[i]), turned, t);
+        std::vector<float> spectrum;  // the turned thumbnail's DCT, once needed
         for (size_t h = starts[g]; h < starts[g + 1]; ++h) {
           const uint32_t j = hits[h].second;
-          if (match_thumbnails(turned, stats[i], thumbs.at(eligible[j]), stats[j], settings.match).joined)
+          if (match_thumbnails(turned, profile[i], t, thumbs.at(eligible[j]), profile[j], settings.match, &spectrum).joined)
             found[g].emplace_back(std::min(i, j), std::max(i, j));
         }
       }, 64);

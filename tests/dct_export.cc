@@ -5,6 +5,10 @@
 // noise, a flat image and noise mirrored about an axis: their odd coefficients
 // are 0 in exact arithmetic, so half the block ties with the median, and both
 // implementations must give exactly 0 there for the bits to agree.
+// For every 10th thumbnail it also writes the full DCT (dct32), the DCT of its
+// flip/turn 5 derived from the coefficients (turn_coefficients), the inverse of
+// the DCT (idct32) and the spectral moments of match.h's profile, which the
+// script recomputes from scipy's spectrum.
 // Usage: dct_export OUT.json
 #include <filesystem>
 #include <fstream>
@@ -15,6 +19,7 @@
 #include "support/fashion_mnist.h"
 #include "support/photos.h"
 #include "tamis/features.h"
+#include "tamis/match.h"
 #include "tamis/random.h"
 
 int main(int argc, char** argv) {
@@ -29,7 +34,23 @@ int main(int argc, char** argv) {
       std::snprintf(buf, sizeof buf, "%016llx", static_cast<unsigned long long>(c));
       hex.push_back(buf);
     }
-    out.push_back({{"name", name}, {"pixels", px}, {"codes", hex}});
+    nlohmann::json item = {{"name", name}, {"pixels", px}, {"codes", hex}};
+    if (out.size() % 10 == 0) {
+      std::vector<float> c(1024), turned(1024), back(1024);
+      tamis::dct32(thumb.ptr<uint8_t>(0), c.data());
+      tamis::turn_coefficients(c.data(), turned.data(), 5);
+      tamis::idct32(c.data(), back.data());
+      tamis::Thumbnail th{};
+      std::copy(thumb.begin<uint8_t>(), thumb.end<uint8_t>(), th.begin());
+      const tamis::MatchProfile p = tamis::match_profile(th);
+      item["dct"] = c;
+      item["dct_turn5"] = turned;
+      item["idct"] = back;
+      item["flat"] = p.flat;
+      item["lambda_mean"] = p.lambda_mean;
+      item["lambda_var"] = p.lambda_var;
+    }
+    out.push_back(item);
   };
   for (const auto& rel : tamis::test::distinct_photographs()) {
     cv::Mat m = cv::imread((tamis::test::kVispDir / rel).string(), cv::IMREAD_UNCHANGED);

@@ -5,7 +5,9 @@
 // smooth backdrop and differ by an object (moved, recoloured, another one) must
 // not. The figures for every copy kind are in docs/lookalikes.md
 // (bench/lookalike_truth); this test holds the kinds that are found today at
-// recall >= 0.99 there, and bounds the distinct pairs joined.
+// recall >= 0.99 there, holds floors under the blurred copies that the blur
+// matching brought from 0.05-0.07 to 0.92-0.98, and bounds the distinct pairs
+// joined.
 #include <catch2/catch.hpp>
 
 #include <algorithm>
@@ -41,11 +43,14 @@ TEST_CASE("planted copies of every kind found today are joined to their source",
   for (const auto& sc : test::rendered_scenes(12, 1, 160, 120, 7)) sources.push_back(sc.pictures[0]);
   // Kinds at recall >= 0.99 in bench/lookalike_truth (docs/lookalikes.md).
   const std::set<std::string> held = {"mirror", "upside-down", "turn-90", "turn-180", "transpose", "png",
-                                      "jpeg-q95", "double-nearest", "gray"};
+                                      "jpeg-q95", "double-nearest", "double-linear", "gray", "blur-0.4"};
+  // Kinds below 0.99 whose recall the blur matching raised (bench at 0.995:
+  // blur-0.7 0.977, blur-1.0 0.917; 0.071 and 0.045 by the plain correlation).
+  const std::map<std::string, double> floors = {{"blur-0.7", 0.93}, {"blur-1.0", 0.85}};
   const GroupSettings gs;
   std::map<std::string, std::pair<int, int>> per_kind;
   for (const auto& k : test::planted_kinds()) {
-    if (!held.count(k.name)) continue;
+    if (!held.count(k.name) && !floors.count(k.name)) continue;
     for (const auto& src : sources) {
       if (k.colour_only && src.channels() != 3) continue;
       const Lookalike a = test::lookalike_of_bytes(test::encode_copy(src, 0));
@@ -55,11 +60,11 @@ TEST_CASE("planted copies of every kind found today are joined to their source",
       ++pk.second;
     }
   }
-  REQUIRE(per_kind.size() == held.size());
+  REQUIRE(per_kind.size() == held.size() + floors.size());
   for (const auto& [name, ft] : per_kind) {
     INFO(name << ": " << ft.first << " of " << ft.second);
     CHECK(ft.second >= 12);
-    CHECK(double(ft.first) / ft.second >= 0.99);
+    CHECK(double(ft.first) / ft.second >= (floors.count(name) ? floors.at(name) : 0.99));
   }
 }
 

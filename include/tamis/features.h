@@ -46,6 +46,24 @@ ImageStats image_stats(const cv::Mat& reduced, uint8_t alpha_min);
 // cv::Laplacian(gray, CV_32F), computed without either.
 float laplacian_variance(const cv::Mat& gray);
 
+// The low 8x8 block of the orthonormal 2-D DCT-II of a 32x32 gray plane,
+// block[8u + v], in double (the block the hash is made from).
+void dct_low_block(const uint8_t* gray, double block[64]);
+
+// The full orthonormal 2-D DCT-II of a 32x32 gray plane: out[32 * u + v] for
+// vertical frequency u and horizontal frequency v (out[0] is the DC term). In
+// float, separable, with the even/odd folding of rows y and 31 - y; every value
+// is computed by the same sequence of operations on any processor (the library is
+// built without floating-point contraction), so results never depend on the
+// instruction set. About 32,000 multiplications.
+void dct32(const uint8_t* gray, float* out);
+// Its inverse (the orthonormal DCT-III): out[32 * y + x] from coefficients `coef`.
+void idct32(const float* coef, float* out);
+// The same transforms' coefficients as a dihedral transform t of the plane sees
+// them (turn_thumbnail's t): a transpose transposes the block, a mirror negates
+// the odd frequencies along its axis. `dst` must not alias `src`.
+void turn_coefficients(const float* src, float* dst, int t);
+
 // Applies dihedral transform t to a square row-major gray image of side n.
 void apply_dihedral(const uint8_t* src, uint8_t* dst, int n, int t);
 // Applies it to a whole thumbnail (the gray plane and both chroma planes).

@@ -6,11 +6,12 @@
 //     within Hamming distance `radius` of the second's DCT hash (candidates found
 //     exactly by join_within, lookalike_index.h), AND the independent second signal confirms it:
 //     the thumbnails, after that flip/turn, match (match.h: Pearson correlation of
-//     the 32x32 gray thumbnails at least `match.min_correlation`, no window of
-//     8x8 whose residual exceeds `match.max_local`, and colour differences a global
-//     colour change explains, within `match.max_chroma`). (A DCT sketch, features.h, drops hits that
-//     provably cannot reach it before the correlation is computed; it never
-//     changes which pairs are joined.)
+//     the 32x32 gray thumbnails, the sharper blurred towards the other, at least
+//     `match.min_correlation`, no window of 8x8 whose residual exceeds
+//     `match.max_local`, and colour differences a global colour change explains,
+//     within `match.max_chroma`). (The match profiles' bounds, match.h, drop hits
+//     that provably cannot reach it before any thumbnail is compared; they never
+//     change which pairs are joined.)
 // Groups are the connected components (union-find) of these pairs, with two or
 // more members. A group's diameter is the largest hash distance (best flip/turn)
 // between two of its members, exact for groups up to 512 members and a lower
