@@ -55,6 +55,11 @@
 
 namespace tamis {
 
+// The version of the rules above, part of the cache's groups fingerprint so that
+// groups found by older rules are never reused (1: correlation, local and colour
+// checks; 2: the correlation blur-matched).
+inline constexpr int kMatchRules = 2;
+
 struct MatchSettings {
   double min_correlation = 0.995;
   double max_local = 0.06;
