@@ -177,25 +177,21 @@ MatchProfile match_profile(const Thumbnail& thumb) {
   // edges, sum lambda |A|^2 is the sum of squared neighbour differences and
   // sum lambda^2 |A|^2 the sum of the squared grid Laplacian.
   const uint8_t* g = thumb.data();
-  int32_t e1 = 0;  // at most 2 * 32 * 31 * 255^2 < 2^31
-  int64_t e2 = 0;
-  int32_t lap[32][32] = {};
-  for (int y = 0; y < 32; ++y)
-    for (int x = 0; x < 31; ++x) {
-      const int32_t d = int32_t{g[32 * y + x + 1]} - g[32 * y + x];
-      e1 += d * d;
-      lap[y][x] += d;
-      lap[y][x + 1] -= d;
+  // The plane with its edges repeated: a difference across an edge is then 0,
+  // which is the reflecting edge.
+  int32_t q[34][34];
+  for (int y = 0; y < 34; ++y) {
+    const int sy = std::clamp(y - 1, 0, 31);
+    for (int x = 0; x < 34; ++x) q[y][x] = g[32 * sy + std::clamp(x - 1, 0, 31)];
+  }
+  int32_t e1 = 0, e2 = 0;  // at most 2 * 1024 * 255^2 and 1024 * 1020^2, both < 2^31
+  for (int y = 1; y <= 32; ++y)
+    for (int x = 1; x <= 32; ++x) {
+      const int32_t dx = q[y][x + 1] - q[y][x], dy = q[y + 1][x] - q[y][x];
+      const int32_t lap = q[y][x - 1] + q[y][x + 1] + q[y - 1][x] + q[y + 1][x] - 4 * q[y][x];
+      e1 += dx * dx + dy * dy;
+      e2 += lap * lap;
     }
-  for (int y = 0; y < 31; ++y)
-    for (int x = 0; x < 32; ++x) {
-      const int32_t d = int32_t{g[32 * (y + 1) + x]} - g[32 * y + x];
-      e1 += d * d;
-      lap[y][x] += d;
-      lap[y + 1][x] -= d;
-    }
-  for (int y = 0; y < 32; ++y)
-    for (int x = 0; x < 32; ++x) e2 += int64_t{lap[y][x]} * lap[y][x];
   const double e0 = double(p.stats.sum_sq) - double(p.stats.sum) * double(p.stats.sum) / 1024.0;
   const double mean = double(e1) / e0;
   p.lambda_mean = static_cast<float>(mean);
@@ -250,6 +246,7 @@ struct LowPair {
 };
 
 typedef float Lanes __attribute__((vector_size(16)));  // four floats, one SIMD register
+typedef int16_t Shorts __attribute__((vector_size(8)));  // four int16
 
 inline Lanes lanes_at(const float* f) {
   Lanes v;
@@ -288,7 +285,9 @@ LowPair low_pair(const MatchProfile& a, int t, const MatchProfile& b, const Blur
   const float* g3 = bt.low_gain[first + 3].data();
   Lanes dot = {}, bb = {}, p0 = {}, p1 = {}, p2 = {}, p3 = {};
   for (size_t i = 0; i < size_t(kScreenSlots); i += 4) {
-    const Lanes bv = {float(b.low[i]), float(b.low[i + 1]), float(b.low[i + 2]), float(b.low[i + 3])};
+    Shorts raw;
+    std::memcpy(&raw, b.low.data() + i, sizeof raw);
+    const Lanes bv = __builtin_convertvector(raw, Lanes);
     const Lanes prod = lanes_at(turned.c + i) * bv;
     dot += prod;
     bb += bv * bv;
