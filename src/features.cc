@@ -6,12 +6,6 @@
 
 #include <opencv2/imgproc.hpp>
 
-#if defined(__x86_64__)
-#include <immintrin.h>
-#endif
-
-#include "tamis/simd.h"
-
 namespace tamis {
 
 namespace {
@@ -498,117 +492,6 @@ double thumb_correlation(const Thumbnail& ta, const ThumbStats& sa, const Thumbn
 }
 
 bool thumb_is_flat(const ThumbStats& s) { return thumb_sd(s) < kFlatSd; }
-
-namespace {
-
-constexpr double kSketchScale = 127.0;
-
-// For transform t: where sketch entry k takes its value from, and its sign.
-struct SketchMaps {
-  // For transform t: value k of the turned sketch is sign * value from[k] of the
-  // sketch (k = 0..62; k = 63 is the zero pad, kept in place).
-  alignas(64) uint8_t from[kDihedralCount][64];
-  int8_t sign[kDihedralCount][64];
-  uint64_t negated[kDihedralCount];  // bit k set where sign[t][k] = -1
-  SketchMaps() {
-    for (int t = 0; t < kDihedralCount; ++t) {
-      negated[t] = 0;
-      for (int u = 0; u < 8; ++u)
-        for (int v = 0; v < 8; ++v) {
-          if (u == 0 && v == 0) continue;
-          const int k = u * 8 + v - 1;
-          const bool transpose = t & 4, flip_rows = t & 2, flip_cols = t & 1;
-          from[t][k] = static_cast<uint8_t>(transpose ? v * 8 + u - 1 : k);
-          sign[t][k] = static_cast<int8_t>(((flip_rows && (u & 1)) != (flip_cols && (v & 1))) ? -1 : 1);
-          if (sign[t][k] < 0) negated[t] |= uint64_t{1} << k;
-        }
-      from[t][63] = 63;
-      sign[t][63] = 1;
-    }
-  }
-};
-
-const SketchMaps& sketch_maps() {
-  static const SketchMaps maps;
-  return maps;
-}
-
-// Each stored value is within 0.5 (rounding) plus far less than 0.001 (double
-// arithmetic on values of at most 1) of the true coefficient x 127, so a true
-// difference is at least d - 1.002, d = |qa - qb|. With e = max(d - 1, 0), that
-// bound squared is at least e^2 - 0.004 e (exact for d <= 1, where both are 0).
-// So the true squared distance (x 127^2) is at least (250 S2 - S1) / 250, with
-// S2 = sum e^2 and S1 = sum e, and the correlation can reach c only if
-// 250 S2 - S1 <= 250 * 2 (1 - c) 127^2. Both paths below compute the same
-// integers; every added term is >= 0, so a partial sum may already reject.
-double sketch_limit(double min_correlation) { return 250.0 * 2.0 * (1.0 - min_correlation) * kSketchScale * kSketchScale; }
-
-bool sketch_may_correlate_plain(const ThumbSketch& a, int t, const ThumbSketch& b, double limit) {
-  const SketchMaps& maps = sketch_maps();
-  // Low frequencies come first and carry most of the energy, so most pairs are
-  // rejected after the first rows.
-  int64_t sum = 0;
-  const uint8_t* from = maps.from[t];
-  const int8_t* sign = maps.sign[t];
-  for (int k = 0; k < 63; ++k) {
-    const int64_t e = std::max(0, std::abs(sign[k] * a.c[from[k]] - b.c[static_cast<size_t>(k)]) - 1);
-    sum += 250 * e * e - e;
-    if ((k & 7) == 6 && double(sum) > limit) return false;
-  }
-  return double(sum) <= limit;
-}
-
-#if defined(__x86_64__)
-// GCC 12's AVX-512 intrinsics start some results from an "undefined" register
-// value, which -Wuninitialized reports inside its own headers.
-#pragma GCC diagnostic push
-#pragma GCC diagnostic ignored "-Wuninitialized"
-#pragma GCC diagnostic ignored "-Wmaybe-uninitialized"
-// The same sums over all 64 bytes at once (the pads are 0 on both sides).
-__attribute__((target("avx512f,avx512bw,avx512vbmi"))) bool sketch_may_correlate_wide(const ThumbSketch& a, int t,
-                                                                                        const ThumbSketch& b,
-                                                                                        double limit) {
-  const SketchMaps& maps = sketch_maps();
-  const __m512i zero = _mm512_setzero_si512();
-  __m512i ta = _mm512_permutexvar_epi8(_mm512_load_si512(maps.from[t]), _mm512_load_si512(a.c.data()));
-  ta = _mm512_mask_sub_epi8(ta, maps.negated[t], zero, ta);
-  const __m512i vb = _mm512_load_si512(b.c.data());
-  // |ta - vb| <= 254 as an unsigned byte, then e = max(d - 1, 0).
-  const __m512i d = _mm512_sub_epi8(_mm512_max_epi8(ta, vb), _mm512_min_epi8(ta, vb));
-  const __m512i e = _mm512_subs_epu8(d, _mm512_set1_epi8(1));
-  const int64_t s1 = _mm512_reduce_add_epi64(_mm512_sad_epu8(e, zero));
-  const __m512i lo = _mm512_unpacklo_epi8(e, zero), hi = _mm512_unpackhi_epi8(e, zero);
-  const int64_t s2 = _mm512_reduce_add_epi32(_mm512_add_epi32(_mm512_madd_epi16(lo, lo), _mm512_madd_epi16(hi, hi)));
-  return double(250 * s2 - s1) <= limit;
-}
-#pragma GCC diagnostic pop
-#endif
-
-}  // namespace
-
-ThumbSketch thumb_sketch(const Thumbnail& thumb, const ThumbStats& s) {
-  constexpr double kN = 1024;
-  const double mean = s.sum / kN;
-  const double norm = std::sqrt(std::max(1e-12, double(s.sum_sq) - kN * mean * mean));
-  // Centring the pixels changes only the DC term, which the sketch leaves out; so
-  // the block of the thumbnail itself, scaled by 1 / norm, is that of a'.
-  double block[64];
-  dct_low_block(thumb.data(), block);
-  ThumbSketch out{};
-  for (int k = 1; k < 64; ++k)
-    out.c[static_cast<size_t>(k - 1)] =
-        static_cast<int8_t>(std::lround(std::clamp(block[k] / norm, -1.0, 1.0) * kSketchScale));
-  return out;
-}
-
-bool sketch_may_correlate(const ThumbSketch& a, int t, const ThumbSketch& b, double min_correlation) {
-  const double limit = sketch_limit(min_correlation);
-  if (limit < 0) return true;
-#if defined(__x86_64__)
-  if (wide_bytes_usable()) return sketch_may_correlate_wide(a, t, b, limit);
-#endif
-  return sketch_may_correlate_plain(a, t, b, limit);
-}
 
 double thumb_correlation(const Thumbnail& a, int t, const Thumbnail& b) {
   Thumbnail ta;

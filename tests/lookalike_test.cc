@@ -19,7 +19,6 @@
 #include "tamis/features.h"
 #include "tamis/lookalike_index.h"
 #include "tamis/match.h"
-#include "tamis/simd.h"
 
 using namespace tamis;
 namespace fs = std::filesystem;
@@ -158,47 +157,10 @@ std::vector<Lookalike> real_thumbnails(size_t n_fashion) {
 }
 }  // namespace
 
-TEST_CASE("the DCT sketch never rejects a pair that reaches the correlation threshold", "[lookalike][sketch]") {
-  // Truth is the Pearson correlation itself, computed from the pixels; the sketch
-  // may only say "maybe" for every pair that reaches it.
-  auto looks = real_thumbnails(400);
-  std::vector<ThumbStats> st;
-  std::vector<ThumbSketch> sk;
-  for (const auto& l : looks) {
-    st.push_back(thumb_stats(l.thumb));
-    sk.push_back(thumb_is_flat(st.back()) ? ThumbSketch{} : thumb_sketch(l.thumb, st.back()));
-  }
-  for (double c : {0.5, 0.9, 0.99, 0.995, 0.999}) {
-    size_t reached = 0, below = 0, rejected = 0, wrongly_rejected = 0, differs = 0;
-    for (size_t i = 0; i < looks.size(); ++i)
-      for (size_t j = 0; j < looks.size(); ++j) {
-        if (i == j || thumb_is_flat(st[i]) || thumb_is_flat(st[j])) continue;
-        for (int t = 0; t < kDihedralCount; ++t) {
-          const bool maybe = sketch_may_correlate(sk[i], t, sk[j], c);
-          allow_wide_paths(false);  // the one-at-a-time bound: the same answer
-          differs += sketch_may_correlate(sk[i], t, sk[j], c) != maybe;
-          allow_wide_paths(true);
-          if (thumb_correlation(looks[i].thumb, t, looks[j].thumb) >= c) {
-            ++reached;
-            wrongly_rejected += !maybe;
-          } else {
-            ++below;
-            rejected += !maybe;
-          }
-        }
-      }
-    INFO("threshold " << c << ": " << reached << " reach it, " << rejected << " of " << below << " below it rejected");
-    CHECK(reached > 200);  // the photographs' copies at least
-    CHECK(wrongly_rejected == 0);
-    CHECK(differs == 0);
-    if (c >= 0.99) CHECK(double(rejected) >= 0.95 * double(below));  // what makes it worth having
-  }
-}
-
 TEST_CASE("find_groups equals the definition checked pair by pair", "[lookalike][groups]") {
   // Groups are the connected components of pairs (i, j) such that some flip/turn t
   // of i has a hash within the radius of j's and thumbnails that match (match.h):
-  // here every pair and every t is tried, with no index and no sketch.
+  // here every pair and every t is tried, with no index and no screen.
   auto looks = real_thumbnails(3000);
   std::vector<FileRecord> records(looks.size());
   for (size_t i = 0; i < looks.size(); ++i) {

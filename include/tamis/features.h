@@ -88,23 +88,4 @@ double thumb_correlation(const Thumbnail& turned_a, const ThumbStats& sa, const 
 // below 2 grey levels): its correlations follow the flat rule above.
 bool thumb_is_flat(const ThumbStats& s);
 
-// A lower bound on the thumbnails' distance, to reject most candidate pairs
-// before their correlation is computed. The Pearson correlation of two
-// thumbnails is 1 - |a' - b'|^2 / 2, where a' and b' are the pixels centred and
-// scaled to unit length; the orthonormal DCT keeps that distance, and any subset
-// of the coefficients gives a lower bound. The sketch holds the low 8x8 block
-// (without the DC term, which centring makes 0) of the DCT of a', rounded to
-// int8 (x 127; 63 bytes an image while the look-alike stage runs). A flip/turn
-// of the image maps the block onto itself (a transpose, and sign changes at odd
-// frequencies), so one sketch serves all 8. The 63 values fill a 64-byte line
-// whose last byte is 0, so a sketch is one aligned load for the wide path.
-struct alignas(64) ThumbSketch {
-  std::array<int8_t, 64> c{};  // c[k - 1]: coefficient k = 8u + v of the block, k = 1..63; c[63] = 0
-};
-// REQUIRES: !thumb_is_flat(s), s = thumb_stats(thumb).
-ThumbSketch thumb_sketch(const Thumbnail& thumb, const ThumbStats& s);
-// False only when corr(transform t of a, b) < min_correlation for certain (the
-// bound allows for the rounding of the sketches and of their computation).
-bool sketch_may_correlate(const ThumbSketch& a, int t, const ThumbSketch& b, double min_correlation);
-
 }  // namespace tamis

@@ -1,7 +1,7 @@
 // Wide instruction paths, chosen at run time.
 //
-// A few inner loops (the look-alike join's Hamming distances, the DCT sketch's
-// distance bound) have a second version for AVX-512 processors, compiled for it
+// An inner loop (the look-alike join's Hamming distances) has a second version
+// for AVX-512 processors, compiled for it
 // with a function attribute and used only when the processor reports the
 // instructions (the build itself targets plain x86-64). Both versions compute the
 // same integers, so every answer is the same on every machine; tests run both
@@ -13,8 +13,6 @@ namespace tamis {
 
 // AVX-512F with VPOPCNTDQ (eight 64-bit population counts an instruction).
 bool wide_popcount_usable();
-// AVX-512F with BW and VBMI (byte arithmetic and byte permutes on 64 bytes).
-bool wide_bytes_usable();
 
 void allow_wide_paths(bool allowed);
 
