@@ -27,6 +27,7 @@ struct BlurTable {
   std::array<int, kScreenCoefficients> index{}, transposed{};
   // (rows past the ladder are 0, so that four consecutive steps can always be read)
   alignas(16) std::array<std::array<float, kScreenSlots>, kBlurSteps + 3> low_gain{};
+  alignas(16) std::array<std::array<float, kScreenSlots>, kBlurSteps> low_gain2{};  // squared, in units of 1
   alignas(16) std::array<std::array<float, kScreenSlots>, kDihedralCount> sign{};
   BlurTable() {
     constexpr double kPi = 3.14159265358979323846;
@@ -49,6 +50,8 @@ struct BlurTable {
       for (int j = 0; j < kScreenCoefficients; ++j)
         if (index[size_t(j)] == 32 * v + u) transposed[size_t(i)] = j;
       for (int s = 0; s < kBlurSteps; ++s)
+        low_gain2[size_t(s)][size_t(i)] = gain2[size_t(s)][size_t(index[size_t(i)])];
+      for (int s = 0; s < kBlurSteps; ++s)
         low_gain[size_t(s)][size_t(i)] =
             static_cast<float>(double(gain[size_t(s)][size_t(index[size_t(i)])]) / (32767.0 * 32767.0));
       for (int t = 0; t < kDihedralCount; ++t)
@@ -60,6 +63,16 @@ const BlurTable& blur_table() {
   static const BlurTable t;
   return t;
 }
+
+typedef float Lanes __attribute__((vector_size(16)));  // four floats, one SIMD register
+typedef int16_t Shorts __attribute__((vector_size(8)));  // four int16
+
+inline Lanes lanes_at(const float* f) {
+  Lanes v;
+  std::memcpy(&v, f, sizeof v);
+  return v;
+}
+inline double lane_sum(Lanes v) { return (double(v[0]) + double(v[1])) + (double(v[2]) + double(v[3])); }
 
 // Largest mean square of (za - zb) over 8x8 windows at a step of 4, za and zb the
 // two planes standardized (each centred on its mean and divided by its standard
@@ -180,10 +193,14 @@ MatchProfile match_profile(const Thumbnail& thumb) {
   // The plane with its edges repeated: a difference across an edge is then 0,
   // which is the reflecting edge.
   int32_t q[34][34];
-  for (int y = 0; y < 34; ++y) {
-    const int sy = std::clamp(y - 1, 0, 31);
-    for (int x = 0; x < 34; ++x) q[y][x] = g[32 * sy + std::clamp(x - 1, 0, 31)];
+  for (int y = 0; y < 32; ++y) {
+    int32_t* row = q[y + 1];
+    for (int x = 0; x < 32; ++x) row[x + 1] = g[32 * y + x];
+    row[0] = row[1];
+    row[33] = row[32];
   }
+  std::memcpy(q[0], q[1], sizeof q[0]);
+  std::memcpy(q[33], q[32], sizeof q[33]);
   int32_t e1 = 0, e2 = 0;  // at most 2 * 1024 * 255^2 and 1024 * 1020^2, both < 2^31
   for (int y = 1; y <= 32; ++y)
     for (int x = 1; x <= 32; ++x) {
@@ -207,13 +224,14 @@ MatchProfile match_profile(const Thumbnail& thumb) {
     p.low[i] = static_cast<int16_t>(q);
     unit[i] = q / kLowScale;
   }
+  // (float lanes: the rounding is far inside the 2 / 65535 the screen allows for q)
+  alignas(16) float sq[kScreenSlots] = {};
+  for (size_t i = 0; i < size_t(kScreenCoefficients); ++i) sq[i] = float(unit[i] * unit[i]);
   for (int s = 0; s < kBlurSteps; ++s) {
-    double e = 0;
-    for (size_t i = 0; i < size_t(kScreenCoefficients); ++i) {
-      const double c = double(bt.gain[size_t(s)][size_t(bt.index[i])]) * unit[i];
-      e += c * c;
-    }
-    p.energy[size_t(s)] = static_cast<uint16_t>(std::clamp(std::floor(e * 65535.0), 0.0, 65535.0));
+    const float* g2 = bt.low_gain2[size_t(s)].data();
+    Lanes e = {};
+    for (size_t i = 0; i < size_t(kScreenSlots); i += 4) e += lanes_at(g2 + i) * lanes_at(sq + i);
+    p.energy[size_t(s)] = static_cast<uint16_t>(std::clamp(std::floor(lane_sum(e) * 65535.0), 0.0, 65535.0));
   }
   return p;
 }
@@ -245,15 +263,6 @@ struct LowPair {
   std::array<double, 4> p{};
 };
 
-typedef float Lanes __attribute__((vector_size(16)));  // four floats, one SIMD register
-typedef int16_t Shorts __attribute__((vector_size(8)));  // four int16
-
-inline Lanes lanes_at(const float* f) {
-  Lanes v;
-  std::memcpy(&v, f, sizeof v);
-  return v;
-}
-inline double lane_sum(Lanes v) { return (double(v[0]) + double(v[1])) + (double(v[2]) + double(v[3])); }
 
 LowPair low_pair(const MatchProfile& a, int t, const MatchProfile& b, const BlurCandidates& c) {
   const BlurTable& bt = blur_table();
