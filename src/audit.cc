@@ -108,6 +108,7 @@ AuditIndex read_tree(const AuditSettings& settings) {
     XXH3_64bits_reset(st);
     const double corr = gs.match.min_correlation;
     XXH3_64bits_update(st, &kMatchRules, sizeof kMatchRules);  // groups by older rules are not reused
+    XXH3_64bits_update(st, &kGroupsFormat, sizeof kGroupsFormat);  // nor groups stored without their links
     XXH3_64bits_update(st, &gs.radius, sizeof gs.radius);
     XXH3_64bits_update(st, &corr, sizeof corr);
     const double local = gs.match.max_local, chroma = gs.match.max_chroma;

@@ -320,6 +320,13 @@ std::optional<GroupResult> RecordCache::load_groups(uint64_t fingerprint, size_t
       grp.exact = e.at(1).get<bool>();
       grp.diameter = e.at(2).get<int>();
       grp.diameter_exact = e.at(3).get<bool>();
+      for (const auto& l : e.at(4)) {
+        GroupLink k{l.at(0).get<uint32_t>(), l.at(1).get<uint32_t>(), l.at(2).get<int>(), l.at(3).get<float>(),
+                    l.at(4).get<int>(), l.at(5).get<bool>()};
+        if (k.a >= k.b || k.b >= n || k.turn < -1 || k.turn >= kDihedralCount || k.blur_step < 0 || k.blur_step >= kBlurSteps)
+          return std::nullopt;
+        grp.links.push_back(k);
+      }
       for (uint32_t m : grp.members) {
         if (m >= n || g.group_of[m] >= 0) return std::nullopt;
         g.group_of[m] = static_cast<int64_t>(g.groups.size());
@@ -337,7 +344,11 @@ std::optional<GroupResult> RecordCache::load_groups(uint64_t fingerprint, size_t
 
 void RecordCache::store_groups(uint64_t fingerprint, const GroupResult& g) {
   json groups = json::array();
-  for (const auto& grp : g.groups) groups.push_back(json::array({grp.members, grp.exact, grp.diameter, grp.diameter_exact}));
+  for (const auto& grp : g.groups) {
+    json links = json::array();
+    for (const auto& l : grp.links) links.push_back(json::array({l.a, l.b, l.turn, l.correlation, l.blur_step, l.blurred_a}));
+    groups.push_back(json::array({grp.members, grp.exact, grp.diameter, grp.diameter_exact, links}));
+  }
   json j = {{"groups", groups}, {"exact_pairs", g.exact_pairs}, {"candidate_hits", g.candidate_hits},
             {"confirmed_pairs", g.confirmed_pairs}};
   std::vector<uint8_t> data = json::to_cbor(j);

@@ -1,6 +1,7 @@
 #include "tamis/groups.h"
 
 #include <algorithm>
+#include <tuple>
 #include <numeric>
 #include <stdexcept>
 
@@ -22,13 +23,14 @@ class UnionFind {
     }
     return x;
   }
-  void unite(uint32_t a, uint32_t b) {
+  bool unite(uint32_t a, uint32_t b) {  // true when a and b were apart
     a = find(a);
     b = find(b);
-    if (a == b) return;
+    if (a == b) return false;
     if (rank_[a] < rank_[b]) std::swap(a, b);
     parent_[b] = a;
     if (rank_[a] == rank_[b]) ++rank_[a];
+    return true;
   }
 
  private:
@@ -41,6 +43,12 @@ constexpr size_t kExactDiameterLimit = 512;
 }  // namespace
 
 std::string group_id(int64_t index) { return "g" + std::to_string(index + 1); }
+
+const char* turn_name(int t) {
+  static const char* const names[kDihedralCount] = {"none",      "mirror",  "upside-down", "turn-180",
+                                                    "transpose", "turn-90", "turn-270",    "anti-transpose"};
+  return t >= 0 && t < kDihedralCount ? names[t] : "none";
+}
 
 int lookalike_distance(const LookalikeCodes& a, const LookalikeCodes& b) {
   int best = 64;
@@ -60,6 +68,7 @@ GroupResult find_groups(const std::vector<FileRecord>& records, const ThumbnailT
     }
   const size_t n = eligible.size();
   UnionFind uf(n);
+  std::vector<GroupLink> links;  // in eligible indices until the groups are made
 
   // Byte-identical files: runs of equal content hash.
   std::vector<uint32_t> exact_root(n);
@@ -73,7 +82,8 @@ GroupResult find_groups(const std::vector<FileRecord>& records, const ThumbnailT
     });
     for (size_t k = 1; k < n; ++k)
       if (hash_of(by_hash[k]) == hash_of(by_hash[k - 1])) {
-        uf.unite(by_hash[k - 1], by_hash[k]);
+        if (uf.unite(by_hash[k - 1], by_hash[k]))
+          links.push_back({std::min(by_hash[k - 1], by_hash[k]), std::max(by_hash[k - 1], by_hash[k]), -1, 1.0f, 0, false});
         exact_root[by_hash[k]] = exact_root[by_hash[k - 1]];
         ++out.exact_pairs;
       }
@@ -103,7 +113,7 @@ GroupResult find_groups(const std::vector<FileRecord>& records, const ThumbnailT
     uint64_t self_hits = 0;
     for (size_t k = 0; k < n; ++k)
       for (int t = 0; t < kDihedralCount; ++t) self_hits += hamming(records[eligible[k]].features.look.phash[t], identity[k]) <= settings.radius;
-    std::vector<std::pair<uint32_t, uint32_t>> confirmed;
+    std::vector<GroupLink> confirmed;
     // Kept hits (8 * image + t, j), sorted by their first member: turn each
     // (image, t) thumbnail once, then compare it with its partners.
     auto confirm = [&](const std::vector<std::pair<uint32_t, uint32_t>>& hits) {
@@ -111,7 +121,7 @@ GroupResult find_groups(const std::vector<FileRecord>& records, const ThumbnailT
       for (size_t h = 0; h < hits.size(); ++h)
         if (h == 0 || hits[h].first != hits[h - 1].first) starts.push_back(h);
       starts.push_back(hits.size());
-      std::vector<std::vector<std::pair<uint32_t, uint32_t>>> found(starts.size() - 1);
+      std::vector<std::vector<GroupLink>> found(starts.size() - 1);
       parallel_for(found.size(), settings.threads, [&](size_t g) {
         const uint32_t i = hits[starts[g]].first / kDihedralCount;
         const int t = static_cast<int>(hits[starts[g]].first % kDihedralCount);
@@ -120,8 +130,14 @@ GroupResult find_groups(const std::vector<FileRecord>& records, const ThumbnailT
         std::vector<float> spectrum;  // the turned thumbnail's DCT, once needed
         for (size_t h = starts[g]; h < starts[g + 1]; ++h) {
           const uint32_t j = hits[h].second;
-          if (match_thumbnails(turned, profile[i], t, thumbs.at(eligible[j]), profile[j], settings.match, &spectrum).joined)
-            found[g].emplace_back(std::min(i, j), std::max(i, j));
+          const Match m = match_thumbnails(turned, profile[i], t, thumbs.at(eligible[j]), profile[j], settings.match, &spectrum);
+          if (!m.joined) continue;
+          // Said of the pair (a, b), a < b: the flip/turn of a that matches b
+          // (the inverse of t when the hit was b's), and which side was blurred.
+          constexpr int kInverse[kDihedralCount] = {0, 1, 2, 3, 4, 6, 5, 7};
+          const bool forward = i < j;
+          found[g].push_back({std::min(i, j), std::max(i, j), forward ? t : kInverse[t], m.correlation, m.blur_step,
+                              forward ? m.blurred_a : !m.blurred_a});
         }
       }, 64);
       for (auto& f : found) confirmed.insert(confirmed.end(), f.begin(), f.end());
@@ -156,10 +172,16 @@ GroupResult find_groups(const std::vector<FileRecord>& records, const ThumbnailT
       }
     }
     out.candidate_hits -= self_hits;
-    std::sort(confirmed.begin(), confirmed.end());
-    confirmed.erase(std::unique(confirmed.begin(), confirmed.end()), confirmed.end());
+    // One measurement a pair: its first in (a, b, turn, blur step) order.
+    std::sort(confirmed.begin(), confirmed.end(), [](const GroupLink& x, const GroupLink& y) {
+      return std::tie(x.a, x.b, x.turn, x.blur_step, x.blurred_a) < std::tie(y.a, y.b, y.turn, y.blur_step, y.blurred_a);
+    });
+    confirmed.erase(std::unique(confirmed.begin(), confirmed.end(),
+                                [](const GroupLink& x, const GroupLink& y) { return x.a == y.a && x.b == y.b; }),
+                    confirmed.end());
     out.confirmed_pairs = confirmed.size();
-    for (auto [a, b] : confirmed) uf.unite(a, b);
+    for (const GroupLink& l : confirmed)
+      if (uf.unite(l.a, l.b)) links.push_back(l);
   }
 
   // Components with two or more members, numbered by first member.
@@ -172,6 +194,10 @@ GroupResult find_groups(const std::vector<FileRecord>& records, const ThumbnailT
     }
     out.groups[static_cast<size_t>(comp_of_root[r])].members.push_back(k);
   }
+  // Components of two or more, in order, are the groups kept.
+  std::vector<int64_t> comp_kept(out.groups.size(), -1);
+  for (size_t c = 0, next = 0; c < out.groups.size(); ++c)
+    if (out.groups[c].members.size() >= 2) comp_kept[c] = static_cast<int64_t>(next++);
   std::vector<Group> kept;
   for (auto& g : out.groups) {
     if (g.members.size() < 2) continue;
@@ -202,6 +228,15 @@ GroupResult find_groups(const std::vector<FileRecord>& records, const ThumbnailT
     }
     for (auto& m : g.members) m = eligible[m];  // to record indices
     kept.push_back(std::move(g));
+  }
+  // Each link to its group, in record indices (links come in the order above).
+  for (const GroupLink& l : links) {
+    const int64_t gk = comp_kept[static_cast<size_t>(comp_of_root[uf.find(l.a)])];
+    if (gk < 0) continue;
+    GroupLink r = l;
+    r.a = eligible[l.a];
+    r.b = eligible[l.b];
+    kept[static_cast<size_t>(gk)].links.push_back(r);
   }
   out.groups = std::move(kept);
   for (size_t gi = 0; gi < out.groups.size(); ++gi)

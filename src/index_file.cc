@@ -88,8 +88,12 @@ void save_index(const std::filesystem::path& file, const AuditIndex& x, StagedFi
   j["labels"] = {{"pre_split", x.labels.pre_split}, {"names", bins(x.labels.names)}, {"label_of", json::array()},
                  {"given_split", json::array()}};
   json groups = json::array();
-  for (const auto& g : x.groups.groups)
-    groups.push_back({{"members", g.members}, {"exact", g.exact}, {"diameter", g.diameter}, {"diameter_exact", g.diameter_exact}});
+  for (const auto& g : x.groups.groups) {
+    json links = json::array();
+    for (const auto& l : g.links) links.push_back(json::array({l.a, l.b, l.turn, l.correlation, l.blur_step, l.blurred_a}));
+    groups.push_back({{"members", g.members}, {"exact", g.exact}, {"diameter", g.diameter},
+                      {"diameter_exact", g.diameter_exact}, {"links", links}});
+  }
   j["groups"] = {{"groups", groups},
                  {"exact_pairs", x.groups.exact_pairs},
                  {"candidate_hits", x.groups.candidate_hits},
@@ -264,6 +268,15 @@ AuditIndex load_index(const std::filesystem::path& file) {
       grp.exact = g.at("exact").get<bool>();
       grp.diameter = g.at("diameter").get<int>();
       grp.diameter_exact = g.at("diameter_exact").get<bool>();
+      if (g.contains("links"))  // indexes written before the links have none
+        for (const auto& l : g.at("links")) {
+          GroupLink k{l.at(0).get<uint32_t>(), l.at(1).get<uint32_t>(), l.at(2).get<int>(), l.at(3).get<float>(),
+                      l.at(4).get<int>(), l.at(5).get<bool>()};
+          if (k.a >= k.b || k.b >= n || k.turn < -1 || k.turn >= kDihedralCount || k.blur_step < 0 ||
+              k.blur_step >= kBlurSteps)
+            throw std::runtime_error("group link out of range");
+          grp.links.push_back(k);
+        }
       for (uint32_t m : grp.members) {
         if (m >= n || x.groups.group_of[m] >= 0) throw std::runtime_error("group member out of range");
         x.groups.group_of[m] = static_cast<int64_t>(x.groups.groups.size());

@@ -134,12 +134,27 @@ json build_report_impl(const AuditResult& r, bool with_paths) {
       paths.push_back(r.records[m].path);
       if (r.labels.label_of[m] >= 0) labels.insert(r.labels.names[static_cast<size_t>(r.labels.label_of[m])]);
     }
+    json links = json::array();
+    for (const GroupLink& l : g.links) {
+      json link = {{"a", r.records[l.a].path}, {"b", r.records[l.b].path}};
+      if (l.turn < 0) {
+        link["how"] = "identical";
+      } else {
+        link["how"] = "look-alike";
+        link["turn"] = turn_name(l.turn);
+        link["correlation"] = l.correlation;
+        link["blur_sigma"] = l.blur_step > 0 ? blur_sigma(l.blur_step) : 0.0;
+        link["blurred"] = l.blur_step > 0 ? (l.blurred_a ? "a" : "b") : "none";
+      }
+      links.push_back(std::move(link));
+    }
     groups.push_back({{"id", group_id(static_cast<int64_t>(gi))},
                       {"kind", g.exact ? "exact" : "near"},
                       {"paths", paths},
                       {"labels", labels},
                       {"diameter", g.diameter},
-                      {"diameter_exact", g.diameter_exact}});
+                      {"diameter_exact", g.diameter_exact},
+                      {"links", links}});
   }
   j["groups"] = std::move(groups);
   // Mask pairs per class, the folder evidence, and every pair.

@@ -116,3 +116,40 @@ TEST_CASE("the colour check tells a recoloured object from a global colour chang
   INFO("gray: correlation " << to_gray.correlation << " chroma " << to_gray.chroma);
   CHECK(to_gray.joined);
 }
+
+TEST_CASE("each group says how its members matched: identical, the flip/turn, the blur", "[lookalike][truth][groups]") {
+  // A visp photograph (Debian visp-images-data), a byte copy, a mirrored copy and
+  // a copy blurred by sigma 1 px per 28 px: the truth is how the test made them.
+  const cv::Mat src = cv::imread((test::kVispDir / test::distinct_photographs().front()).string(), cv::IMREAD_COLOR);
+  REQUIRE(!src.empty());
+  cv::Mat mirrored, blurred;
+  cv::flip(src, mirrored, 1);
+  cv::GaussianBlur(src, blurred, cv::Size(0, 0), std::min(src.cols, src.rows) / 28.0);
+  const std::vector<std::vector<uint8_t>> files = {test::encode_copy(src, 0), test::encode_copy(mirrored, 0),
+                                                   test::encode_copy(blurred, 0), test::encode_copy(src, 0)};
+  std::vector<FileRecord> records(files.size());
+  ThumbnailTable thumbs;
+  thumbs.assign_all(files.size());
+  for (size_t i = 0; i < files.size(); ++i) {
+    const Lookalike l = test::lookalike_of_bytes(files[i]);
+    records[i].path = "c/" + std::to_string(i) + ".png";
+    records[i].kind = FileKind::image;
+    records[i].features.has_lookalike = records[i].features.has_content_hash = true;
+    records[i].features.content_hash = {i == 3 ? 0 : i, 7};  // 3 is a byte copy of 0
+    records[i].features.look = l;
+    thumbs.at(i) = l.thumb;
+  }
+  const GroupResult g = find_groups(records, thumbs, GroupSettings{});
+  REQUIRE(g.groups.size() == 1);
+  const auto& links = g.groups[0].links;
+  REQUIRE(links.size() == 3);
+  CHECK((links[0].a == 0 && links[0].b == 3 && links[0].turn == -1));  // byte-identical first
+  CHECK((links[1].a == 0 && links[1].b == 1));
+  CHECK(std::string(turn_name(links[1].turn)) == "mirror");
+  CHECK(links[1].blur_step == 0);
+  CHECK((links[2].a == 0 && links[2].b == 2));
+  CHECK(std::string(turn_name(links[2].turn)) == "none");
+  CHECK(links[2].blur_step > 0);
+  CHECK(links[2].blurred_a);  // the sharp source is blurred towards the copy
+  CHECK(links[2].correlation >= GroupSettings{}.match.min_correlation);
+}

@@ -42,8 +42,25 @@ struct GroupSettings {
   uint64_t join_memory_bytes = 64ull << 20;
 };
 
+// Why two members share a group: one of the links that joined the group.
+struct GroupLink {
+  uint32_t a = 0, b = 0;    // record indices, a < b
+  int turn = -1;            // -1: byte-identical; else the flip/turn t of a (turn_thumbnail) that matches b
+  float correlation = 1;    // the blur-matched correlation (match.h; 1 for byte-identical files)
+  int blur_step = 0;        // the blur step that gave it (match.h blur_sigma; 0: none)
+  bool blurred_a = false;   // the blur went on a (else on b), when blur_step > 0
+};
+// The name of a flip/turn t in the outputs: "none", "mirror", "upside-down",
+// "turn-180", "transpose", "turn-90" (clockwise), "turn-270", "anti-transpose".
+const char* turn_name(int t);
+
 struct Group {
   std::vector<uint32_t> members;  // record indices, ascending (= path order)
+  // members.size() - 1 links that connect the members: the pairs that joined two
+  // parts of the group, byte-identical pairs first (in content-hash order), then
+  // look-alike pairs in (a, b) order, each measured by its first hit in
+  // (a, b, turn) order.
+  std::vector<GroupLink> links;
   bool exact = false;             // every member byte-identical to every other
   int diameter = 0;               // hash distance, see above
   bool diameter_exact = true;
