@@ -19,15 +19,16 @@ constexpr double kLowScale = 32767.0;  // MatchProfile::low: unit coefficients x
 // The gains exp(-tau_s lambda_uv) of every blur step, [step][32 u + v].
 struct BlurTable {
   alignas(32) std::array<std::array<float, 1024>, kBlurSteps> gain{}, gain2{};  // gains, and squared
-  // The same for the low block, [step][8u + v], scaled by 1 / 32767^2 (the low
-  // blocks' scale squared), and the signs a flip/turn t gives the low block
-  // (after its transpose, when t has one), [t][8u + v].
-  // Screen coefficient i is 32 u + v = index[i]; transposed[i] is the screen
-  // coefficient at (v, u).
+  // The screen's coefficients: coefficient i is 32 u + v = index[i] of the full
+  // block; transposed[i] is the screen coefficient at (v, u).
   std::array<int, kScreenCoefficients> index{}, transposed{};
-  // (rows past the ladder are 0, so that four consecutive steps can always be read)
+  // low_gain[s][i]: the gain of step s for screen coefficient i over 32767^2 (the
+  // stored coefficients' scale squared); the rows past the ladder are 0, so that
+  // four consecutive steps can always be read. low_gain2: the squared gains, in
+  // units of 1. sign[t][i]: the sign flip/turn t gives coefficient i (after its
+  // transpose, when t has one). Slots 42 and 43 are 0 throughout.
   alignas(16) std::array<std::array<float, kScreenSlots>, kBlurSteps + 3> low_gain{};
-  alignas(16) std::array<std::array<float, kScreenSlots>, kBlurSteps> low_gain2{};  // squared, in units of 1
+  alignas(16) std::array<std::array<float, kScreenSlots>, kBlurSteps> low_gain2{};
   alignas(16) std::array<std::array<float, kScreenSlots>, kDihedralCount> sign{};
   BlurTable() {
     constexpr double kPi = 3.14159265358979323846;
