@@ -323,8 +323,7 @@ std::optional<GroupResult> RecordCache::load_groups(uint64_t fingerprint, size_t
       for (const auto& l : e.at(4)) {
         GroupLink k{l.at(0).get<uint32_t>(), l.at(1).get<uint32_t>(), l.at(2).get<int>(), l.at(3).get<float>(),
                     l.at(4).get<int>(), l.at(5).get<bool>()};
-        if (k.a >= k.b || k.b >= n || k.turn < -1 || k.turn >= kDihedralCount || k.blur_step < 0 || k.blur_step >= kBlurSteps)
-          return std::nullopt;
+        if (!link_in_range(k, n)) return std::nullopt;
         grp.links.push_back(k);
       }
       for (uint32_t m : grp.members) {

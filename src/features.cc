@@ -417,12 +417,11 @@ void idct32(const float* coef, float* out) {
 }
 
 void turn_coefficients(const float* src, float* dst, int t) {
-  const bool transpose = t & 4, flip_rows = t & 2, flip_cols = t & 1;
+  const bool transpose = t & 4;
   for (int u = 0; u < 32; ++u)
     for (int v = 0; v < 32; ++v) {
-      float c = transpose ? src[32 * v + u] : src[32 * u + v];
-      if ((flip_rows && (u & 1)) != (flip_cols && (v & 1))) c = -c;
-      dst[32 * u + v] = c;
+      const float c = transpose ? src[32 * v + u] : src[32 * u + v];
+      dst[32 * u + v] = turn_negates(t, u, v) ? -c : c;
     }
 }
 

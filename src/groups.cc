@@ -44,6 +44,10 @@ constexpr size_t kExactDiameterLimit = 512;
 
 std::string group_id(int64_t index) { return "g" + std::to_string(index + 1); }
 
+bool link_in_range(const GroupLink& l, size_t n) {
+  return l.a < l.b && l.b < n && l.turn >= -1 && l.turn < kDihedralCount && l.blur_step >= 0 && l.blur_step < kBlurSteps;
+}
+
 const char* turn_name(int t) {
   static const char* const names[kDihedralCount] = {"none",      "mirror",  "upside-down", "turn-180",
                                                     "transpose", "turn-90", "turn-270",    "anti-transpose"};
@@ -105,7 +109,6 @@ GroupResult find_groups(const std::vector<FileRecord>& records, const ThumbnailT
     const PairFilter keep = [&](uint32_t variant, uint32_t j) {
       const uint32_t i = variant / kDihedralCount;
       if (i == j) return false;
-      if (profile[i].flat || profile[j].flat) return true;
       const int t = static_cast<int>(variant % kDihedralCount);
       return match_may_join(profile[i], t, profile[j], settings.match);
     };

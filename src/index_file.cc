@@ -272,9 +272,7 @@ AuditIndex load_index(const std::filesystem::path& file) {
         for (const auto& l : g.at("links")) {
           GroupLink k{l.at(0).get<uint32_t>(), l.at(1).get<uint32_t>(), l.at(2).get<int>(), l.at(3).get<float>(),
                       l.at(4).get<int>(), l.at(5).get<bool>()};
-          if (k.a >= k.b || k.b >= n || k.turn < -1 || k.turn >= kDihedralCount || k.blur_step < 0 ||
-              k.blur_step >= kBlurSteps)
-            throw std::runtime_error("group link out of range");
+          if (!link_in_range(k, n)) throw std::runtime_error("group link out of range");
           grp.links.push_back(k);
         }
       for (uint32_t m : grp.members) {

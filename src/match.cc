@@ -56,7 +56,7 @@ struct BlurTable {
         low_gain[size_t(s)][size_t(i)] =
             static_cast<float>(double(gain[size_t(s)][size_t(index[size_t(i)])]) / (32767.0 * 32767.0));
       for (int t = 0; t < kDihedralCount; ++t)
-        sign[size_t(t)][size_t(i)] = (((t & 2) && (u & 1)) != ((t & 1) && (v & 1))) ? -1.0f : 1.0f;
+        sign[size_t(t)][size_t(i)] = turn_negates(t, u, v) ? -1.0f : 1.0f;
     }
   }
 };
@@ -160,7 +160,6 @@ double chroma_unexplained(const Thumbnail& a, const Thumbnail& b) {
   return res / (dst.ss + 2.0 * double(kChromaPlane) * kChromaNoise * kChromaNoise);
 }
 
-
 // Sums over 1,024 values in eight fixed lanes (vectorizable, and the same
 // result on any processor).
 inline double dot1024(const float* x, const float* y) {
@@ -176,11 +175,7 @@ inline double sum1024(const float* x) {
   return ((double(acc[0]) + acc[1]) + (double(acc[2]) + acc[3])) + ((double(acc[4]) + acc[5]) + (double(acc[6]) + acc[7]));
 }
 
-
 }  // namespace
-
-
-int screen_coefficient(int i) { return blur_table().index[size_t(i)]; }
 
 MatchProfile match_profile(const Thumbnail& thumb) {
   MatchProfile p;
@@ -263,7 +258,6 @@ struct LowPair {
   double dot = 0, aa = 0, bb = 0;
   std::array<double, 4> p{};
 };
-
 
 LowPair low_pair(const MatchProfile& a, int t, const MatchProfile& b, const BlurCandidates& c) {
   const BlurTable& bt = blur_table();
@@ -360,8 +354,8 @@ bool match_may_join(const MatchProfile& a, int t, const MatchProfile& b, const M
   const BlurCandidates c = blur_candidates(a, b);
   const LowPair lp = low_pair(a, t, b, c);
   // No blur: 1 - rho = |a' - b'|^2 / 2 over all coefficients (unit vectors), and
-  // the low block's part bounds it from below; the rounding moves the distance
-  // by at most sqrt(63) / 32767 < 2.5e-4.
+  // the screen's 42 coefficients bound it from below; the rounding moves the
+  // distance by at most sqrt(42) / 32767 < 2.5e-4.
   const double dist = std::max(0.0, lp.aa + lp.bb - 2.0 * lp.dot);
   const double d = std::max(0.0, std::sqrt(dist) - 2.5e-4);
   if (1.0 - d * d / 2.0 >= thr) return true;

@@ -143,7 +143,7 @@ json build_report_impl(const AuditResult& r, bool with_paths) {
         link["how"] = "look-alike";
         link["turn"] = turn_name(l.turn);
         link["correlation"] = l.correlation;
-        link["blur_sigma"] = l.blur_step > 0 ? blur_sigma(l.blur_step) : 0.0;
+        link["blur_sigma"] = blur_sigma(l.blur_step);
         link["blurred"] = l.blur_step > 0 ? (l.blurred_a ? "a" : "b") : "none";
       }
       links.push_back(std::move(link));

@@ -63,6 +63,9 @@ void idct32(const float* coef, float* out);
 // them (turn_thumbnail's t): a transpose transposes the block, a mirror negates
 // the odd frequencies along its axis. `dst` must not alias `src`.
 void turn_coefficients(const float* src, float* dst, int t);
+// Whether flip/turn t negates coefficient (u, v) (after its transpose, when t
+// has one): a mirror negates the odd frequencies along its axis.
+inline bool turn_negates(int t, int u, int v) { return ((t & 2) && (u & 1)) != ((t & 1) && (v & 1)); }
 
 // Applies dihedral transform t to a square row-major gray image of side n.
 void apply_dihedral(const uint8_t* src, uint8_t* dst, int n, int t);

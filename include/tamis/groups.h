@@ -53,6 +53,8 @@ struct GroupLink {
 // The name of a flip/turn t in the outputs: "none", "mirror", "upside-down",
 // "turn-180", "transpose", "turn-90" (clockwise), "turn-270", "anti-transpose".
 const char* turn_name(int t);
+// Whether a link read back (cache, index) fits a set of n records.
+bool link_in_range(const GroupLink& l, size_t n);
 
 struct Group {
   std::vector<uint32_t> members;  // record indices, ascending (= path order)

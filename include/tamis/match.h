@@ -83,15 +83,13 @@ struct alignas(128) MatchProfile {
   // weighted by the power spectrum without the DC term.
   float lambda_mean = 0, lambda_var = 0;
   // The screen's coefficients of the centred thumbnail scaled to unit length,
-  // x 32767, in the order of screen_coefficient(); energy[s] their squared
+  // x 32767, (u, v) in row order; energy[s] their squared
   // length after blur step s (in units of 1), x 65535, rounded down.
   std::array<int16_t, kScreenSlots> low{};
   std::array<uint16_t, kBlurSteps> energy{};
   bool flat = false;
 };
 static_assert(sizeof(MatchProfile) == 128);
-// Coefficient i of the screen: 32 u + v of the full block.
-int screen_coefficient(int i);
 MatchProfile match_profile(const Thumbnail& thumb);
 
 // The blur steps tried for a pair: `steps[0..count)`, and whether the blur goes
