@@ -9,8 +9,11 @@
 //    (max_local, max_chroma).
 // Usage: lookalike_truth FASHION_MNIST_TREE [SOURCES_STEP [DETAIL]]
 // (DETAIL: any third argument prints the recall per kind at every threshold)
+// Environment: TRUTH_QUICK=1 stops after the defaults; TRUTH_WHY=FAMILY prints,
+// for each missed copy of that family, the hash distance and the match's measures.
 #include <algorithm>
 #include <chrono>
+#include <cstdlib>
 #include <cstdio>
 #include <filesystem>
 #include <map>
@@ -21,6 +24,8 @@
 #include "support/planted.h"
 #include "support/temp_tree.h"
 #include "tamis/groups.h"
+#include "tamis/lookalike_index.h"
+#include "tamis/match.h"
 
 using namespace tamis;
 
@@ -38,6 +43,8 @@ int main(int argc, char** argv) {
   for (const auto& rel : test::distinct_photographs())
     sources.push_back({"visp", cv::imread((test::kVispDir / rel).string(), cv::IMREAD_UNCHANGED), {}});
   for (const auto& sc : test::rendered_scenes(40, 1, 160, 120, 7)) sources.push_back({"scenes", sc.pictures[0], {}});
+  const auto tiles = test::photograph_tiles();
+  for (const auto& t : tiles) sources.push_back({"photos", t, {}});
   for (auto& s : sources) s.look = test::lookalike_of_bytes(test::encode_copy(s.pixels, 0));
   // Copies, made once.
   struct Copy { size_t source; size_t kind; Lookalike look; };
@@ -54,6 +61,9 @@ int main(int argc, char** argv) {
     scene_looks.emplace_back();
     for (const auto& p : sc.pictures) scene_looks.back().push_back(test::lookalike_of_bytes(test::encode_copy(p, 90)));
   }
+  // Distinct photograph tiles (pairs of tiles of one photograph share textures).
+  std::vector<Lookalike> tile_looks;
+  for (const auto& t : tiles) tile_looks.push_back(test::lookalike_of_bytes(test::encode_copy(t, 90)));
   // Fashion-MNIST records for find_groups.
   std::vector<FileRecord> records(files.size());
   ThumbnailTable thumbs;
@@ -71,6 +81,7 @@ int main(int argc, char** argv) {
   auto evaluate = [&](const GroupSettings& gs, bool detail) {
     std::map<std::string, std::pair<int, int>> per_kind;  // found, total
     std::map<std::string, std::pair<int, int>> per_family;
+    std::map<std::pair<std::string, std::string>, std::pair<int, int>> per_kind_family;
     for (const auto& c : copies) {
       const bool ok = test::pair_joined(c.look, sources[c.source].look, gs);
       auto& k = per_kind[kinds[c.kind].name];
@@ -79,6 +90,9 @@ int main(int argc, char** argv) {
       auto& f = per_family[sources[c.source].family];
       f.first += ok;
       ++f.second;
+      auto& kf = per_kind_family[{kinds[c.kind].name, sources[c.source].family}];
+      kf.first += ok;
+      ++kf.second;
     }
     std::map<std::string, int> wrong;
     int distinct_pairs = 0, distinct_joined = 0;
@@ -91,6 +105,9 @@ int main(int argc, char** argv) {
             ++wrong[scenes[s].how[i] + " / " + scenes[s].how[j]];
           }
         }
+    int tiles_joined = 0;
+    for (size_t i = 0; i < tile_looks.size(); ++i)
+      for (size_t j = i + 1; j < tile_looks.size(); ++j) tiles_joined += test::pair_joined(tile_looks[i], tile_looks[j], gs);
     const GroupResult g = find_groups(records, thumbs, gs);
     size_t grouped = 0;
     for (const auto& grp : g.groups) grouped += grp.members.size();
@@ -102,18 +119,53 @@ int main(int argc, char** argv) {
         worst_total = ft.second;
         worst = name;
       }
-    std::printf("local %.3f chroma %.2f corr %.3f | lowest recall %s %d/%d | distinct joined %d/%d | fashion-mnist grouped %zu\n",
+    std::printf("local %.3f chroma %.2f corr %.3f | lowest recall %s %d/%d | distinct joined %d/%d, tiles %d/%zu | fashion-mnist grouped %zu\n",
                 gs.match.max_local, gs.match.max_chroma, gs.match.min_correlation, worst.c_str(), worst_found, worst_total, distinct_joined,
-                distinct_pairs, grouped);
+                distinct_pairs, tiles_joined, tile_looks.size() * (tile_looks.size() - 1) / 2, grouped);
     if (!detail) return;
     std::printf("%-26s %s\n", "kind", "found / copies");
     for (const auto& [name, ft] : per_kind) std::printf("%-26s %4d / %4d  %.3f\n", name.c_str(), ft.first, ft.second, double(ft.first) / ft.second);
+    std::printf("%-26s", "recall by family");
+    for (const auto& [fam, ft] : per_family) std::printf(" %13s", fam.c_str());
+    std::printf("\n");
+    for (const auto& [name, ft] : per_kind) {
+      std::printf("%-26s", name.c_str());
+      for (const auto& [fam, ff] : per_family) {
+        const auto it = per_kind_family.find({name, fam});
+        if (it == per_kind_family.end()) std::printf(" %13s", "-");
+        else std::printf("  %3d/%3d %.2f", it->second.first, it->second.second, double(it->second.first) / it->second.second);
+      }
+      std::printf("\n");
+    }
     for (const auto& [name, ft] : per_family) std::printf("family %-19s %4d / %4d\n", name.c_str(), ft.first, ft.second);
     for (const auto& [how, n] : wrong) std::printf("joined distinct: %-40s %d\n", how.c_str(), n);
   };
+  if (std::getenv("TRUTH_WHY")) {  // why copies of one family are missed: hash distance, then the match's measures
+    const std::string fam = std::getenv("TRUTH_WHY");
+    GroupSettings gs;
+    for (const auto& c : copies) {
+      if (sources[c.source].family != fam || test::pair_joined(c.look, sources[c.source].look, gs)) continue;
+      const Lookalike& a = sources[c.source].look;
+      int best_t = 0, best_d = 65;
+      for (int t = 0; t < kDihedralCount; ++t)
+        if (hamming(a.phash[t], c.look.phash[0]) < best_d) { best_d = hamming(a.phash[t], c.look.phash[0]); best_t = t; }
+      const Match m = match_thumbnails(a.thumb, best_t, c.look.thumb, gs.match);
+      std::printf("why %-26s src %3zu hash %2d corr %.4f local %.3f chroma %.3f blur %d\n", kinds[c.kind].name.c_str(), c.source, best_d,
+                  m.correlation, m.local, m.chroma, m.blur_step);
+    }
+    return 0;
+  }
   GroupSettings defaults;
   std::printf("== defaults\n");
   evaluate(defaults, true);
+  if (std::getenv("TRUTH_QUICK")) return 0;
+  std::printf("== tone-and-colour fit floor (1: off)\n");
+  for (double f : {1.0, 0.99, 0.985, 0.98, 0.97, 0.95}) {
+    GroupSettings gs;
+    gs.match.fit_floor = f;
+    std::printf("fit_floor %.3f: ", f);
+    evaluate(gs, argc > 3);
+  }
   std::printf("== correlation threshold\n");
   for (double c : {0.98, 0.985, 0.99, 0.992, 0.994, 0.996, 0.998}) {
     GroupSettings gs;

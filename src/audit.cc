@@ -111,9 +111,10 @@ AuditIndex read_tree(const AuditSettings& settings) {
     XXH3_64bits_update(st, &kGroupsFormat, sizeof kGroupsFormat);  // nor groups stored without their links
     XXH3_64bits_update(st, &gs.radius, sizeof gs.radius);
     XXH3_64bits_update(st, &corr, sizeof corr);
-    const double local = gs.match.max_local, chroma = gs.match.max_chroma;
+    const double local = gs.match.max_local, chroma = gs.match.max_chroma, fit_floor = gs.match.fit_floor;
     XXH3_64bits_update(st, &local, sizeof local);
     XXH3_64bits_update(st, &chroma, sizeof chroma);
+    XXH3_64bits_update(st, &fit_floor, sizeof fit_floor);
     for (const auto& rec : r.records) {
       XXH3_64bits_update(st, rec.path.data(), rec.path.size() + 1);
       XXH3_64bits_update(st, &rec.kind, sizeof rec.kind);

@@ -45,7 +45,8 @@ constexpr size_t kExactDiameterLimit = 512;
 std::string group_id(int64_t index) { return "g" + std::to_string(index + 1); }
 
 bool link_in_range(const GroupLink& l, size_t n) {
-  return l.a < l.b && l.b < n && l.turn >= -1 && l.turn < kDihedralCount && l.blur_step >= 0 && l.blur_step < kBlurSteps;
+  return l.a < l.b && l.b < n && l.turn >= -1 && l.turn < kDihedralCount && l.blur_step >= 0 && l.blur_step < kBlurSteps &&
+         l.fit_source >= 0 && l.fit_source <= 2;
 }
 
 const char* turn_name(int t) {
@@ -139,8 +140,9 @@ GroupResult find_groups(const std::vector<FileRecord>& records, const ThumbnailT
           // (the inverse of t when the hit was b's), and which side was blurred.
           constexpr int kInverse[kDihedralCount] = {0, 1, 2, 3, 4, 6, 5, 7};
           const bool forward = i < j;
+          const int fit = !m.fitted ? 0 : (m.fitted_a == forward ? 1 : 2);
           found[g].push_back({std::min(i, j), std::max(i, j), forward ? t : kInverse[t], m.correlation, m.blur_step,
-                              forward ? m.blurred_a : !m.blurred_a});
+                              forward ? m.blurred_a : !m.blurred_a, fit});
         }
       }, 64);
       for (auto& f : found) confirmed.insert(confirmed.end(), f.begin(), f.end());
@@ -177,7 +179,8 @@ GroupResult find_groups(const std::vector<FileRecord>& records, const ThumbnailT
     out.candidate_hits -= self_hits;
     // One measurement a pair: its first in (a, b, turn, blur step) order.
     std::sort(confirmed.begin(), confirmed.end(), [](const GroupLink& x, const GroupLink& y) {
-      return std::tie(x.a, x.b, x.turn, x.blur_step, x.blurred_a) < std::tie(y.a, y.b, y.turn, y.blur_step, y.blurred_a);
+      return std::tie(x.a, x.b, x.turn, x.blur_step, x.blurred_a, x.fit_source) <
+             std::tie(y.a, y.b, y.turn, y.blur_step, y.blurred_a, y.fit_source);
     });
     confirmed.erase(std::unique(confirmed.begin(), confirmed.end(),
                                 [](const GroupLink& x, const GroupLink& y) { return x.a == y.a && x.b == y.b; }),

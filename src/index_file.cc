@@ -79,7 +79,8 @@ void save_index(const std::filesystem::path& file, const AuditIndex& x, StagedFi
   j["groups_settings"] = {{"radius", x.settings.groups.radius},
                           {"min_correlation", x.settings.groups.match.min_correlation},
                           {"max_local", x.settings.groups.match.max_local},
-                          {"max_chroma", x.settings.groups.match.max_chroma}};
+                          {"max_chroma", x.settings.groups.match.max_chroma},
+                          {"fit_floor", x.settings.groups.match.fit_floor}};
   const auto& cs = x.settings.checks;
   j["checks"] = {{"min_side", cs.min_side}, {"input_side", cs.input_side}, {"min_class", cs.min_class},
                  {"max_imbalance", cs.max_imbalance}, {"outlier_z", cs.outlier_z}};
@@ -90,7 +91,7 @@ void save_index(const std::filesystem::path& file, const AuditIndex& x, StagedFi
   json groups = json::array();
   for (const auto& g : x.groups.groups) {
     json links = json::array();
-    for (const auto& l : g.links) links.push_back(json::array({l.a, l.b, l.turn, l.correlation, l.blur_step, l.blurred_a}));
+    for (const auto& l : g.links) links.push_back(json::array({l.a, l.b, l.turn, l.correlation, l.blur_step, l.blurred_a, l.fit_source}));
     groups.push_back({{"members", g.members}, {"exact", g.exact}, {"diameter", g.diameter},
                       {"diameter_exact", g.diameter_exact}, {"links", links}});
   }
@@ -208,6 +209,8 @@ AuditIndex load_index(const std::filesystem::path& file) {
     x.settings.groups.match.min_correlation = j.at("groups_settings").at("min_correlation").get<double>();
     x.settings.groups.match.max_local = j.at("groups_settings").at("max_local").get<double>();
     x.settings.groups.match.max_chroma = j.at("groups_settings").at("max_chroma").get<double>();
+    if (j.at("groups_settings").contains("fit_floor"))  // written since the tone-and-colour fit
+      x.settings.groups.match.fit_floor = j.at("groups_settings").at("fit_floor").get<double>();
     x.settings.masks.force = strs(j.at("mask_settings").at("force"));
     x.settings.masks.forbid = strs(j.at("mask_settings").at("forbid"));
     const json& ck = j.at("checks");
@@ -271,7 +274,7 @@ AuditIndex load_index(const std::filesystem::path& file) {
       if (g.contains("links"))  // indexes written before the links have none
         for (const auto& l : g.at("links")) {
           GroupLink k{l.at(0).get<uint32_t>(), l.at(1).get<uint32_t>(), l.at(2).get<int>(), l.at(3).get<float>(),
-                      l.at(4).get<int>(), l.at(5).get<bool>()};
+                      l.at(4).get<int>(), l.at(5).get<bool>(), l.size() > 6 ? l.at(6).get<int>() : 0};
           if (!link_in_range(k, n)) throw std::runtime_error("group link out of range");
           grp.links.push_back(k);
         }

@@ -13,7 +13,8 @@ double blur_sigma(int step) { return 0.25 * step; }
 namespace {
 
 constexpr double kChromaNoise = 1.5;  // levels a cell: the floor under the target's variation
-constexpr double kColourless = 2.0;   // chroma standard deviation below which a side has no colour
+constexpr double kColourless = 2.0;
+constexpr double kMaxCast = 0.15;  // largest |gamma| of chroma_unexplained's luma term   // chroma standard deviation below which a side has no colour
 constexpr double kLowScale = 32767.0;  // MatchProfile::low: unit coefficients x this
 
 // The gains exp(-tau_s lambda_uv) of every blur step, [step][32 u + v].
@@ -136,27 +137,78 @@ CentredChroma centred_chroma(const Thumbnail& t) {
   return c;
 }
 
+// The 8x8 means of a thumbnail's gray plane (the chroma's cells), centred.
+std::array<double, kChromaPlane> centred_luma_cells(const Thumbnail& t) {
+  std::array<double, kChromaPlane> y{};
+  for (int r = 0; r < kThumbSide; ++r)
+    for (int c = 0; c < kThumbSide; ++c) y[size_t((r / 4) * kChromaSide + c / 4)] += t[size_t(r * kThumbSide + c)];
+  double m = 0;
+  for (double& v : y) m += (v /= 16.0);
+  m /= double(kChromaPlane);
+  for (double& v : y) v -= m;
+  return y;
+}
+
 // Share of the target's chroma variation that no global colour change of the
-// source explains: z_t = alpha z_s + beta over the 64 cells, alpha and beta
-// complex (a hue rotation with a saturation scale, and a white-balance shift),
-// fitted by least squares. beta absorbs the means; alpha = <t, s> / <s, s>
-// (complex inner product), and the residual is |t|^2 - |<t, s>|^2 / |s|^2. A
-// general affine map of the chroma plane would be too free: with a two-colour
-// backdrop it maps the backdrop onto itself and any object colour onto any
-// other. -1 when neither side has colour.
+// source explains: z_t = alpha z_s + gamma y_s + beta over the 64 cells, with
+// y_s the source's luma cells and alpha, gamma, beta complex (a hue rotation
+// with a saturation scale; a colour cast that grows with brightness, which is
+// what gains on the red and blue channels, a white-balance change, leave in
+// YCbCr; and a constant shift), fitted by least squares. beta absorbs the
+// means. A general affine map of the chroma plane would be too free: with a
+// two-colour backdrop it maps the backdrop onto itself and any object colour
+// onto any other. -1 when neither side has colour.
 double chroma_unexplained(const Thumbnail& a, const Thumbnail& b) {
   const CentredChroma ca = centred_chroma(a), cb = centred_chroma(b);
   const double floor_ss = 2.0 * double(kChromaPlane) * kColourless * kColourless;
   if (ca.ss < floor_ss && cb.ss < floor_ss) return -1;
   // Fit the less colourful side (target) from the more colourful (source).
-  const CentredChroma& src = ca.ss >= cb.ss ? ca : cb;
-  const CentredChroma& dst = ca.ss >= cb.ss ? cb : ca;
-  double re = 0, im = 0;
+  const bool a_src = ca.ss >= cb.ss;
+  const CentredChroma& src = a_src ? ca : cb;
+  const CentredChroma& dst = a_src ? cb : ca;
+  const std::array<double, kChromaPlane> y = centred_luma_cells(a_src ? a : b);
+  // Normal equations with complex unknowns (alpha, gamma); <p, q> = sum conj(p) q.
+  double ss_re = src.ss, yy = 0;
+  double sy_re = 0, sy_im = 0;  // <s, y>
+  double st_re = 0, st_im = 0;  // <s, t>
+  double yt_re = 0, yt_im = 0;  // <y, t>
   for (size_t k = 0; k < kChromaPlane; ++k) {
-    re += dst.u[k] * src.u[k] + dst.v[k] * src.v[k];  // Re(t conj(s))
-    im += dst.v[k] * src.u[k] - dst.u[k] * src.v[k];  // Im(t conj(s))
+    yy += y[k] * y[k];
+    sy_re += src.u[k] * y[k];
+    sy_im -= src.v[k] * y[k];
+    st_re += src.u[k] * dst.u[k] + src.v[k] * dst.v[k];
+    st_im += src.u[k] * dst.v[k] - src.v[k] * dst.u[k];
+    yt_re += y[k] * dst.u[k];
+    yt_im += y[k] * dst.v[k];
   }
-  const double res = std::max(0.0, dst.ss - (src.ss > 0 ? (re * re + im * im) / src.ss : 0.0));
+  // [ss  sy; conj(sy)  yy] [alpha; gamma] = [st; yt]. The cast a change of white
+  // balance leaves is small (|gamma| about 0.1 for gains of 15% on red and blue);
+  // a larger gamma would let an object's small difference in luma paint it any
+  // colour, so gamma is held within kMaxCast (on the boundary in the direction of
+  // the free fit, alpha refitted: a feasible fit, so the residual is an upper bound
+  // of the constrained least squares).
+  double ga_re = 0, ga_im = 0;
+  const double det = ss_re * yy - (sy_re * sy_re + sy_im * sy_im);
+  if (ss_re > 0 && yy > 0 && det > 1e-9 * ss_re * yy) {
+    ga_re = (ss_re * yt_re - (sy_re * st_re + sy_im * st_im)) / det;
+    ga_im = (ss_re * yt_im - (sy_re * st_im - sy_im * st_re)) / det;
+    const double g = std::sqrt(ga_re * ga_re + ga_im * ga_im);
+    if (g > kMaxCast) {
+      ga_re *= kMaxCast / g;
+      ga_im *= kMaxCast / g;
+    }
+  }
+  // t' = t - gamma y; alpha = <s, t'> / <s, s>; residual |t'|^2 - |<s, t'>|^2 / <s, s>.
+  double tt = 0, p_re = st_re, p_im = st_im;
+  for (size_t k = 0; k < kChromaPlane; ++k) {
+    const double u = dst.u[k] - ga_re * y[k], v = dst.v[k] - ga_im * y[k];
+    tt += u * u + v * v;
+  }
+  // <s, gamma y> = gamma <s, y> with <s, y> = sy.
+  p_re -= ga_re * sy_re - ga_im * sy_im;
+  p_im -= ga_re * sy_im + ga_im * sy_re;
+  const double explained = dst.ss - tt + (ss_re > 0 ? (p_re * p_re + p_im * p_im) / ss_re : 0.0);
+  const double res = std::max(0.0, dst.ss - explained);
   return res / (dst.ss + 2.0 * double(kChromaPlane) * kChromaNoise * kChromaNoise);
 }
 
@@ -173,6 +225,115 @@ inline double sum1024(const float* x) {
   for (int k = 0; k < 1024; k += 8)
     for (int i = 0; i < 8; ++i) acc[i] += x[k + i];
   return ((double(acc[0]) + acc[1]) + (double(acc[2]) + acc[3])) + ((double(acc[4]) + acc[5]) + (double(acc[6]) + acc[7]));
+}
+
+// The tone-and-colour fit: the target's gray plane fitted by least squares as a
+// function of the source's pixels: a quadratic tone curve of the gray level (a
+// gamma, a contrast or brightness change with clipping at one end) plus, when the
+// source has colour, linear terms in its chroma (the pixel's 8x8 cell: Cb, Cr),
+// which is how a hue or saturation change moves the gray level of coloured
+// pixels. Returns the correlation the fit explains, sqrt(explained / total) of
+// the target's variation, and writes the fitted plane (centred) to `pred`.
+double tone_colour_fit(const Thumbnail& src, const Thumbnail& dst, bool colour, float* pred) {
+  constexpr int kMax = 7;
+  const int n = colour ? 7 : 3;
+  // Centred regressors, one plane each.
+  alignas(32) float x[kMax][1024];
+  double mean[kMax] = {};
+  for (size_t i = 0; i < 1024; ++i) {
+    const float g = float(src[i]) * (1.0f / 255.0f);
+    x[0][i] = g;
+    x[1][i] = g * g;
+    x[colour ? 6 : 2][i] = g * g * g;
+  }
+  if (colour) {
+    // The chroma cells interpolated bilinearly between their centres (4 c + 1.5),
+    // edges held.
+    for (int p = 0; p < 2; ++p) {
+      const uint8_t* plane = src.data() + kGrayBytes + size_t(p) * kChromaPlane;
+      for (int r = 0; r < kThumbSide; ++r) {
+        const float fy = std::clamp((float(r) - 1.5f) * 0.25f, 0.0f, float(kChromaSide - 1));
+        const int y0 = std::min(int(fy), kChromaSide - 2);
+        const float wy = fy - float(y0);
+        for (int c = 0; c < kThumbSide; ++c) {
+          const float fx = std::clamp((float(c) - 1.5f) * 0.25f, 0.0f, float(kChromaSide - 1));
+          const int x0 = std::min(int(fx), kChromaSide - 2);
+          const float wx = fx - float(x0);
+          const uint8_t* q = plane + y0 * kChromaSide + x0;
+          const float top = float(q[0]) + wx * (float(q[1]) - float(q[0]));
+          const float bottom = float(q[kChromaSide]) + wx * (float(q[kChromaSide + 1]) - float(q[kChromaSide]));
+          x[2 + p][size_t(r * kThumbSide + c)] = (top + wy * (bottom - top) - 128.0f) * (1.0f / 255.0f);
+        }
+      }
+    }
+    // The largest and smallest of R - Y, G - Y, B - Y (BT.601, from Cb and Cr):
+    // where the brightest and darkest channel sit above and below the gray level.
+    // An HSV hue or saturation change keeps the brightest channel and moves the
+    // others, so the gray level it leaves is linear in these two and the gray.
+    for (size_t i = 0; i < 1024; ++i) {
+      const float cb = x[2][i], cr = x[3][i];
+      const float r = 1.402f * cr, b = 1.772f * cb, g = -0.344136f * cb - 0.714136f * cr;
+      x[4][i] = std::max(r, std::max(g, b));
+      x[5][i] = std::min(r, std::min(g, b));
+    }
+  }
+  for (int k = 0; k < n; ++k) mean[k] = sum1024(x[k]) / 1024.0;
+  for (int k = 0; k < n; ++k)
+    for (size_t i = 0; i < 1024; ++i) x[k][i] -= float(mean[k]);
+  alignas(32) float y[1024];
+  for (size_t i = 0; i < 1024; ++i) y[i] = float(dst[i]);
+  const double my = sum1024(y) / 1024.0;
+  for (size_t i = 0; i < 1024; ++i) y[i] -= float(my);
+  const double yy = dot1024(y, y);
+  if (yy <= 0) return 0;
+  double gram[kMax][kMax] = {}, rhs[kMax] = {};
+  for (int k = 0; k < n; ++k) {
+    rhs[k] = dot1024(x[k], y);
+    for (int l = 0; l <= k; ++l) gram[k][l] = gram[l][k] = dot1024(x[k], x[l]);
+  }
+  // Cholesky; a regressor that the earlier ones already span (pivot below 1e-9
+  // of its own square) is left out.
+  double chol[kMax][kMax] = {}, z[kMax] = {};
+  bool used[kMax] = {};
+  for (int k = 0; k < n; ++k) {
+    double d = gram[k][k];
+    for (int l = 0; l < k; ++l) d -= chol[k][l] * chol[k][l];
+    if (!(d > 1e-9 * gram[k][k]) || gram[k][k] <= 0) continue;
+    used[k] = true;
+    chol[k][k] = std::sqrt(d);
+    for (int m = k + 1; m < n; ++m) {
+      double v = gram[m][k];
+      for (int l = 0; l < k; ++l) v -= chol[m][l] * chol[k][l];
+      chol[m][k] = v / chol[k][k];
+    }
+  }
+  // Forward: L z = rhs (explained = |z|^2), back: L^T c = z.
+  double explained = 0;
+  for (int k = 0; k < n; ++k) {
+    if (!used[k]) continue;
+    double v = rhs[k];
+    for (int l = 0; l < k; ++l) v -= chol[k][l] * z[l];
+    z[k] = v / chol[k][k];
+    explained += z[k] * z[k];
+  }
+  double c[kMax] = {};
+  for (int k = n - 1; k >= 0; --k) {
+    if (!used[k]) continue;
+    double v = z[k];
+    for (int m = k + 1; m < n; ++m) v -= chol[m][k] * c[m];
+    c[k] = v / chol[k][k];
+  }
+  for (size_t i = 0; i < 1024; ++i) {
+    double v = 0;
+    for (int k = 0; k < n; ++k) v += c[k] * double(x[k][i]);
+    pred[i] = float(v);
+  }
+  return std::sqrt(std::clamp(explained / yy, 0.0, 1.0));
+}
+
+// Whether a thumbnail's chroma varies (chroma_unexplained's rule).
+bool has_colour(const Thumbnail& t) {
+  return centred_chroma(t).ss >= 2.0 * double(kChromaPlane) * kColourless * kColourless;
 }
 
 }  // namespace
@@ -348,6 +509,8 @@ bool blur_may_reach(const MatchProfile& a, const MatchProfile& b, const BlurCand
 
 }  // namespace
 
+double fit_gate(const MatchSettings& s) { return std::clamp(kFitGate, s.fit_floor, s.min_correlation); }
+
 bool match_may_join(const MatchProfile& a, int t, const MatchProfile& b, const MatchSettings& settings) {
   const double thr = settings.min_correlation;
   if (thr <= 0 || a.flat || b.flat) return true;
@@ -359,7 +522,8 @@ bool match_may_join(const MatchProfile& a, int t, const MatchProfile& b, const M
   const double dist = std::max(0.0, lp.aa + lp.bb - 2.0 * lp.dot);
   const double d = std::max(0.0, std::sqrt(dist) - 2.5e-4);
   if (1.0 - d * d / 2.0 >= thr) return true;
-  return blur_may_reach(a, b, c, lp, thr);
+  // The blurred bound at min_correlation, or at the fit's gate when the fit is on.
+  return blur_may_reach(a, b, c, lp, settings.fit_floor < thr ? fit_gate(settings) : thr);
 }
 
 Match match_thumbnails(const Thumbnail& ta, const MatchProfile& pa, int t, const Thumbnail& b, const MatchProfile& pb,
@@ -370,13 +534,17 @@ Match match_thumbnails(const Thumbnail& ta, const MatchProfile& pa, int t, const
     m.joined = m.correlation >= s.min_correlation;
     return m;
   }
+  const double plain = m.correlation;
   std::vector<float> blurred;  // the blurred side's pixels, when a blur step matched best
   // The blur steps, unless the low blocks prove that none can reach the
   // threshold (blur_may_reach: a bound, so the result is the same). They are
   // tried even when the thumbnails as they are reach it: the best step also
   // gives the residual that the local check measures.
   const BlurCandidates cand = blur_candidates(pa, pb);
-  if (blur_may_reach(pa, pb, cand, low_pair(pa, t, pb, cand), s.min_correlation)) {
+  const LowPair lp = low_pair(pa, t, pb, cand);
+  const bool may_reach = blur_may_reach(pa, pb, cand, lp, s.min_correlation);
+  const bool fit_open = s.fit_floor < s.min_correlation && blur_may_reach(pa, pb, cand, lp, fit_gate(s));
+  if (may_reach) {
     // Correlations from both full DCTs (DC left out).
     std::vector<float> own;
     std::vector<float>& sa = a_spectrum ? *a_spectrum : own;
@@ -421,8 +589,26 @@ Match match_thumbnails(const Thumbnail& ta, const MatchProfile& pa, int t, const
       idct32(coef, blurred.data());
     }
   }
+  // The tone-and-colour fit, for pairs whose plain correlation reaches the fit's
+  // floor but that neither the plain nor a blurred comparison joins: both ways
+  // round (each side as the source), the better kept.
+  alignas(32) float fitted[1024];
+  if (m.correlation < s.min_correlation && plain >= s.fit_floor && fit_open) {
+    alignas(32) float other[1024];
+    const double ab = tone_colour_fit(ta, b, has_colour(ta), fitted);
+    const double ba = tone_colour_fit(b, ta, has_colour(b), other);
+    const double best = std::max(ab, ba);
+    if (best > m.correlation) {
+      m.correlation = static_cast<float>(best);
+      m.fitted = true;
+      m.fitted_a = ab >= ba;
+      if (!m.fitted_a) std::copy(other, other + 1024, fitted);
+    }
+  }
   if (m.correlation < s.min_correlation) return m;
-  if (m.blur_step == 0)
+  if (m.fitted)
+    m.local = static_cast<float>(m.fitted_a ? local_residual(fitted, b.data()) : local_residual(ta.data(), fitted));
+  else if (m.blur_step == 0)
     m.local = static_cast<float>(local_residual(ta.data(), b.data()));
   else
     m.local = static_cast<float>(m.blurred_a ? local_residual(blurred.data(), b.data())

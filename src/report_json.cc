@@ -28,6 +28,7 @@ json settings_json(const AuditSettings& s) {
       {"lookalike_min_correlation", s.groups.match.min_correlation},
       {"lookalike_max_local", s.groups.match.max_local},
       {"lookalike_max_chroma", s.groups.match.max_chroma},
+      {"lookalike_fit_floor", s.groups.match.fit_floor},
       {"min_side", s.checks.min_side},
       {"input_side", s.checks.input_side},
       {"min_class", s.checks.min_class},
@@ -145,6 +146,7 @@ json build_report_impl(const AuditResult& r, bool with_paths) {
         link["correlation"] = l.correlation;
         link["blur_sigma"] = blur_sigma(l.blur_step);
         link["blurred"] = l.blur_step > 0 ? (l.blurred_a ? "a" : "b") : "none";
+        link["fit_source"] = l.fit_source == 1 ? "a" : l.fit_source == 2 ? "b" : "none";
       }
       links.push_back(std::move(link));
     }

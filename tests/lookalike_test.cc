@@ -233,7 +233,9 @@ TEST_CASE("the match profile's screen never rejects a pair whose blur-matched co
   // agreement with scipy's is checked by dct_hash_vs_scipy), with the gains
   // exp(-sigma^2 / 2 lambda) written out independently of match.cc. The screen
   // may only say "maybe" for every pair that reaches it, and match_thumbnails
-  // must measure the same correlation.
+  // must measure the same correlation. With the tone-and-colour fit on, the
+  // screen must also pass every pair the fit joins: a rejected pair (every 5th
+  // checked) is never joined by match_thumbnails.
   std::vector<Thumbnail> thumbs;
   auto img = test::read_idx_images(test::kFashionMnistDir / "train-images-idx3-ubyte.gz");
   const char* kinds[] = {"blur-0.4", "blur-1.0", "half-area", "half-cubic", "sharpen", "jpeg-q50", "noise-6", "gamma-0.7"};
@@ -261,7 +263,7 @@ TEST_CASE("the match profile's screen never rejects a pair whose blur-matched co
         gain[size_t(s)][size_t(32 * u + v)] =
             std::exp(-blur_sigma(s) * blur_sigma(s) / 2 *
                      (4 * std::pow(std::sin(M_PI * u / 64), 2) + 4 * std::pow(std::sin(M_PI * v / 64), 2)));
-  struct Case { uint32_t i, j; int t; double best; };
+  struct Case { uint32_t i, j; int t; double plain, best; };
   std::vector<Case> cases;
   std::vector<float> a(1024);
   for (uint32_t i = 0; i < n; ++i)
@@ -276,7 +278,8 @@ TEST_CASE("the match profile's screen never rejects a pair whose blur-matched co
           aa += double(a[k]) * a[k];
           bb += double(b[k]) * b[k];
         }
-        double best = ab / std::sqrt(aa * bb);
+        const double plain = ab / std::sqrt(aa * bb);
+        double best = plain;
         const BlurCandidates c = blur_candidates(prof[i], prof[j]);
         for (int s = 0; s < c.count; ++s) {
           const std::vector<double>& gs = gain[size_t(c.steps[size_t(s)])];
@@ -289,16 +292,26 @@ TEST_CASE("the match profile's screen never rejects a pair whose blur-matched co
           }
           best = std::max(best, num / std::sqrt(gx * (c.blur_a ? bb : aa)));
         }
-        cases.push_back({i, j, t, best});
+        cases.push_back({i, j, t, plain, best});
       }
     }
   for (double c : {0.9, 0.98, 0.99, 0.995}) {
     MatchSettings ms;
     ms.min_correlation = c;
     ms.max_local = ms.max_chroma = 1e9;  // the correlation alone
-    size_t reached = 0, far_below = 0, rejected = 0, wrongly_rejected = 0, mismeasured = 0;
+    size_t reached = 0, far_below = 0, rejected = 0, wrongly_rejected = 0, mismeasured = 0, rejected_seen = 0, fits_checked = 0,
+           rejected_but_joined = 0, fits_joined = 0;
     for (const auto& k : cases) {
       const bool maybe = match_may_join(prof[k.i], k.t, prof[k.j], ms);
+      if (!maybe && ms.fit_floor < c && (rejected_seen++ % 5) == 0) {
+        const Match m = match_thumbnails(thumbs[k.i], k.t, thumbs[k.j], ms);
+        ++fits_checked;
+        rejected_but_joined += m.joined;
+      }
+      if (ms.fit_floor < c && k.plain >= ms.fit_floor + 1e-4 && k.best < c && maybe) {
+        const Match m = match_thumbnails(thumbs[k.i], k.t, thumbs[k.j], ms);
+        fits_joined += m.joined && m.fitted;
+      }
       if (k.best >= c + 1e-4) {
         ++reached;
         wrongly_rejected += !maybe;
@@ -312,6 +325,11 @@ TEST_CASE("the match profile's screen never rejects a pair whose blur-matched co
                       << " far below it rejected");
     CHECK(reached > 200);  // the copies at least
     CHECK(wrongly_rejected == 0);
+    CHECK(rejected_but_joined == 0);
+    if (c > ms.fit_floor) {
+      CHECK(fits_checked > 1000);
+      CHECK(fits_joined > 10);  // the fit joins pairs the correlation alone does not (gamma copies at least)
+    }
     CHECK(mismeasured == 0);
     if (c >= 0.99) CHECK(double(rejected) >= 0.9 * double(far_below));  // what makes it worth having
   }

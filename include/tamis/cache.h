@@ -36,7 +36,7 @@
 namespace tamis {
 
 // The stored groups' layout, part of the groups fingerprint (2: with their links).
-inline constexpr int kGroupsFormat = 2;
+inline constexpr int kGroupsFormat = 3;
 inline constexpr int kCacheSchemaVersion = 4;  // 2: records in fixed bytes (was CBOR); 3: thumbnails apart; 4: thumbnails with 8x8 chroma
 
 class RecordCache {

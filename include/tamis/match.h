@@ -18,6 +18,16 @@
 //    integers from pixel differences), and the steps tried are the ladder's
 //    neighbours of that estimate (blur_candidates). The correlation is the best
 //    over no blur and those steps;
+//  - tone-and-colour fit: when neither reaches min_correlation but the plain
+//    correlation reaches fit_floor, one side's gray plane is fitted by least
+//    squares from the other's pixels: a cubic tone curve of the gray level (a
+//    gamma, or a contrast or brightness change that clips at one end, which the
+//    linear Pearson correlation cannot follow), and, when the source has colour,
+//    linear terms in its chroma (bilinear from the 8x8 cells: Cb, Cr, and the
+//    largest and smallest of R - Y, G - Y, B - Y, which is how an HSV hue or
+//    saturation change moves the gray level of coloured pixels). The
+//    correlation is then sqrt(explained share), the better of the two ways
+//    round, and the local check measures the fit's residual;
 //  - local: the residual between the two standardized thumbnails (zero mean, unit
 //    variance; the sharper after its blur), its mean square in the worst 8x8
 //    window (windows at a step of 4). The global mean square is 2 (1 -
@@ -27,22 +37,25 @@
 //    correlation is high because the backdrop dominates the variance;
 //  - chroma: the share of the colour variation that no global colour change
 //    explains. The less colourful thumbnail's 8x8 chroma z = Cb + i Cr is fitted
-//    by least squares as alpha z' + beta of the other's (complex alpha: a hue
-//    rotation and a saturation scale; beta: a white-balance shift; alpha = 0 is a
-//    conversion to gray); the residual's sum of squares over the target's
+//    by least squares as alpha z' + gamma y' + beta of the other's chroma z' and
+//    luma cells y' (complex alpha: a hue rotation and a saturation scale; gamma:
+//    the cast that grows with brightness, which gains on red and blue leave, held
+//    within |gamma| <= 0.15; beta: a constant shift; alpha = 0 is a conversion to
+//    gray); the residual's sum of squares over the target's
 //    variation (plus a noise floor of 1.5 levels a cell). Objects that
 //    differ from the backdrop in hue only, in different places or colours, leave
 //    most of it unexplained. Not measured (-1) when neither side has colour
 //    variation above 2 levels.
-// Two thumbnails are joined when correlation >= min_correlation, local <=
+// Two thumbnails are joined when correlation (plain, blurred or fitted) >= min_correlation, local <=
 // max_local and (chroma < 0 or chroma <= max_chroma). Flat thumbnails (standard
 // deviation below 2 grey levels) follow thumb_correlation's flat rule alone.
 //
 // The screen: most hash hits are far from any match, and the exact correlation
 // needs both thumbnails' full DCTs. match_may_join() rejects a hit only when the
 // low 8x8 DCT blocks prove the blur-matched correlation below min_correlation
-// for certain (see match.cc for the bound), so a screened search joins exactly
-// the pairs that match_thumbnails joins.
+// and the plain correlation below fit_floor for certain (see match.cc for the
+// bound), so a screened search joins exactly the pairs that match_thumbnails
+// joins.
 // docs/lookalikes.md: how the defaults were measured. Pure; thread-safe.
 #pragma once
 
@@ -57,14 +70,29 @@ namespace tamis {
 
 // The version of the rules above, part of the cache's groups fingerprint so that
 // groups found by older rules are never reused (1: correlation, local and colour
-// checks; 2: the correlation blur-matched).
-inline constexpr int kMatchRules = 2;
+// checks; 2: the correlation blur-matched; 3: the tone-and-colour fit, and the
+// colour check's luma term).
+inline constexpr int kMatchRules = 3;
 
 struct MatchSettings {
   double min_correlation = 0.995;
   double max_local = 0.06;
   double max_chroma = 0.35;
+  // The tone-and-colour fit is tried for pairs whose plain correlation reaches
+  // fit_floor (at or above min_correlation: never) and whose profiles' bound on
+  // the blur-matched correlation reaches fit_gate().
+  double fit_floor = 0.98;
 };
+
+// The tone-and-colour fit's gate: the profiles' bound on the blur-matched
+// correlation (match_may_join's) must reach kFitGate, held within [fit_floor,
+// min_correlation]. It keeps the fit to pairs whose low frequencies agree
+// closely: on Fashion-MNIST's 6.2 million hash hits a gate at 0.98 passes 1.35
+// million pairs to the thumbnails, at 0.99 288,000 (at 0.995, no fit, 44,000),
+// and the planted tone and colour copies lose almost nothing from 0.98 to 0.99
+// (docs/lookalikes.md).
+inline constexpr double kFitGate = 0.99;
+double fit_gate(const MatchSettings& settings);
 
 // The blur ladder: sigma = 0.25 s thumbnail pixels for s = 0..kBlurSteps-1.
 inline constexpr int kBlurSteps = 11;
@@ -108,6 +136,8 @@ struct Match {
   float chroma = -1;  // -1: not measured (no colour variation on either side)
   int blur_step = 0;  // the step that gave the correlation (0: none)
   bool blurred_a = true;  // which side the blur went on (when blur_step > 0)
+  bool fitted = false;    // the correlation is the tone-and-colour fit's
+  bool fitted_a = true;   // a was the fit's source (b fitted from a), else b
 };
 
 // `turned_a`: the first thumbnail after the hit's flip/turn t (turn_thumbnail);

@@ -4,6 +4,7 @@
 #include <cmath>
 #include <stdexcept>
 
+#include <opencv2/imgcodecs.hpp>
 #include <opencv2/imgproc.hpp>
 
 #include "tamis/decode.h"
@@ -12,6 +13,7 @@
 #include "tamis/match.h"
 #include "tamis/probe.h"
 #include "tamis/random.h"
+#include "support/photos.h"
 
 namespace tamis::test {
 
@@ -121,6 +123,40 @@ const std::vector<PlantedKind>& planted_kinds() {
     return v;
   }();
   return k;
+}
+
+std::vector<cv::Mat> photograph_tiles() {
+  struct Source { std::string path; int grid; };
+  // python3-sklearn's two sample photographs (a Chinese temple, a flower), libjxl-testdata's
+  // flower close-up, room interior and three portraits from its wesaturate set, and
+  // visp-images-data's Klimt painting and colour Solvay 1927 photograph.
+  const std::string jxl = "/usr/share/libjxl-testdata/";
+  const std::vector<Source> sources{
+      {"/usr/lib/python3/dist-packages/sklearn/datasets/images/china.jpg", 2},
+      {"/usr/lib/python3/dist-packages/sklearn/datasets/images/flower.jpg", 2},
+      {jxl + "jxl/flower/flower.png", 3},
+      {jxl + "jxl/hdr_room.png", 2},
+      {jxl + "external/wesaturate/500px/tmshre_riaphotographs_srgb8.png", 2},
+      {jxl + "external/wesaturate/500px/cvo9xd_keong_macan_srgb8.png", 2},
+      {jxl + "external/wesaturate/500px/u76c0g_bliznaca_srgb8.png", 2},
+      {(kVispDir / "Klimt/Klimt.ppm").string(), 2},
+      {(kVispDir / "Solvay/Solvay_conference_1927_Version2_2126x1463.png").string(), 2},
+  };
+  std::vector<cv::Mat> tiles;
+  for (const auto& s : sources) {
+    const cv::Mat photo = cv::imread(s.path, cv::IMREAD_COLOR);
+    if (photo.empty()) continue;
+    const int w = photo.cols / s.grid, h = photo.rows / s.grid;
+    for (int gy = 0; gy < s.grid; ++gy)
+      for (int gx = 0; gx < s.grid; ++gx) {
+        cv::Mat tile = photo(cv::Rect(gx * w, gy * h, w, h));
+        const double f = std::min(1.0, 384.0 / std::max(w, h));
+        cv::Mat out;
+        if (f < 1.0) cv::resize(tile, out, cv::Size(), f, f, cv::INTER_AREA); else out = tile.clone();
+        tiles.push_back(out);
+      }
+  }
+  return tiles;
 }
 
 Lookalike lookalike_of_bytes(const std::vector<uint8_t>& bytes) {

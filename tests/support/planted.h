@@ -44,6 +44,14 @@ Lookalike lookalike_of_bytes(const std::vector<uint8_t>& bytes);
 // a hash within the radius of the other's and the thumbnails match (match.h).
 bool pair_joined(const Lookalike& a, const Lookalike& b, const GroupSettings& gs);
 
+// Colour photographs from Debian packages, each cut into non-overlapping tiles (at
+// most 384 px on the longer side): distinct pictures of many kinds (landscape,
+// flowers, a room, portraits, a painting, a group photograph) to plant copies of,
+// and, tiles of one photograph among themselves, distinct pictures that share
+// their textures and colours. Sources are listed in planted.cc; a missing file is
+// skipped.
+std::vector<cv::Mat> photograph_tiles();
+
 // `count` scenes of `per_scene` pictures (width x height), from `seed`.
 std::vector<Scene> rendered_scenes(int count, int per_scene, int width, int height, uint64_t seed);
 
