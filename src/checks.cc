@@ -96,7 +96,7 @@ void check_groups(const std::vector<FileRecord>& records, const Labelling& label
     for (auto& [hash, same] : by_hash) {
       if (same.size() < 2) continue;
       Finding f;
-      f.code = "exact-duplicate";
+      f.code = "byte-identical";
       f.severity = Severity::warning;
       f.message = std::to_string(same.size()) + " files are byte-identical copies of each other";
       f.details = base;
@@ -105,7 +105,7 @@ void check_groups(const std::vector<FileRecord>& records, const Labelling& label
     }
     if (!g.exact) {
       Finding f;
-      f.code = "near-duplicate";
+      f.code = "look-alike";
       f.severity = Severity::warning;
       f.message = std::to_string(g.members.size()) +
                   " images look alike (re-encoded, resized, recoloured, mirrored or turned copies); group " + id;

@@ -115,7 +115,7 @@ void check_images(const std::vector<FileRecord>& records, const Labelling& label
     if (aspect.usable) {
       double la = std::log(double(p.width) / p.height);
       if (std::abs(la - aspect.median) > std::log(2.0))
-        col.add("odd-aspect", r, [&] {
+        col.add("aspect-outlier", r, [&] {
           return nlohmann::json{{"aspect", round2(double(p.width) / p.height)}, {"set_median", round2(std::exp(aspect.median))}};
         });
     }
@@ -128,10 +128,10 @@ void check_images(const std::vector<FileRecord>& records, const Labelling& label
         col.add("near-uniform", r, m);
       } else {
         double z = pick(zm, c).z(st.luma_mean);
-        if (st.luma_mean < 30 && z < -cs.outlier_z) col.add("too-dark", r, m);
-        if (st.luma_mean > 225 && z > cs.outlier_z) col.add("too-bright", r, m);
-        if (st.entropy < 3.0 && pick(ze, c).z(st.entropy) < -cs.outlier_z) col.add("low-information", r, m);
-        if (st.focus < 100 && pick(zf, c).z(std::log1p(st.focus)) < -cs.outlier_z) col.add("out-of-focus", r, m);
+        if (st.luma_mean < 30 && z < -cs.outlier_z) col.add("underexposed", r, m);
+        if (st.luma_mean > 225 && z > cs.outlier_z) col.add("overexposed", r, m);
+        if (st.entropy < 3.0 && pick(ze, c).z(st.entropy) < -cs.outlier_z) col.add("low-entropy", r, m);
+        if (st.focus < 100 && pick(zf, c).z(std::log1p(st.focus)) < -cs.outlier_z) col.add("unsharp", r, m);
       }
       bool colour = p.mode == ColorMode::rgb || p.mode == ColorMode::rgba || p.mode == ColorMode::cmyk;
       if (colour && st.channels_equal) col.add("gray-as-rgb", r);
@@ -166,12 +166,12 @@ void check_images(const std::vector<FileRecord>& records, const Labelling& label
   static const Rule rules[] = {
       {"tiny-image", Severity::warning, "the shorter side is below the minimum side"},
       {"below-input-size", Severity::info, "smaller than the model input side: they will be upscaled"},
-      {"odd-aspect", Severity::info, "an aspect ratio more than twice or under half the set's median"},
+      {"aspect-outlier", Severity::info, "an aspect ratio more than twice or under half the set's median"},
       {"near-uniform", Severity::warning, "nearly uniform frames (luminance spread under 3 grey levels)"},
-      {"too-dark", Severity::warning, "very dark (mean luminance under 30, unusual for the class)"},
-      {"too-bright", Severity::warning, "very bright (mean luminance over 225, unusual for the class)"},
-      {"low-information", Severity::info, "little information (histogram entropy under 3 bits, unusual for the class)"},
-      {"out-of-focus", Severity::warning, "probably out of focus (low Laplacian variance, unusual for the class)"},
+      {"underexposed", Severity::warning, "very dark (mean luminance under 30, unusual for the class)"},
+      {"overexposed", Severity::warning, "very bright (mean luminance over 225, unusual for the class)"},
+      {"low-entropy", Severity::info, "a narrow tonal range (histogram entropy under 3 bits, unusual for the class)"},
+      {"unsharp", Severity::warning, "little fine detail, probably blurred (low Laplacian variance, unusual for the class)"},
       {"gray-as-rgb", Severity::info, "grayscale pictures stored as colour (all channels equal)"},
       {"alpha-unused", Severity::info, "an alpha channel that is fully opaque everywhere"},
       {"transparency", Severity::info, "transparent pixels: loaders that drop alpha show what lies under them"},

@@ -413,7 +413,7 @@ class Policy(unittest.TestCase):
                 f.write(tiny_png()[:50])  # a known problem, present in the baseline
             old = os.path.join(t, "old")
             self.assertEqual(run("audit", root, "--out", old, "--quiet").returncode, 1)
-            gate = self.write_policy(t, {"fail_on": "new", "severity": {"exact-duplicate": "error"}})
+            gate = self.write_policy(t, {"fail_on": "new", "severity": {"byte-identical": "error"}})
             self.assertEqual(run("audit", root, "--out", os.path.join(t, "same"), "--quiet", "--policy", gate,
                                  "--baseline", os.path.join(old, "report.json")).returncode, 0)
             # Add a byte copy of one image: only that finding is new, and it fails the gate.
@@ -431,11 +431,11 @@ class Policy(unittest.TestCase):
             self.assertEqual(report["baseline"]["files_added"], ["alder/0 copy.png"])
             self.assertEqual(report["baseline"]["files_removed"], [])
             new_findings = [f for f in report["findings"] if f["baseline"] == "new"]
-            self.assertIn("exact-duplicate", [f["code"] for f in new_findings])
+            self.assertIn("byte-identical", [f["code"] for f in new_findings])
             for f in new_findings:  # everything new concerns the added file
                 self.assertIn("alder/0 copy.png", f["paths"], f["code"])
             failing = [f["code"] for f in new_findings if f["severity"] == "error"]
-            self.assertEqual(failing, ["exact-duplicate"])
+            self.assertEqual(failing, ["byte-identical"])
             unreadable = [f for f in report["findings"] if f["code"] == "unreadable"]
             self.assertEqual(unreadable[0]["baseline"], "known")
             # JUnit XML, read with Python's xml.etree (a general-purpose XML parser).
@@ -443,8 +443,8 @@ class Policy(unittest.TestCase):
             suite = ET.parse(junit).getroot()
             cases = {c.get("name"): c for c in suite.iter("testcase")}
             self.assertIn("unreadable", cases)
-            self.assertIsNotNone(cases["exact-duplicate"].find("failure"))
-            self.assertIn("alder/0 copy.png", cases["exact-duplicate"].find("failure").text)
+            self.assertIsNotNone(cases["byte-identical"].find("failure"))
+            self.assertIn("alder/0 copy.png", cases["byte-identical"].find("failure").text)
             self.assertIsNone(cases["unreadable"].find("failure"))  # known from the baseline
             self.assertEqual(int(suite.get("failures")), 1)
 

@@ -34,8 +34,8 @@ struct CheckSettings {
 void check_inventory(const std::vector<FileRecord>& records, const Labelling& labels, const WalkResult& walk,
                      std::vector<Finding>& out);
 
-// Findings about groups: `exact-duplicate` (warning) for each set of byte-identical
-// files, `near-duplicate` (warning) for each group that is not all byte-identical,
+// Findings about groups: `byte-identical` (warning) for each set of byte-identical
+// files, `look-alike` (warning) for each group that is not all byte-identical,
 // `label-conflict` (error) for a group whose images carry more than one label,
 // `split-leak` (error) for a group spanning split folders of a pre-split tree, and
 // `lookalike-chain` (warning) for a group whose diameter exceeds 2 * radius.
