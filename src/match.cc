@@ -227,74 +227,13 @@ inline double sum1024(const float* x) {
   return ((double(acc[0]) + acc[1]) + (double(acc[2]) + acc[3])) + ((double(acc[4]) + acc[5]) + (double(acc[6]) + acc[7]));
 }
 
-// The tone-and-colour fit: the target's gray plane fitted by least squares as a
-// function of the source's pixels: a quadratic tone curve of the gray level (a
-// gamma, a contrast or brightness change with clipping at one end) plus, when the
-// source has colour, linear terms in its chroma (the pixel's 8x8 cell: Cb, Cr),
-// which is how a hue or saturation change moves the gray level of coloured
-// pixels. Returns the correlation the fit explains, sqrt(explained / total) of
-// the target's variation, and writes the fitted plane (centred) to `pred`.
-double tone_colour_fit(const Thumbnail& src, const Thumbnail& dst, bool colour, float* pred) {
-  constexpr int kMax = 7;
-  const int n = colour ? 7 : 3;
-  // Centred regressors, one plane each.
-  alignas(32) float x[kMax][1024];
-  double mean[kMax] = {};
-  for (size_t i = 0; i < 1024; ++i) {
-    const float g = float(src[i]) * (1.0f / 255.0f);
-    x[0][i] = g;
-    x[1][i] = g * g;
-    x[colour ? 6 : 2][i] = g * g * g;
-  }
-  if (colour) {
-    // The chroma cells interpolated bilinearly between their centres (4 c + 1.5),
-    // edges held.
-    for (int p = 0; p < 2; ++p) {
-      const uint8_t* plane = src.data() + kGrayBytes + size_t(p) * kChromaPlane;
-      for (int r = 0; r < kThumbSide; ++r) {
-        const float fy = std::clamp((float(r) - 1.5f) * 0.25f, 0.0f, float(kChromaSide - 1));
-        const int y0 = std::min(int(fy), kChromaSide - 2);
-        const float wy = fy - float(y0);
-        for (int c = 0; c < kThumbSide; ++c) {
-          const float fx = std::clamp((float(c) - 1.5f) * 0.25f, 0.0f, float(kChromaSide - 1));
-          const int x0 = std::min(int(fx), kChromaSide - 2);
-          const float wx = fx - float(x0);
-          const uint8_t* q = plane + y0 * kChromaSide + x0;
-          const float top = float(q[0]) + wx * (float(q[1]) - float(q[0]));
-          const float bottom = float(q[kChromaSide]) + wx * (float(q[kChromaSide + 1]) - float(q[kChromaSide]));
-          x[2 + p][size_t(r * kThumbSide + c)] = (top + wy * (bottom - top) - 128.0f) * (1.0f / 255.0f);
-        }
-      }
-    }
-    // The largest and smallest of R - Y, G - Y, B - Y (BT.601, from Cb and Cr):
-    // where the brightest and darkest channel sit above and below the gray level.
-    // An HSV hue or saturation change keeps the brightest channel and moves the
-    // others, so the gray level it leaves is linear in these two and the gray.
-    for (size_t i = 0; i < 1024; ++i) {
-      const float cb = x[2][i], cr = x[3][i];
-      const float r = 1.402f * cr, b = 1.772f * cb, g = -0.344136f * cb - 0.714136f * cr;
-      x[4][i] = std::max(r, std::max(g, b));
-      x[5][i] = std::min(r, std::min(g, b));
-    }
-  }
-  for (int k = 0; k < n; ++k) mean[k] = sum1024(x[k]) / 1024.0;
-  for (int k = 0; k < n; ++k)
-    for (size_t i = 0; i < 1024; ++i) x[k][i] -= float(mean[k]);
-  alignas(32) float y[1024];
-  for (size_t i = 0; i < 1024; ++i) y[i] = float(dst[i]);
-  const double my = sum1024(y) / 1024.0;
-  for (size_t i = 0; i < 1024; ++i) y[i] -= float(my);
-  const double yy = dot1024(y, y);
-  if (yy <= 0) return 0;
-  double gram[kMax][kMax] = {}, rhs[kMax] = {};
-  for (int k = 0; k < n; ++k) {
-    rhs[k] = dot1024(x[k], y);
-    for (int l = 0; l <= k; ++l) gram[k][l] = gram[l][k] = dot1024(x[k], x[l]);
-  }
-  // Cholesky; a regressor that the earlier ones already span (pivot below 1e-9
-  // of its own square) is left out.
-  double chol[kMax][kMax] = {}, z[kMax] = {};
-  bool used[kMax] = {};
+// Least squares by the normal equations: Cholesky of the Gram matrix, a
+// regressor that the earlier ones already span (pivot below 1e-9 of its own
+// square) left out. Returns the explained sum of squares and the coefficients.
+constexpr int kFitMax = 7;
+double solve_normal(const double (&gram)[kFitMax][kFitMax], const double* rhs, int n, double* c) {
+  double chol[kFitMax][kFitMax] = {}, z[kFitMax] = {};
+  bool used[kFitMax] = {};
   for (int k = 0; k < n; ++k) {
     double d = gram[k][k];
     for (int l = 0; l < k; ++l) d -= chol[k][l] * chol[k][l];
@@ -316,18 +255,131 @@ double tone_colour_fit(const Thumbnail& src, const Thumbnail& dst, bool colour, 
     z[k] = v / chol[k][k];
     explained += z[k] * z[k];
   }
-  double c[kMax] = {};
   for (int k = n - 1; k >= 0; --k) {
+    c[k] = 0;
     if (!used[k]) continue;
     double v = z[k];
     for (int m = k + 1; m < n; ++m) v -= chol[m][k] * c[m];
     c[k] = v / chol[k][k];
   }
-  for (size_t i = 0; i < 1024; ++i) {
-    double v = 0;
-    for (int k = 0; k < n; ++k) v += c[k] * double(x[k][i]);
-    pred[i] = float(v);
+  return explained;
+}
+
+// The tone-and-colour fit: the target's gray plane fitted by least squares as a
+// function of the source's pixels: a cubic tone curve of the gray level (a
+// gamma, a contrast or brightness change with clipping at one end) plus, when the
+// source has colour, linear terms in its chroma (bilinear from the 8x8 cells: Cb,
+// Cr, and the largest and smallest of R - Y, G - Y, B - Y), which is how a hue or
+// saturation change moves the gray level of coloured pixels. Returns the
+// correlation the fit explains, sqrt(explained / total) of the target's
+// variation, and, when `pred` is given, writes the fitted plane (centred) there.
+double tone_colour_fit(const Thumbnail& src, const Thumbnail& dst, bool colour, float* pred) {
+  double gram[kFitMax][kFitMax] = {}, rhs[kFitMax] = {}, c[kFitMax] = {}, yy = 0;
+  if (!colour) {
+    // A gray source: the tone curve depends on the source's level alone, so the
+    // sums come from per-level counts and sums of the target (four interleaved
+    // tables, merged), all in integers, then moments of g = level / 255.
+    uint32_t count[4][256] = {}, sum[4][256] = {};
+    uint64_t sy = 0, syy = 0;
+    for (size_t i = 0; i < 1024; i += 4)
+      for (size_t l = 0; l < 4; ++l) {
+        const uint32_t v = src[i + l], y = dst[i + l];
+        ++count[l][v];
+        sum[l][v] += y;
+        sy += y;
+        syy += y * y;
+      }
+    double m[7] = {}, r[4] = {};  // sum of g^k over pixels, sum of g^k y
+    for (int v = 0; v < 256; ++v) {
+      const uint32_t nv = count[0][v] + count[1][v] + count[2][v] + count[3][v];
+      if (nv == 0) continue;
+      const double sv = double(sum[0][v] + sum[1][v] + sum[2][v] + sum[3][v]);
+      const double g = double(v) / 255.0;
+      double p = 1;
+      for (int k = 0; k <= 6; ++k) {
+        m[k] += double(nv) * p;
+        if (k <= 3) r[k] += sv * p;
+        p *= g;
+      }
+    }
+    yy = double(syy) - double(sy) * double(sy) / 1024.0;
+    if (yy <= 0) return 0;
+    for (int k = 0; k < 3; ++k) {
+      rhs[k] = r[k + 1] - m[k + 1] / 1024.0 * r[0];
+      for (int l = 0; l < 3; ++l) gram[k][l] = m[k + l + 2] - m[k + 1] * m[l + 1] / 1024.0;
+    }
+    const double explained = solve_normal(gram, rhs, 3, c);
+    if (pred) {
+      float lut[256];
+      for (int v = 0; v < 256; ++v) {
+        const double g = double(v) / 255.0;
+        lut[v] = float(c[0] * (g - m[1] / 1024.0) + c[1] * (g * g - m[2] / 1024.0) + c[2] * (g * g * g - m[3] / 1024.0));
+      }
+      for (size_t i = 0; i < 1024; ++i) pred[i] = lut[src[i]];
+    }
+    return std::sqrt(std::clamp(explained / yy, 0.0, 1.0));
   }
+  constexpr int n = kFitMax;
+  // Centred regressors, one plane each: g, g^2, Cb, Cr, max and min of the
+  // channels' offsets, g^3.
+  alignas(32) float x[kFitMax][1024];
+  for (size_t i = 0; i < 1024; ++i) {
+    const float g = float(src[i]) * (1.0f / 255.0f);
+    x[0][i] = g;
+    x[1][i] = g * g;
+    x[6][i] = g * g * g;
+  }
+  // The chroma cells interpolated bilinearly between their centres (4 c + 1.5),
+  // edges held.
+  for (int p = 0; p < 2; ++p) {
+    const uint8_t* plane = src.data() + kGrayBytes + size_t(p) * kChromaPlane;
+    for (int r = 0; r < kThumbSide; ++r) {
+      const float fy = std::clamp((float(r) - 1.5f) * 0.25f, 0.0f, float(kChromaSide - 1));
+      const int y0 = std::min(int(fy), kChromaSide - 2);
+      const float wy = fy - float(y0);
+      for (int cc = 0; cc < kThumbSide; ++cc) {
+        const float fx = std::clamp((float(cc) - 1.5f) * 0.25f, 0.0f, float(kChromaSide - 1));
+        const int x0 = std::min(int(fx), kChromaSide - 2);
+        const float wx = fx - float(x0);
+        const uint8_t* q = plane + y0 * kChromaSide + x0;
+        const float top = float(q[0]) + wx * (float(q[1]) - float(q[0]));
+        const float bottom = float(q[kChromaSide]) + wx * (float(q[kChromaSide + 1]) - float(q[kChromaSide]));
+        x[2 + p][size_t(r * kThumbSide + cc)] = (top + wy * (bottom - top) - 128.0f) * (1.0f / 255.0f);
+      }
+    }
+  }
+  // The largest and smallest of R - Y, G - Y, B - Y (BT.601, from Cb and Cr):
+  // where the brightest and darkest channel sit above and below the gray level.
+  // An HSV saturation change keeps the brightest channel and moves the others
+  // towards it, and a hue change keeps the brightest and darkest, so the gray
+  // level they leave is nearly linear in these two and the gray.
+  for (size_t i = 0; i < 1024; ++i) {
+    const float cb = x[2][i], cr = x[3][i];
+    const float r = 1.402f * cr, b = 1.772f * cb, g = -0.344136f * cb - 0.714136f * cr;
+    x[4][i] = std::max(r, std::max(g, b));
+    x[5][i] = std::min(r, std::min(g, b));
+  }
+  for (int k = 0; k < n; ++k) {
+    const float mean = float(sum1024(x[k]) / 1024.0);
+    for (size_t i = 0; i < 1024; ++i) x[k][i] -= mean;
+  }
+  alignas(32) float y[1024];
+  for (size_t i = 0; i < 1024; ++i) y[i] = float(dst[i]);
+  const float my = float(sum1024(y) / 1024.0);
+  for (size_t i = 0; i < 1024; ++i) y[i] -= my;
+  yy = dot1024(y, y);
+  if (yy <= 0) return 0;
+  for (int k = 0; k < n; ++k) {
+    rhs[k] = dot1024(x[k], y);
+    for (int l = 0; l <= k; ++l) gram[k][l] = gram[l][k] = dot1024(x[k], x[l]);
+  }
+  const double explained = solve_normal(gram, rhs, n, c);
+  if (pred)
+    for (size_t i = 0; i < 1024; ++i) {
+      double v = 0;
+      for (int k = 0; k < n; ++k) v += c[k] * double(x[k][i]);
+      pred[i] = float(v);
+    }
   return std::sqrt(std::clamp(explained / yy, 0.0, 1.0));
 }
 
@@ -543,7 +595,6 @@ Match match_thumbnails(const Thumbnail& ta, const MatchProfile& pa, int t, const
   const BlurCandidates cand = blur_candidates(pa, pb);
   const LowPair lp = low_pair(pa, t, pb, cand);
   const bool may_reach = blur_may_reach(pa, pb, cand, lp, s.min_correlation);
-  const bool fit_open = s.fit_floor < s.min_correlation && blur_may_reach(pa, pb, cand, lp, fit_gate(s));
   if (may_reach) {
     // Correlations from both full DCTs (DC left out).
     std::vector<float> own;
@@ -593,16 +644,20 @@ Match match_thumbnails(const Thumbnail& ta, const MatchProfile& pa, int t, const
   // floor but that neither the plain nor a blurred comparison joins: both ways
   // round (each side as the source), the better kept.
   alignas(32) float fitted[1024];
-  if (m.correlation < s.min_correlation && plain >= s.fit_floor && fit_open) {
-    alignas(32) float other[1024];
-    const double ab = tone_colour_fit(ta, b, has_colour(ta), fitted);
-    const double ba = tone_colour_fit(b, ta, has_colour(b), other);
+  if (m.correlation < s.min_correlation && plain >= s.fit_floor && s.fit_floor < s.min_correlation &&
+      blur_may_reach(pa, pb, cand, lp, fit_gate(s))) {
+    const bool ca = has_colour(ta), cb = has_colour(b);
+    const double ab = tone_colour_fit(ta, b, ca, nullptr);
+    const double ba = tone_colour_fit(b, ta, cb, nullptr);
     const double best = std::max(ab, ba);
     if (best > m.correlation) {
       m.correlation = static_cast<float>(best);
       m.fitted = true;
       m.fitted_a = ab >= ba;
-      if (!m.fitted_a) std::copy(other, other + 1024, fitted);
+      if (best >= s.min_correlation) {  // the fitted plane, for the local check
+        if (m.fitted_a) tone_colour_fit(ta, b, ca, fitted);
+        else tone_colour_fit(b, ta, cb, fitted);
+      }
     }
   }
   if (m.correlation < s.min_correlation) return m;
