@@ -9,6 +9,8 @@
 
 #include "tamis/atomic_file.h"
 #include "tamis/index_file.h"
+#include "tamis/junit.h"
+#include "tamis/walk.h"
 #include "tamis/manifest.h"
 #include "tamis/report_html.h"
 #include "tamis/report_json.h"
@@ -89,8 +91,16 @@ Thumbnails group_thumbnails(const AuditResult& r, size_t budget) {
 
 }  // namespace
 
+void refuse_inside_root(const std::filesystem::path& root, const std::filesystem::path& target, const std::string& what) {
+  if (!root.empty() && path_is_inside(root, target))
+    throw InsideRootError(what + " " + target.string() + " lies inside ROOT " + root.string() +
+                          "; tamis never writes inside the data set");
+}
+
 void write_outputs(const std::filesystem::path& out_dir, const AuditResult& result, size_t thumbnail_budget,
-                   std::vector<StageTime>* times) {
+                   std::vector<StageTime>* times, const std::filesystem::path& junit_file) {
+  refuse_inside_root(result.settings.root, out_dir, "--out");
+  if (!junit_file.empty()) refuse_inside_root(result.settings.root, junit_file, "--junit");
   StageClock clock(times);
   std::error_code ec;
   std::filesystem::create_directories(out_dir, ec);
@@ -127,6 +137,10 @@ void write_outputs(const std::filesystem::path& out_dir, const AuditResult& resu
     c.lap("manifest.csv");
     save_index(out_dir / kIndexFileName, result, &staged);
     c.lap("index.cbor");
+    if (!junit_file.empty()) {  // staged with the others: all land together or none
+      staged.write(junit_file, [&](std::ostream& os) { write_junit(os, result); });
+      c.lap("junit");
+    }
   } catch (...) {
     table_error = std::current_exception();
   }

@@ -239,6 +239,30 @@ class Outputs(unittest.TestCase):
             self.assertEqual(run("split", t, "--out", os.path.join(t, "o"), "--folds", "1").returncode, 2)
             self.assertEqual(run("split", "--help").returncode, 0)
 
+    def test_no_command_writes_inside_root(self):
+        # Whichever command writes (audit, split) and whichever file (--out, --junit),
+        # a target inside the audited ROOT exits 2 with a message and writes nothing.
+        with tempfile.TemporaryDirectory() as t:
+            root = os.path.join(t, "data")
+            os.makedirs(os.path.join(root, "c"))
+            with open(os.path.join(root, "c", "a.png"), "wb") as f:
+                f.write(tiny_png())
+            audit_out = os.path.join(t, "a")
+            self.assertEqual(run("audit", root, "--out", audit_out).returncode, 0)
+            before = snapshot(root)
+            cases = [("audit", root, "--out", os.path.join(root, "o")),
+                     ("audit", root, "--out", os.path.join(t, "b"), "--junit", os.path.join(root, "j.xml")),
+                     ("split", audit_out, "--out", os.path.join(root, "o")),
+                     ("split", audit_out, "--out", os.path.join(t, "s"), "--junit", os.path.join(root, "j.xml")),
+                     ("split", audit_out, "--out", os.path.join(t, "s"), "--junit", os.path.join(root, "c", "j.xml"))]
+            for args in cases:
+                r = run(*args)
+                self.assertEqual(r.returncode, 2, args)
+                self.assertIn("inside ROOT", r.stderr, args)
+                self.assertEqual(snapshot(root), before, args)
+            self.assertFalse(os.path.exists(os.path.join(t, "b")))
+            self.assertFalse(os.path.exists(os.path.join(t, "s")))  # refused before the output folder is made
+
     def test_schema_rejects_a_report_that_breaks_it(self):
         import jsonschema
         schema = load_json(SCHEMA)

@@ -14,6 +14,7 @@
 #include "tamis/audit.h"
 #include "tamis/demo.h"
 #include "tamis/manifest.h"
+#include "tamis/outputs.h"
 #include "tamis/report_html.h"
 #include "tamis/report_json.h"
 
@@ -114,4 +115,34 @@ TEST_CASE("report.json written with the findings' paths streamed equals nlohmann
   r.known.assign(r.findings.size(), false);
   for (size_t k = 0; k < r.known.size(); k += 2) r.known[k] = true;
   check(r);
+}
+
+TEST_CASE("the output layer refuses every target inside ROOT, whoever calls it, and writes nothing", "[outputs]") {
+  // The CLI checks early too; this holds the guard where the files are written.
+  test::TempDir t;
+  const std::filesystem::path root = t / "data";
+  write_demo(root);
+  AuditSettings s;
+  s.root = root;
+  const AuditResult r = run_audit(s);
+  auto count_files = [&] {
+    size_t n = 0;
+    for (const auto& e : std::filesystem::recursive_directory_iterator(root)) n += e.is_regular_file();
+    return n;
+  };
+  const size_t before = count_files();
+  CHECK_THROWS_AS(write_outputs(root / "out", r), InsideRootError);
+  CHECK_THROWS_AS(write_outputs(root, r), InsideRootError);
+  CHECK_THROWS_AS(write_outputs(t / "elsewhere", r, kThumbnailBudget, nullptr, root / "j.xml"), InsideRootError);
+  CHECK(count_files() == before);
+  CHECK_FALSE(std::filesystem::exists(root / "out"));
+  CHECK_FALSE(std::filesystem::exists(t / "elsewhere"));  // refused before the folder is made
+  // A JUnit file that cannot be written (its folder is missing) fails the whole
+  // set: none of the five files lands.
+  CHECK_THROWS(write_outputs(t / "elsewhere", r, kThumbnailBudget, nullptr, t / "missing" / "j.xml"));
+  CHECK_FALSE(std::filesystem::exists(t / "elsewhere" / "manifest.csv"));
+  // Outside ROOT, the four files and the JUnit file land together.
+  write_outputs(t / "elsewhere", r, kThumbnailBudget, nullptr, t / "j.xml");
+  CHECK(std::filesystem::exists(t / "elsewhere" / "manifest.csv"));
+  CHECK(std::filesystem::exists(t / "j.xml"));
 }

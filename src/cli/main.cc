@@ -17,8 +17,6 @@
 #include "tamis/cache.h"
 #include "tamis/demo.h"
 #include "tamis/index_file.h"
-#include "tamis/junit.h"
-#include "tamis/atomic_file.h"
 #include "tamis/manifest.h"
 #include "tamis/outputs.h"
 #include "tamis/version.h"
@@ -205,9 +203,10 @@ const auto process_start = std::chrono::steady_clock::now();
 // Writes the outputs, the JUnit file when asked, and the summary; returns the exit status.
 int finish(tamis::AuditResult& result, const std::string& out, const JudgeOptions& jo, bool quiet, bool timings) {
   try {
-    tamis::write_outputs(out, result, jo.thumbnails_kb * 1024, timings ? &result.times : nullptr);
-    if (!jo.junit.empty())
-      tamis::write_file_atomically(jo.junit, [&](std::ostream& os) { tamis::write_junit(os, result); });
+    tamis::write_outputs(out, result, jo.thumbnails_kb * 1024, timings ? &result.times : nullptr, jo.junit);
+  } catch (const tamis::InsideRootError& e) {
+    std::fprintf(stderr, "tamis: %s\n", e.what());
+    return kExitBadUsage;
   } catch (const std::exception& e) {
     std::fprintf(stderr, "tamis: %s\n", e.what());
     return kExitCannotRun;
@@ -252,19 +251,13 @@ int run_audit_command(const std::string& root, const std::string& out, const Spl
   settings.masks.force = o.mask_folders;
   settings.masks.forbid = o.not_mask_folders;
   settings.read.threads = o.threads;
-  if (tamis::path_is_inside(root, out)) {
-    std::fprintf(stderr, "tamis: --out %s lies inside ROOT %s; tamis never writes inside the data set\n",
-                 out.c_str(), root.c_str());
-    return kExitBadUsage;
-  }
-  if (!jo.junit.empty() && tamis::path_is_inside(root, jo.junit)) {
-    std::fprintf(stderr, "tamis: --junit %s lies inside ROOT; tamis never writes inside the data set\n",
-                 jo.junit.c_str());
-    return kExitBadUsage;
-  }
-  if (!o.cache.empty() && tamis::path_is_inside(root, o.cache)) {
-    std::fprintf(stderr, "tamis: --cache %s lies inside ROOT; tamis never writes inside the data set\n",
-                 o.cache.c_str());
+  // Early, before a long read: the output layer checks again when it writes.
+  try {
+    tamis::refuse_inside_root(root, out, "--out");
+    if (!jo.junit.empty()) tamis::refuse_inside_root(root, jo.junit, "--junit");
+    if (!o.cache.empty()) tamis::refuse_inside_root(root, o.cache, "--cache");
+  } catch (const tamis::InsideRootError& e) {
+    std::fprintf(stderr, "tamis: %s\n", e.what());
     return kExitBadUsage;
   }
   std::error_code ec;
@@ -306,9 +299,11 @@ int run_split_command(const std::string& dir, const std::string& out, const Spli
     std::fprintf(stderr, "tamis: %s\n", e.what());
     return kExitCannotRun;
   }
-  if (tamis::path_is_inside(index.settings.root, out)) {
-    std::fprintf(stderr, "tamis: --out %s lies inside the audited ROOT; tamis never writes inside the data set\n",
-                 out.c_str());
+  try {  // early, before the split: the output layer checks again when it writes
+    tamis::refuse_inside_root(index.settings.root, out, "--out");
+    if (!jo.junit.empty()) tamis::refuse_inside_root(index.settings.root, jo.junit, "--junit");
+  } catch (const tamis::InsideRootError& e) {
+    std::fprintf(stderr, "tamis: %s\n", e.what());
     return kExitBadUsage;
   }
   tamis::AuditResult result;
