@@ -94,6 +94,12 @@ AuditIndex read_tree(const AuditSettings& settings) {
     }
   }
   if (cache) clock.lap("cache store");
+  auto note_damage = [&] {
+    if (cache && cache->damaged_rows() > 0 && r.cache_note.empty())
+      r.cache_note = std::to_string(cache->damaged_rows()) +
+                     " damaged cache rows were ignored (checksum); their files were read again";
+  };
+  note_damage();
   r.masks = pair_masks(r.records, settings.masks);
   clock.lap("masks");
   r.labels = assign_labels(r.records, r.masks.layout_roots);
@@ -149,6 +155,7 @@ AuditIndex read_tree(const AuditSettings& settings) {
       }
     }
   }
+  note_damage();
   clock.lap(cached_groups ? "groups (cached)" : "groups");
   // Every thumbnail an output shows is loaded now; the others stay in the cache.
   r.walk.files.clear();

@@ -11,6 +11,7 @@
 #include <stdexcept>
 
 #include <nlohmann/json.hpp>
+#include <xxhash.h>
 
 #include "record_codec.h"
 #include "tamis/memory.h"
@@ -53,6 +54,35 @@ struct Stmt {
     }
   }
 };
+
+// Every stored blob ends with 8 bytes: XXH3-64 of the blob, seeded with a hash of
+// what identifies it (the path and the stamp, or the root and fingerprint), so
+// that damage anywhere in a row, or a row moved to another key, is seen when it
+// is read and the row is treated as absent (its file is read again).
+constexpr size_t kSumBytes = 8;
+uint64_t row_seed(std::string_view key, uint64_t a = 0, uint64_t b = 0, uint64_t c = 0) {
+  const uint64_t parts[3] = {a, b, c};
+  return XXH3_64bits_withSeed(parts, sizeof parts, XXH3_64bits(key.data(), key.size()));
+}
+void append_sum(std::vector<uint8_t>& data, uint64_t seed) {
+  const uint64_t h = XXH3_64bits_withSeed(data.data(), data.size(), seed);
+  for (int k = 0; k < 8; ++k) data.push_back(static_cast<uint8_t>(h >> (8 * k)));
+}
+// The blob without its checksum, or an empty span when the checksum is wrong.
+std::span<const uint8_t> checked(std::span<const uint8_t> data, uint64_t seed, bool& damaged) {
+  if (data.size() < kSumBytes) {
+    damaged = true;
+    return {};
+  }
+  const auto body = data.first(data.size() - kSumBytes);
+  uint64_t h = 0;
+  for (int k = 0; k < 8; ++k) h |= uint64_t{data[body.size() + size_t(k)]} << (8 * k);
+  if (h != XXH3_64bits_withSeed(body.data(), body.size(), seed)) {
+    damaged = true;
+    return {};
+  }
+  return body;
+}
 
 std::span<const uint8_t> blob(sqlite3_stmt* s, int col) {
   const auto* p = static_cast<const uint8_t*>(sqlite3_column_blob(s, col));
@@ -171,11 +201,18 @@ void RecordCache::open_and_load(const std::string& settings_key) {
   sqlite3_bind_text(q.s, 1, root_.c_str(), -1, SQLITE_TRANSIENT);
   while (q.step()) {
     FileRecord& r = rows_.emplace_back();
-    if (!detail::record_from_bytes(blob(q.s, 4), r)) {  // a row that does not decode is a miss
+    auto p = blob(q.s, 0);
+    bool bad = false;
+    const auto body = checked(blob(q.s, 4), row_seed({reinterpret_cast<const char*>(p.data()), p.size()},
+                                                     static_cast<uint64_t>(sqlite3_column_int64(q.s, 1)),
+                                                     static_cast<uint64_t>(sqlite3_column_int64(q.s, 2)),
+                                                     static_cast<uint64_t>(sqlite3_column_int64(q.s, 3))),
+                              bad);
+    if (bad || !detail::record_from_bytes(body, r)) {  // a damaged row, or one that does not decode, is a miss
+      ++damaged_rows_;
       rows_.pop_back();
       continue;
     }
-    auto p = blob(q.s, 0);
     paths_.emplace_back(p.begin(), p.end());
     stamps_.push_back({static_cast<uint64_t>(sqlite3_column_int64(q.s, 1)), sqlite3_column_int64(q.s, 2),
                        static_cast<uint64_t>(sqlite3_column_int64(q.s, 3))});
@@ -251,9 +288,14 @@ std::vector<uint32_t> RecordCache::load_thumbnails(ThumbnailTable& thumbs, const
   thumbs.make_room(receiving);
   std::sort(wanted.begin(), wanted.end());
   std::vector<uint8_t> found(wanted.size(), 0);
-  auto fill = [&](size_t w, std::span<const uint8_t> data) {
+  auto fill = [&](size_t w, std::span<const uint8_t> stored) {
     auto& thumb = thumbs.at(wanted[w].second);
-    if (data.size() != thumb.size()) return;
+    bool bad = false;
+    const auto data = checked(stored, row_seed(paths_[wanted[w].first]), bad);
+    if (bad || data.size() != thumb.size()) {
+      ++damaged_rows_;
+      return;
+    }
     std::copy(data.begin(), data.end(), thumb.begin());
     found[w] = 1;
   };
@@ -310,7 +352,12 @@ std::optional<GroupResult> RecordCache::load_groups(uint64_t fingerprint, size_t
     if (!q.step()) return std::nullopt;
     const auto* fp = sqlite3_column_text(q.s, 0);
     if (!fp || std::string(reinterpret_cast<const char*>(fp)) != std::to_string(fingerprint)) return std::nullopt;
-    auto data = blob(q.s, 1);
+    bool bad = false;
+    auto data = checked(blob(q.s, 1), row_seed(root_, fingerprint), bad);
+    if (bad) {  // damaged: the groups are computed again and stored anew
+      ++damaged_rows_;
+      return std::nullopt;
+    }
     json j = json::from_cbor(data.begin(), data.end());
     GroupResult g;
     g.group_of.assign(n, -1);
@@ -351,6 +398,7 @@ void RecordCache::store_groups(uint64_t fingerprint, const GroupResult& g) {
   json j = {{"groups", groups}, {"exact_pairs", g.exact_pairs}, {"candidate_hits", g.candidate_hits},
             {"confirmed_pairs", g.confirmed_pairs}};
   std::vector<uint8_t> data = json::to_cbor(j);
+  append_sum(data, row_seed(root_, fingerprint));
   std::string fp = std::to_string(fingerprint);
   Stmt ins(db_->h, "INSERT OR REPLACE INTO groups(root, fingerprint, data) VALUES(?, ?, ?)");
   sqlite3_bind_text(ins.s, 1, root_.c_str(), -1, SQLITE_TRANSIENT);
@@ -410,11 +458,12 @@ void RecordCache::store(const std::vector<FileRecord>& records, const ThumbnailT
     Stmt ins(db_->h, "INSERT OR REPLACE INTO records(root, path, size, mtime, inode, data) VALUES(?, ?, ?, ?, ?, ?)");
     Stmt ins_thumb(db_->h, "INSERT OR REPLACE INTO thumbs(root, path, data) VALUES(?, ?, ?)");
     Stmt del_thumb(db_->h, "DELETE FROM thumbs WHERE root = ? AND path = ?");
-    std::vector<uint8_t> data;
+    std::vector<uint8_t> data, thumb_data;
     for (uint32_t i : write) {
       const FileRecord& r = records[i];
       data.clear();
       detail::record_to_bytes(r, data);
+      append_sum(data, row_seed(r.path, r.size, static_cast<uint64_t>(r.mtime_ns), r.inode));
       sqlite3_reset(ins.s);
       sqlite3_bind_text(ins.s, 1, root_.c_str(), -1, SQLITE_TRANSIENT);
       sqlite3_bind_blob(ins.s, 2, r.path.data(), static_cast<int>(r.path.size()), SQLITE_TRANSIENT);
@@ -430,7 +479,11 @@ void RecordCache::store(const std::vector<FileRecord>& records, const ThumbnailT
       sqlite3_reset(t.s);
       sqlite3_bind_text(t.s, 1, root_.c_str(), -1, SQLITE_TRANSIENT);
       sqlite3_bind_blob(t.s, 2, r.path.data(), static_cast<int>(r.path.size()), SQLITE_TRANSIENT);
-      if (with_thumb) sqlite3_bind_blob(t.s, 3, thumbs.at(i).data(), static_cast<int>(thumbs.at(i).size()), SQLITE_STATIC);
+      if (with_thumb) {
+        thumb_data.assign(thumbs.at(i).begin(), thumbs.at(i).end());
+        append_sum(thumb_data, row_seed(r.path));
+        sqlite3_bind_blob(t.s, 3, thumb_data.data(), static_cast<int>(thumb_data.size()), SQLITE_STATIC);
+      }
       t.run();
     }
     db_->exec("COMMIT");

@@ -37,7 +37,7 @@ namespace tamis {
 
 // The stored groups' layout, part of the groups fingerprint (2: with their links).
 inline constexpr int kGroupsFormat = 3;
-inline constexpr int kCacheSchemaVersion = 4;  // 2: records in fixed bytes (was CBOR); 3: thumbnails apart; 4: thumbnails with 8x8 chroma
+inline constexpr int kCacheSchemaVersion = 5;  // 2: records in fixed bytes (was CBOR); 3: thumbnails apart; 4: thumbnails with 8x8 chroma; 5: a checksum ends every row
 
 class RecordCache {
  public:
@@ -91,6 +91,9 @@ class RecordCache {
   void store_groups(uint64_t fingerprint, const GroupResult& groups);
 
   bool rebuilt() const { return rebuilt_; }  // the file was damaged and started afresh
+  // Rows (records, thumbnails, groups) whose checksum did not match when read:
+  // each was treated as absent (its file read again, the groups computed again).
+  size_t damaged_rows() const { return damaged_rows_; }
   const std::filesystem::path& file() const { return file_; }
 
  private:
@@ -118,6 +121,7 @@ class RecordCache {
   std::vector<uint8_t> taken_;       // per row
   std::vector<ContentKey> by_content_;  // sorted
   bool rebuilt_ = false;
+  mutable size_t damaged_rows_ = 0;
 };
 
 // $XDG_CACHE_HOME/tamis/records.sqlite, or ~/.cache/tamis/records.sqlite.
