@@ -27,6 +27,11 @@ Baseline load_baseline(const std::filesystem::path& report_json) {
   }
   if (!j.is_object() || !j.contains("tool") || j["tool"].value("name", "") != "tamis" || !j.contains("findings"))
     throw std::runtime_error("baseline: " + report_json.string() + " is not a tamis report");
+  if (!j.contains("schema_version") || !j["schema_version"].is_number_integer() ||
+      j["schema_version"].get<int64_t>() != kBaselineReportSchema)
+    throw std::runtime_error("baseline: " + report_json.string() + " has schema_version " +
+                             (j.contains("schema_version") ? j["schema_version"].dump() : std::string("(none)")) +
+                             "; this build reads version " + std::to_string(kBaselineReportSchema));
   Baseline b;
   try {
     for (const auto& jf : j.at("findings")) {

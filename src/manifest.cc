@@ -205,11 +205,21 @@ std::vector<std::string> read_manifest_paths(std::istream& is) {
 KeepMap read_manifest_splits(std::istream& is) {
   auto rows = parse_csv(is);
   const size_t path_col = column(rows.front(), "path"), split_col = column(rows.front(), "split");
+  const size_t width = rows.front().size();
   KeepMap out;
   for (size_t k = 1; k < rows.size(); ++k) {
     const auto& r = rows[k];
-    if (r.size() <= std::max(path_col, split_col)) continue;
-    Placement p = placement_from_string(r[split_col]);
+    if (r.size() == 1 && r[0].empty()) continue;  // a blank line
+    // A row with another field count is a file cut off or mangled: refused, not
+    // half kept (a cut row would otherwise drop its images from the kept split).
+    if (r.size() != width)
+      throw std::runtime_error("manifest: record " + std::to_string(k + 1) + " has " + std::to_string(r.size()) +
+                               " fields where the header has " + std::to_string(width) + " (cut off or malformed)");
+    const std::string& v = r[split_col];
+    const Placement p = placement_from_string(v);
+    if (p == Placement::excluded && v != "excluded" && !v.empty())
+      throw std::runtime_error("manifest: record " + std::to_string(k + 1) + " has split '" + v +
+                               "' (train, val, test, excluded or empty expected)");
     if (p != Placement::excluded) out[r[path_col]] = p;
   }
   return out;

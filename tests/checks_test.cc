@@ -14,6 +14,8 @@
 #include "support/photos.h"
 #include "support/temp_tree.h"
 #include "tamis/audit.h"
+#include "tamis/baseline.h"
+#include "tamis/report_json.h"
 #include "tamis/policy.h"
 #include "tamis/checks.h"
 #include "tamis/decode.h"
@@ -316,4 +318,22 @@ TEST_CASE("the policy's lookalike section sets the look-alike sensitivity and re
   CHECK_THROWS_AS(parse_policy(R"({"lookalike": {"radius": 40}})"), PolicyError);
   CHECK_THROWS_AS(parse_policy(R"({"lookalike": {"min_correlation": 1.5}})"), PolicyError);
   CHECK_THROWS_AS(parse_policy(R"({"lookalike": 3})"), PolicyError);
+}
+
+TEST_CASE("a baseline of another report schema version is refused", "[baseline][fault]") {
+  // report.json carries schema_version (docs/report.schema.json); a baseline is
+  // read only when it is the version this build writes.
+  STATIC_REQUIRE(kBaselineReportSchema == kReportSchemaVersion);
+  test::TempDir t;
+  auto write = [&](const std::string& version) {
+    test::write_text(t / "report.json", R"({"schema_version": )" + version +
+                                            R"(, "tool": {"name": "tamis", "version": "x"}, "findings": []})");
+  };
+  write(std::to_string(kReportSchemaVersion));
+  CHECK_NOTHROW(load_baseline(t / "report.json"));
+  for (const char* bad : {"99", "0", "\"1\"", "1.5", "null"}) {
+    INFO(bad);
+    write(bad);
+    CHECK_THROWS_AS(load_baseline(t / "report.json"), std::runtime_error);
+  }
 }

@@ -77,6 +77,17 @@ class ExitStatus(unittest.TestCase):
             self.assertIn("inside", r.stderr)
             self.assertFalse(os.path.exists(os.path.join(t, "inside")))
             self.assertEqual(run("frobnicate").returncode, 2)
+            # Control inputs refused, never wrapped or taken outside ROOT.
+            for seed in ("-1", "18446744073709551616", "1e3", "0x10"):
+                r = run("audit", t, "--out", t + "/o", "--seed", seed)
+                self.assertEqual(r.returncode, 2, seed)
+                self.assertIn("--seed", r.stderr)
+            for folder in ("../x", "/etc", "a/../../b"):
+                for option in ("--mask-folder", "--not-mask-folder"):
+                    r = run("audit", t, "--out", t + "/o", option, folder)
+                    self.assertEqual(r.returncode, 2, (option, folder))
+                    self.assertIn("inside ROOT", r.stderr)
+            self.assertFalse(os.path.exists(t + "/o"))
 
     def test_missing_root_exits_3(self):
         with tempfile.TemporaryDirectory() as t:

@@ -273,4 +273,14 @@ TEST_CASE("the manifest reader takes RFC 4180 quoting, any column order and CRLF
   CHECK_THROWS_AS(read_manifest_splits(no_split), std::runtime_error);
   std::istringstream open_quote("path,split\r\n\"a.png,train\r\n");
   CHECK_THROWS_AS(read_manifest_splits(open_quote), std::runtime_error);
+  // A file cut off mid-row, or a split column that holds something else (labels,
+  // another spelling), is refused rather than silently keeping part of it.
+  std::istringstream cut("path,label,split\na.png,x,train\nb.png,x");
+  CHECK_THROWS_AS(read_manifest_splits(cut), std::runtime_error);
+  std::istringstream upper("path,split\na.png,TRAIN\n");
+  CHECK_THROWS_AS(read_manifest_splits(upper), std::runtime_error);
+  std::istringstream labels("path,split\na.png,gingham\n");
+  CHECK_THROWS_AS(read_manifest_splits(labels), std::runtime_error);
+  std::istringstream blank_lines("path,split\na.png,train\n\nb.png,\n");
+  CHECK(read_manifest_splits(blank_lines).size() == 1);
 }

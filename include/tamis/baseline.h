@@ -35,4 +35,9 @@ std::vector<std::string> finding_identities(const Finding& f);
 // std::runtime_error when the report cannot be read or is not a tamis report.
 Baseline load_baseline(const std::filesystem::path& report_json);
 
+// The report.json schema_version a baseline must carry (report_json.h's
+// kReportSchemaVersion, which a test holds equal): a report of another version
+// is refused, not read as if its fields meant the same.
+inline constexpr int kBaselineReportSchema = 1;
+
 }  // namespace tamis

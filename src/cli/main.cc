@@ -2,6 +2,8 @@
 // of its own beyond turning outcomes into exit statuses (docs/cli.md):
 //   0 nothing breaks the policy, 1 a finding breaks it, 2 bad command line,
 //   3 the run could not be done.
+#include <algorithm>
+#include <charconv>
 #include <chrono>
 #include <cstdio>
 #include <cstdlib>
@@ -96,7 +98,18 @@ struct SplitOptions {
 };
 
 void add_split_options(CLI::App* cmd, SplitOptions& o) {
-  cmd->add_option("--seed", o.seed, "seed of the split (default 1)");
+  // A seed is a plain decimal 0..2^64-1: a sign or an overflow is refused, never
+  // wrapped (CLI11 alone would read -1 as 2^64-1).
+  const CLI::Validator plain_u64(
+      [](std::string& text) -> std::string {
+        uint64_t v = 0;
+        const auto [end, ec] = std::from_chars(text.data(), text.data() + text.size(), v);
+        if (text.empty() || text[0] == '+' || ec != std::errc() || end != text.data() + text.size())
+          return "--seed takes a whole number from 0 to 18446744073709551615, not '" + text + "'";
+        return {};
+      },
+      "0..2^64-1");
+  cmd->add_option("--seed", o.seed, "seed of the split (default 1)")->check(plain_u64);
   cmd->add_option("--split", o.spec, "train/val/test percentages, or train/test (default 70/15/15)");
   cmd->add_flag("--stable", o.stable, "decide each group's split by a keyed hash, so added files never move others");
   cmd->add_option("--keep", o.keep, "a previous manifest.csv: keep its splits, place only new files");
@@ -248,6 +261,17 @@ int run_audit_command(const std::string& root, const std::string& out, const Spl
     settings.cache_file = o.cache.empty() ? tamis::default_cache_file() : fs::path(o.cache);
     if (o.cache.empty() && tamis::path_is_inside(root, settings.cache_file)) settings.cache_file.clear();
   }
+  // Mask folders name folders inside ROOT: relative, without "..".
+  for (const auto* list : {&o.mask_folders, &o.not_mask_folders})
+    for (const std::string& f : *list) {
+      const fs::path p(f);
+      const bool up = std::any_of(p.begin(), p.end(), [](const fs::path& part) { return part == ".."; });
+      if (f.empty() || p.is_absolute() || up) {
+        std::fprintf(stderr, "tamis: %s '%s' must name a folder inside ROOT, relative to it and without '..'\n",
+                     list == &o.mask_folders ? "--mask-folder" : "--not-mask-folder", f.c_str());
+        return kExitBadUsage;
+      }
+    }
   settings.masks.force = o.mask_folders;
   settings.masks.forbid = o.not_mask_folders;
   settings.read.threads = o.threads;
