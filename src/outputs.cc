@@ -105,6 +105,12 @@ void write_outputs(const std::filesystem::path& out_dir, const AuditResult& resu
   std::error_code ec;
   std::filesystem::create_directories(out_dir, ec);
   if (ec) throw std::runtime_error("cannot create output folder " + out_dir.string() + ": " + ec.message());
+  // What a killed run left behind (its temporaries; the outputs it had not yet
+  // renamed) goes first.
+  remove_stale_temporaries(out_dir, {"manifest.csv", "report.json", "report.html", kIndexFileName});
+  if (!junit_file.empty())
+    remove_stale_temporaries(junit_file.parent_path().empty() ? "." : junit_file.parent_path(),
+                             {junit_file.filename().string()});
   // Two at a time: the reports on a second thread, the manifest and the index on
   // this one. Each only reads the result. All four are put in place together
   // once all are written (a failure leaves the previous outputs as they were).

@@ -15,6 +15,10 @@
 #include "tamis/demo.h"
 #include "tamis/manifest.h"
 #include "tamis/outputs.h"
+
+#include <signal.h>
+#include <sys/wait.h>
+#include <unistd.h>
 #include "tamis/report_html.h"
 #include "tamis/report_json.h"
 
@@ -145,4 +149,36 @@ TEST_CASE("the output layer refuses every target inside ROOT, whoever calls it, 
   write_outputs(t / "elsewhere", r, kThumbnailBudget, nullptr, t / "j.xml");
   CHECK(std::filesystem::exists(t / "elsewhere" / "manifest.csv"));
   CHECK(std::filesystem::exists(t / "j.xml"));
+}
+
+TEST_CASE("an interrupted run leaves no temporaries, and stale ones of dead runs are removed", "[outputs][fault]") {
+  test::TempDir t;
+  // A child that has staged an output (not committed) and is then sent SIGTERM:
+  // it dies of the signal, and its temporary is gone.
+  const pid_t child = fork();
+  REQUIRE(child >= 0);
+  if (child == 0) {
+    install_interrupt_cleanup();
+    StagedFiles staged;
+    staged.write(t / "manifest.csv", [](std::ostream& os) { os << "half a set"; });
+    raise(SIGTERM);
+    _exit(0);  // not reached
+  }
+  int status = 0;
+  REQUIRE(waitpid(child, &status, 0) == child);
+  CHECK(WIFSIGNALED(status));
+  CHECK(WTERMSIG(status) == SIGTERM);
+  size_t left = 0;
+  for (const auto& e : std::filesystem::directory_iterator(t.path())) left += e.path().filename().string().find(".tmp-") != std::string::npos;
+  CHECK(left == 0);
+  CHECK_FALSE(std::filesystem::exists(t / "manifest.csv"));
+  // What a SIGKILLed run leaves (its PID no longer runs) is removed before the next
+  // set is written; a live process's temporaries and other files are left alone.
+  test::write_text(t / "manifest.csv.tmp-999999999", "stale");
+  test::write_text(t / ("report.json.tmp-" + std::to_string(getpid())), "live");
+  test::write_text(t / "notes.txt.tmp-999999999", "not ours");
+  CHECK(remove_stale_temporaries(t.path(), {"manifest.csv", "report.json"}) == 1);
+  CHECK_FALSE(std::filesystem::exists(t / "manifest.csv.tmp-999999999"));
+  CHECK(std::filesystem::exists(t / ("report.json.tmp-" + std::to_string(getpid()))));
+  CHECK(std::filesystem::exists(t / "notes.txt.tmp-999999999"));
 }

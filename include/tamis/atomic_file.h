@@ -17,6 +17,16 @@ namespace tamis {
 // removed and std::runtime_error is thrown; `target` is then left as it was.
 void write_file_atomically(const std::filesystem::path& target, const std::function<void(std::ostream&)>& write);
 
+// SIGINT and SIGTERM: every temporary file that exists at that moment is removed,
+// a line on stderr says so, and the process dies of the signal (exit status 128 +
+// signal number in a shell). Outputs already renamed into place stay; a set not
+// yet committed leaves the previous outputs as they were. Call once, from main.
+void install_interrupt_cleanup();
+
+// Removes `dir`'s temporaries of the named files (NAME.tmp-PID) whose process no
+// longer runs: what a killed run (SIGKILL, power loss) left. Returns how many.
+size_t remove_stale_temporaries(const std::filesystem::path& dir, const std::vector<std::string>& names);
+
 // Several output files put in place together: each is written under a temporary
 // name (from any thread) and its fsync starts at once on a thread of its own (the
 // wait for the disk overlaps the making of the next file); commit() waits for
@@ -33,8 +43,12 @@ class StagedFiles {
   void commit();
 
  private:
+  struct Staged {
+    std::filesystem::path tmp, target;
+    int slot;  // its place in the registry of temporaries removed on a signal
+  };
   std::mutex mu_;
-  std::vector<std::pair<std::filesystem::path, std::filesystem::path>> staged_;  // (temporary, target)
+  std::vector<Staged> staged_;
   std::vector<std::thread> syncs_;
 };
 

@@ -20,6 +20,7 @@
 #include "tamis/demo.h"
 #include "tamis/index_file.h"
 #include "tamis/manifest.h"
+#include "tamis/atomic_file.h"
 #include "tamis/outputs.h"
 #include "tamis/version.h"
 
@@ -343,6 +344,7 @@ int run_split_command(const std::string& dir, const std::string& out, const Spli
 }  // namespace
 
 int main(int argc, char** argv) {
+  tamis::install_interrupt_cleanup();
   CLI::App app{"tamis: audit a folder-per-class image collection before training"};
   app.set_version_flag("--version", std::string(tamis::kToolName) + " " + tamis::kToolVersion);
   app.require_subcommand(1);
