@@ -1,13 +1,16 @@
 #include "tamis/index_file.h"
 
+#include <algorithm>
 #include <fstream>
 #include <functional>
 #include <iterator>
 #include <map>
+#include <memory>
 #include <set>
 #include <stdexcept>
 
 #include <nlohmann/json.hpp>
+#include <xxhash.h>
 
 #include "record_codec.h"
 #include "tamis/atomic_file.h"
@@ -41,6 +44,13 @@ std::vector<std::string> strs(const json& j) {
 }
 
 // A CBOR head (RFC 8949, 3.1): major type and length, the length in its shortest form.
+// The index's checksum: the first entry of the top-level map, under the key
+// "_checksum" (it sorts before every other key), an unsigned 64-bit integer in
+// CBOR's 8-byte form, so that its value sits at a fixed place: bytes 12..19.
+// It is XXH3-64 of every byte after it, seeded with the map's head byte.
+constexpr size_t kSumAt = 12, kSumEnd = 20;
+const uint8_t kSumKey[] = {0x69, '_', 'c', 'h', 'e', 'c', 'k', 's', 'u', 'm', 0x1b};  // text(9), uint64 head
+
 std::vector<uint8_t> cbor_head(uint8_t major, uint64_t n) {
   std::vector<uint8_t> out;
   const uint8_t m = static_cast<uint8_t>(major << 5);
@@ -124,8 +134,11 @@ void save_index(const std::filesystem::path& file, const AuditIndex& x, StagedFi
   // about 560 bytes a record). The bytes are what json::to_cbor gives for the whole object: maps
   // with their keys in sorted order, each length and integer in its shortest form.
   auto write = [&](std::ostream& os) {
+    std::unique_ptr<XXH3_state_t, decltype(&XXH3_freeState)> sum(XXH3_createState(), &XXH3_freeState);
+    bool hashing = false;
     auto put = [&](const std::vector<uint8_t>& b) {
       os.write(reinterpret_cast<const char*>(b.data()), static_cast<std::streamsize>(b.size()));
+      if (hashing) XXH3_64bits_update(sum.get(), b.data(), b.size());
     };
     auto put_ints = [&](const auto& v) {
       put(cbor_head(4, v.size()));
@@ -166,6 +179,29 @@ void save_index(const std::filesystem::path& file, const AuditIndex& x, StagedFi
     std::function<void(const json&, const std::string&)> put_value = [&](const json& v, const std::string& at) {
       if (auto it = streamed.find(at); it != streamed.end()) {
         it->second();
+      } else if (v.is_object() && at.empty()) {  // the top level: the checksum first, its value filled in last
+        const auto head = cbor_head(5, v.size() + 1);
+        if (head.size() != 1) throw std::logic_error("index: the top-level map head is one byte");
+        os.write(reinterpret_cast<const char*>(head.data()), 1);
+        os.write(reinterpret_cast<const char*>(kSumKey), sizeof kSumKey);
+        const char zeros[8] = {};
+        os.write(zeros, 8);
+        XXH3_64bits_reset_withSeed(sum.get(), head[0]);
+        hashing = true;
+        for (const auto& [k, e] : v.items()) {
+          std::vector<uint8_t> key;
+          json::to_cbor(json(k), key);
+          put(key);
+          put_value(e, at + "/" + k);
+        }
+        hashing = false;
+        const uint64_t h = XXH3_64bits_digest(sum.get());
+        char be[8];
+        for (int b = 0; b < 8; ++b) be[b] = static_cast<char>(h >> (56 - 8 * b));
+        const auto end = os.tellp();
+        os.seekp(static_cast<std::streamoff>(kSumAt));
+        os.write(be, 8);
+        os.seekp(end);
       } else if (v.is_object()) {
         put(cbor_head(5, v.size()));
         for (const auto& [k, e] : v.items()) {
@@ -194,6 +230,14 @@ AuditIndex load_index(const std::filesystem::path& file) {
   if (!is) throw std::runtime_error("cannot read index " + file.string());
   std::vector<uint8_t> bytes((std::istreambuf_iterator<char>(is)), {});
   AuditIndex x;
+  // The checksum first: any changed byte (a flipped bit, a cut) is refused before
+  // a value is trusted.
+  if (bytes.size() < kSumEnd || !std::equal(std::begin(kSumKey), std::end(kSumKey), bytes.begin() + 1))
+    throw std::runtime_error("index " + file.string() + " is damaged or not a tamis index (no checksum)");
+  uint64_t stored = 0;
+  for (size_t b = kSumAt; b < kSumEnd; ++b) stored = stored << 8 | bytes[b];
+  if (XXH3_64bits_withSeed(bytes.data() + kSumEnd, bytes.size() - kSumEnd, bytes[0]) != stored)
+    throw std::runtime_error("index " + file.string() + " is damaged (checksum mismatch)");
   try {
     json j = json::from_cbor(bytes);
     if (j.value("format", "") != "tamis-index") throw std::runtime_error("not a tamis index");

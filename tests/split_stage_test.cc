@@ -255,6 +255,24 @@ TEST_CASE("a damaged or foreign index is refused with a message, never half read
     CHECK_THROWS_AS(load_index(out / "cut.cbor"), std::runtime_error);
   }
   CHECK_THROWS_AS(load_index(out / "missing.cbor"), std::runtime_error);
+  // One bit flipped anywhere (400 places spread over the file, every bit of a
+  // byte in turn) is refused: the checksum covers every byte.
+  size_t refused = 0, tried = 0;
+  for (size_t k = 0; k < 400; ++k) {
+    auto bytes = good;
+    const size_t at = k * (bytes.size() - 1) / 399;
+    bytes[at] ^= static_cast<uint8_t>(1u << (k % 8));
+    test::write_bytes(out / "flipped.cbor", bytes);
+    ++tried;
+    try {
+      load_index(out / "flipped.cbor");
+    } catch (const std::runtime_error&) {
+      ++refused;
+    }
+  }
+  CHECK(refused == tried);
+  test::write_bytes(out / "good.cbor", good);
+  CHECK_NOTHROW(load_index(out / "good.cbor"));
 }
 
 TEST_CASE("the manifest reader takes RFC 4180 quoting, any column order and CRLF or LF", "[manifest][keep]") {
