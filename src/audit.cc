@@ -156,6 +156,8 @@ AuditIndex read_tree(const AuditSettings& settings) {
     }
   }
   note_damage();
+  if (cache && cache->set_aside_after_damage())
+    r.cache_note = "the cache file was damaged; it was moved aside, and the next run starts a new one";
   clock.lap(cached_groups ? "groups (cached)" : "groups");
   // Every thumbnail an output shows is loaded now; the others stay in the cache.
   r.walk.files.clear();

@@ -346,6 +346,7 @@ std::vector<size_t> RecordCache::rows_with_content(const std::array<uint64_t, 2>
 RecordCache::~RecordCache() = default;
 
 std::optional<GroupResult> RecordCache::load_groups(uint64_t fingerprint, size_t n) const {
+  if (set_aside_) return std::nullopt;
   try {
     Stmt q(db_->h, "SELECT fingerprint, data FROM groups WHERE root = ?");
     sqlite3_bind_text(q.s, 1, root_.c_str(), -1, SQLITE_TRANSIENT);
@@ -383,6 +384,9 @@ std::optional<GroupResult> RecordCache::load_groups(uint64_t fingerprint, size_t
     g.candidate_hits = j.at("candidate_hits").get<uint64_t>();
     g.confirmed_pairs = j.at("confirmed_pairs").get<uint64_t>();
     return g;
+  } catch (const Damaged&) {
+    set_aside();  // the groups' pages are damaged: a new file next run
+    return std::nullopt;
   } catch (const std::exception&) {
     return std::nullopt;  // anything odd is a miss: the join runs again
   }
@@ -400,14 +404,39 @@ void RecordCache::store_groups(uint64_t fingerprint, const GroupResult& g) {
   std::vector<uint8_t> data = json::to_cbor(j);
   append_sum(data, row_seed(root_, fingerprint));
   std::string fp = std::to_string(fingerprint);
-  Stmt ins(db_->h, "INSERT OR REPLACE INTO groups(root, fingerprint, data) VALUES(?, ?, ?)");
-  sqlite3_bind_text(ins.s, 1, root_.c_str(), -1, SQLITE_TRANSIENT);
-  sqlite3_bind_text(ins.s, 2, fp.c_str(), -1, SQLITE_TRANSIENT);
-  sqlite3_bind_blob(ins.s, 3, data.data(), static_cast<int>(data.size()), SQLITE_TRANSIENT);
-  ins.run();
+  if (set_aside_) return;
+  try {
+    Stmt ins(db_->h, "INSERT OR REPLACE INTO groups(root, fingerprint, data) VALUES(?, ?, ?)");
+    sqlite3_bind_text(ins.s, 1, root_.c_str(), -1, SQLITE_TRANSIENT);
+    sqlite3_bind_text(ins.s, 2, fp.c_str(), -1, SQLITE_TRANSIENT);
+    sqlite3_bind_blob(ins.s, 3, data.data(), static_cast<int>(data.size()), SQLITE_TRANSIENT);
+    ins.run();
+  } catch (const Damaged& e) {
+    set_aside();
+    throw std::runtime_error(std::string(e.what()) + "; the file was moved aside, the next run starts a new one");
+  }
+}
+
+void RecordCache::set_aside() const {
+  if (set_aside_) return;
+  set_aside_ = true;
+  db_->close();
+  std::error_code ec;
+  std::filesystem::rename(file_, file_.string() + ".damaged-" + std::to_string(getpid()), ec);
+  for (const char* suffix : {"-wal", "-shm"}) std::filesystem::remove(file_.string() + suffix, ec);
 }
 
 void RecordCache::store(const std::vector<FileRecord>& records, const ThumbnailTable& thumbs) {
+  if (set_aside_) return;
+  try {
+    store_rows(records, thumbs);
+  } catch (const Damaged& e) {
+    set_aside();
+    throw std::runtime_error(std::string(e.what()) + "; the file was moved aside, the next run starts a new one");
+  }
+}
+
+void RecordCache::store_rows(const std::vector<FileRecord>& records, const ThumbnailTable& thumbs) {
   // Records in path order (the read stage gives them so; anything else is sorted here).
   std::vector<uint32_t> order(records.size());
   std::iota(order.begin(), order.end(), 0u);

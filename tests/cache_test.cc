@@ -278,3 +278,52 @@ TEST_CASE("cache: a few damaged bytes inside any row never change an output", "[
     CHECK(after.out == clean);
   }
 }
+
+TEST_CASE("cache: damaged pages that only the groups read are moved aside, not met on every run", "[cache][fault]") {
+  // The records load cleanly; the stored groups' page is garbage. SQLite reports
+  // it as malformed only when the groups are read or written, after the load.
+  test::TempDir t, c;
+  write_demo(t / "data");
+  const std::string clean = audit(t / "data", "").out;
+  const fs::path cache = c / "records.sqlite";
+  audit(t / "data", cache);
+  audit(t / "data", cache);  // a checkpoint has moved every page into the main file
+  fs::remove(cache.string() + "-wal");
+  fs::remove(cache.string() + "-shm");
+  int64_t page_size = 0, root_page = 0;
+  {
+    sqlite3* db = nullptr;
+    REQUIRE(sqlite3_open(cache.c_str(), &db) == SQLITE_OK);
+    sqlite3_stmt* q = nullptr;
+    REQUIRE(sqlite3_prepare_v2(db, "SELECT rootpage FROM sqlite_master WHERE name = 'groups'", -1, &q, nullptr) == SQLITE_OK);
+    REQUIRE(sqlite3_step(q) == SQLITE_ROW);
+    root_page = sqlite3_column_int64(q, 0);
+    sqlite3_finalize(q);
+    REQUIRE(sqlite3_prepare_v2(db, "PRAGMA page_size", -1, &q, nullptr) == SQLITE_OK);
+    REQUIRE(sqlite3_step(q) == SQLITE_ROW);
+    page_size = sqlite3_column_int64(q, 0);
+    sqlite3_finalize(q);
+    sqlite3_close(db);
+  }
+  REQUIRE(root_page > 1);
+  {
+    std::fstream f(cache, std::ios::in | std::ios::out | std::ios::binary);
+    f.seekp((root_page - 1) * page_size);
+    std::string junk(static_cast<size_t>(page_size), '\0');
+    for (size_t k = 0; k < junk.size(); ++k) junk[k] = static_cast<char>((k * 2654435761u) >> 11);
+    f.write(junk.data(), static_cast<std::streamsize>(junk.size()));
+  }
+  Run hurt = audit(t / "data", cache);
+  CHECK(hurt.out == clean);
+  CHECK(hurt.note.find("moved aside") != std::string::npos);
+  size_t aside = 0;
+  for (const auto& e : fs::directory_iterator(c.path())) aside += e.path().filename().string().find(".damaged-") != std::string::npos;
+  CHECK(aside == 1);
+  Run fresh = audit(t / "data", cache);  // a new file: read cold, no damage met
+  CHECK(fresh.out == clean);
+  CHECK(fresh.note.empty());
+  Run warm = audit(t / "data", cache);
+  CHECK(warm.out == clean);
+  CHECK(warm.counts.cached > 0);
+  CHECK(warm.note.empty());
+}

@@ -91,6 +91,7 @@ class RecordCache {
   void store_groups(uint64_t fingerprint, const GroupResult& groups);
 
   bool rebuilt() const { return rebuilt_; }  // the file was damaged and started afresh
+  bool set_aside_after_damage() const { return set_aside_; }  // damage met later: moved aside for the next run
   // Rows (records, thumbnails, groups) whose checksum did not match when read:
   // each was treated as absent (its file read again, the groups computed again).
   size_t damaged_rows() const { return damaged_rows_; }
@@ -110,6 +111,11 @@ class RecordCache {
     auto operator<=>(const ContentKey&) const = default;
   };
   void open_and_load(const std::string& settings_key);
+  void store_rows(const std::vector<FileRecord>& records, const ThumbnailTable& thumbs);
+  // Damage met after the load (a page that only a later statement reads): the
+  // file is closed and moved aside (FILE.damaged-PID), so that the next run
+  // starts a new one instead of meeting the same damage on every run.
+  void set_aside() const;
   // Row k's path, size, modification time and inode (kept apart from its record) into r.
   void identify(FileRecord& r, size_t k) const;
   std::unique_ptr<Db> db_;
@@ -122,6 +128,7 @@ class RecordCache {
   std::vector<ContentKey> by_content_;  // sorted
   bool rebuilt_ = false;
   mutable size_t damaged_rows_ = 0;
+  mutable bool set_aside_ = false;
 };
 
 // $XDG_CACHE_HOME/tamis/records.sqlite, or ~/.cache/tamis/records.sqlite.
