@@ -60,6 +60,16 @@ void check_inventory(const std::vector<FileRecord>& records, const Labelling& la
     f.paths = walk.links;
     out.push_back(std::move(f));
   }
+  if (!walk.special.empty()) {
+    Finding f;
+    f.code = "special-file";
+    f.severity = Severity::info;
+    f.message = plural(walk.special.size(), "FIFO, socket or device was", "FIFOs, sockets or devices were") +
+                " met and left unopened (they are not files of a data set)";
+    f.details = {{"count", walk.special.size()}};
+    f.paths = walk.special;
+    out.push_back(std::move(f));
+  }
   if (!walk.unreadable_dirs.empty()) {
     Finding f;
     f.code = "folder-unreadable";

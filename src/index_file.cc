@@ -128,7 +128,8 @@ void save_index(const std::filesystem::path& file, const AuditIndex& x, StagedFi
     }
   j["thumbs"] = std::move(thumbs);  // a stand-in: written one thumbnail at a time below
   j["totals"] = {x.totals.files_seen, x.totals.images, x.totals.masks, x.totals.unreadable, x.totals.ignored};
-  j["walk"] = {{"links", bins(x.walk.links)}, {"unreadable_dirs", bins(x.walk.unreadable_dirs)}, {"dirs", bins(x.walk.dirs)}};
+  j["walk"] = {{"links", bins(x.walk.links)}, {"special", bins(x.walk.special)},
+               {"unreadable_dirs", bins(x.walk.unreadable_dirs)}, {"dirs", bins(x.walk.dirs)}};
   // The records, the per-record arrays and the thumbnails are coded one at a
   // time into the stream rather than built into one tree first (that tree took
   // about 560 bytes a record). The bytes are what json::to_cbor gives for the whole object: maps
@@ -347,6 +348,7 @@ AuditIndex load_index(const std::filesystem::path& file) {
     if (t.size() != 5) throw std::runtime_error("totals");
     x.totals = {t[0], t[1], t[2], t[3], t[4]};
     x.walk.links = strs(j.at("walk").at("links"));
+    if (j.at("walk").contains("special")) x.walk.special = strs(j.at("walk").at("special"));
     x.walk.unreadable_dirs = strs(j.at("walk").at("unreadable_dirs"));
     x.walk.dirs = strs(j.at("walk").at("dirs"));
   } catch (const json::exception& e) {

@@ -14,6 +14,7 @@ const std::map<std::string, Severity>& finding_catalogue() {
       {"unreadable", Severity::error},          {"too-many-unreadable", Severity::error},
       {"undecodable-variant", Severity::warning},
       {"no-label", Severity::warning},          {"link-not-followed", Severity::info},
+      {"special-file", Severity::info},
       {"folder-unreadable", Severity::warning}, {"byte-identical", Severity::warning},
       {"look-alike", Severity::warning},    {"label-conflict", Severity::error},
       {"split-leak", Severity::error},          {"lookalike-chain", Severity::warning},

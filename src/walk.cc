@@ -87,7 +87,7 @@ class TreeWalker {
         case DT_DIR: subdirs.push_back(std::move(child)); continue;
         case DT_LNK: out_.links.push_back(std::move(child)); continue;
         case DT_UNKNOWN: break;
-        default: continue;  // sockets, fifos and devices are not files of a data set: skipped
+        default: out_.special.push_back(std::move(child)); continue;  // sockets, FIFOs, devices: never opened
       }
       struct stat cst {};
       if (fstatat(dirfd, name, &cst, AT_SYMLINK_NOFOLLOW) != 0) {
@@ -98,7 +98,9 @@ class TreeWalker {
         out_.links.push_back(std::move(child));
       } else if (S_ISDIR(cst.st_mode)) {
         subdirs.push_back(std::move(child));
-      } else if (S_ISREG(cst.st_mode)) {  // stat'ed already: stamped now, not again later
+      } else if (!S_ISREG(cst.st_mode)) {
+        out_.special.push_back(std::move(child));
+      } else {  // a regular file, stat'ed already: stamped now, not again later
         WalkEntry w;
         w.path = std::move(child);
         w.size = static_cast<uint64_t>(cst.st_size);
@@ -131,6 +133,7 @@ WalkResult walk_tree(const std::filesystem::path& root, unsigned threads, bool s
   auto by_path = [](const WalkEntry& a, const WalkEntry& b) { return a.path < b.path; };
   std::sort(out.files.begin(), out.files.end(), by_path);
   std::sort(out.links.begin(), out.links.end());
+  std::sort(out.special.begin(), out.special.end());
   std::sort(out.unreadable_dirs.begin(), out.unreadable_dirs.end());
   std::sort(out.dirs.begin(), out.dirs.end());
   if (stat_files) stamp_files(root, out, threads);
@@ -166,7 +169,11 @@ void stamp_files(const std::filesystem::path& root, WalkResult& walk, unsigned t
         moved = true;
         continue;
       }
-      if (!S_ISREG(st[i].st_mode)) continue;  // a FIFO, socket or device now: not a file of the set
+      if (!S_ISREG(st[i].st_mode)) {  // a FIFO, socket or device now: not a file of the set
+        walk.special.push_back(std::move(w.path));
+        moved = true;
+        continue;
+      }
       w.size = static_cast<uint64_t>(st[i].st_size);
       w.mtime_ns = to_ns(st[i].st_mtim);
       w.inode = st[i].st_ino;
@@ -179,6 +186,7 @@ void stamp_files(const std::filesystem::path& root, WalkResult& walk, unsigned t
   files.resize(kept);
   if (moved) {
     std::sort(walk.links.begin(), walk.links.end());
+    std::sort(walk.special.begin(), walk.special.end());
     std::sort(walk.unreadable_dirs.begin(), walk.unreadable_dirs.end());
   }
 }

@@ -274,6 +274,29 @@ class Outputs(unittest.TestCase):
             self.assertFalse(os.path.exists(os.path.join(t, "b")))
             self.assertFalse(os.path.exists(os.path.join(t, "s")))  # refused before the output folder is made
 
+    def test_fifos_are_reported_and_never_opened(self):
+        # A FIFO among the images (os.mkfifo): opening it to read would wait for a
+        # writer forever; the walk reports it and leaves it alone, with and without
+        # the cache, and tamis split keeps the finding from the saved index.
+        with tempfile.TemporaryDirectory() as t:
+            root = os.path.join(t, "data")
+            os.makedirs(os.path.join(root, "c"))
+            with open(os.path.join(root, "c", "a.png"), "wb") as f:
+                f.write(tiny_png())
+            os.mkfifo(os.path.join(root, "c", "pipe.png"))
+            for extra in ([], ["--no-cache"]):
+                out = os.path.join(t, "out" + str(len(extra)))
+                r = run("audit", root, "--out", out, "--cache", os.path.join(t, "c.sqlite"), *extra, timeout=60) if not extra \
+                    else run("audit", root, "--out", out, *extra, timeout=60)
+                self.assertEqual(r.returncode, 0, r.stderr)
+                findings = {f["code"]: f for f in load_json(os.path.join(out, "report.json"))["findings"]}
+                self.assertEqual(findings["special-file"]["paths"], ["c/pipe.png"])
+                self.assertEqual(load_json(os.path.join(out, "report.json"))["totals"]["files_seen"], 1)
+            r = run("split", os.path.join(t, "out0"), "--out", os.path.join(t, "s"), timeout=60)
+            self.assertEqual(r.returncode, 0, r.stderr)
+            codes = [f["code"] for f in load_json(os.path.join(t, "s", "report.json"))["findings"]]
+            self.assertIn("special-file", codes)
+
     def test_schema_rejects_a_report_that_breaks_it(self):
         import jsonschema
         schema = load_json(SCHEMA)

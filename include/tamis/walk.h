@@ -32,6 +32,7 @@ struct WalkEntry {
 struct WalkResult {
   std::vector<WalkEntry> files;             // sorted bytewise by path
   std::vector<std::string> links;           // symbolic links met (not followed), sorted
+  std::vector<std::string> special;         // FIFOs, sockets and devices met (never opened), sorted
   std::vector<std::string> unreadable_dirs; // folders that could not be listed, sorted
   std::vector<std::string> dirs;            // every folder walked (relative, "" is ROOT excluded), sorted
 };
@@ -45,8 +46,8 @@ struct WalkResult {
 WalkResult walk_tree(const std::filesystem::path& root, unsigned threads = 0, bool stat_files = true);
 
 // Stats every entry of `walk` not yet stamped (on `threads`), as walk_tree with
-// `stat_files` does: an entry that is no longer a regular file moves to `links`
-// or `unreadable_dirs` (kept sorted). For a caller that listed first and decides
+// `stat_files` does: an entry that is no longer a regular file moves to `links`,
+// `special` or `unreadable_dirs` (kept sorted). For a caller that listed first and decides
 // later whether stamps are needed (the audit, while its cache loads).
 void stamp_files(const std::filesystem::path& root, WalkResult& walk, unsigned threads = 0);
 
