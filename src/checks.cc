@@ -50,26 +50,22 @@ void check_inventory(const std::vector<FileRecord>& records, const Labelling& la
     f.paths = std::move(unlabelled);
     out.push_back(std::move(f));
   }
-  if (!walk.links.empty()) {
+  // Entries the walk met and left alone: one info finding a kind, naming them.
+  auto left_alone = [&](const std::vector<std::string>& paths, const char* code, const char* one, const char* many,
+                        const char* why) {
+    if (paths.empty()) return;
     Finding f;
-    f.code = "link-not-followed";
+    f.code = code;
     f.severity = Severity::info;
-    f.message = plural(walk.links.size(), "symbolic link was", "symbolic links were") +
-                " not followed (tamis never follows links, so it cannot leave ROOT or loop)";
-    f.details = {{"count", walk.links.size()}};
-    f.paths = walk.links;
+    f.message = plural(paths.size(), one, many) + why;
+    f.details = {{"count", paths.size()}};
+    f.paths = paths;
     out.push_back(std::move(f));
-  }
-  if (!walk.special.empty()) {
-    Finding f;
-    f.code = "special-file";
-    f.severity = Severity::info;
-    f.message = plural(walk.special.size(), "FIFO, socket or device was", "FIFOs, sockets or devices were") +
-                " met and left unopened (they are not files of a data set)";
-    f.details = {{"count", walk.special.size()}};
-    f.paths = walk.special;
-    out.push_back(std::move(f));
-  }
+  };
+  left_alone(walk.links, "link-not-followed", "symbolic link was", "symbolic links were",
+             " not followed (tamis never follows links, so it cannot leave ROOT or loop)");
+  left_alone(walk.special, "special-file", "FIFO, socket or device was", "FIFOs, sockets or devices were",
+             " met and left unopened (they are not files of a data set)");
   if (!walk.unreadable_dirs.empty()) {
     Finding f;
     f.code = "folder-unreadable";

@@ -22,6 +22,15 @@ def run(*args, **kw):
     return subprocess.run([TAMIS, *args], capture_output=True, text=True, **kw)
 
 
+def one_image_tree(t):
+    """t/data/c/a.png, one tiny image in one class: returns t/data."""
+    root = os.path.join(t, "data")
+    os.makedirs(os.path.join(root, "c"))
+    with open(os.path.join(root, "c", "a.png"), "wb") as f:
+        f.write(tiny_png())
+    return root
+
+
 def snapshot(root):
     """Every entry under root with its size and mtime: to prove nothing was written there."""
     out = {}
@@ -254,10 +263,7 @@ class Outputs(unittest.TestCase):
         # Whichever command writes (audit, split) and whichever file (--out, --junit),
         # a target inside the audited ROOT exits 2 with a message and writes nothing.
         with tempfile.TemporaryDirectory() as t:
-            root = os.path.join(t, "data")
-            os.makedirs(os.path.join(root, "c"))
-            with open(os.path.join(root, "c", "a.png"), "wb") as f:
-                f.write(tiny_png())
+            root = one_image_tree(t)
             audit_out = os.path.join(t, "a")
             self.assertEqual(run("audit", root, "--out", audit_out).returncode, 0)
             before = snapshot(root)
@@ -279,15 +285,11 @@ class Outputs(unittest.TestCase):
         # writer forever; the walk reports it and leaves it alone, with and without
         # the cache, and tamis split keeps the finding from the saved index.
         with tempfile.TemporaryDirectory() as t:
-            root = os.path.join(t, "data")
-            os.makedirs(os.path.join(root, "c"))
-            with open(os.path.join(root, "c", "a.png"), "wb") as f:
-                f.write(tiny_png())
+            root = one_image_tree(t)
             os.mkfifo(os.path.join(root, "c", "pipe.png"))
-            for extra in ([], ["--no-cache"]):
-                out = os.path.join(t, "out" + str(len(extra)))
-                r = run("audit", root, "--out", out, "--cache", os.path.join(t, "c.sqlite"), *extra, timeout=60) if not extra \
-                    else run("audit", root, "--out", out, *extra, timeout=60)
+            for k, cache in enumerate((["--cache", os.path.join(t, "c.sqlite")], ["--no-cache"])):
+                out = os.path.join(t, "out%d" % k)
+                r = run("audit", root, "--out", out, *cache, timeout=60)
                 self.assertEqual(r.returncode, 0, r.stderr)
                 findings = {f["code"]: f for f in load_json(os.path.join(out, "report.json"))["findings"]}
                 self.assertEqual(findings["special-file"]["paths"], ["c/pipe.png"])
