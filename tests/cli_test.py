@@ -12,6 +12,7 @@ import os
 import subprocess
 import sys
 import re
+import shutil
 import tempfile
 import unittest
 
@@ -279,6 +280,22 @@ class Outputs(unittest.TestCase):
                 self.assertEqual(snapshot(root), before, args)
             self.assertFalse(os.path.exists(os.path.join(t, "b")))
             self.assertFalse(os.path.exists(os.path.join(t, "s")))  # refused before the output folder is made
+
+    def test_names_from_the_data_set_reach_the_terminal_escaped(self):
+        # A class folder named with a terminal escape and a newline, holding a byte
+        # copy of a file in another class: the label-conflict line of the summary
+        # names both classes, with the control characters written as \\xNN.
+        with tempfile.TemporaryDirectory() as t:
+            root = one_image_tree(t)
+            bad = "bad\x1b[31mred\nline"
+            os.makedirs(os.path.join(root, bad))
+            shutil.copy(os.path.join(root, "c", "a.png"), os.path.join(root, bad, "a.png"))
+            r = run("audit", root, "--out", os.path.join(t, "o"), "--no-cache")
+            self.assertEqual(r.returncode, 1, r.stderr)
+            self.assertNotIn("\x1b", r.stdout)
+            line = [l for l in r.stdout.splitlines() if "label-conflict" in l]
+            self.assertEqual(len(line), 1)
+            self.assertIn("bad\\x1b[31mred\\x0aline", line[0])
 
     def test_fifos_are_reported_and_never_opened(self):
         # A FIFO among the images (os.mkfifo): opening it to read would wait for a

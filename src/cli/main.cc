@@ -10,6 +10,7 @@
 #include <fstream>
 #include <iostream>
 #include <string>
+#include <string_view>
 
 #include <CLI/CLI.hpp>
 #include <nlohmann/json.hpp>
@@ -25,6 +26,24 @@
 #include "tamis/version.h"
 
 namespace {
+
+// Text from the data set (names of files and folders, in messages) shown on a
+// terminal: control characters (C0, DEL) are written as \xNN, so that a name
+// cannot move the cursor, change colours or forge lines.
+std::string safe(std::string_view text) {
+  std::string out;
+  out.reserve(text.size());
+  for (unsigned char c : text) {
+    if (c < 0x20 || c == 0x7f) {
+      char buf[5];
+      std::snprintf(buf, sizeof buf, "\\x%02x", c);
+      out += buf;
+    } else {
+      out += static_cast<char>(c);
+    }
+  }
+  return out;
+}
 
 constexpr int kExitBadUsage = 2;
 constexpr int kExitCannotRun = 3;
@@ -72,7 +91,7 @@ bool resolve_judge(const JudgeOptions& o, tamis::Policy& policy, tamis::Baseline
   try {
     policy = o.policy.empty() ? tamis::default_policy() : tamis::load_policy(o.policy);
   } catch (const tamis::PolicyError& e) {
-    std::fprintf(stderr, "tamis: %s (%s)\n", e.what(), o.policy.c_str());
+    std::fprintf(stderr, "tamis: %s (%s)\n", safe(e.what()).c_str(), o.policy.c_str());
     return false;
   }
   have_baseline = !o.baseline.empty();
@@ -80,7 +99,7 @@ bool resolve_judge(const JudgeOptions& o, tamis::Policy& policy, tamis::Baseline
     try {
       baseline = tamis::load_baseline(o.baseline);
     } catch (const std::exception& e) {
-      std::fprintf(stderr, "tamis: %s\n", e.what());
+      std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
       return false;
     }
   }
@@ -125,7 +144,7 @@ bool resolve_split(const SplitOptions& o, tamis::SplitSettings& s, tamis::KeepMa
   try {
     s.percent = tamis::parse_split_spec(o.spec);
   } catch (const std::invalid_argument& e) {
-    std::fprintf(stderr, "tamis: %s\n", e.what());
+    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
     return false;
   }
   s.seed = o.seed;
@@ -143,7 +162,7 @@ bool resolve_split(const SplitOptions& o, tamis::SplitSettings& s, tamis::KeepMa
     try {
       keep = tamis::read_manifest_splits(is);
     } catch (const std::exception& e) {
-      std::fprintf(stderr, "tamis: --keep %s: %s\n", o.keep.c_str(), e.what());
+      std::fprintf(stderr, "tamis: --keep %s: %s\n", o.keep.c_str(), safe(e.what()).c_str());
       return false;
     }
   }
@@ -196,7 +215,7 @@ void print_summary(const tamis::AuditResult& r, const std::filesystem::path& out
     const auto& f = r.findings[k];
     if (f.severity != tamis::Severity::error) continue;
     ++shown;
-    std::printf("  %s%s%s %s%s\n", red, f.code.c_str(), off, f.message.c_str(),
+    std::printf("  %s%s%s %s%s\n", red, f.code.c_str(), off, safe(f.message).c_str(),
                 r.baseline.present ? (r.known[k] ? " (known)" : " (new)") : "");
   }
   if (r.baseline.present)
@@ -209,7 +228,7 @@ void print_summary(const tamis::AuditResult& r, const std::filesystem::path& out
                 (unsigned long long)r.counts.cached_by_hash, (unsigned long long)r.counts.moved);
   std::printf("policy: %s%s%s\n", failing ? red : green,
               failing ? (std::to_string(failing) + " error findings break it").c_str() : "passes", off);
-  std::printf("reports: %s\n", (out / "report.html").string().c_str());
+  std::printf("reports: %s\n", safe((out / "report.html").string()).c_str());
 }
 
 const auto process_start = std::chrono::steady_clock::now();
@@ -219,10 +238,10 @@ int finish(tamis::AuditResult& result, const std::string& out, const JudgeOption
   try {
     tamis::write_outputs(out, result, jo.thumbnails_kb * 1024, timings ? &result.times : nullptr, jo.junit);
   } catch (const tamis::InsideRootError& e) {
-    std::fprintf(stderr, "tamis: %s\n", e.what());
+    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
     return kExitBadUsage;
   } catch (const std::exception& e) {
-    std::fprintf(stderr, "tamis: %s\n", e.what());
+    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
     return kExitCannotRun;
   }
   if (!quiet) print_summary(result, out, jo.format);
@@ -282,7 +301,7 @@ int run_audit_command(const std::string& root, const std::string& out, const Spl
     if (!jo.junit.empty()) tamis::refuse_inside_root(root, jo.junit, "--junit");
     if (!o.cache.empty()) tamis::refuse_inside_root(root, o.cache, "--cache");
   } catch (const tamis::InsideRootError& e) {
-    std::fprintf(stderr, "tamis: %s\n", e.what());
+    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
     return kExitBadUsage;
   }
   std::error_code ec;
@@ -297,10 +316,10 @@ int run_audit_command(const std::string& root, const std::string& out, const Spl
   try {
     result = tamis::place(tamis::read_tree(settings), place);
     progress.finish();
-    if (!result.cache_note.empty() && !o.quiet) std::fprintf(stderr, "tamis: %s\n", result.cache_note.c_str());
+    if (!result.cache_note.empty() && !o.quiet) std::fprintf(stderr, "tamis: %s\n", safe(result.cache_note).c_str());
   } catch (const std::exception& e) {
     progress.finish();
-    std::fprintf(stderr, "tamis: %s\n", e.what());
+    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
     return kExitCannotRun;
   }
   return finish(result, out, jo, o.quiet, o.timings);
@@ -321,21 +340,21 @@ int run_split_command(const std::string& dir, const std::string& out, const Spli
   try {
     index = tamis::load_index(std::filesystem::path(dir) / tamis::kIndexFileName);
   } catch (const std::exception& e) {
-    std::fprintf(stderr, "tamis: %s\n", e.what());
+    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
     return kExitCannotRun;
   }
   try {  // early, before the split: the output layer checks again when it writes
     tamis::refuse_inside_root(index.settings.root, out, "--out");
     if (!jo.junit.empty()) tamis::refuse_inside_root(index.settings.root, jo.junit, "--junit");
   } catch (const tamis::InsideRootError& e) {
-    std::fprintf(stderr, "tamis: %s\n", e.what());
+    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
     return kExitBadUsage;
   }
   tamis::AuditResult result;
   try {
     result = tamis::place(std::move(index), place);
   } catch (const std::exception& e) {
-    std::fprintf(stderr, "tamis: %s\n", e.what());
+    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
     return kExitCannotRun;
   }
   return finish(result, out, jo, quiet, false);
@@ -396,7 +415,7 @@ int main(int argc, char** argv) {
       std::printf("wrote %zu files into %s\n", n, demo_dir.c_str());
       return 0;
     } catch (const std::exception& e) {
-      std::fprintf(stderr, "tamis: %s\n", e.what());
+      std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
       return kExitCannotRun;
     }
   }
