@@ -177,47 +177,46 @@ void save_index(const std::filesystem::path& file, const AuditIndex& x, StagedFi
         {"/masks/image_of", [&] { put_ints(x.masks.image_of); }},
     };
     j["records"] = json::array();  // stand-in
-    std::function<void(const json&, const std::string&)> put_value = [&](const json& v, const std::string& at) {
+    std::function<void(const json&, const std::string&)> put_value;
+    auto put_entries = [&](const json& v, const std::string& at) {
+      for (const auto& [k, e] : v.items()) {
+        std::vector<uint8_t> key;
+        json::to_cbor(json(k), key);
+        put(key);
+        put_value(e, at + "/" + k);
+      }
+    };
+    put_value = [&](const json& v, const std::string& at) {
       if (auto it = streamed.find(at); it != streamed.end()) {
         it->second();
-      } else if (v.is_object() && at.empty()) {  // the top level: the checksum first, its value filled in last
-        const auto head = cbor_head(5, v.size() + 1);
-        if (head.size() != 1) throw std::logic_error("index: the top-level map head is one byte");
-        os.write(reinterpret_cast<const char*>(head.data()), 1);
-        os.write(reinterpret_cast<const char*>(kSumKey), sizeof kSumKey);
-        const char zeros[8] = {};
-        os.write(zeros, 8);
-        XXH3_64bits_reset_withSeed(sum.get(), head[0]);
-        hashing = true;
-        for (const auto& [k, e] : v.items()) {
-          std::vector<uint8_t> key;
-          json::to_cbor(json(k), key);
-          put(key);
-          put_value(e, at + "/" + k);
-        }
-        hashing = false;
-        const uint64_t h = XXH3_64bits_digest(sum.get());
-        char be[8];
-        for (int b = 0; b < 8; ++b) be[b] = static_cast<char>(h >> (56 - 8 * b));
-        const auto end = os.tellp();
-        os.seekp(static_cast<std::streamoff>(kSumAt));
-        os.write(be, 8);
-        os.seekp(end);
       } else if (v.is_object()) {
         put(cbor_head(5, v.size()));
-        for (const auto& [k, e] : v.items()) {
-          std::vector<uint8_t> key;
-          json::to_cbor(json(k), key);
-          put(key);
-          put_value(e, at + "/" + k);
-        }
+        put_entries(v, at);
       } else {
         std::vector<uint8_t> b;
         json::to_cbor(v, b);
         put(b);
       }
     };
-    put_value(j, "");
+    // The top level: the checksum entry first (its value filled in last), then
+    // the entries, every byte of which it covers.
+    const auto head = cbor_head(5, j.size() + 1);
+    if (head.size() != 1) throw std::logic_error("index: the top-level map head is one byte");
+    os.write(reinterpret_cast<const char*>(head.data()), 1);
+    os.write(reinterpret_cast<const char*>(kSumKey), sizeof kSumKey);
+    const char zeros[8] = {};
+    os.write(zeros, 8);
+    XXH3_64bits_reset_withSeed(sum.get(), head[0]);
+    hashing = true;
+    put_entries(j, "");
+    hashing = false;
+    const uint64_t h = XXH3_64bits_digest(sum.get());
+    char be[8];
+    for (int k = 0; k < 8; ++k) be[k] = static_cast<char>(h >> (56 - 8 * k));
+    const auto end = os.tellp();
+    os.seekp(static_cast<std::streamoff>(kSumAt));
+    os.write(be, 8);
+    os.seekp(end);
   };
   if (staged) {
     staged->write(file, write);

@@ -561,7 +561,10 @@ bool blur_may_reach(const MatchProfile& a, const MatchProfile& b, const BlurCand
 
 }  // namespace
 
-double fit_gate(const MatchSettings& s) { return std::clamp(kFitGate, s.fit_floor, s.min_correlation); }
+double fit_gate(const MatchSettings& s) {
+  // With the fit off (fit_floor at or above min_correlation) the gate is the threshold itself.
+  return s.fit_floor < s.min_correlation ? std::clamp(kFitGate, s.fit_floor, s.min_correlation) : s.min_correlation;
+}
 
 bool match_may_join(const MatchProfile& a, int t, const MatchProfile& b, const MatchSettings& settings) {
   const double thr = settings.min_correlation;
@@ -575,7 +578,7 @@ bool match_may_join(const MatchProfile& a, int t, const MatchProfile& b, const M
   const double d = std::max(0.0, std::sqrt(dist) - 2.5e-4);
   if (1.0 - d * d / 2.0 >= thr) return true;
   // The blurred bound at min_correlation, or at the fit's gate when the fit is on.
-  return blur_may_reach(a, b, c, lp, settings.fit_floor < thr ? fit_gate(settings) : thr);
+  return blur_may_reach(a, b, c, lp, fit_gate(settings));
 }
 
 Match match_thumbnails(const Thumbnail& ta, const MatchProfile& pa, int t, const Thumbnail& b, const MatchProfile& pb,

@@ -86,7 +86,7 @@ struct MatchSettings {
 
 // The tone-and-colour fit's gate: the profiles' bound on the blur-matched
 // correlation (match_may_join's) must reach kFitGate, held within [fit_floor,
-// min_correlation]. It keeps the fit to pairs whose low frequencies agree
+// min_correlation] (min_correlation itself when the fit is off). It keeps the fit to pairs whose low frequencies agree
 // closely: on Fashion-MNIST's 6.2 million hash hits a gate at 0.98 passes 1.35
 // million pairs to the thumbnails, at 0.99 288,000 (at 0.995, no fit, 44,000),
 // and the planted tone and colour copies lose almost nothing from 0.98 to 0.99
