@@ -13,8 +13,8 @@ double blur_sigma(int step) { return 0.25 * step; }
 namespace {
 
 constexpr double kChromaNoise = 1.5;  // levels a cell: the floor under the target's variation
-constexpr double kColourless = 2.0;
-constexpr double kMaxCast = 0.15;  // largest |gamma| of chroma_unexplained's luma term   // chroma standard deviation below which a side has no colour
+constexpr double kColourless = 2.0;  // chroma standard deviation below which a side has no colour
+constexpr double kMaxCast = 0.15;  // largest |gamma| of chroma_unexplained's luma term
 constexpr double kLowScale = 32767.0;  // MatchProfile::low: unit coefficients x this
 
 // The gains exp(-tau_s lambda_uv) of every blur step, [step][32 u + v].
@@ -158,10 +158,17 @@ std::array<double, kChromaPlane> centred_luma_cells(const Thumbnail& t) {
 // means. A general affine map of the chroma plane would be too free: with a
 // two-colour backdrop it maps the backdrop onto itself and any object colour
 // onto any other. -1 when neither side has colour.
-double chroma_unexplained(const Thumbnail& a, const Thumbnail& b) {
+struct ChromaFit {
+  double share = -1;  // -1: neither side has colour
+  double alpha_re = 0, alpha_im = 0;  // the fitted hue rotation and saturation scale
+  bool a_src = true;  // a was the source (the more colourful side)
+};
+
+ChromaFit chroma_unexplained(const Thumbnail& a, const Thumbnail& b) {
+  ChromaFit fit;
   const CentredChroma ca = centred_chroma(a), cb = centred_chroma(b);
   const double floor_ss = 2.0 * double(kChromaPlane) * kColourless * kColourless;
-  if (ca.ss < floor_ss && cb.ss < floor_ss) return -1;
+  if (ca.ss < floor_ss && cb.ss < floor_ss) return fit;
   // Fit the less colourful side (target) from the more colourful (source).
   const bool a_src = ca.ss >= cb.ss;
   const CentredChroma& src = a_src ? ca : cb;
@@ -209,7 +216,103 @@ double chroma_unexplained(const Thumbnail& a, const Thumbnail& b) {
   p_im -= ga_re * sy_im + ga_im * sy_re;
   const double explained = dst.ss - tt + (ss_re > 0 ? (p_re * p_re + p_im * p_im) / ss_re : 0.0);
   const double res = std::max(0.0, dst.ss - explained);
-  return res / (dst.ss + 2.0 * double(kChromaPlane) * kChromaNoise * kChromaNoise);
+  fit.share = res / (dst.ss + 2.0 * double(kChromaPlane) * kChromaNoise * kChromaNoise);
+  fit.a_src = a_src;
+  if (ss_re > 0) {
+    fit.alpha_re = p_re / ss_re;
+    fit.alpha_im = p_im / ss_re;
+  }
+  return fit;
+}
+
+// A colour turned by `degrees` around the HSV hue circle (value and saturation
+// kept), the way image editors and augmentation libraries turn hue.
+void hsv_turn(double& r, double& g, double& b, double degrees) {
+  r = std::clamp(r, 0.0, 255.0);
+  g = std::clamp(g, 0.0, 255.0);
+  b = std::clamp(b, 0.0, 255.0);
+  const double v = std::max({r, g, b}), m = std::min({r, g, b}), c = v - m;
+  if (c <= 1e-9) return;
+  double h = v == r ? std::fmod((g - b) / c + 6.0, 6.0) : v == g ? (b - r) / c + 2.0 : (r - g) / c + 4.0;
+  h = std::fmod(h + degrees / 60.0 + 12.0, 6.0);
+  const double x = c * (1.0 - std::fabs(std::fmod(h, 2.0) - 1.0));
+  const int sector = std::min(5, static_cast<int>(h));
+  const double rr[6] = {c, x, 0, 0, x, c}, gg[6] = {x, c, c, x, 0, 0}, bb[6] = {0, 0, x, c, c, x};
+  r = rr[sector] + m;
+  g = gg[sector] + m;
+  b = bb[sector] + m;
+}
+
+// Whether a pair whose chroma differs by a turn (arg alpha of the colour check's
+// fit) is a hue turn of the whole picture. Editors and augmentation libraries
+// turn hue on the HSV circle, about neutral gray: every colour turns, a weakly
+// coloured backdrop included, and a constant shift of the chroma is not part of
+// it. The colour check's fit allows that shift (for a tint) and a luma term (for
+// white balance), and with a weakly coloured backdrop they absorb the backdrop's
+// mismatch, so an object repainted another colour on an unchanged backdrop passes
+// it as a "hue rotation". Here each 8x8 cell's colour (its mean gray level, Cb,
+// Cr) of the more colourful side is turned on the HSV circle, the angle searched
+// over the whole circle (5 degrees, then 1 degree around the best), scaled by one
+// saturation factor, and compared with the other side's chroma about neutral; the
+// share of that chroma the turn leaves unexplained must be at most kHueResidual.
+// On the planted sets (bench/lookalike_truth, docs/lookalikes.md): hue-turned
+// copies (30 and 60 degrees, as they are and re-encoded at JPEG 75) leave at most
+// 0.015; pairs of rendered scenes whose chroma differs by a turn, 0.11-0.92. The
+// limit sits between, about 3x from each.
+constexpr double kTanHueMinTurn = 0.36397023426620234;  // tan(20 degrees): smaller turns of arg alpha are not checked
+constexpr double kHueResidual = 0.05;  // largest unexplained share of the target's chroma
+bool hue_turn_consistent(const Thumbnail& src, const Thumbnail& dst, double alpha_re, double alpha_im) {
+  // |arg alpha| < 20 degrees (no libm call: the same bits on every processor).
+  if (alpha_re > 0 && std::fabs(alpha_im) < kTanHueMinTurn * alpha_re) return true;
+  if (alpha_re * alpha_re + alpha_im * alpha_im < 0.25 * 0.25) return true;  // mostly gray: nothing turned
+  std::array<double, kChromaPlane> ys{};
+  for (int r = 0; r < kThumbSide; ++r)
+    for (int c = 0; c < kThumbSide; ++c) ys[size_t((r / 4) * kChromaSide + c / 4)] += src[size_t(r * kThumbSide + c)];
+  const uint8_t* su = src.data() + kGrayBytes;
+  const uint8_t* sv = su + kChromaPlane;
+  const uint8_t* tu = dst.data() + kGrayBytes;
+  const uint8_t* tv = tu + kChromaPlane;
+  double tt = 0;  // the target's chroma about neutral
+  for (size_t k = 0; k < kChromaPlane; ++k) {
+    const double x = tu[k] - 128.0, y = tv[k] - 128.0;
+    tt += x * x + y * y;
+  }
+  // Unexplained chroma after turning by `degrees` and the best saturation factor.
+  auto unexplained = [&](double degrees) {
+    double pp = 0, pt = 0;
+    for (size_t k = 0; k < kChromaPlane; ++k) {
+      const double yk = ys[k] / 16.0, cb = su[k] - 128.0, cr = sv[k] - 128.0;
+      double r = yk + 1.402 * cr, g = yk - 0.344136 * cb - 0.714136 * cr, b = yk + 1.772 * cb;
+      hsv_turn(r, g, b, degrees);
+      const double y = 0.299 * r + 0.587 * g + 0.114 * b;
+      const double pu = (b - y) / 1.772, pv = (r - y) / 1.402;
+      pp += pu * pu + pv * pv;
+      pt += pu * (tu[k] - 128.0) + pv * (tv[k] - 128.0);
+    }
+    return pp > 0 && pt > 0 ? tt - pt * pt / pp : tt;
+  };
+  double best = unexplained(0), best_deg = 0;
+  for (int d = -175; d <= 180; d += 5) {
+    const double e = unexplained(d);
+    if (e < best) {
+      best = e;
+      best_deg = d;
+    }
+  }
+  const double coarse = best_deg;
+  for (int d = -4; d <= 4; ++d) best = std::min(best, unexplained(coarse + d));
+  return best <= kHueResidual * (tt + 2.0 * double(kChromaPlane) * kChromaNoise * kChromaNoise);
+}
+
+// The colour checks of a pair whose gray pictures match: the chroma fit's
+// unexplained share (recorded in m.chroma) within max_chroma, and a turn of the
+// chroma only as a hue turn of the whole picture.
+bool colours_agree(const Thumbnail& ta, const Thumbnail& b, const MatchSettings& s, Match& m) {
+  const ChromaFit cf = chroma_unexplained(ta, b);
+  m.chroma = static_cast<float>(cf.share);
+  if (cf.share < 0) return true;
+  if (cf.share > s.max_chroma) return false;
+  return cf.a_src ? hue_turn_consistent(ta, b, cf.alpha_re, cf.alpha_im) : hue_turn_consistent(b, ta, cf.alpha_re, cf.alpha_im);
 }
 
 // Sums over 1,024 values in eight fixed lanes (vectorizable, and the same
@@ -585,8 +688,8 @@ Match match_thumbnails(const Thumbnail& ta, const MatchProfile& pa, int t, const
                        const MatchSettings& s, std::vector<float>* a_spectrum) {
   Match m;
   m.correlation = static_cast<float>(thumb_correlation(ta, pa.stats, b, pb.stats));
-  if (pa.flat || pb.flat) {  // the flat rule decides
-    m.joined = m.correlation >= s.min_correlation;
+  if (pa.flat || pb.flat) {  // the flat rule decides the gray pictures; the colours still count
+    m.joined = m.correlation >= s.min_correlation && colours_agree(ta, b, s, m);
     return m;
   }
   const double plain = m.correlation;
@@ -672,8 +775,7 @@ Match match_thumbnails(const Thumbnail& ta, const MatchProfile& pa, int t, const
     m.local = static_cast<float>(m.blurred_a ? local_residual(blurred.data(), b.data())
                                              : local_residual(ta.data(), blurred.data()));
   if (m.local > s.max_local) return m;
-  m.chroma = static_cast<float>(chroma_unexplained(ta, b));
-  m.joined = m.chroma < 0 || m.chroma <= s.max_chroma;
+  m.joined = colours_agree(ta, b, s, m);
   return m;
 }
 

@@ -46,9 +46,18 @@
 //    differ from the backdrop in hue only, in different places or colours, leave
 //    most of it unexplained. Not measured (-1) when neither side has colour
 //    variation above 2 levels.
+//  - hue turn: when the fitted alpha turns the chroma by 20 degrees or more,
+//    the turn must be one of the whole picture about neutral gray, as editors
+//    turn hue on the HSV circle: each 8x8 cell's colour of the more colourful
+//    side, turned on the HSV circle by the best angle and scaled by one
+//    saturation factor, leaves at most 5% of the other side's chroma (about
+//    neutral, no constant shift) unexplained. An object repainted on a weakly
+//    coloured backdrop passes the chroma check (beta and gamma absorb the
+//    backdrop) but not this one.
 // Two thumbnails are joined when correlation (plain, blurred or fitted) >= min_correlation, local <=
-// max_local and (chroma < 0 or chroma <= max_chroma). Flat thumbnails (standard
-// deviation below 2 grey levels) follow thumb_correlation's flat rule alone.
+// max_local, (chroma < 0 or chroma <= max_chroma) and the hue turn holds. Flat
+// thumbnails (standard deviation below 2 grey levels) follow thumb_correlation's
+// flat rule for the gray pictures, and then the colour checks.
 //
 // The screen: most hash hits are far from any match, and the exact correlation
 // needs both thumbnails' full DCTs. match_may_join() rejects a hit only when the
@@ -71,8 +80,9 @@ namespace tamis {
 // The version of the rules above, part of the cache's groups fingerprint so that
 // groups found by older rules are never reused (1: correlation, local and colour
 // checks; 2: the correlation blur-matched; 3: the tone-and-colour fit, and the
-// colour check's luma term).
-inline constexpr int kMatchRules = 3;
+// colour check's luma term; 4: a turn of the chroma only as a hue turn of the
+// whole picture, and the colour checks for pictures whose gray is flat).
+inline constexpr int kMatchRules = 4;
 
 struct MatchSettings {
   double min_correlation = 0.995;

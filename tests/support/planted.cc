@@ -93,6 +93,7 @@ const std::vector<PlantedKind>& planted_kinds() {
                    return o;
                  }, 0, true});
     for (int h : {15, -30, 60}) v.push_back({"hue" + std::to_string(h), [h](M m) { return hsv_change(m, h, 1.0); }, 0, true});
+    v.push_back({"hue-30-q75", [](M m) { return hsv_change(m, -30, 1.0); }, 75, true});
     v.push_back({"saturation-0.5", [](M m) { return hsv_change(m, 0, 0.5); }, 0, true});
     v.push_back({"saturation-1.4", [](M m) { return hsv_change(m, 0, 1.4); }, 0, true});
     v.push_back({"warmer", [](M m) { return gains(m, 0.85, 1.0, 1.15); }, 0, true});
@@ -173,6 +174,8 @@ bool pair_joined(const Lookalike& a, const Lookalike& b, const GroupSettings& gs
   }
   return false;
 }
+
+cv::Mat hue_turned(const cv::Mat& m, int degrees) { return hsv_change(m, degrees, 1.0); }
 
 std::vector<Scene> rendered_scenes(int count, int per_scene, int w, int h, uint64_t seed) {
   SplitMix64 rng(seed);

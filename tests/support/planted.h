@@ -31,6 +31,10 @@ struct PlantedKind {
 
 const std::vector<PlantedKind>& planted_kinds();
 
+// The picture with its hue turned by `degrees` on the HSV circle (OpenCV's
+// 8-bit HSV: hue in steps of 2 degrees), as the hue kinds make it.
+cv::Mat hue_turned(const cv::Mat& m, int degrees);
+
 struct Scene {
   std::vector<cv::Mat> pictures;  // BGR, all sharing one backdrop
   std::vector<std::string> how;   // per picture: how it differs from picture 0
