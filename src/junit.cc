@@ -4,6 +4,7 @@
 #include <string>
 
 #include "tamis/policy.h"
+#include "tamis/text.h"
 
 namespace tamis {
 
@@ -14,11 +15,9 @@ namespace {
 std::string xml(std::string_view s) {
   std::string out;
   for (size_t i = 0; i < s.size();) {
-    unsigned char c = static_cast<unsigned char>(s[i]);
-    size_t len = c < 0x80 ? 1 : (c >> 5) == 6 ? 2 : (c >> 4) == 14 ? 3 : (c >> 3) == 30 ? 4 : 0;
-    bool ok = len > 0 && i + len <= s.size();
-    for (size_t k = 1; ok && k < len; ++k) ok = (static_cast<unsigned char>(s[i + k]) >> 6) == 2;
-    if (!ok) {
+    const unsigned char c = static_cast<unsigned char>(s[i]);
+    const size_t len = utf8_sequence_length(s, i);
+    if (!len) {
       out += "\xEF\xBF\xBD";
       ++i;
       continue;

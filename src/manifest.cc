@@ -7,6 +7,8 @@
 #include <stdexcept>
 #include <string_view>
 
+#include "tamis/text.h"
+
 namespace tamis {
 
 void append_csv_field(std::string& out, std::string_view field) {
@@ -64,7 +66,8 @@ RecordFlags record_flags(const AuditResult& result) {
 void write_manifest(std::ostream& os, const AuditResult& r) {
   static const char* kHeader[] = {"path", "label", "split", "group", "width", "height", "mode", "bit_depth",
                                   "format", "mask_path", "flags", "reason", "bytes", "orientation", "frames",
-                                  "content_hash", "fold", "brightness", "contrast", "entropy", "sharpness"};
+                                  "content_hash", "fold", "brightness", "contrast", "entropy", "sharpness",
+                                  "name_escape"};
   std::string line;
   for (size_t c = 0; c < std::size(kHeader); ++c) {
     if (c) line.push_back(',');
@@ -90,8 +93,13 @@ void write_manifest(std::ostream& os, const AuditResult& r) {
     };
     bool readable = rec.kind == FileKind::image;
     bool probed = rec.probe.format != Format::unknown;
-    field(rec.path);
-    field(r.labels.label_of[i] >= 0 ? std::string_view(r.labels.names[r.labels.label_of[i]]) : "");
+    // Names are bytes; a row whose path, label or mask path is not UTF-8 writes
+    // all three in the percent escape (text.h) and says so in name_escape.
+    const std::string_view label = r.labels.label_of[i] >= 0 ? std::string_view(r.labels.names[r.labels.label_of[i]]) : "";
+    const std::string_view mask = r.masks.mask_of[i] >= 0 ? std::string_view(r.records[static_cast<size_t>(r.masks.mask_of[i])].path) : "";
+    const bool escaped = !is_utf8(rec.path) || !is_utf8(label) || !is_utf8(mask);
+    field(escaped ? escape_name(rec.path) : std::string(rec.path));
+    field(escaped ? escape_name(label) : std::string(label));
     field(to_string(r.split.placement[i]));
     field(r.groups.group_of[i] >= 0 ? group_id(r.groups.group_of[i]) : "");
     field(probed ? std::to_string(rec.probe.width) : "");
@@ -99,7 +107,7 @@ void write_manifest(std::ostream& os, const AuditResult& r) {
     field(probed ? to_string(rec.probe.mode) : "");
     field(probed ? std::to_string(rec.probe.bit_depth) : "");
     field(probed ? to_string(rec.probe.format) : "");
-    field(r.masks.mask_of[i] >= 0 ? std::string_view(r.records[static_cast<size_t>(r.masks.mask_of[i])].path) : "");
+    field(escaped ? escape_name(mask) : std::string(mask));
     field(record_codes);
     field(readable ? "" : defect_code(rec.defect));
     field(std::to_string(rec.size));
@@ -123,7 +131,7 @@ void write_manifest(std::ostream& os, const AuditResult& r) {
     } else {
       line.append(",,,,");
     }
-    line.append("\r\n");
+    line.append(escaped ? ",percent\r\n" : ",\r\n");
     os << line;
   }
 }
@@ -191,6 +199,26 @@ size_t column(const std::vector<std::string>& header, const char* name) {
   if (it == header.end()) throw std::runtime_error(std::string("manifest: no '") + name + "' column in the header");
   return static_cast<size_t>(it - header.begin());
 }
+
+// Row k's path as bytes: unescaped when its name_escape column (a column that
+// older manifests do not have) says "percent".
+std::string row_path(const std::vector<std::vector<std::string>>& rows, size_t k, size_t path_col) {
+  const auto& header = rows.front();
+  const auto it = std::find(header.begin(), header.end(), "name_escape");
+  const std::string& path = rows[k][path_col];
+  if (it == header.end()) return path;
+  const size_t col = static_cast<size_t>(it - header.begin());
+  const std::string none;
+  const std::string& how = col < rows[k].size() ? rows[k][col] : none;
+  if (how.empty()) return path;
+  if (how != "percent")
+    throw std::runtime_error("manifest: record " + std::to_string(k + 1) + " has name_escape '" + how +
+                             "' (empty or percent expected)");
+  auto bytes = unescape_name(path);
+  if (!bytes)
+    throw std::runtime_error("manifest: record " + std::to_string(k + 1) + " has a path whose percent escape is broken");
+  return *bytes;
+}
 }  // namespace
 
 std::vector<std::string> read_manifest_paths(std::istream& is) {
@@ -198,7 +226,7 @@ std::vector<std::string> read_manifest_paths(std::istream& is) {
   const size_t path_col = column(rows.front(), "path");
   std::vector<std::string> out;
   for (size_t k = 1; k < rows.size(); ++k)
-    if (rows[k].size() > path_col) out.push_back(rows[k][path_col]);
+    if (rows[k].size() > path_col) out.push_back(row_path(rows, k, path_col));
   return out;
 }
 
@@ -220,7 +248,7 @@ KeepMap read_manifest_splits(std::istream& is) {
     if (p == Placement::excluded && v != "excluded" && !v.empty())
       throw std::runtime_error("manifest: record " + std::to_string(k + 1) + " has split '" + v +
                                "' (train, val, test, excluded or empty expected)");
-    if (p != Placement::excluded) out[r[path_col]] = p;
+    if (p != Placement::excluded) out[row_path(rows, k, path_col)] = p;
   }
   return out;
 }

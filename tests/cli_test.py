@@ -316,6 +316,54 @@ class Outputs(unittest.TestCase):
             codes = [f["code"] for f in load_json(os.path.join(t, "s", "report.json"))["findings"]]
             self.assertIn("special-file", codes)
 
+    def test_manifest_is_utf8_and_names_that_are_not_come_back_exactly(self):
+        # File and folder names with bytes that are not UTF-8 (Latin-1 bytes, a
+        # lone continuation byte, a UTF-8-encoded surrogate, which RFC 3629 and
+        # Python's codec reject) beside valid names with '%'. The manifest must
+        # decode with Python's strict UTF-8 codec (what pandas' read_csv uses), the
+        # escaped rows say "percent" in name_escape, and percent-decoding (Python's
+        # urllib.parse.unquote_to_bytes, a reference independent of tamis) gives
+        # the bytes os.listdir gives; --keep with that manifest keeps every row.
+        import urllib.parse
+        with tempfile.TemporaryDirectory() as t:
+            root = os.path.join(t, "data").encode()
+            names = [(b"caf\xe9", b"a\xff.png"), (b"caf\xe9", b"b.png"), (b"ok", b"100%.png"),
+                     (b"ok", b"x\xed\xa0\x80.png"), (b"ok", b"\x80lone.png"), (b"ok", "é.png".encode())]
+            for d, n in names:
+                os.makedirs(os.path.join(root, d), exist_ok=True)
+                with open(os.path.join(root, d, n), "wb") as f:
+                    f.write(tiny_png())
+            out = os.path.join(t, "out")
+            r = run("audit", root.decode("utf-8", "surrogateescape"), "--out", out, "--no-cache", timeout=60)
+            self.assertEqual(r.returncode, 0, r.stderr)
+            with open(os.path.join(out, "manifest.csv"), "rb") as f:
+                text = f.read().decode("utf-8")  # strict: raises on any invalid byte
+            rows = list(csv.DictReader(io.StringIO(text, newline="")))
+            self.assertEqual(len(rows), len(names))
+            got = {}
+            for row in rows:
+                if row["name_escape"] == "percent":
+                    got[urllib.parse.unquote_to_bytes(row["path"])] = urllib.parse.unquote_to_bytes(row["label"])
+                else:
+                    self.assertEqual(row["name_escape"], "")
+                    got[row["path"].encode()] = row["label"].encode()
+            want = {d + b"/" + n: d for d, n in names}
+            self.assertEqual(got, want)
+            escaped = sorted(row["path"] for row in rows if row["name_escape"] == "percent")
+            # Valid names stay as they are (a '%' in a valid row is not escaped).
+            self.assertIn("ok/100%.png", [row["path"] for row in rows])
+            self.assertIn("ok/é.png", [row["path"] for row in rows])
+            self.assertEqual(len(escaped), 4)
+            self.assertIn("caf%E9/a%FF.png", escaped)
+            # --keep reads the escaped paths back: every image keeps its split.
+            out2 = os.path.join(t, "out2")
+            r = run("audit", root.decode("utf-8", "surrogateescape"), "--out", out2, "--no-cache",
+                    "--keep", os.path.join(out, "manifest.csv"), "--seed", "99", timeout=60)
+            self.assertEqual(r.returncode, 0, r.stderr)
+            with open(os.path.join(out2, "manifest.csv"), encoding="utf-8", newline="") as f:
+                rows2 = {row["path"]: row["split"] for row in csv.DictReader(f)}
+            self.assertEqual(rows2, {row["path"]: row["split"] for row in rows})
+
     def test_schema_rejects_a_report_that_breaks_it(self):
         import jsonschema
         schema = load_json(SCHEMA)

@@ -4,7 +4,10 @@
 // quoted, inner quotes doubled), CRLF line ends as RFC 4180 prescribes, and a
 // header row. Columns, in order: path, label, split, group, width, height, mode,
 // bit_depth, format, mask_path, flags, then reason, bytes, orientation, frames,
-// content_hash, fold, brightness, contrast, entropy, sharpness (docs/outputs.md).
+// content_hash, fold, brightness, contrast, entropy, sharpness, name_escape
+// (docs/outputs.md). A row whose path, label or mask path is not valid UTF-8
+// writes those three in text.h's percent escape and "percent" in name_escape, so
+// that the file is always UTF-8 and the names' bytes can be recovered.
 // Rendering only: computes nothing.
 #pragma once
 
@@ -33,7 +36,7 @@ RecordFlags record_flags(const AuditResult& result);
 void write_manifest(std::ostream& os, const AuditResult& result);
 
 // Reads the path and split columns of a manifest (RFC 4180, any column order,
-// header row required) into a map, for --keep. Rows whose split is not train,
+// header row required; escaped paths unescaped) into a map, for --keep. Rows whose split is not train,
 // val or test are skipped. Throws std::runtime_error naming the line when the
 // file is not a manifest (no path or split column, an unterminated quote).
 KeepMap read_manifest_splits(std::istream& is);
