@@ -364,6 +364,53 @@ class Outputs(unittest.TestCase):
                 rows2 = {row["path"]: row["split"] for row in csv.DictReader(f)}
             self.assertEqual(rows2, {row["path"]: row["split"] for row in rows})
 
+    def test_library_messages_never_reach_the_terminal(self):
+        # Files that make the decoding libraries talk: a 16-bit PNG (ISO/IEC 15948,
+        # built here with Python's zlib) whose iCCP chunk is too short (libpng
+        # warns; OpenCV decodes 16-bit PNGs), and a Pillow TIFF whose
+        # PhotometricInterpretation tag (262) is renamed (OpenCV prints "can't read
+        # header" on std::cerr). With --quiet, stderr stays empty and both files
+        # are accounted for: the PNG read, the TIFF unreadable with its reason.
+        import struct
+        import zlib
+        from PIL import Image
+        def chunk(kind, data):
+            return struct.pack(">I", len(data)) + kind + data + struct.pack(">I", zlib.crc32(kind + data) & 0xFFFFFFFF)
+        with tempfile.TemporaryDirectory() as t:
+            root = os.path.join(t, "data")
+            os.makedirs(os.path.join(root, "a"))
+            rows = b"".join(b"\0" + bytes([1, 100]) * 8 for _ in range(8))
+            png = (b"\x89PNG\r\n\x1a\n" + chunk(b"IHDR", struct.pack(">IIBBBBB", 8, 8, 16, 0, 0, 0, 0)) +
+                   chunk(b"iCCP", b"bogus\0\0" + zlib.compress(b"not a profile" * 10)) +
+                   chunk(b"IDAT", zlib.compress(rows)) + chunk(b"IEND", b""))
+            with open(os.path.join(root, "a", "deep.png"), "wb") as f:
+                f.write(png)
+            tif = os.path.join(root, "a", "nophoto.tif")
+            Image.new("RGB", (40, 30), (200, 10, 10)).save(tif)
+            b = bytearray(open(tif, "rb").read())
+            self.assertEqual(b[:2], b"II")
+            ifd = struct.unpack("<I", b[4:8])[0]
+            for k in range(struct.unpack("<H", b[ifd:ifd + 2])[0]):
+                e = ifd + 2 + 12 * k
+                if struct.unpack("<H", b[e:e + 2])[0] == 262:
+                    b[e:e + 2] = struct.pack("<H", 263)
+            open(tif, "wb").write(bytes(b))
+            out = os.path.join(t, "out")
+            r = run("audit", root, "--out", out, "--no-cache", "--quiet", "--threads", "2", timeout=60)
+            self.assertIn(r.returncode, (0, 1), r.stderr)
+            self.assertEqual(r.stderr, "")
+            with open(os.path.join(out, "manifest.csv"), encoding="utf-8", newline="") as f:
+                rows = {row["path"]: row for row in csv.DictReader(f)}
+            self.assertEqual(rows["a/deep.png"]["reason"], "")
+            self.assertEqual(rows["a/deep.png"]["bit_depth"], "16")
+            self.assertEqual(rows["a/nophoto.tif"]["reason"], "decode-failed")
+            # Without --quiet, tamis's own lines still reach stderr (the silencing is
+            # limited to the libraries).
+            r = run("audit", root, "--out", os.path.join(t, "out2"), "--no-cache", "--timings", timeout=60)
+            self.assertIn("tamis:", r.stderr)
+            self.assertNotIn("imdecode", r.stderr)
+            self.assertNotIn("libpng", r.stderr)
+
     def test_schema_rejects_a_report_that_breaks_it(self):
         import jsonschema
         schema = load_json(SCHEMA)
