@@ -107,7 +107,7 @@ void write_outputs(const std::filesystem::path& out_dir, const AuditResult& resu
   if (ec) throw std::runtime_error("cannot create output folder " + out_dir.string() + ": " + ec.message());
   // What a killed run left behind (its temporaries; the outputs it had not yet
   // renamed) goes first.
-  remove_stale_temporaries(out_dir, {"manifest.csv", "report.json", "report.html", kIndexFileName});
+  remove_stale_temporaries(out_dir, {"manifest.csv", "report.json", "report.html", kIndexFileName, kSetFileName});
   if (!junit_file.empty())
     remove_stale_temporaries(junit_file.parent_path().empty() ? "." : junit_file.parent_path(),
                              {junit_file.filename().string()});
@@ -153,7 +153,7 @@ void write_outputs(const std::filesystem::path& out_dir, const AuditResult& resu
   reports.join();
   if (table_error) std::rethrow_exception(table_error);
   if (report_error) std::rethrow_exception(report_error);
-  staged.commit();
+  staged.commit(out_dir / kSetFileName);
   clock.lap("outputs");
   if (times) {  // each file's own time, overlapping the other thread's
     for (const auto* part : {&table_times, &report_times})

@@ -411,6 +411,108 @@ class Outputs(unittest.TestCase):
             self.assertNotIn("imdecode", r.stderr)
             self.assertNotIn("libpng", r.stderr)
 
+    def test_output_sets_stay_whole_under_faults_and_kills(self):
+        # Fault injection (TAMIS_FAULT, atomic_file.cc) at every step of writing
+        # the outputs: each temporary's write, its fsync, the removal of the old
+        # set file, each rename, the set file's rename; each made to fail (exit 3,
+        # the cause named, the previous set untouched, no temporary left) and
+        # killed with SIGKILL there (each file is the old one or the new one; the
+        # set file, when present, lists exactly the files there, checked with
+        # python3-xxhash's XXH3-64, the reference implementation's binding; the
+        # next run completes the new set and removes the dead run's temporaries).
+        import xxhash
+        names = ["index.cbor", "manifest.csv", "report.html", "report.json"]
+        def read(path):
+            with open(path, "rb") as f:
+                return f.read()
+        def files(d):
+            return {n: read(os.path.join(d, n)) for n in names}
+        def set_ok(d):
+            path = os.path.join(d, "tamis-set.json")
+            if not os.path.exists(path):
+                return False
+            listed = {f["name"]: f for f in load_json(path)["files"]}
+            self.assertEqual(sorted(listed), names)
+            for n, f in listed.items():
+                data = read(os.path.join(d, n))
+                if len(data) != f["bytes"] or xxhash.xxh3_64(data).hexdigest() != f["xxh3_64"]:
+                    return False
+            return True
+        with tempfile.TemporaryDirectory() as t:
+            root = one_image_tree(t)
+            old_dir, new_dir = os.path.join(t, "old"), os.path.join(t, "new")
+            self.assertEqual(run("audit", root, "--out", old_dir, "--no-cache", "--quiet").returncode, 0)
+            with open(os.path.join(root, "c", "b.png"), "wb") as f:
+                f.write(tiny_png())
+            self.assertEqual(run("audit", root, "--out", new_dir, "--no-cache", "--quiet").returncode, 0)
+            old, new = files(old_dir), files(new_dir)
+            self.assertTrue(set_ok(old_dir) and set_ok(new_dir))
+            self.assertNotEqual(old["manifest.csv"], new["manifest.csv"])
+            steps = [("write", n) for n in range(1, 5)] + [("sync", n) for n in range(1, 5)] + \
+                    [("unlink", 1)] + [("rename", n) for n in range(1, 5)] + [("set", 1)]
+            checked = 0
+            for step, n in steps:
+                for action in ("fail", "kill"):
+                    out = os.path.join(t, "out-%s-%d-%s" % (step, n, action))
+                    shutil.copytree(old_dir, out)
+                    env = dict(os.environ, TAMIS_FAULT="%s:%d:%s" % (step, n, action))
+                    r = subprocess.run([TAMIS, "audit", root, "--out", out, "--no-cache", "--quiet"],
+                                       capture_output=True, text=True, env=env, timeout=60)
+                    now = files(out)
+                    leftovers = [e for e in os.listdir(out) if ".tmp-" in e]
+                    what = "%s %d %s" % (step, n, action)
+                    if action == "fail":
+                        if step == "set":  # the four are in place; only the set file is missing
+                            self.assertEqual(r.returncode, 3, what)
+                            self.assertEqual(now, new, what)
+                            self.assertFalse(os.path.exists(os.path.join(out, "tamis-set.json")), what)
+                        elif step == "rename" and n > 1:  # some renamed: no set file says so
+                            self.assertEqual(r.returncode, 3, what)
+                            self.assertFalse(os.path.exists(os.path.join(out, "tamis-set.json")), what)
+                        else:
+                            self.assertEqual(r.returncode, 3, what + r.stderr)
+                            self.assertEqual(now, old, what)
+                            self.assertTrue(set_ok(out), what)
+                        self.assertIn("Input/output error", r.stderr, what)
+                        self.assertEqual(leftovers, [], what)
+                    else:
+                        self.assertEqual(r.returncode, -9, what)
+                    for k in names:
+                        self.assertIn(now[k], (old[k], new[k]), what + " " + k)
+                    if os.path.exists(os.path.join(out, "tamis-set.json")):
+                        self.assertTrue(set_ok(out), what)
+                        self.assertTrue(now == old or now == new, what)
+                    else:
+                        self.assertTrue(step in ("rename", "set") or (step == "unlink" and action == "kill"), what)
+                    r = run("audit", root, "--out", out, "--no-cache", "--quiet")
+                    self.assertEqual(r.returncode, 0, what + r.stderr)
+                    self.assertEqual(files(out), new, what)
+                    self.assertTrue(set_ok(out), what)
+                    self.assertEqual([e for e in os.listdir(out) if ".tmp-" in e], [], what)
+                    checked += 1
+            self.assertEqual(checked, 28)
+
+    def test_a_folder_named_like_an_output_leaves_the_set_untouched(self):
+        # report.html is a folder in --out: nothing is renamed, exit 3 names it.
+        with tempfile.TemporaryDirectory() as t:
+            root = one_image_tree(t)
+            out = os.path.join(t, "out")
+            self.assertEqual(run("audit", root, "--out", out, "--no-cache", "--quiet").returncode, 0)
+            def read(path):
+                with open(path, "rb") as f:
+                    return f.read()
+            before = {n: read(os.path.join(out, n)) for n in ("manifest.csv", "report.json", "index.cbor")}
+            os.remove(os.path.join(out, "report.html"))
+            os.mkdir(os.path.join(out, "report.html"))
+            with open(os.path.join(root, "c", "b.png"), "wb") as f:
+                f.write(tiny_png())
+            r = run("audit", root, "--out", out, "--no-cache", "--quiet")
+            self.assertEqual(r.returncode, 3)
+            self.assertIn("a folder has that name", r.stderr)
+            after = {n: read(os.path.join(out, n)) for n in before}
+            self.assertEqual(after, before)
+            self.assertEqual([e for e in os.listdir(out) if ".tmp-" in e], [])
+
     def test_schema_rejects_a_report_that_breaks_it(self):
         import jsonschema
         schema = load_json(SCHEMA)

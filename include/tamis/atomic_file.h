@@ -3,6 +3,7 @@
 #pragma once
 
 #include <filesystem>
+#include <cstdint>
 #include <functional>
 #include <mutex>
 #include <ostream>
@@ -29,10 +30,16 @@ size_t remove_stale_temporaries(const std::filesystem::path& dir, const std::vec
 
 // Several output files put in place together: each is written under a temporary
 // name (from any thread) and its fsync starts at once on a thread of its own (the
-// wait for the disk overlaps the making of the next file); commit() waits for
-// them all, then renames each into place. A file whose
-// writing failed throws from write(); temporaries never committed are removed
-// when the set is destroyed, so a failed run leaves the previous outputs as they were.
+// wait for the disk overlaps the making of the next file). commit() waits for
+// them all and checks, before renaming anything, that every fsync worked and that
+// no target is a folder or another non-file; a failure up to there leaves the
+// previous files as they were (temporaries never committed are removed when the
+// set is destroyed). Then, when `set_file` is given, the old set file is removed,
+// each file is renamed into place, and the new set file (JSON: each file's name,
+// size and XXH3-64, docs/outputs.md) is written last, atomically: a folder with a
+// set file whose list matches its files holds one whole set; a folder without one
+// is being replaced or its replacing was stopped. A file whose writing failed
+// throws from write(). Fault injection for tests: TAMIS_FAULT (atomic_file.cc).
 class StagedFiles {
  public:
   StagedFiles() = default;
@@ -40,12 +47,14 @@ class StagedFiles {
   StagedFiles& operator=(const StagedFiles&) = delete;
   ~StagedFiles();
   void write(const std::filesystem::path& target, const std::function<void(std::ostream&)>& write);
-  void commit();
+  void commit(const std::filesystem::path& set_file = {});
 
  private:
   struct Staged {
     std::filesystem::path tmp, target;
     int slot;  // its place in the registry of temporaries removed on a signal
+    uint64_t bytes, hash;  // what was written: size and XXH3-64
+    int error;             // errno of reading it back or of its fsync (0: fine)
   };
   std::mutex mu_;
   std::vector<Staged> staged_;

@@ -1,6 +1,7 @@
 // The reports stage: writes manifest.csv, report.json, report.html and the saved
 // index (index.cbor, for `tamis split`) into the output folder, each atomically
-// (temporary name, then rename), two at a time, and the JUnit file when asked.
+// (temporary name, then rename), two at a time, and the JUnit file when asked;
+// then the set file (tamis-set.json) that says the set is whole.
 //
 // The output layer alone guards "never inside ROOT": every file it writes is
 // first checked against the audited ROOT (result.settings.root), whichever
@@ -19,6 +20,10 @@
 #include "tamis/index_file.h"
 
 namespace tamis {
+
+// The set file, written last into the output folder: the files of the set with
+// their sizes and XXH3-64 (atomic_file.h StagedFiles, docs/outputs.md).
+inline constexpr const char* kSetFileName = "tamis-set.json";
 
 // Bytes of thumbnail data URIs report.html carries by default (about 300 KB).
 inline constexpr size_t kThumbnailBudget = 300 * 1024;
