@@ -13,7 +13,8 @@ mode="${1:-demo}"
 build_pkgs=(cmake make g++ pkg-config libopencv-dev nlohmann-json3-dev libcli11-dev catch2
             libspdlog-dev libturbojpeg0-dev libjpeg-dev libxxhash-dev libsqlite3-dev zlib1g-dev)
 test_pkgs=(libjxl-testdata dataset-fashion-mnist visp-images-data python3 python3-numpy python3-scipy
-           python3-sklearn python3-jsonschema python3-pil python3-cbor2 python3-xxhash libjpeg-turbo-progs chromium fonts-dejavu-core)
+           python3-sklearn python3-jsonschema python3-pil python3-cbor2 python3-xxhash libjpeg-turbo-progs chromium fonts-dejavu-core
+           clang libclang-rt-14-dev llvm)
 
 as_root() {
   if [ "$(id -u)" = 0 ]; then "$@"; elif command -v sudo >/dev/null; then sudo "$@"; else
@@ -54,6 +55,11 @@ case "$mode" in
     install_missing "${build_pkgs[@]}" "${test_pkgs[@]}"
     build
     ctest --test-dir build --output-on-failure -j "$(nproc)"
+    # The same suite under AddressSanitizer and UBSan (clang, in build-fuzz, whose
+    # library is also instrumented for the fuzzers), then every libFuzzer target
+    # for 30 s, then the threaded tests under ThreadSanitizer (build-tsan).
+    # Both builds share build/test-data (the Fashion-MNIST export is made once).
+    bash scripts/sanitize.sh
     ;;
   *)
     echo "usage: scripts/setup.sh demo|test" >&2

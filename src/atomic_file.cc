@@ -243,9 +243,10 @@ StagedFiles::~StagedFiles() {
 }
 
 void StagedFiles::write(const std::filesystem::path& target, const std::function<void(std::ostream&)>& write) {
-  auto [tmp, slot] = write_temporary(target, write);
+  const std::pair<std::filesystem::path, int> written = write_temporary(target, write);
+  const std::filesystem::path tmp = written.first;  // a variable, not a binding: lambdas capture it (clang 14)
   std::lock_guard<std::mutex> lock(mu_);
-  staged_.push_back({tmp, target, slot, 0, 0, 0});
+  staged_.push_back({tmp, target, written.second, 0, 0, 0});
   // The disk write starts now, while the other files are being made; the same
   // thread first reads the file back for the set file's size and hash.
   const size_t index = staged_.size() - 1;

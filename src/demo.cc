@@ -15,8 +15,14 @@ namespace tamis {
 
 namespace {
 
+// The three draws are sequenced (function arguments are evaluated in an
+// unspecified order: clang went left to right and made another demo), in the
+// order that made the committed demo_data: red, green, then blue.
 cv::Scalar colour(SplitMix64& rng) {
-  return cv::Scalar(double(40 + rng.below(200)), double(40 + rng.below(200)), double(40 + rng.below(200)));
+  const double r = double(40 + rng.below(200));
+  const double g = double(40 + rng.below(200));
+  const double b = double(40 + rng.below(200));
+  return cv::Scalar(b, g, r);
 }
 
 // Adds fine weave noise and a little blur so swatches look photographed, not drawn.

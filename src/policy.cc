@@ -55,7 +55,7 @@ Policy parse_policy(const std::string& text) {
   json j;
   try {
     j = json::parse(text);
-  } catch (const json::parse_error& e) {
+  } catch (const json::exception& e) {  // parse_error, or out_of_range for a number like 1E400
     throw PolicyError(std::string("policy: not valid JSON: ") + e.what());
   }
   if (!j.is_object()) throw PolicyError("policy: the file must hold a JSON object");

@@ -28,14 +28,22 @@ Scene scene(uint64_t seed, int w = 96, int h = 72, bool label_palette = false) {
   SplitMix64 rng(seed);
   Scene s;
   s.photo = cv::Mat(h, w, CV_8UC3);
-  for (auto it = s.photo.begin<cv::Vec3b>(); it != s.photo.end<cv::Vec3b>(); ++it)
-    *it = cv::Vec3b(uint8_t(60 + rng.below(120)), uint8_t(60 + rng.below(120)), uint8_t(60 + rng.below(120)));
+  for (auto it = s.photo.begin<cv::Vec3b>(); it != s.photo.end<cv::Vec3b>(); ++it) {
+    // Draws sequenced (argument order is unspecified), last channel first.
+    const auto c2 = uint8_t(60 + rng.below(120));
+    const auto c1 = uint8_t(60 + rng.below(120));
+    const auto c0 = uint8_t(60 + rng.below(120));
+    *it = cv::Vec3b(c0, c1, c2);
+  }
   cv::GaussianBlur(s.photo, s.photo, cv::Size(5, 5), 1.2);
   s.mask = cv::Mat::zeros(h, w, CV_8UC1);
   for (int k = 0; k < 2; ++k) {
-    cv::Point c(int(10 + rng.below(uint64_t(w - 20))), int(10 + rng.below(uint64_t(h - 20))));
+    const int cy = int(10 + rng.below(uint64_t(h - 20)));  // sequenced: y drawn first
+    const int cx = int(10 + rng.below(uint64_t(w - 20)));
+    cv::Point c(cx, cy);
     int r = int(6 + rng.below(12));
-    cv::Scalar colour(double(rng.below(256)), double(rng.below(256)), double(rng.below(256)));
+    const double c2 = double(rng.below(256)), c1 = double(rng.below(256)), c0 = double(rng.below(256));
+    cv::Scalar colour(c0, c1, c2);
     cv::circle(s.photo, c, r, colour, cv::FILLED, cv::LINE_AA);
     cv::circle(s.mask, c, r, cv::Scalar(label_palette ? 1 + k : 255), cv::FILLED, cv::LINE_8);
   }

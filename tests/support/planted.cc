@@ -67,7 +67,9 @@ const std::vector<PlantedKind>& planted_kinds() {
     const std::pair<const char*, int> interps[] = {{"nearest", cv::INTER_NEAREST}, {"linear", cv::INTER_LINEAR},
                                                    {"cubic", cv::INTER_CUBIC}, {"area", cv::INTER_AREA},
                                                    {"lanczos", cv::INTER_LANCZOS4}};
-    for (auto [name, interp] : interps) {
+    for (const auto& entry : interps) {
+      const char* name = entry.first;
+      const int interp = entry.second;  // a variable, not a binding: lambdas capture it (clang 14)
       v.push_back({std::string("half-") + name, [interp](M m) { return resized(m, 0.5, interp); }, 0});
       if (interp != cv::INTER_AREA)
         v.push_back({std::string("double-") + name, [interp](M m) { return resized(m, 2.0, interp); }, 0});
@@ -190,8 +192,12 @@ std::vector<Scene> rendered_scenes(int count, int per_scene, int w, int h, uint6
   for (int s = 0; s < count; ++s) {
     // The backdrop: a smooth gradient between two colours of nearby luma.
     const double y0 = uniform(90, 170), dy = uniform(-40, 40);
-    const cv::Scalar c0 = colour(y0, uniform(0, 6.283), uniform(5, 35));
-    const cv::Scalar c1 = colour(y0 + dy, uniform(0, 6.283), uniform(5, 35));
+    // Draws sequenced (argument order is unspecified; this is the order the
+    // measured figures in docs/lookalikes.md were made with): strength, then angle.
+    const double s0 = uniform(5, 35), a0 = uniform(0, 6.283);
+    const cv::Scalar c0 = colour(y0, a0, s0);
+    const double s1 = uniform(5, 35), a1 = uniform(0, 6.283);
+    const cv::Scalar c1 = colour(y0 + dy, a1, s1);
     const double dir = uniform(0, 6.283);
     cv::Mat backdrop(h, w, CV_8UC3);
     for (int yy = 0; yy < h; ++yy)
@@ -215,7 +221,11 @@ std::vector<Scene> rendered_scenes(int count, int per_scene, int w, int h, uint6
       }
     };
     auto random_obj = [&](int size) {
-      return Obj{int(rng.next() % 3), cv::Point(int(uniform(0.2, 0.8) * w), int(uniform(0.2, 0.8) * h)), size, uniform(0, 6.283)};
+      const int shape = int(rng.next() % 3);
+      const int y = int(uniform(0.2, 0.8) * h);  // sequenced: y, then x (as the figures were made)
+      const int x = int(uniform(0.2, 0.8) * w);
+      const double angle = uniform(0, 6.283);
+      return Obj{shape, cv::Point(x, y), size, angle};
     };
     const int big = std::min(w, h) / 5, small = std::max(3, std::min(w, h) / 12);
     const Obj base = random_obj(big);

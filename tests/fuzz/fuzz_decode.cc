@@ -1,0 +1,22 @@
+// libFuzzer target: probe then decode (decode.h decode_image: libjpeg-turbo with
+// the reduced-size path and its fallback, the direct PNG reader and its inflate,
+// the GIF reader, OpenCV for the rest) on any bytes, with a pixel budget small
+// enough for the fuzzer's memory limit. A decoded image must have the size the
+// reduced path promises.
+#include <cstdint>
+#include <cstdlib>
+#include <span>
+
+#include "tamis/decode.h"
+#include "tamis/probe.h"
+
+extern "C" int LLVMFuzzerTestOneInput(const uint8_t* data, size_t size) {
+  const std::span<const uint8_t> bytes(data, size);
+  const tamis::ProbeOutcome o = tamis::probe_bytes(bytes);
+  if (o.defect != tamis::Defect::none) return 0;
+  tamis::DecodeLimits limits;
+  limits.max_pixels = 4'000'000;
+  const tamis::Decoded d = tamis::decode_image(bytes, o.info, limits);
+  if (d.defect == tamis::Defect::none && d.reduced.empty()) std::abort();
+  return 0;
+}

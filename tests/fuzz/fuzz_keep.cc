@@ -1,0 +1,23 @@
+// libFuzzer target: the --keep manifest reader and the manifest's path column
+// (manifest.h): any bytes either give a map or throw std::runtime_error.
+#include <cstdint>
+#include <sstream>
+#include <stdexcept>
+#include <string>
+
+#include "tamis/manifest.h"
+
+extern "C" int LLVMFuzzerTestOneInput(const uint8_t* data, size_t size) {
+  const std::string text(reinterpret_cast<const char*>(data), size);
+  try {
+    std::istringstream is(text);
+    (void)tamis::read_manifest_splits(is);
+  } catch (const std::runtime_error&) {
+  }
+  try {
+    std::istringstream is(text);
+    (void)tamis::read_manifest_paths(is);
+  } catch (const std::runtime_error&) {
+  }
+  return 0;
+}
