@@ -25,6 +25,6 @@ bash scripts/fuzz.sh "${FUZZ_SECONDS:-30}"
 CC=clang CXX=clang++ cmake -S . -B build-tsan -DCMAKE_BUILD_TYPE=RelWithDebInfo -DTAMIS_BUILD_TESTS=ON \
   -DTAMIS_TEST_DATA="$data" -DCMAKE_CXX_FLAGS="-fsanitize=thread -g" -DCMAKE_EXE_LINKER_FLAGS="-fsanitize=thread" >/dev/null
 cmake --build build-tsan -j "$jobs" --target tamis tamis_tests
-TSAN_OPTIONS=halt_on_error=1:second_deadlock_stack=1 \
+TSAN_OPTIONS="halt_on_error=1:second_deadlock_stack=1:suppressions=$here/tests/tsan.supp" \
   ctest --test-dir build-tsan --output-on-failure -j "$jobs" \
   -R "thread"
