@@ -10,16 +10,16 @@
 #include <cerrno>
 #include <climits>
 #include <cstdio>
-#include <cstring>
 #include <cstdlib>
+#include <cstring>
 #include <fstream>
 #include <iterator>
 #include <map>
 #include <set>
 #include <stdexcept>
-#include <vector>
 #include <string>
 #include <thread>
+#include <vector>
 
 namespace tamis {
 
