@@ -11,7 +11,7 @@ set -euo pipefail
 here="$(cd "$(dirname "${BASH_SOURCE[0]}")/.." && pwd)"
 cd "$here"
 seconds="${1:-30}"
-CC=clang CXX=clang++ cmake -S . -B build-fuzz -DCMAKE_BUILD_TYPE=RelWithDebInfo -DTAMIS_FUZZ=ON >/dev/null
+CC=clang CXX=clang++ cmake -S . -B build-fuzz -DCMAKE_BUILD_TYPE=None -DCMAKE_CXX_FLAGS="-O1" -DTAMIS_FUZZ=ON >/dev/null
 cmake --build build-fuzz -j "$(nproc)" --target tamis $(printf "fuzz_%s " probe decode exif inflate policy keep baseline index record)
 python3 tests/fuzz/make_corpus.py build-fuzz/corpus build-fuzz/tamis build/test-data
 targets=(probe decode exif inflate policy keep baseline index record)

@@ -139,7 +139,7 @@ std::vector<uint8_t> damage_jpeg(std::vector<uint8_t> b, int kind) {
 
 }  // namespace
 
-TEST_CASE("a failed decode changes no other file's result, on any thread count", "[decode][isolation]") {
+TEST_CASE("a failed decode changes no other file's result, on any thread count", "[decode][isolation][threads]") {
   test::TempDir dir;
   cv::Mat pic(96, 128, CV_8UC3);
   cv::randu(pic, 0, 255);

@@ -37,7 +37,7 @@ std::string manifest_of(const std::filesystem::path& root, unsigned threads, uin
 }
 }  // namespace
 
-TEST_CASE("same tree, same settings: byte-identical outputs for 1 and 4 threads", "[determinism]") {
+TEST_CASE("same tree, same settings: byte-identical outputs for 1 and 4 threads", "[determinism][threads]") {
   test::TempDir t;
   write_demo(t.path());
   std::string one = manifest_of(t.path(), 1);

@@ -102,7 +102,7 @@ TEST_CASE("index equals brute force on the DCT hashes of Fashion-MNIST", "[looka
   }
 }
 
-TEST_CASE("results do not depend on the thread count", "[lookalike][index][determinism]") {
+TEST_CASE("results do not depend on the thread count", "[lookalike][index][determinism][threads]") {
   auto codes = planted_codes(20000, 8, 30, 5);
   CHECK(pairs_within(codes, 8, 1) == pairs_within(codes, 8, 4));
 }
