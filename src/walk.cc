@@ -202,7 +202,21 @@ bool path_is_inside(const std::filesystem::path& root, const std::filesystem::pa
     return out;
   };
   auto r = parts(root), c = parts(child);
-  return r.size() <= c.size() && std::equal(r.begin(), r.end(), c.begin());
+  if (r.size() <= c.size() && std::equal(r.begin(), r.end(), c.begin())) return true;
+  // The same folder can have two paths: a bind mount of ROOT (or of a folder
+  // above it) names it elsewhere. So the child's nearest existing folder and each
+  // folder above it are also compared with ROOT by device and inode.
+  struct stat rs {};
+  if (::stat(root.c_str(), &rs) != 0) return false;
+  std::error_code ec;
+  std::filesystem::path p = std::filesystem::weakly_canonical(child, ec);
+  if (ec) p = std::filesystem::absolute(child).lexically_normal();
+  for (;;) {
+    struct stat ps {};
+    if (::stat(p.c_str(), &ps) == 0 && ps.st_dev == rs.st_dev && ps.st_ino == rs.st_ino) return true;
+    if (!p.has_parent_path() || p.parent_path() == p) return false;
+    p = p.parent_path();
+  }
 }
 
 }  // namespace tamis

@@ -281,6 +281,31 @@ class Outputs(unittest.TestCase):
             self.assertFalse(os.path.exists(os.path.join(t, "b")))
             self.assertFalse(os.path.exists(os.path.join(t, "s")))  # refused before the output folder is made
 
+    def test_root_seen_through_a_bind_mount_is_still_root(self):
+        # ROOT bind-mounted elsewhere (mount(8) --bind; needs root and CAP_SYS_ADMIN,
+        # else skipped): --out, --junit and --cache through the other path are inside
+        # ROOT (the same folder by device and inode) and refused, nothing written.
+        if os.geteuid() != 0:
+            self.skipTest("bind mounts need root")
+        with tempfile.TemporaryDirectory() as t:
+            root = one_image_tree(t)
+            other = os.path.join(t, "other")
+            os.mkdir(other)
+            m = subprocess.run(["mount", "--bind", root, other], capture_output=True)
+            if m.returncode != 0:
+                self.skipTest("mount --bind not permitted here")
+            try:
+                before = snapshot(root)
+                for extra in (["--out", os.path.join(other, "o")],
+                              ["--out", os.path.join(t, "o"), "--junit", os.path.join(other, "j.xml")],
+                              ["--out", os.path.join(t, "o"), "--cache", os.path.join(other, "c", "x.sqlite")]):
+                    r = run("audit", root, *extra)
+                    self.assertEqual(r.returncode, 2, extra)
+                    self.assertIn("inside ROOT", r.stderr, extra)
+                    self.assertEqual(snapshot(root), before, extra)
+            finally:
+                subprocess.run(["umount", other], capture_output=True)
+
     def test_names_from_the_data_set_reach_the_terminal_escaped(self):
         # A class folder named with a terminal escape and a newline, holding a byte
         # copy of a file in another class: the label-conflict line of the summary

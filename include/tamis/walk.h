@@ -51,8 +51,10 @@ WalkResult walk_tree(const std::filesystem::path& root, unsigned threads = 0, bo
 // later whether stamps are needed (the audit, while its cache loads).
 void stamp_files(const std::filesystem::path& root, WalkResult& walk, unsigned threads = 0);
 
-// True when `child` is ROOT or lies inside it (after resolving both to canonical
-// paths where they exist). Used to refuse outputs inside the data set.
+// True when `child` is ROOT or lies inside it: after resolving both to canonical
+// paths where they exist, or because a folder on the child's path is ROOT itself
+// by device and inode (ROOT seen through a bind mount). Used to refuse outputs
+// inside the data set.
 bool path_is_inside(const std::filesystem::path& root, const std::filesystem::path& child);
 
 }  // namespace tamis
