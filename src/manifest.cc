@@ -98,8 +98,14 @@ void write_manifest(std::ostream& os, const AuditResult& r) {
     const std::string_view label = r.labels.label_of[i] >= 0 ? std::string_view(r.labels.names[r.labels.label_of[i]]) : "";
     const std::string_view mask = r.masks.mask_of[i] >= 0 ? std::string_view(r.records[static_cast<size_t>(r.masks.mask_of[i])].path) : "";
     const bool escaped = !is_utf8(rec.path) || !is_utf8(label) || !is_utf8(mask);
-    field(escaped ? escape_name(rec.path) : std::string(rec.path));
-    field(escaped ? escape_name(label) : std::string(label));
+    std::string escaped_path, escaped_label, escaped_mask;  // filled only for an escaped row
+    if (escaped) {
+      escaped_path = escape_name(rec.path);
+      escaped_label = escape_name(label);
+      escaped_mask = escape_name(mask);
+    }
+    field(escaped ? std::string_view(escaped_path) : std::string_view(rec.path));
+    field(escaped ? std::string_view(escaped_label) : label);
     field(to_string(r.split.placement[i]));
     field(r.groups.group_of[i] >= 0 ? group_id(r.groups.group_of[i]) : "");
     field(probed ? std::to_string(rec.probe.width) : "");
@@ -107,7 +113,7 @@ void write_manifest(std::ostream& os, const AuditResult& r) {
     field(probed ? to_string(rec.probe.mode) : "");
     field(probed ? std::to_string(rec.probe.bit_depth) : "");
     field(probed ? to_string(rec.probe.format) : "");
-    field(escaped ? escape_name(mask) : std::string(mask));
+    field(escaped ? std::string_view(escaped_mask) : mask);
     field(record_codes);
     field(readable ? "" : defect_code(rec.defect));
     field(std::to_string(rec.size));
@@ -200,17 +206,17 @@ size_t column(const std::vector<std::string>& header, const char* name) {
   return static_cast<size_t>(it - header.begin());
 }
 
-// Row k's path as bytes: unescaped when its name_escape column (a column that
-// older manifests do not have) says "percent".
-std::string row_path(const std::vector<std::vector<std::string>>& rows, size_t k, size_t path_col) {
-  const auto& header = rows.front();
+// The name_escape column (a column that older manifests do not have), or npos.
+size_t escape_column(const std::vector<std::string>& header) {
   const auto it = std::find(header.begin(), header.end(), "name_escape");
+  return it == header.end() ? std::string::npos : static_cast<size_t>(it - header.begin());
+}
+
+// Row k's path as bytes: unescaped when its name_escape column says "percent".
+std::string row_path(const std::vector<std::vector<std::string>>& rows, size_t k, size_t path_col, size_t escape_col) {
   const std::string& path = rows[k][path_col];
-  if (it == header.end()) return path;
-  const size_t col = static_cast<size_t>(it - header.begin());
-  const std::string none;
-  const std::string& how = col < rows[k].size() ? rows[k][col] : none;
-  if (how.empty()) return path;
+  if (escape_col >= rows[k].size() || rows[k][escape_col].empty()) return path;
+  const std::string& how = rows[k][escape_col];
   if (how != "percent")
     throw std::runtime_error("manifest: record " + std::to_string(k + 1) + " has name_escape '" + how +
                              "' (empty or percent expected)");
@@ -223,16 +229,17 @@ std::string row_path(const std::vector<std::vector<std::string>>& rows, size_t k
 
 std::vector<std::string> read_manifest_paths(std::istream& is) {
   auto rows = parse_csv(is);
-  const size_t path_col = column(rows.front(), "path");
+  const size_t path_col = column(rows.front(), "path"), escape_col = escape_column(rows.front());
   std::vector<std::string> out;
   for (size_t k = 1; k < rows.size(); ++k)
-    if (rows[k].size() > path_col) out.push_back(row_path(rows, k, path_col));
+    if (rows[k].size() > path_col) out.push_back(row_path(rows, k, path_col, escape_col));
   return out;
 }
 
 KeepMap read_manifest_splits(std::istream& is) {
   auto rows = parse_csv(is);
   const size_t path_col = column(rows.front(), "path"), split_col = column(rows.front(), "split");
+  const size_t escape_col = escape_column(rows.front());
   const size_t width = rows.front().size();
   KeepMap out;
   for (size_t k = 1; k < rows.size(); ++k) {
@@ -248,7 +255,7 @@ KeepMap read_manifest_splits(std::istream& is) {
     if (p == Placement::excluded && v != "excluded" && !v.empty())
       throw std::runtime_error("manifest: record " + std::to_string(k + 1) + " has split '" + v +
                                "' (train, val, test, excluded or empty expected)");
-    if (p != Placement::excluded) out[row_path(rows, k, path_col)] = p;
+    if (p != Placement::excluded) out[row_path(rows, k, path_col, escape_col)] = p;
   }
   return out;
 }

@@ -13,6 +13,7 @@ double blur_sigma(int step) { return 0.25 * step; }
 namespace {
 
 constexpr double kChromaNoise = 1.5;  // levels a cell: the floor under the target's variation
+constexpr double kChromaFloorSs = 2.0 * double(kChromaPlane) * kChromaNoise * kChromaNoise;  // that floor over the 64 cells (Cb and Cr)
 constexpr double kColourless = 2.0;  // chroma standard deviation below which a side has no colour
 constexpr double kMaxCast = 0.15;  // largest |gamma| of chroma_unexplained's luma term
 constexpr double kLowScale = 32767.0;  // MatchProfile::low: unit coefficients x this
@@ -137,13 +138,20 @@ CentredChroma centred_chroma(const Thumbnail& t) {
   return c;
 }
 
-// The 8x8 means of a thumbnail's gray plane (the chroma's cells), centred.
-std::array<double, kChromaPlane> centred_luma_cells(const Thumbnail& t) {
+// The 8x8 means of a thumbnail's gray plane (the chroma's cells).
+std::array<double, kChromaPlane> luma_cells(const Thumbnail& t) {
   std::array<double, kChromaPlane> y{};
   for (int r = 0; r < kThumbSide; ++r)
     for (int c = 0; c < kThumbSide; ++c) y[size_t((r / 4) * kChromaSide + c / 4)] += t[size_t(r * kThumbSide + c)];
+  for (double& v : y) v /= 16.0;
+  return y;
+}
+
+// The same, centred.
+std::array<double, kChromaPlane> centred_luma_cells(const Thumbnail& t) {
+  std::array<double, kChromaPlane> y = luma_cells(t);
   double m = 0;
-  for (double& v : y) m += (v /= 16.0);
+  for (double v : y) m += v;
   m /= double(kChromaPlane);
   for (double& v : y) v -= m;
   return y;
@@ -216,7 +224,7 @@ ChromaFit chroma_unexplained(const Thumbnail& a, const Thumbnail& b) {
   p_im -= ga_re * sy_im + ga_im * sy_re;
   const double explained = dst.ss - tt + (ss_re > 0 ? (p_re * p_re + p_im * p_im) / ss_re : 0.0);
   const double res = std::max(0.0, dst.ss - explained);
-  fit.share = res / (dst.ss + 2.0 * double(kChromaPlane) * kChromaNoise * kChromaNoise);
+  fit.share = res / (dst.ss + kChromaFloorSs);
   fit.a_src = a_src;
   if (ss_re > 0) {
     fit.alpha_re = p_re / ss_re;
@@ -265,9 +273,7 @@ bool hue_turn_consistent(const Thumbnail& src, const Thumbnail& dst, double alph
   // |arg alpha| < 20 degrees (no libm call: the same bits on every processor).
   if (alpha_re > 0 && std::fabs(alpha_im) < kTanHueMinTurn * alpha_re) return true;
   if (alpha_re * alpha_re + alpha_im * alpha_im < 0.25 * 0.25) return true;  // mostly gray: nothing turned
-  std::array<double, kChromaPlane> ys{};
-  for (int r = 0; r < kThumbSide; ++r)
-    for (int c = 0; c < kThumbSide; ++c) ys[size_t((r / 4) * kChromaSide + c / 4)] += src[size_t(r * kThumbSide + c)];
+  const std::array<double, kChromaPlane> ys = luma_cells(src);
   const uint8_t* su = src.data() + kGrayBytes;
   const uint8_t* sv = su + kChromaPlane;
   const uint8_t* tu = dst.data() + kGrayBytes;
@@ -281,7 +287,7 @@ bool hue_turn_consistent(const Thumbnail& src, const Thumbnail& dst, double alph
   auto unexplained = [&](double degrees) {
     double pp = 0, pt = 0;
     for (size_t k = 0; k < kChromaPlane; ++k) {
-      const double yk = ys[k] / 16.0, cb = su[k] - 128.0, cr = sv[k] - 128.0;
+      const double yk = ys[k], cb = su[k] - 128.0, cr = sv[k] - 128.0;
       double r = yk + 1.402 * cr, g = yk - 0.344136 * cb - 0.714136 * cr, b = yk + 1.772 * cb;
       hsv_turn(r, g, b, degrees);
       const double y = 0.299 * r + 0.587 * g + 0.114 * b;
@@ -301,7 +307,7 @@ bool hue_turn_consistent(const Thumbnail& src, const Thumbnail& dst, double alph
   }
   const double coarse = best_deg;
   for (int d = -4; d <= 4; ++d) best = std::min(best, unexplained(coarse + d));
-  return best <= kHueResidual * (tt + 2.0 * double(kChromaPlane) * kChromaNoise * kChromaNoise);
+  return best <= kHueResidual * (tt + kChromaFloorSs);
 }
 
 // The colour checks of a pair whose gray pictures match: the chroma fit's

@@ -48,6 +48,11 @@ def load_json(path):
         return json.load(f)
 
 
+def read_bytes(path):
+    with open(path, "rb") as f:
+        return f.read()
+
+
 def read_text(path):
     with open(path, encoding="utf-8", newline="") as f:
         return f.read()
@@ -412,14 +417,15 @@ class Outputs(unittest.TestCase):
                 f.write(png)
             tif = os.path.join(root, "a", "nophoto.tif")
             Image.new("RGB", (40, 30), (200, 10, 10)).save(tif)
-            b = bytearray(open(tif, "rb").read())
+            b = bytearray(read_bytes(tif))
             self.assertEqual(b[:2], b"II")
             ifd = struct.unpack("<I", b[4:8])[0]
             for k in range(struct.unpack("<H", b[ifd:ifd + 2])[0]):
                 e = ifd + 2 + 12 * k
                 if struct.unpack("<H", b[e:e + 2])[0] == 262:
                     b[e:e + 2] = struct.pack("<H", 263)
-            open(tif, "wb").write(bytes(b))
+            with open(tif, "wb") as f:
+                f.write(bytes(b))
             out = os.path.join(t, "out")
             r = run("audit", root, "--out", out, "--no-cache", "--quiet", "--threads", "2", timeout=60)
             self.assertIn(r.returncode, (0, 1), r.stderr)
@@ -447,11 +453,8 @@ class Outputs(unittest.TestCase):
         # next run completes the new set and removes the dead run's temporaries).
         import xxhash
         names = ["index.cbor", "manifest.csv", "report.html", "report.json"]
-        def read(path):
-            with open(path, "rb") as f:
-                return f.read()
         def files(d):
-            return {n: read(os.path.join(d, n)) for n in names}
+            return {n: read_bytes(os.path.join(d, n)) for n in names}
         def set_ok(d):
             path = os.path.join(d, "tamis-set.json")
             if not os.path.exists(path):
@@ -459,7 +462,7 @@ class Outputs(unittest.TestCase):
             listed = {f["name"]: f for f in load_json(path)["files"]}
             self.assertEqual(sorted(listed), names)
             for n, f in listed.items():
-                data = read(os.path.join(d, n))
+                data = read_bytes(os.path.join(d, n))
                 if len(data) != f["bytes"] or xxhash.xxh3_64(data).hexdigest() != f["xxh3_64"]:
                     return False
             return True
@@ -523,10 +526,7 @@ class Outputs(unittest.TestCase):
             root = one_image_tree(t)
             out = os.path.join(t, "out")
             self.assertEqual(run("audit", root, "--out", out, "--no-cache", "--quiet").returncode, 0)
-            def read(path):
-                with open(path, "rb") as f:
-                    return f.read()
-            before = {n: read(os.path.join(out, n)) for n in ("manifest.csv", "report.json", "index.cbor")}
+            before = {n: read_bytes(os.path.join(out, n)) for n in ("manifest.csv", "report.json", "index.cbor")}
             os.remove(os.path.join(out, "report.html"))
             os.mkdir(os.path.join(out, "report.html"))
             with open(os.path.join(root, "c", "b.png"), "wb") as f:
@@ -534,7 +534,7 @@ class Outputs(unittest.TestCase):
             r = run("audit", root, "--out", out, "--no-cache", "--quiet")
             self.assertEqual(r.returncode, 3)
             self.assertIn("a folder has that name", r.stderr)
-            after = {n: read(os.path.join(out, n)) for n in before}
+            after = {n: read_bytes(os.path.join(out, n)) for n in before}
             self.assertEqual(after, before)
             self.assertEqual([e for e in os.listdir(out) if ".tmp-" in e], [])
 
