@@ -28,7 +28,9 @@ AuditIndex read_tree(const AuditSettings& settings) {
     loader = std::thread([&] {
       const auto& d = settings.read.decode;
       std::string key = std::string(kToolVersion) + "|" + std::to_string(d.max_pixels) + "|" +
-                        std::to_string(d.reduced_side) + "|" + std::to_string(settings.read.max_bytes);
+                        std::to_string(d.reduced_side) + "|" + std::to_string(settings.read.max_bytes) + "|" +
+                        std::to_string(d.max_image_bytes) + "|" + std::to_string(d.block_above_pixels) + "|" +
+                        std::to_string(kDecodeRules);
       try {
         cache = std::make_unique<RecordCache>(settings.cache_file, settings.root, key);
         if (cache->rebuilt()) r.cache_note = "the cache file was damaged; it was moved aside and rebuilt";

@@ -24,7 +24,12 @@ void check_inventory(const std::vector<FileRecord>& records, const Labelling& la
   }
   for (auto& [defect, paths] : unreadable) {
     Finding f;
-    if (is_undecodable_variant(defect)) {  // not damage: a file this build cannot decode
+    if (defect == Defect::over_memory_budget) {  // not damage: a file the settings do not let us decode
+      f.code = "over-memory-budget";
+      f.severity = Severity::warning;
+      f.message = plural(paths.size(), "image file was not decoded: ", "image files were not decoded: ") +
+                  std::string(defect_message(defect));
+    } else if (is_undecodable_variant(defect)) {  // not damage: a file this build cannot decode
       f.code = "undecodable-variant";
       f.severity = Severity::warning;
       f.message = plural(paths.size(), "file is not damaged but cannot be decoded here: ",

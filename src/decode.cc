@@ -1,5 +1,6 @@
 #include "tamis/decode.h"
 
+#include <climits>
 #include <csetjmp>
 #include <cstdio>
 
@@ -8,6 +9,7 @@
 
 #include <algorithm>
 #include <memory>
+#include <mutex>
 #include <vector>
 
 #include <opencv2/core/utils/logger.hpp>
@@ -15,11 +17,22 @@
 #include <opencv2/imgproc.hpp>
 
 #include "byte_reader.h"
+#include "decode_internal.h"
 #include "tamis/codecs.h"
 
 namespace tamis {
 
 using namespace detail;
+
+cv::Mat detail::area_reduce(const cv::Mat& m, uint32_t side) {
+  int shorter = std::min(m.cols, m.rows);
+  if (shorter <= static_cast<int>(side) * 2) return m;
+  double f = static_cast<double>(side) / shorter;
+  cv::Mat out;
+  cv::resize(m, out, cv::Size(std::max(1, int(m.cols * f + 0.5)), std::max(1, int(m.rows * f + 0.5))), 0, 0,
+             cv::INTER_AREA);
+  return out;
+}
 
 namespace {
 
@@ -31,14 +44,24 @@ cv::Mat to_8bit(const cv::Mat& m) {
   return out;
 }
 
-cv::Mat reduce(const cv::Mat& m, uint32_t side) {
-  int shorter = std::min(m.cols, m.rows);
-  if (shorter <= static_cast<int>(side) * 2) return m;
-  double f = static_cast<double>(side) / shorter;
-  cv::Mat out;
-  cv::resize(m, out, cv::Size(std::max(1, int(m.cols * f + 0.5)), std::max(1, int(m.rows * f + 0.5))), 0, 0,
-             cv::INTER_AREA);
-  return out;
+// Whole-block means first for a large image, then the area resize (decode.h).
+cv::Mat reduce(const cv::Mat& m, const DecodeLimits& limits) {
+  const uint32_t side = limits.reduced_side;
+  if (uint64_t(m.total()) <= limits.block_above_pixels) return area_reduce(m, side);
+  const uint32_t k = box_factor(uint64_t(m.cols), uint64_t(m.rows), side);
+  if (k == 1) return area_reduce(m, side);
+  BoxReducer box(uint32_t(m.cols), uint32_t(m.rows), m.channels(), k);
+  for (int y = 0; y < m.rows; ++y) box.add_row(m.ptr<uint8_t>(y));
+  return area_reduce(box.take(), side);
+}
+
+// The smallest DCT scale num/8 whose shorter side still reaches `side` (sizes
+// round up, as libjpeg's output dimensions do); 8 when none does.
+unsigned jpeg_scale_num(uint32_t w, uint32_t h, uint32_t side) {
+  const uint32_t shorter = std::min(w, h);
+  for (unsigned n = 1; n < 8; ++n)
+    if ((uint64_t{shorter} * n + 7) / 8 >= side) return n;
+  return 8;
 }
 
 // libjpeg's error handling: errors and corrupt-data warnings both end the decode
@@ -48,6 +71,7 @@ struct JpegError {
   jpeg_error_mgr mgr;
   jmp_buf jump;
   bool warning = false;
+  bool over_budget = false;  // the scaled output alone would not fit in the budget
 };
 
 [[noreturn]] void jpeg_on_error(j_common_ptr c) {
@@ -106,15 +130,19 @@ bool jpeg_decode_scaled(JpegDecompressor& dec, Bytes b, const DecodeLimits& limi
   if (setjmp(dec.err.jump)) return false;
   jpeg_mem_src(&ci, b.data(), static_cast<unsigned long>(b.size()));
   jpeg_read_header(&ci, TRUE);
-  const uint32_t shorter = std::min(ci.image_width, ci.image_height);
-  num = 8;  // sizes round up, as libjpeg's output dimensions do; n ascending: the first that reaches is the smallest
-  for (unsigned n = 1; n < 8; ++n)
-    if ((uint64_t{shorter} * n + 7) / 8 >= limits.reduced_side) {
-      num = n;
-      break;
-    }
+  num = jpeg_scale_num(ci.image_width, ci.image_height, limits.reduced_side);
   ci.scale_num = num;
   ci.scale_denom = 8;
+  // The budget: the scaled output (and its BGR copy for CMYK) is ours, the rest is
+  // libjpeg's, which it enforces itself: a progressive or multi-scan JPEG whose
+  // coefficient arrays do not fit fails with JERR_NO_BACKING_STORE.
+  const uint64_t comps = ci.num_components == 1 ? 1 : ci.num_components == 4 ? 7 : 3;
+  const uint64_t ours = ((uint64_t{ci.image_width} * num + 7) / 8) * ((uint64_t{ci.image_height} * num + 7) / 8) * comps;
+  if (ours >= limits.max_image_bytes) {
+    dec.err.over_budget = true;
+    return false;
+  }
+  ci.mem->max_memory_to_use = static_cast<long>(std::min<uint64_t>(limits.max_image_bytes - ours, LONG_MAX));
   if (ci.jpeg_color_space == JCS_GRAYSCALE)
     ci.out_color_space = JCS_GRAYSCALE;
   else if (ci.jpeg_color_space == JCS_CMYK || ci.jpeg_color_space == JCS_YCCK)
@@ -144,7 +172,10 @@ Decoded decode_jpeg(Bytes b, const DecodeLimits& limits) {
   cv::Mat m;
   unsigned num = 8;
   if (!jpeg_decode_scaled(dec, b, limits, m, num)) {
-    out.defect = dec.err.warning                                ? Defect::decode_warning
+    const int code = dec.err.mgr.msg_code;
+    out.defect = dec.err.over_budget || (!dec.err.warning && (code == JERR_NO_BACKING_STORE || code == JERR_OUT_OF_MEMORY))
+                     ? Defect::over_memory_budget
+                 : dec.err.warning                                ? Defect::decode_warning
                  : unsupported_variant(dec.err.mgr.msg_code) ? Defect::unsupported_variant
                                                                 : Defect::decode_failed;
     return out;
@@ -170,59 +201,14 @@ Decoded decode_jpeg(Bytes b, const DecodeLimits& limits) {
   // copy shifts the other way). Keep only the pixels that stand for whole samples.
   const int exact_w = static_cast<int>(uint64_t{w} * num / 8), exact_h = static_cast<int>(uint64_t{h} * num / 8);
   if (exact_w > 0 && exact_h > 0 && (exact_w < sw || exact_h < sh)) m = m(cv::Rect(0, 0, exact_w, exact_h));
-  out.reduced = reduce(m, limits.reduced_side);
+  out.reduced = reduce(m, limits);
   return out;
 }
 
-// Distinct pixel values (all channels together), counted up to `cap`. Masks and
-// label maps have a handful; photographs have thousands.
 uint8_t count_distinct(const cv::Mat& m, int cap) {
-  const int ch = m.channels();
-  int count = 0;
-  if (ch == 1) {  // a bit per grey level
-    uint64_t seen[4] = {0, 0, 0, 0};
-    for (int y = 0; y < m.rows; ++y) {
-      const uint8_t* p = m.ptr<uint8_t>(y);
-      for (int x = 0; x < m.cols; ++x) {
-        const uint64_t bit = uint64_t{1} << (p[x] & 63);
-        uint64_t& word = seen[p[x] >> 6];
-        if (word & bit) continue;
-        word |= bit;
-        if (++count >= cap) return static_cast<uint8_t>(cap);
-      }
-    }
-    return static_cast<uint8_t>(count);
-  }
-  // Colours: an open-addressing set of 512 slots (cap is at most 255, so a free
-  // slot always remains). Opaque white in BGRA packs to the empty marker, so that
-  // one colour is tracked apart.
-  constexpr uint32_t kEmpty = UINT32_MAX;
-  uint32_t slots[512];
-  std::fill(std::begin(slots), std::end(slots), kEmpty);
-  bool seen_empty_value = false;
-  uint32_t last = kEmpty;
-  bool have_last = false;
-  for (int y = 0; y < m.rows; ++y) {
-    const uint8_t* p = m.ptr<uint8_t>(y);
-    for (int x = 0; x < m.cols; ++x, p += ch) {
-      uint32_t v = 0;
-      for (int c = 0; c < ch; ++c) v = (v << 8) | p[c];
-      if (have_last && v == last) continue;
-      last = v;
-      have_last = true;
-      if (v == kEmpty) {
-        if (seen_empty_value) continue;
-        seen_empty_value = true;
-      } else {
-        uint32_t h = (v * 0x9e3779b1u) >> 23;  // 9 bits
-        while (slots[h] != kEmpty && slots[h] != v) h = (h + 1) & 511;
-        if (slots[h] == v) continue;
-        slots[h] = v;
-      }
-      if (++count >= cap) return static_cast<uint8_t>(cap);
-    }
-  }
-  return static_cast<uint8_t>(count);
+  DistinctCounter count(cap);
+  for (int y = 0; y < m.rows && !count.full(); ++y) count.add(m.ptr<uint8_t>(y), size_t(m.cols), m.channels());
+  return static_cast<uint8_t>(count.count());
 }
 
 // Reads LSB-first variable-width codes from a GIF sub-block chain.
@@ -390,6 +376,57 @@ cv::Mat decode_gif_first_frame(std::span<const uint8_t> b, Defect& defect) {
   return img;
 }
 
+namespace {
+
+// Bytes of one sample as the decoder gives it, and channels of its output.
+uint64_t sample_bytes(const ProbeInfo& p) { return p.bit_depth > 16 ? 4 : p.bit_depth > 8 ? 2 : 1; }
+uint64_t output_channels(const ProbeInfo& p) {
+  switch (p.mode) {
+    case ColorMode::gray: return 1;
+    case ColorMode::rgb: return p.format == Format::png ? 4 : 3;  // OpenCV gives a PNG's tRNS as alpha
+    default: return 4;  // grey+alpha, RGBA, palettes (alpha possible), CMYK, unknown
+  }
+}
+
+// The lock that lets one large decode run at a time (decode_internal.h).
+std::unique_lock<std::mutex> large_decode_turn(uint64_t bytes) {
+  static std::mutex large;
+  if (bytes <= kSharedDecodeBytes) return {};
+  return std::unique_lock<std::mutex>(large);
+}
+
+// The memory of the full decode: the decoder's buffer, one 8-bit copy (the
+// conversion, or the direct PNG path's inflated rows) and the block reduction.
+uint64_t full_decode_bytes(const ProbeInfo& p, const DecodeLimits& limits) {
+  const uint64_t px = uint64_t{p.width} * p.height;
+  const uint64_t ch = p.format == Format::gif ? 3 : output_channels(p);
+  uint64_t bytes = px * ch * sample_bytes(p) + px * ch;
+  if (px > limits.block_above_pixels) {
+    const uint32_t k = box_factor(p.width, p.height, limits.reduced_side);
+    if (k > 1) bytes += BoxReducer::bytes(p.width, p.height, int(ch), k);
+  }
+  return bytes;
+}
+
+bool streams(const ProbeInfo& p, const DecodeLimits& limits) {
+  return p.format == Format::png && uint64_t{p.width} * p.height > limits.block_above_pixels && limits.stream_large_png &&
+         png_streamed_bytes(p, limits.reduced_side) > 0;
+}
+
+}  // namespace
+
+uint64_t decode_memory_estimate(const ProbeInfo& p, const DecodeLimits& limits) {
+  const uint64_t px = uint64_t{p.width} * p.height;
+  if (p.format == Format::jpeg) {  // the scaled output; a progressive JPEG keeps every coefficient (2 bytes; 4:4:4 at most)
+    const uint64_t comps = p.mode == ColorMode::gray ? 1 : p.mode == ColorMode::cmyk ? 4 : 3;
+    const uint64_t num = jpeg_scale_num(p.width, p.height, limits.reduced_side);
+    const uint64_t out = ((uint64_t{p.width} * num + 7) / 8) * ((uint64_t{p.height} * num + 7) / 8) * comps;
+    return out + (p.interlaced ? px * comps * 2 : 0);
+  }
+  if (streams(p, limits)) return png_streamed_bytes(p, limits.reduced_side);
+  return full_decode_bytes(p, limits);
+}
+
 Decoded decode_image(std::span<const uint8_t> b, const ProbeInfo& probe, const DecodeLimits& limits) {
   // OpenCV's decoders would print to stderr for every damaged file; tamis reports them itself.
   static const bool silenced = [] {
@@ -398,15 +435,33 @@ Decoded decode_image(std::span<const uint8_t> b, const ProbeInfo& probe, const D
   }();
   (void)silenced;
   Decoded out;
-  if (uint64_t{probe.width} * probe.height > limits.max_pixels) {
+  const uint64_t pixels = uint64_t{probe.width} * probe.height;
+  if (pixels > limits.max_pixels) {
     out.defect = Defect::too_many_pixels;
     return out;
   }
-  if (probe.format == Format::jpeg) return decode_jpeg(b, limits);
+  if (probe.format == Format::jpeg) {
+    auto turn = large_decode_turn(decode_memory_estimate(probe, limits));
+    return decode_jpeg(b, limits);
+  }
   if (probe.format == Format::webp && probe.frames > 1) {
     out.defect = Defect::no_decoder;  // OpenCV 4.6 reads no animated WebP
     return out;
   }
+  if (streams(probe, limits)) {
+    const uint64_t need = png_streamed_bytes(probe, limits.reduced_side);
+    if (need <= limits.max_image_bytes) {
+      auto turn = large_decode_turn(need);
+      if (decode_png_streamed(b, probe, limits.reduced_side, out)) return out;
+      out = Decoded{};  // declined: libpng decides, within the budget
+    }
+  }
+  const uint64_t need = full_decode_bytes(probe, limits);
+  if (need > limits.max_image_bytes) {
+    out.defect = Defect::over_memory_budget;
+    return out;
+  }
+  auto turn = large_decode_turn(need);
   cv::Mat m;
   if (probe.format == Format::gif) {
     m = decode_gif_first_frame(b, out.defect);
@@ -425,18 +480,20 @@ Decoded decode_image(std::span<const uint8_t> b, const ProbeInfo& probe, const D
   m = to_8bit(m);
   out.distinct = count_distinct(m, 65);
   if (m.channels() == 2 || m.channels() == 4) {  // alpha at full resolution
-    cv::Mat a;
-    cv::extractChannel(m, a, m.channels() - 1);
-    double lo = 255;
-    cv::minMaxLoc(a, &lo);
-    out.alpha_min = static_cast<uint8_t>(lo);
+    const int ch = m.channels();
+    uint8_t lo = 255;
+    for (int y = 0; y < m.rows; ++y) {
+      const uint8_t* p = m.ptr<uint8_t>(y) + ch - 1;
+      for (int x = 0; x < m.cols; ++x, p += ch) lo = std::min(lo, *p);
+    }
+    out.alpha_min = lo;
   }
   if (m.channels() == 2) {  // gray + alpha: keep the gray plane
     cv::Mat g;
     cv::extractChannel(m, g, 0);
     m = g;
   }
-  out.reduced = reduce(m, limits.reduced_side);
+  out.reduced = reduce(m, limits);
   return out;
 }
 

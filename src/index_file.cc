@@ -83,6 +83,7 @@ void save_index(const std::filesystem::path& file, const AuditIndex& x, StagedFi
   j["version"] = kIndexVersion;
   j["root"] = bin(x.settings.root.string());
   j["read"] = {{"max_pixels", x.settings.read.decode.max_pixels},
+               {"max_image_bytes", x.settings.read.decode.max_image_bytes},
                {"reduced_side", x.settings.read.decode.reduced_side},
                {"max_bytes", x.settings.read.max_bytes}};
   j["mask_settings"] = {{"force", bins(x.settings.masks.force)}, {"forbid", bins(x.settings.masks.forbid)}};
@@ -248,6 +249,8 @@ AuditIndex load_index(const std::filesystem::path& file) {
     const json& rd = j.at("read");
     x.settings.read.decode.max_pixels = rd.at("max_pixels").get<uint64_t>();
     x.settings.read.decode.reduced_side = rd.at("reduced_side").get<uint32_t>();
+    if (rd.contains("max_image_bytes"))  // written since the memory budget
+      x.settings.read.decode.max_image_bytes = rd.at("max_image_bytes").get<uint64_t>();
     x.settings.read.max_bytes = rd.at("max_bytes").get<uint64_t>();
     x.settings.groups.radius = j.at("groups_settings").at("radius").get<int>();
     x.settings.groups.match.min_correlation = j.at("groups_settings").at("min_correlation").get<double>();

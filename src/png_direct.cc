@@ -12,6 +12,7 @@
 #include <vector>
 
 #include "byte_reader.h"
+#include "decode_internal.h"
 #include "tamis/decode.h"
 #include "tamis/inflate.h"
 
@@ -102,22 +103,9 @@ bool unfilter(uint8_t type, uint8_t* row, const uint8_t* prev, size_t n, size_t 
   }
 }
 
-}  // namespace
-
-bool decode_png_direct(std::span<const uint8_t> b, const ProbeInfo& probe, cv::Mat& out) {
-  if (probe.format != Format::png || probe.bit_depth != 8 || probe.interlaced) return false;
-  size_t channels = 0;
-  switch (probe.mode) {
-    case ColorMode::gray: channels = 1; break;
-    case ColorMode::rgb: channels = 3; break;
-    case ColorMode::rgba: channels = 4; break;
-    default: return false;
-  }
-  const size_t w = probe.width, h = probe.height;
-  if (w == 0 || h == 0 || w > (1u << 24) / channels || h > (1u << 24)) return false;
-  if (uint64_t{h} * (w * channels + 1) > (uint64_t{1} << 31)) return false;  // huge: libpng (and its limits) decide
-  // The IDAT chunks, which must follow one another; a tRNS chunk would add alpha.
-  std::vector<Bytes> idat;
+// The IDAT chunks, which must follow one another; false when there are none, when
+// they are apart, or when a tRNS chunk (which would add alpha) is present.
+bool idat_parts(Bytes b, std::vector<Bytes>& idat) {
   bool idat_done = false;
   for (size_t off = 8;;) {
     auto len = be32(b, off);
@@ -133,9 +121,143 @@ bool decode_png_direct(std::span<const uint8_t> b, const ProbeInfo& probe, cv::M
     }
     off += 12 + size_t{*len};
   }
-  if (idat.empty()) return false;
+  return !idat.empty();
+}
+
+// A zlib stream of its own for one streamed image (its 32 KB window freed after).
+struct ZStream {
+  z_stream z{};
+  bool ok = false;
+  ZStream() { ok = inflateInit(&z) == Z_OK; }
+  ~ZStream() {
+    if (ok) inflateEnd(&z);
+  }
+  ZStream(const ZStream&) = delete;
+  ZStream& operator=(const ZStream&) = delete;
+};
+
+// Pulls exactly `n` bytes of the zlib stream held in `parts` into `out`,
+// advancing through the parts. False when the data ends, is damaged, or the
+// stream ends early.
+bool pull(ZStream& zs, const std::vector<Bytes>& parts, size_t& part, uint8_t* out, size_t n, bool& ended) {
+  z_stream& z = zs.z;
+  z.next_out = out;
+  z.avail_out = static_cast<uInt>(n);
+  while (z.avail_out > 0) {
+    if (ended) return false;
+    if (z.avail_in == 0) {
+      if (part >= parts.size()) return false;
+      z.next_in = const_cast<Bytef*>(parts[part].data());
+      z.avail_in = static_cast<uInt>(parts[part].size());
+      ++part;
+    }
+    const uInt in_before = z.avail_in, out_before = z.avail_out;
+    const int rc = inflate(&z, Z_NO_FLUSH);
+    if (rc == Z_STREAM_END) {
+      ended = true;
+      continue;  // fails above unless this was the last byte wanted
+    }
+    if (rc != Z_OK && rc != Z_BUF_ERROR) return false;
+    if (z.avail_in == in_before && z.avail_out == out_before) return false;
+  }
+  return true;
+}
+
+}  // namespace
+
+uint64_t detail::png_streamed_bytes(const ProbeInfo& p, uint32_t side) {
+  if (p.format != Format::png || p.interlaced || (p.bit_depth != 8 && p.bit_depth != 16)) return 0;
+  uint64_t in_ch = 0;
+  switch (p.mode) {
+    case ColorMode::gray: in_ch = 1; break;
+    case ColorMode::graya: in_ch = 2; break;
+    case ColorMode::rgb: in_ch = 3; break;
+    case ColorMode::rgba: in_ch = 4; break;
+    default: return 0;
+  }
+  const uint64_t w = p.width, h = p.height, out_ch = in_ch == 1 ? 1 : in_ch == 3 ? 3 : 4;
+  if (w == 0 || h == 0 || w * in_ch * (p.bit_depth / 8) + 1 > UINT32_MAX) return 0;
+  const uint64_t stride = w * in_ch * (p.bit_depth / 8);
+  const uint32_t k = box_factor(w, h, side);
+  return 2 * (stride + 1) + w * out_ch + BoxReducer::bytes(w, h, int(out_ch), k) + (64 << 10);
+}
+
+bool detail::decode_png_streamed(std::span<const uint8_t> b, const ProbeInfo& probe, uint32_t side, Decoded& out) {
+  if (png_streamed_bytes(probe, side) == 0) return false;
+  std::vector<Bytes> idat;
+  if (!idat_parts(b, idat)) return false;
+  const int in_ch = probe.mode == ColorMode::gray ? 1 : probe.mode == ColorMode::graya ? 2 : probe.mode == ColorMode::rgb ? 3 : 4;
+  const int out_ch = in_ch == 1 ? 1 : in_ch == 3 ? 3 : 4;
+  const size_t bps = probe.bit_depth / 8, w = probe.width, h = probe.height;
+  const size_t stride = w * size_t(in_ch) * bps;
+  ZStream zs;
+  if (!zs.ok) return false;
+  std::vector<uint8_t> cur(stride + 1), prev(stride, 0), row8(w * size_t(out_ch));
+  DistinctCounter distinct(65);
+  uint8_t alpha_min = 255;
+  BoxReducer box(probe.width, probe.height, out_ch, box_factor(w, h, side));
+  size_t part = 0;
+  bool ended = false;
+  for (size_t y = 0; y < h; ++y) {
+    if (!pull(zs, idat, part, cur.data(), stride + 1, ended)) return false;
+    if (!unfilter(cur[0], cur.data() + 1, y > 0 ? prev.data() : nullptr, stride, size_t(in_ch) * bps)) return false;
+    const uint8_t* s = cur.data() + 1;
+    uint8_t* d = row8.data();
+    // A sample at 8 bits: 16-bit samples (big-endian) as OpenCV's convertTo(1/257) rounds them.
+    auto at = [&](size_t i) -> uint8_t {
+      return bps == 1 ? s[i] : static_cast<uint8_t>((((unsigned{s[2 * i]} << 8) | s[2 * i + 1]) + 128) / 257);
+    };
+    for (size_t x = 0; x < w; ++x, d += out_ch) {
+      const size_t i = x * size_t(in_ch);
+      switch (in_ch) {
+        case 1: d[0] = at(i); break;
+        case 2: d[0] = d[1] = d[2] = at(i), d[3] = at(i + 1); break;
+        case 3: d[0] = at(i + 2), d[1] = at(i + 1), d[2] = at(i); break;
+        default: d[0] = at(i + 2), d[1] = at(i + 1), d[2] = at(i), d[3] = at(i + 3); break;
+      }
+    }
+    if (!distinct.full()) distinct.add(row8.data(), w, out_ch);
+    if (out_ch == 4)
+      for (size_t x = 0; x < w; ++x) alpha_min = std::min(alpha_min, row8[x * 4 + 3]);
+    box.add_row(row8.data());
+    std::memcpy(prev.data(), cur.data() + 1, stride);
+  }
+  // The stream must end here, with its checksum right, and hold nothing more.
+  uint8_t extra = 0;
+  if (!ended) {
+    if (pull(zs, idat, part, &extra, 1, ended) || !ended) return false;
+    if (zs.z.avail_out != 1) return false;
+  }
+  if (zs.z.avail_in != 0 || part != idat.size()) return false;
+  out.defect = Defect::none;
+  out.reduced = area_reduce(box.take(), side);
+  out.alpha_min = alpha_min;
+  out.distinct = static_cast<uint8_t>(distinct.count());
+  return true;
+}
+
+bool decode_png_direct(std::span<const uint8_t> b, const ProbeInfo& probe, cv::Mat& out) {
+  if (probe.format != Format::png || probe.bit_depth != 8 || probe.interlaced) return false;
+  size_t channels = 0;
+  switch (probe.mode) {
+    case ColorMode::gray: channels = 1; break;
+    case ColorMode::rgb: channels = 3; break;
+    case ColorMode::rgba: channels = 4; break;
+    default: return false;
+  }
+  const size_t w = probe.width, h = probe.height;
+  if (w == 0 || h == 0 || w > (1u << 24) / channels || h > (1u << 24)) return false;
+  if (uint64_t{h} * (w * channels + 1) > (uint64_t{1} << 31)) return false;  // huge: libpng (and its limits) decide
+  std::vector<Bytes> idat;
+  if (!idat_parts(b, idat)) return false;
   const size_t stride = w * channels;
   thread_local std::vector<uint8_t> raw;
+  struct Release {  // a large image's rows are not kept for the thread's lifetime
+    std::vector<uint8_t>& v;
+    ~Release() {
+      if (v.capacity() > (size_t{8} << 20)) std::vector<uint8_t>().swap(v);
+    }
+  } release{raw};
   raw.resize(h * (stride + 1));
   thread_local Inflater inflater;
   if (!inflater.inflate_exact(idat, raw.data(), raw.size())) return false;

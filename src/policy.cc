@@ -12,7 +12,7 @@ using nlohmann::json;
 const std::map<std::string, Severity>& finding_catalogue() {
   static const std::map<std::string, Severity> c{
       {"unreadable", Severity::error},          {"too-many-unreadable", Severity::error},
-      {"undecodable-variant", Severity::warning},
+      {"undecodable-variant", Severity::warning}, {"over-memory-budget", Severity::warning},
       {"no-label", Severity::warning},          {"link-not-followed", Severity::info},
       {"special-file", Severity::info},
       {"folder-unreadable", Severity::warning}, {"byte-identical", Severity::warning},

@@ -60,6 +60,7 @@ std::string_view defect_code(Defect d) {
     case Defect::decode_warning: return "corrupt-data";
     case Defect::no_decoder: return "no-decoder";
     case Defect::unsupported_variant: return "unsupported-variant";
+    case Defect::over_memory_budget: return "over-memory-budget";
   }
   return "none";
 }
@@ -82,6 +83,8 @@ std::string_view defect_message(Defect d) {
     case Defect::no_decoder: return "an image format this build cannot decode";
     case Defect::unsupported_variant:
       return "a variant of the format that this build's decoder does not implement (for example 12-bit or lossless JPEG)";
+    case Defect::over_memory_budget:
+      return "decoding it would take more memory than one image may use (--image-memory-mb raises the budget)";
   }
   return "";
 }

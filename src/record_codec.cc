@@ -38,7 +38,7 @@ FileRecord record_from_json(const json& e) {
   r.mtime_ns = e[2].get<int64_t>();
   r.inode = e[3].get<uint64_t>();
   r.kind = enum_at<FileKind>(e[4], int(FileKind::ignored));
-  r.defect = enum_at<Defect>(e[5], int(Defect::unsupported_variant));
+  r.defect = enum_at<Defect>(e[5], int(kLastDefect));
   r.probe.format = enum_at<Format>(e[6], int(Format::pnm));
   r.probe.mode = enum_at<ColorMode>(e[7], int(ColorMode::cmyk));
   r.probe.bit_depth = e[8].get<uint8_t>();
@@ -110,7 +110,7 @@ bool record_from_bytes(std::span<const uint8_t> bytes, FileRecord& r) {
   const uint8_t flags = b[5];
   const bool look = flags & 16;
   if (flags >> 6 || bytes.size() != (look ? kRecordBytesLookalike : kRecordBytesHead)) return false;
-  if (b[0] > uint8_t(FileKind::ignored) || b[1] > uint8_t(Defect::unsupported_variant) || b[2] > uint8_t(Format::pnm) ||
+  if (b[0] > uint8_t(FileKind::ignored) || b[1] > uint8_t(kLastDefect) || b[2] > uint8_t(Format::pnm) ||
       b[3] > uint8_t(ColorMode::cmyk))
     return false;
   r.kind = static_cast<FileKind>(b[0]);

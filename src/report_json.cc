@@ -22,6 +22,7 @@ json settings_json(const AuditSettings& s) {
       {"folds", s.split.folds},
       {"resplit", s.split.resplit},
       {"max_pixels", s.read.decode.max_pixels},
+      {"max_image_bytes", s.read.decode.max_image_bytes},
       {"max_bytes", s.read.max_bytes},
       {"reduced_side", s.read.decode.reduced_side},
       {"lookalike_radius", s.groups.radius},

@@ -179,7 +179,7 @@ TEST_CASE("cache: the record bytes round-trip and every malformed row is refused
     longer.push_back(0);
     CHECK_FALSE(detail::record_from_bytes(longer, back));
     // Each enum one past its last value, and an unknown flag bit: refused.
-    const std::pair<size_t, uint8_t> bad[] = {{0, uint8_t(FileKind::ignored) + 1}, {1, uint8_t(Defect::unsupported_variant) + 1},
+    const std::pair<size_t, uint8_t> bad[] = {{0, uint8_t(FileKind::ignored) + 1}, {1, uint8_t(kLastDefect) + 1},
                                               {2, uint8_t(Format::pnm) + 1},      {3, uint8_t(ColorMode::cmyk) + 1},
                                               {5, uint8_t(bytes[5] | 64)}};
     for (auto [at, value] : bad) {

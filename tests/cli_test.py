@@ -442,6 +442,61 @@ class Outputs(unittest.TestCase):
             self.assertNotIn("imdecode", r.stderr)
             self.assertNotIn("libpng", r.stderr)
 
+    def test_one_large_image_stays_within_its_memory_budget(self):
+        # A 9000 x 9000 RGBA PNG (ISO/IEC 15948, written here with Python's zlib)
+        # needs 648 MB decoded in full (pixels and one copy); decoded a row at a
+        # time it fits in far less: the whole audit's peak resident memory (the
+        # child's own, from wait4) stays under 200 MB. A 3000 x 3000 palette PNG
+        # (Pillow) must be decoded in full (libpng): under --image-memory-mb 16 it
+        # is reported (reason and finding over-memory-budget, a warning) and left
+        # out, not read; under the default budget it is read.
+        import struct
+        import zlib
+        from PIL import Image
+        def chunk(kind, data):
+            return struct.pack(">I", len(data)) + kind + data + struct.pack(">I", zlib.crc32(kind + data) & 0xFFFFFFFF)
+        w = h = 9000
+        co = zlib.compressobj(1)
+        rows = [b"\0" + bytes([(x * 7 + y * 13) % 256 for x in range(60)]) * (w * 4 // 60) for y in range(16)]
+        data = b"".join(co.compress(rows[(y // 250) % 16]) for y in range(h)) + co.flush()
+        with tempfile.TemporaryDirectory() as t:
+            root = os.path.join(t, "data")
+            for c in ("a", "b"):
+                os.makedirs(os.path.join(root, c))
+            with open(os.path.join(root, "a", "large.png"), "wb") as f:
+                f.write(b"\x89PNG\r\n\x1a\n" + chunk(b"IHDR", struct.pack(">IIBBBBB", w, h, 8, 6, 0, 0, 0)) +
+                        chunk(b"IDAT", data) + chunk(b"IEND", b""))
+            pal = Image.new("P", (3000, 3000), 3)
+            pal.putpalette([v for i in range(256) for v in (i, 255 - i, (i * 5) % 256)])
+            pal.save(os.path.join(root, "b", "palette.png"))
+            out = os.path.join(t, "out")
+            child = subprocess.Popen([TAMIS, "audit", root, "--out", out, "--no-cache", "--quiet", "--threads", "2"],
+                                     stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+            _, status, usage = os.wait4(child.pid, 0)
+            child.returncode = os.waitstatus_to_exitcode(status)
+            self.assertEqual(child.returncode, 0, child.stderr.read())
+            if "ASAN_OPTIONS" not in os.environ:  # AddressSanitizer's shadow and quarantine are not tamis's
+                self.assertLess(usage.ru_maxrss * 1024, 200 << 20)
+            with open(os.path.join(out, "manifest.csv"), encoding="utf-8", newline="") as f:
+                rows = {row["path"]: row for row in csv.DictReader(f)}
+            self.assertEqual((rows["a/large.png"]["reason"], rows["a/large.png"]["width"]), ("", "9000"))
+            self.assertEqual(rows["b/palette.png"]["reason"], "")
+            out2 = os.path.join(t, "out2")
+            r = run("audit", root, "--out", out2, "--no-cache", "--image-memory-mb", "16", "--format", "json",
+                    timeout=120)
+            self.assertEqual(r.returncode, 0, r.stderr)
+            with open(os.path.join(out2, "manifest.csv"), encoding="utf-8", newline="") as f:
+                rows = {row["path"]: row for row in csv.DictReader(f)}
+            self.assertEqual(rows["a/large.png"]["reason"], "")
+            self.assertEqual(rows["b/palette.png"]["reason"], "over-memory-budget")
+            report = load_json(os.path.join(out2, "report.json"))
+            found = [f for f in report["findings"] if f["code"] == "over-memory-budget"]
+            self.assertEqual(len(found), 1)
+            self.assertEqual((found[0]["severity"], found[0]["paths"]), ("warning", ["b/palette.png"]))
+            self.assertEqual(report["settings"]["max_image_bytes"], 16 << 20)
+            validate_report(self, os.path.join(out2, "report.json"))
+            self.assertEqual(run("audit", root, "--out", out2, "--image-memory-mb", "8").returncode, 2)
+
     def test_output_sets_stay_whole_under_faults_and_kills(self):
         # Fault injection (TAMIS_FAULT, atomic_file.cc) at every step of writing
         # the outputs: each temporary's write, its fsync, the removal of the old

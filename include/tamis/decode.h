@@ -9,9 +9,26 @@
 // libpng's pixels and leaves every other PNG to libpng. Other formats go through
 // OpenCV's imdecode at full size and are then reduced with area averaging.
 //
-// The pixel limit is checked from the probed header before any decoding.
+// Reduction: an image of more than 2^24 pixels (block_above_pixels) is first reduced by whole k x k
+// blocks (integer means; k the largest that keeps the shorter side at 2 *
+// reduced_side or more; the last partial blocks left out), then every image is
+// area-resized (OpenCV INTER_AREA) to a shorter side of reduced_side unless it is
+// already at most twice that. Every decoder path applies the same rule.
+//
+// Memory (docs/decoding.md): the pixel limit is checked from the probed header
+// before any decoding, then the memory budget `max_image_bytes`. Large PNGs (8
+// or 16 bits, grey, grey+alpha, RGB or RGBA, not interlaced) are decoded a row
+// at a time into the block reduction, so they need a few rows and the reduced
+// image whatever their size; JPEGs are decoded at a reduced DCT scale, and
+// libjpeg holds its own arrays (a progressive JPEG's coefficients) to the
+// budget; every other file is decoded in full, and refused (over_memory_budget)
+// when its estimate is over the budget. Decodes estimated above 64 MB run one at
+// a time in the process, so the threads together hold at most one budget plus
+// 64 MB a thread.
+//
 // The result is 8 bits per sample, 1 (gray), 3 (BGR) or 4 (BGRA) channels.
-// Pure function of its inputs; thread-safe (no shared state but a zlib stream a thread).
+// Pure function of its inputs (the one-at-a-time lock changes no result);
+// thread-safe (no shared state but a zlib stream and a row buffer a thread).
 #pragma once
 
 #include <cstdint>
@@ -23,10 +40,28 @@
 
 namespace tamis {
 
+// Bumped whenever decoding gives other pixels for some file (the reduction
+// rule, a decoder path); the cache's settings key carries it, so records decoded
+// by older rules are never reused. 2: block reduction above 2^24 pixels.
+inline constexpr int kDecodeRules = 2;
+
 struct DecodeLimits {
-  uint64_t max_pixels = 200'000'000;  // width * height claimed by the header
-  uint32_t reduced_side = 128;        // shorter side wanted in the reduced image
+  uint64_t max_pixels = 200'000'000;        // width * height claimed by the header (--max-pixels)
+  uint64_t max_image_bytes = uint64_t{1} << 30;  // memory one image's decode may hold (--image-memory-mb)
+  uint32_t reduced_side = 128;              // shorter side wanted in the reduced image
+  // Not user settings: the tests and the fuzzer lower the first to reach the
+  // large-image paths with small files, and turn the second off to compare the
+  // streamed PNG path with libpng's.
+  uint64_t block_above_pixels = uint64_t{1} << 24;  // block reduction (and PNG streaming) above this
+  bool stream_large_png = true;
 };
+
+// The memory decode_image holds for a file with this header, besides the file's
+// bytes: pixel buffers and the reductions (JPEG: the scaled output, and a
+// progressive file's coefficients at 4:4:4, an upper bound). An estimate that
+// errs high; decode_image refuses a file whose estimate is over the budget,
+// and libjpeg holds a JPEG to the budget itself.
+uint64_t decode_memory_estimate(const ProbeInfo& probe, const DecodeLimits& limits);
 
 struct Decoded {
   Defect defect = Defect::none;

@@ -46,7 +46,9 @@ enum class Defect : uint8_t {
   decode_warning,     // the decoder reported corrupt data (it would fill with grey)
   no_decoder,         // a format this build cannot decode
   unsupported_variant,  // a valid file of a variant the decoder does not implement (12-bit, lossless JPEG)
+  over_memory_budget,   // decoding it would take more memory than the configured budget
 };
+inline constexpr Defect kLastDefect = Defect::over_memory_budget;
 
 // A file that is no damaged file but one this build cannot decode (no_decoder,
 // unsupported_variant): reported as a warning, not as an unreadable error.

@@ -57,6 +57,8 @@ struct CommonOptions {
   bool progress = false;
   bool no_progress = false;
   bool timings = false;
+  uint64_t max_pixels = tamis::DecodeLimits{}.max_pixels;
+  uint64_t image_memory_mb = tamis::DecodeLimits{}.max_image_bytes >> 20;
 };
 
 void add_reading_options(CLI::App* cmd, CommonOptions& o) {
@@ -69,6 +71,11 @@ void add_reading_options(CLI::App* cmd, CommonOptions& o) {
   cmd->add_flag("--progress", o.progress, "show a progress line on stderr even when it is not a terminal");
   cmd->add_flag("--no-progress", o.no_progress, "never show a progress line");
   cmd->add_flag("--timings", o.timings, "print each stage's wall time on stderr when done");
+  cmd->add_option("--max-pixels", o.max_pixels, "refuse images whose header claims more pixels (default 200000000)")
+      ->check(CLI::Range(uint64_t{1}, uint64_t{1} << 40));
+  cmd->add_option("--image-memory-mb", o.image_memory_mb,
+                  "memory one image's decode may hold, in MB (default 1024); larger images are reported, not read")
+      ->check(CLI::Range(uint64_t{16}, uint64_t{1} << 24));
 }
 
 // Options of the judging stages, shared by `audit` and `split`.
@@ -295,6 +302,8 @@ int run_audit_command(const std::string& root, const std::string& out, const Spl
   settings.masks.force = o.mask_folders;
   settings.masks.forbid = o.not_mask_folders;
   settings.read.threads = o.threads;
+  settings.read.decode.max_pixels = o.max_pixels;
+  settings.read.decode.max_image_bytes = o.image_memory_mb << 20;
   // Early, before a long read: the output layer checks again when it writes.
   try {
     tamis::refuse_inside_root(root, out, "--out");
