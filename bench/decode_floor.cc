@@ -14,7 +14,7 @@
 #include <string>
 #include <vector>
 
-#include "tamis/parallel.h"
+#include "tamis/base/parallel.h"
 
 int main(int argc, char** argv) {
   if (argc < 3) return 2;

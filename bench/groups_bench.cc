@@ -7,11 +7,11 @@
 #include <cstdio>
 #include <cstdlib>
 
-#include "tamis/cache.h"
-#include "tamis/groups.h"
-#include "tamis/lookalike_index.h"
-#include "tamis/read_stage.h"
-#include "tamis/walk.h"
+#include "tamis/read/cache.h"
+#include "tamis/relate/groups.h"
+#include "tamis/relate/lookalike_index.h"
+#include "tamis/read/read_stage.h"
+#include "tamis/read/walk.h"
 
 using namespace tamis;
 using Clock = std::chrono::steady_clock;

@@ -21,11 +21,11 @@
 #include "support/photos.h"
 #include "support/planted.h"
 #include "support/temp_tree.h"
-#include "tamis/decode.h"
-#include "tamis/features.h"
-#include "tamis/lookalike_index.h"
-#include "tamis/groups.h"
-#include "tamis/probe.h"
+#include "tamis/read/decode/decode.h"
+#include "tamis/read/features.h"
+#include "tamis/relate/lookalike_index.h"
+#include "tamis/relate/groups.h"
+#include "tamis/read/probe.h"
 
 using namespace tamis;
 

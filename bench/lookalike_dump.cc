@@ -19,7 +19,7 @@
 #include "support/photos.h"
 #include "support/planted.h"
 #include "support/temp_tree.h"
-#include "tamis/lookalike_index.h"
+#include "tamis/relate/lookalike_index.h"
 
 using namespace tamis;
 

@@ -23,9 +23,9 @@
 #include "support/photos.h"
 #include "support/planted.h"
 #include "support/temp_tree.h"
-#include "tamis/groups.h"
-#include "tamis/lookalike_index.h"
-#include "tamis/match.h"
+#include "tamis/relate/groups.h"
+#include "tamis/relate/lookalike_index.h"
+#include "tamis/relate/match.h"
 
 using namespace tamis;
 

@@ -10,10 +10,10 @@
 #include <cstdlib>
 #include <filesystem>
 
-#include "tamis/audit.h"
-#include "tamis/features.h"
-#include "tamis/outputs.h"
-#include "tamis/random.h"
+#include "tamis/pipeline/audit.h"
+#include "tamis/read/features.h"
+#include "tamis/report/outputs.h"
+#include "tamis/base/random.h"
 
 using namespace tamis;
 using Clock = std::chrono::steady_clock;

@@ -16,13 +16,13 @@
 #include <nlohmann/json.hpp>
 
 #include "progress.h"
-#include "tamis/audit.h"
-#include "tamis/cache.h"
-#include "tamis/demo.h"
-#include "tamis/index_file.h"
-#include "tamis/manifest.h"
-#include "tamis/atomic_file.h"
-#include "tamis/outputs.h"
+#include "tamis/pipeline/audit.h"
+#include "tamis/read/cache.h"
+#include "tamis/demo/demo.h"
+#include "tamis/report/index_file.h"
+#include "tamis/place/manifest_reader.h"
+#include "tamis/base/atomic_file.h"
+#include "tamis/report/outputs.h"
 #include "tamis/version.h"
 
 namespace {

@@ -8,8 +8,8 @@
 #include <cstdlib>
 #include <span>
 
-#include "tamis/decode.h"
-#include "tamis/probe.h"
+#include "tamis/read/decode/decode.h"
+#include "tamis/read/probe.h"
 
 extern "C" int LLVMFuzzerTestOneInput(const uint8_t* data, size_t size) {
   const std::span<const uint8_t> bytes(data, size);

@@ -2,7 +2,7 @@
 #include <cstdint>
 #include <span>
 
-#include "tamis/exif.h"
+#include "tamis/read/exif.h"
 
 extern "C" int LLVMFuzzerTestOneInput(const uint8_t* data, size_t size) {
   (void)tamis::read_exif(std::span<const uint8_t>(data, size));

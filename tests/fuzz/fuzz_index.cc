@@ -4,7 +4,7 @@
 #include <stdexcept>
 
 #include "fuzz_support.h"
-#include "tamis/index_file.h"
+#include "tamis/report/index_file.h"
 
 extern "C" int LLVMFuzzerTestOneInput(const uint8_t* data, size_t size) {
   tamis::fuzz::InputFile f(data, size);

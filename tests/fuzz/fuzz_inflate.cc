@@ -9,7 +9,7 @@
 #include <span>
 #include <vector>
 
-#include "tamis/inflate.h"
+#include "tamis/read/decode/inflate.h"
 
 extern "C" int LLVMFuzzerTestOneInput(const uint8_t* data, size_t size) {
   if (size < 2) return 0;

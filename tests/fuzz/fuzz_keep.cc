@@ -5,7 +5,7 @@
 #include <stdexcept>
 #include <string>
 
-#include "tamis/manifest.h"
+#include "tamis/place/manifest_reader.h"
 
 extern "C" int LLVMFuzzerTestOneInput(const uint8_t* data, size_t size) {
   const std::string text(reinterpret_cast<const char*>(data), size);

@@ -4,7 +4,7 @@
 #include <stdexcept>
 #include <string>
 
-#include "tamis/policy.h"
+#include "tamis/place/policy.h"
 
 extern "C" int LLVMFuzzerTestOneInput(const uint8_t* data, size_t size) {
   try {

@@ -5,7 +5,7 @@
 #include <cstdlib>
 #include <span>
 
-#include "tamis/probe.h"
+#include "tamis/read/probe.h"
 
 extern "C" int LLVMFuzzerTestOneInput(const uint8_t* data, size_t size) {
   const tamis::ProbeOutcome o = tamis::probe_bytes(std::span<const uint8_t>(data, size));

@@ -6,7 +6,7 @@
 #include <span>
 #include <vector>
 
-#include "record_codec.h"
+#include "tamis/model/record_codec.h"
 
 extern "C" int LLVMFuzzerTestOneInput(const uint8_t* data, size_t size) {
   tamis::FileRecord r;

@@ -7,7 +7,7 @@
 
 #include <opencv2/imgcodecs.hpp>
 
-#include "tamis/parallel.h"
+#include "tamis/base/parallel.h"
 #include "temp_tree.h"
 
 namespace tamis::test {

@@ -7,12 +7,12 @@
 #include <opencv2/imgcodecs.hpp>
 #include <opencv2/imgproc.hpp>
 
-#include "tamis/decode.h"
-#include "tamis/features.h"
-#include "tamis/lookalike_index.h"
-#include "tamis/match.h"
-#include "tamis/probe.h"
-#include "tamis/random.h"
+#include "tamis/read/decode/decode.h"
+#include "tamis/read/features.h"
+#include "tamis/relate/lookalike_index.h"
+#include "tamis/relate/match.h"
+#include "tamis/read/probe.h"
+#include "tamis/base/random.h"
 #include "support/photos.h"
 
 namespace tamis::test {

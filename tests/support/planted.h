@@ -17,8 +17,8 @@
 
 #include <opencv2/core.hpp>
 
-#include "tamis/groups.h"
-#include "tamis/record.h"
+#include "tamis/relate/groups.h"
+#include "tamis/model/record.h"
 
 namespace tamis::test {
 

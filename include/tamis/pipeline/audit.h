@@ -1,0 +1,129 @@
+// The audit pipeline: the stages in order, from ROOT to the data every report renders.
+//
+//   walk -> read (probe, decode, features) -> labels -> groups -> checks -> split
+//
+// run_audit() only wires the stages; each lives in its own header with its own
+// contract. It never writes anything (the reports do, into the output folder),
+// and its result depends only on the tree's contents and the settings, never on
+// the thread count or the file system's listing order.
+#pragma once
+
+#include <chrono>
+#include <cstdint>
+#include <filesystem>
+#include <functional>
+#include <string>
+#include <unordered_map>
+#include <vector>
+
+#include "tamis/place/checks.h"
+#include "tamis/model/findings.h"
+#include "tamis/place/baseline.h"
+#include "tamis/relate/groups.h"
+#include "tamis/place/policy.h"
+#include "tamis/relate/labels.h"
+#include "tamis/relate/masks.h"
+#include "tamis/read/read_stage.h"
+#include "tamis/model/record.h"
+#include "tamis/place/split.h"
+#include "tamis/read/walk.h"
+
+namespace tamis {
+
+struct AuditSettings {
+  std::filesystem::path root;
+  ReadOptions read;
+  GroupSettings groups;
+  CheckSettings checks;   // from the policy's thresholds
+  MaskSettings masks;
+  SplitSettings split;
+  std::filesystem::path cache_file;  // record cache (cache.h); empty: none
+};
+
+// Wall time of each stage, in the order the stages ran (for --timings and the
+// benchmarks; never in a report, since it is not deterministic).
+struct StageTime {
+  std::string stage;
+  double seconds = 0;
+  bool overlapped = false;  // part of a stage whose pieces ran at once: shown, not added up
+};
+
+// Appends the wall time since the previous lap (or since construction) to
+// `times` under `stage`; records nothing when `times` is null.
+class StageClock {
+ public:
+  explicit StageClock(std::vector<StageTime>* times) : times_(times), last_(std::chrono::steady_clock::now()) {}
+  void lap(const char* stage) {
+    const auto now = std::chrono::steady_clock::now();
+    if (times_) times_->push_back({stage, std::chrono::duration<double>(now - last_).count()});
+    last_ = now;
+  }
+
+ private:
+  std::vector<StageTime>* times_;
+  std::chrono::steady_clock::time_point last_;
+};
+
+struct Totals {
+  uint64_t files_seen = 0, images = 0, masks = 0, unreadable = 0, ignored = 0;
+};
+
+// Everything an audit knows before the split: what `tamis split` reloads from the
+// index an audit saves (index_file.h), so a re-split never reads an image.
+struct AuditIndex {
+  AuditSettings settings;           // root, read and group settings of the reading run
+  WalkResult walk;                  // walk.files is released once read; links and dirs kept
+  std::vector<FileRecord> records;  // sorted by path, one per regular file
+  // Thumbnails at hand after read_tree: every image's when the groups were made
+  // afresh; those of group members and mask pairs (what the reports show) when
+  // they came from the cache or the saved index.
+  ThumbnailTable thumbs;
+  MaskPairing masks;                // which records are masks, and whose
+  Labelling labels;
+  GroupResult groups;               // groups.group_of: per record, index into groups.groups or -1
+  Totals totals;
+  ReadCounts counts;                // how the records were obtained (not saved, not reported)
+  std::string cache_note;           // why the cache was not used or was rebuilt, if it was
+  std::vector<StageTime> times;     // not saved, not reported
+};
+
+// What place() needs beyond the index: the split, the policy (its thresholds
+// replace the check settings), earlier placements, a baseline.
+struct PlaceOptions {
+  SplitSettings split;
+  Policy policy;
+  const KeepMap* keep = nullptr;          // earlier placements to keep
+  const Baseline* baseline = nullptr;     // an earlier report to compare with
+};
+
+// An index placed and judged: checks, split, policy, baseline.
+struct AuditResult : AuditIndex {
+  SplitOutcome split;               // per record (excluded for non-rows)
+  std::vector<Finding> findings;    // every finding, policy applied, sorted
+  std::vector<bool> known;          // per finding: also in the baseline (same code and paths)
+  BaselineDiff baseline;            // filled when a baseline was given
+  bool fail_on_new_only = false;
+};
+
+// walk -> read -> masks -> labels -> groups. Throws std::runtime_error when ROOT cannot be read.
+AuditIndex read_tree(const AuditSettings& settings);
+
+// checks -> split -> policy -> baseline, on an index (fresh, or loaded by `tamis
+// split`). A pre-split tree keeps its folders' splits unless split.resplit.
+AuditResult place(AuditIndex index, const PlaceOptions& options);
+// The same with only split settings and the default policy.
+AuditResult place(AuditIndex index, const SplitSettings& split, const KeepMap* keep = nullptr);
+
+// read_tree then place with the settings' split and checks and the default severities.
+AuditResult run_audit(const AuditSettings& settings);
+
+// Manifest rows are the records that are images or unreadable image files.
+inline bool is_manifest_row(const FileRecord& r) {
+  return r.kind == FileKind::image || r.kind == FileKind::unreadable;
+}
+
+// 1 when any finding has error severity (and, with fail_on "new", is not known
+// from the baseline), else 0: the documented exit status.
+int policy_exit_status(const AuditResult& result);
+
+}  // namespace tamis

@@ -1,0 +1,51 @@
+// The policy: which findings break a run, and the thresholds the checks use.
+//
+// A policy file is JSON (docs/policy.md):
+//   { "severity":   { "<finding code>": "error" | "warning" | "info" | "off", ... },
+//     "thresholds": { "min_side": 32, "input_side": 224, "min_class": 10,
+//                     "max_imbalance": 10, "outlier_z": 3.5, "max_unreadable_share": 1 },
+//     "fail_on":    "all" | "new" }
+// Every key is optional; unknown keys, unknown codes and values of the wrong type
+// are errors (PolicyError names the key), so a typo never silently passes a build.
+// "fail_on": "new" makes only findings absent from the --baseline report fail.
+#pragma once
+
+#include <filesystem>
+#include <map>
+#include <optional>
+#include <stdexcept>
+#include <string>
+
+#include "tamis/place/checks.h"
+#include "tamis/model/findings.h"
+#include "tamis/relate/groups.h"
+
+namespace tamis {
+
+class PolicyError : public std::runtime_error {
+ public:
+  using std::runtime_error::runtime_error;
+};
+
+struct Policy {
+  std::map<std::string, std::optional<Severity>> severity;  // nullopt: "off" (finding dropped)
+  CheckSettings thresholds;
+  double max_unreadable_share = 1.0;  // above this share of unreadable image files: too-many-unreadable (error)
+  bool fail_on_new_only = false;
+  GroupSettings lookalike;  // "lookalike": radius, min_correlation, max_local, max_chroma, fit_floor (groups.h, match.h)
+};
+
+// The documented default policy (docs/policy.md): the checks' own severities.
+Policy default_policy();
+
+// Reads and validates a policy file; throws PolicyError naming the bad key.
+Policy load_policy(const std::filesystem::path& file);
+Policy parse_policy(const std::string& text);
+
+// Every finding code tamis can raise, with its default severity.
+const std::map<std::string, Severity>& finding_catalogue();
+
+// Applies severities (dropping "off" codes) and adds `too-many-unreadable`.
+void apply_policy(const Policy& policy, uint64_t unreadable, uint64_t image_files, std::vector<Finding>& findings);
+
+}  // namespace tamis

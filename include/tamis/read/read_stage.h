@@ -1,0 +1,67 @@
+// The read stage: from the walk's entries to filled FileRecords.
+//
+// For each file, in parallel: decide whether it is a candidate image (hidden
+// files, and files with neither an image signature nor an image extension, are
+// `ignored`); read its bytes once; probe the header; decode it (within the
+// limits); compute the content features from the same bytes and pixels.
+// Anything that fails makes the file `unreadable` with a Defect; nothing here
+// throws for a bad file. Files are opened read-only and never followed through
+// a symbolic link. An entry the walk did not stat (stamped = false) gets its
+// size, time and inode from the open descriptor.
+//
+// With a cache, a file whose path, size, modification time and inode match a
+// stored record is not opened; one whose bytes hash to a stored record is not
+// decoded. Output record i belongs to input entry i, whatever the thread count;
+// the result is identical for any `threads` and with or without the cache. The `on_progress` callback, when set,
+// is called from worker threads with the count of files done (it must be
+// thread-safe and cheap).
+#pragma once
+
+#include <cstdint>
+#include <filesystem>
+#include <functional>
+#include <vector>
+
+#include "tamis/read/decode/decode.h"
+#include "tamis/model/record.h"
+#include "tamis/read/walk.h"
+
+namespace tamis {
+
+class RecordCache;
+
+// What the read stage did with the files (for the summary; never in a report).
+struct ReadCounts {
+  uint64_t read = 0;            // files opened and decoded (or found not to be images)
+  uint64_t cached = 0;          // records reused from the cache by path, size, time and inode
+  uint64_t cached_by_hash = 0;  // records reused by content hash (touched, rewritten, copied, moved files)
+  uint64_t moved = 0;           // of those, files whose stored path is no longer in the tree (moved or renamed)
+};
+
+struct ReadOptions {
+  unsigned threads = 0;                      // 0 = all cores
+  RecordCache* cache = nullptr;              // records to reuse (cache.h; taken out of it); none when null
+  ReadCounts* counts = nullptr;              // filled when set
+  // Filled when set (with a cache): per record, the cache row whose stored
+  // thumbnail is the record's (it came from the cache, its thumbnail not yet
+  // loaded: RecordCache::load_thumbnails), or -1 (read from its file).
+  std::vector<int64_t>* thumbnail_row = nullptr;
+  // Filled when set (with a cache): the records reused by content hash (a
+  // touched, rewritten, copied or moved file), ascending. The cache stores them
+  // anew, so their thumbnails must be loaded before RecordCache::store.
+  std::vector<uint32_t>* by_content = nullptr;
+  // Filled when set: the thumbnail of every image read from its file (records
+  // from the cache get no slot here; their thumbnails stay in the cache).
+  ThumbnailTable* thumbs = nullptr;
+  uint64_t max_bytes = 4ull << 30;           // files larger than this are not read
+  DecodeLimits decode;
+  std::function<void(size_t done, size_t total)> on_progress;
+};
+
+std::vector<FileRecord> read_files(const std::filesystem::path& root, const std::vector<WalkEntry>& entries,
+                                   const ReadOptions& options);
+
+// True when some component of the relative path starts with '.'.
+bool is_hidden_path(std::string_view rel_path);
+
+}  // namespace tamis

@@ -1,0 +1,169 @@
+// Look-alike confirmation: whether two thumbnails (record.h: 32x32 gray and 8x8
+// chroma) that the hash join put side by side show the same picture.
+//
+// Four measurements, all after the hit's flip/turn, each from a published or
+// textbook quantity:
+//  - blur-matched correlation: the Pearson correlation of the gray thumbnails
+//    (unchanged by brightness and contrast) after the sharper one is blurred
+//    towards the other. A copy that was resized down, blurred or re-encoded has
+//    lost fine detail, and its correlation with a sharp source falls (to 0.82 for
+//    sigma 1 px on 28 px pictures) although nothing else changed. The blur is the
+//    heat kernel of the thumbnail's grid (reflecting edges): the orthonormal
+//    DCT-II coefficient (u, v) is multiplied by exp(-tau lambda_uv), lambda_uv =
+//    4 sin^2(pi u / 64) + 4 sin^2(pi v / 64) (the eigenvalues of the grid's
+//    Laplacian; a Gaussian of sigma = sqrt(2 tau) px at low frequencies). tau is
+//    taken from a ladder, sigma = 0.25 s px for steps s = 0..kBlurSteps-1; which
+//    side is sharper and by how much comes from each thumbnail's spectral moments
+//    (the mean and spread of lambda under its power spectrum, computed exactly in
+//    integers from pixel differences), and the steps tried are the ladder's
+//    neighbours of that estimate (blur_candidates). The correlation is the best
+//    over no blur and those steps;
+//  - tone-and-colour fit: when neither reaches min_correlation but the plain
+//    correlation reaches fit_floor, one side's gray plane is fitted by least
+//    squares from the other's pixels: a cubic tone curve of the gray level (a
+//    gamma, or a contrast or brightness change that clips at one end, which the
+//    linear Pearson correlation cannot follow), and, when the source has colour,
+//    linear terms in its chroma (bilinear from the 8x8 cells: Cb, Cr, and the
+//    largest and smallest of R - Y, G - Y, B - Y, which is how an HSV hue or
+//    saturation change moves the gray level of coloured pixels). The
+//    correlation is then sqrt(explained share), the better of the two ways
+//    round, and the local check measures the fit's residual;
+//  - local: the residual between the two standardized thumbnails (zero mean, unit
+//    variance; the sharper after its blur), its mean square in the worst 8x8
+//    window (windows at a step of 4). The global mean square is 2 (1 -
+//    correlation); a copy spreads its differences (re-encoding, resampling,
+//    noise) over the picture, while a moved, added or removed object concentrates
+//    them in a window. It catches pictures on a shared smooth backdrop whose
+//    correlation is high because the backdrop dominates the variance;
+//  - chroma: the share of the colour variation that no global colour change
+//    explains. The less colourful thumbnail's 8x8 chroma z = Cb + i Cr is fitted
+//    by least squares as alpha z' + gamma y' + beta of the other's chroma z' and
+//    luma cells y' (complex alpha: a hue rotation and a saturation scale; gamma:
+//    the cast that grows with brightness, which gains on red and blue leave, held
+//    within |gamma| <= 0.15; beta: a constant shift; alpha = 0 is a conversion to
+//    gray); the residual's sum of squares over the target's
+//    variation (plus a noise floor of 1.5 levels a cell). Objects that
+//    differ from the backdrop in hue only, in different places or colours, leave
+//    most of it unexplained. Not measured (-1) when neither side has colour
+//    variation above 2 levels.
+//  - hue turn: when the fitted alpha turns the chroma by 20 degrees or more,
+//    the turn must be one of the whole picture about neutral gray, as editors
+//    turn hue on the HSV circle: each 8x8 cell's colour of the more colourful
+//    side, turned on the HSV circle by the best angle and scaled by one
+//    saturation factor, leaves at most 5% of the other side's chroma (about
+//    neutral, no constant shift) unexplained. An object repainted on a weakly
+//    coloured backdrop passes the chroma check (beta and gamma absorb the
+//    backdrop) but not this one.
+// Two thumbnails are joined when correlation (plain, blurred or fitted) >= min_correlation, local <=
+// max_local, (chroma < 0 or chroma <= max_chroma) and the hue turn holds. Flat
+// thumbnails (standard deviation below 2 grey levels) follow thumb_correlation's
+// flat rule for the gray pictures, and then the colour checks.
+//
+// The screen: most hash hits are far from any match, and the exact correlation
+// needs both thumbnails' full DCTs. match_may_join() rejects a hit only when the
+// low 8x8 DCT blocks prove the blur-matched correlation below min_correlation
+// and the plain correlation below fit_floor for certain (see match.cc for the
+// bound), so a screened search joins exactly the pairs that match_thumbnails
+// joins.
+// docs/lookalikes.md: how the defaults were measured. Pure; thread-safe.
+#pragma once
+
+#include <array>
+#include <cstdint>
+#include <vector>
+
+#include "tamis/read/features.h"
+#include "tamis/model/group.h"
+#include "tamis/model/record.h"
+
+namespace tamis {
+
+// The version of the rules above, part of the cache's groups fingerprint so that
+// groups found by older rules are never reused (1: correlation, local and colour
+// checks; 2: the correlation blur-matched; 3: the tone-and-colour fit, and the
+// colour check's luma term; 4: a turn of the chroma only as a hue turn of the
+// whole picture, and the colour checks for pictures whose gray is flat).
+inline constexpr int kMatchRules = 4;
+
+struct MatchSettings {
+  double min_correlation = 0.995;
+  double max_local = 0.06;
+  double max_chroma = 0.35;
+  // The tone-and-colour fit is tried for pairs whose plain correlation reaches
+  // fit_floor (at or above min_correlation: never) and whose profiles' bound on
+  // the blur-matched correlation reaches fit_gate().
+  double fit_floor = 0.98;
+};
+
+// The tone-and-colour fit's gate: the profiles' bound on the blur-matched
+// correlation (match_may_join's) must reach kFitGate, held within [fit_floor,
+// min_correlation] (min_correlation itself when the fit is off). It keeps the fit to pairs whose low frequencies agree
+// closely: on Fashion-MNIST's 6.2 million hash hits a gate at 0.98 passes 1.35
+// million pairs to the thumbnails, at 0.99 288,000 (at 0.995, no fit, 44,000),
+// and the planted tone and colour copies lose almost nothing from 0.98 to 0.99
+// (docs/lookalikes.md).
+inline constexpr double kFitGate = 0.99;
+double fit_gate(const MatchSettings& settings);
+
+// The blur ladder: sigma = 0.25 s thumbnail pixels for s = 0..kBlurSteps-1
+// (kBlurSteps is in model/group.h, since a stored link names its step).
+double blur_sigma(int step);
+
+// The low DCT coefficients the screen keeps: (u, v) with u, v < 8 and u + v <= 8,
+// the DC term left out (42; the set is its own transpose), stored in 44 slots
+// (the last two 0) for whole groups of four.
+inline constexpr int kScreenCoefficients = 42, kScreenSlots = 44;
+
+// What a thumbnail brings to every comparison, computed once: 128 bytes, one
+// aligned pair of cache lines (the screen reads one profile at random per hit).
+struct alignas(128) MatchProfile {
+  ThumbStats stats{};
+  // Spectral moments of the gray thumbnail: mean and variance of lambda (above)
+  // weighted by the power spectrum without the DC term.
+  float lambda_mean = 0, lambda_var = 0;
+  // The screen's coefficients of the centred thumbnail scaled to unit length,
+  // x 32767, (u, v) in row order; energy[s] their squared
+  // length after blur step s (in units of 1), x 65535, rounded down.
+  std::array<int16_t, kScreenSlots> low{};
+  std::array<uint16_t, kBlurSteps> energy{};
+  bool flat = false;
+};
+static_assert(sizeof(MatchProfile) == 128);
+MatchProfile match_profile(const Thumbnail& thumb);
+
+// The blur steps tried for a pair: `steps[0..count)`, and whether the blur goes
+// on a (true: a is the sharper) or on b. Step 0 (no blur) is always tried besides.
+struct BlurCandidates {
+  bool blur_a = true;
+  int count = 0;
+  std::array<int, 4> steps{};
+};
+BlurCandidates blur_candidates(const MatchProfile& a, const MatchProfile& b);
+
+struct Match {
+  bool joined = false;
+  float correlation = 0;  // blur-matched
+  float local = 0;
+  float chroma = -1;  // -1: not measured (no colour variation on either side)
+  int blur_step = 0;  // the step that gave the correlation (0: none)
+  bool blurred_a = true;  // which side the blur went on (when blur_step > 0)
+  bool fitted = false;    // the correlation is the tone-and-colour fit's
+  bool fitted_a = true;   // a was the fit's source (b fitted from a), else b
+};
+
+// `turned_a`: the first thumbnail after the hit's flip/turn t (turn_thumbnail);
+// `pa` the profile of a itself (as it was before transform t).
+// `a_spectrum`, when given, holds turned_a's DCT (dct32) for comparisons of one
+// turned thumbnail with many: filled on first need when empty, reused after.
+Match match_thumbnails(const Thumbnail& turned_a, const MatchProfile& pa, int t, const Thumbnail& b, const MatchProfile& pb,
+                       const MatchSettings& settings, std::vector<float>* a_spectrum = nullptr);
+
+// The same for a's transform t (turns it first).
+Match match_thumbnails(const Thumbnail& a, int t, const Thumbnail& b, const MatchSettings& settings);
+
+// False only when match_thumbnails(transform t of a, b) cannot join them: the
+// blur-matched correlation is below min_correlation for certain. Uses the
+// profiles alone (about 64 multiplications a step tried).
+bool match_may_join(const MatchProfile& a, int t, const MatchProfile& b, const MatchSettings& settings);
+
+}  // namespace tamis

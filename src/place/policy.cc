@@ -1,0 +1,139 @@
+#include "tamis/place/policy.h"
+
+#include <fstream>
+#include <sstream>
+
+#include <nlohmann/json.hpp>
+
+namespace tamis {
+
+using nlohmann::json;
+
+const std::map<std::string, Severity>& finding_catalogue() {
+  static const std::map<std::string, Severity> c{
+      {"unreadable", Severity::error},          {"too-many-unreadable", Severity::error},
+      {"undecodable-variant", Severity::warning}, {"over-memory-budget", Severity::warning},
+      {"no-label", Severity::warning},          {"link-not-followed", Severity::info},
+      {"special-file", Severity::info},
+      {"folder-unreadable", Severity::warning}, {"byte-identical", Severity::warning},
+      {"look-alike", Severity::warning},    {"label-conflict", Severity::error},
+      {"split-leak", Severity::error},          {"lookalike-chain", Severity::warning},
+      {"split-without-class", Severity::warning}, {"class-capped", Severity::info},
+      {"tiny-image", Severity::warning},        {"below-input-size", Severity::info},
+      {"aspect-outlier", Severity::info},           {"near-uniform", Severity::warning},
+      {"underexposed", Severity::warning},          {"overexposed", Severity::warning},
+      {"low-entropy", Severity::info},      {"unsharp", Severity::warning},
+      {"gray-as-rgb", Severity::info},          {"alpha-unused", Severity::info},
+      {"transparency", Severity::info},         {"deep-bit-depth", Severity::info},
+      {"palette-image", Severity::info},        {"cmyk-image", Severity::warning},
+      {"multi-frame", Severity::info},          {"extension-mismatch", Severity::warning},
+      {"exif-rotated", Severity::warning},      {"gps-location", Severity::warning},
+      {"label-variants", Severity::warning},    {"label-near", Severity::info},
+      {"small-class", Severity::warning},       {"empty-class", Severity::warning},
+      {"class-imbalance", Severity::warning},   {"stray-file", Severity::info},
+      {"mask-orphan", Severity::warning},       {"mask-size-mismatch", Severity::error},
+      {"mask-empty", Severity::warning},        {"mask-misfiled", Severity::warning},
+  };
+  return c;
+}
+
+Policy default_policy() { return Policy{}; }
+
+namespace {
+
+double number_at(const json& j, const std::string& key, double lo, double hi) {
+  if (!j.is_number()) throw PolicyError("policy: thresholds." + key + " must be a number");
+  double v = j.get<double>();
+  if (!(v >= lo && v <= hi))
+    throw PolicyError("policy: thresholds." + key + " must lie in [" + std::to_string(lo) + ", " + std::to_string(hi) + "]");
+  return v;
+}
+
+}  // namespace
+
+Policy parse_policy(const std::string& text) {
+  json j;
+  try {
+    j = json::parse(text);
+  } catch (const json::exception& e) {  // parse_error, or out_of_range for a number like 1E400
+    throw PolicyError(std::string("policy: not valid JSON: ") + e.what());
+  }
+  if (!j.is_object()) throw PolicyError("policy: the file must hold a JSON object");
+  Policy p = default_policy();
+  for (const auto& [key, value] : j.items()) {
+    if (key == "severity") {
+      if (!value.is_object()) throw PolicyError("policy: severity must be an object of code: level");
+      for (const auto& [code, level] : value.items()) {
+        if (!finding_catalogue().count(code)) throw PolicyError("policy: severity." + code + ": no such finding code");
+        if (!level.is_string()) throw PolicyError("policy: severity." + code + " must be a string");
+        std::string l = level.get<std::string>();
+        if (l == "error") p.severity[code] = Severity::error;
+        else if (l == "warning") p.severity[code] = Severity::warning;
+        else if (l == "info") p.severity[code] = Severity::info;
+        else if (l == "off") p.severity[code] = std::nullopt;
+        else throw PolicyError("policy: severity." + code + " must be error, warning, info or off, not '" + l + "'");
+      }
+    } else if (key == "thresholds") {
+      if (!value.is_object()) throw PolicyError("policy: thresholds must be an object");
+      for (const auto& [name, v] : value.items()) {
+        if (name == "min_side") p.thresholds.min_side = static_cast<uint32_t>(number_at(v, name, 0, 1e6));
+        else if (name == "input_side") p.thresholds.input_side = static_cast<uint32_t>(number_at(v, name, 0, 1e6));
+        else if (name == "min_class") p.thresholds.min_class = static_cast<uint64_t>(number_at(v, name, 0, 1e12));
+        else if (name == "max_imbalance") p.thresholds.max_imbalance = number_at(v, name, 1, 1e12);
+        else if (name == "outlier_z") p.thresholds.outlier_z = number_at(v, name, 0.5, 100);
+        else if (name == "max_unreadable_share") p.max_unreadable_share = number_at(v, name, 0, 1);
+        else throw PolicyError("policy: thresholds." + name + ": no such threshold");
+      }
+    } else if (key == "lookalike") {
+      if (!value.is_object()) throw PolicyError("policy: lookalike must be an object");
+      for (const auto& [name, v] : value.items()) {
+        if (name == "radius") p.lookalike.radius = static_cast<int>(number_at(v, "lookalike.radius", 0, 16));
+        else if (name == "min_correlation") p.lookalike.match.min_correlation = number_at(v, "lookalike.min_correlation", 0.5, 1);
+        else if (name == "max_local") p.lookalike.match.max_local = number_at(v, "lookalike.max_local", 0, 4);
+        else if (name == "max_chroma") p.lookalike.match.max_chroma = number_at(v, "lookalike.max_chroma", 0, 100);
+        else if (name == "fit_floor") p.lookalike.match.fit_floor = number_at(v, "lookalike.fit_floor", 0.5, 1);
+        else throw PolicyError("policy: lookalike." + name + ": no such setting (radius, min_correlation, max_local, max_chroma, fit_floor)");
+      }
+    } else if (key == "fail_on") {
+      if (value == "new") p.fail_on_new_only = true;
+      else if (value == "all") p.fail_on_new_only = false;
+      else throw PolicyError("policy: fail_on must be \"all\" or \"new\"");
+    } else {
+      throw PolicyError("policy: " + key + ": no such key (severity, thresholds, lookalike, fail_on)");
+    }
+  }
+  return p;
+}
+
+Policy load_policy(const std::filesystem::path& file) {
+  std::ifstream is(file, std::ios::binary);
+  if (!is) throw PolicyError("policy: cannot read " + file.string());
+  std::stringstream ss;
+  ss << is.rdbuf();
+  return parse_policy(ss.str());
+}
+
+void apply_policy(const Policy& policy, uint64_t unreadable, uint64_t image_files, std::vector<Finding>& findings) {
+  if (image_files > 0 && double(unreadable) / double(image_files) > policy.max_unreadable_share) {
+    Finding f;
+    f.code = "too-many-unreadable";
+    f.severity = Severity::error;
+    f.message = std::to_string(unreadable) + " of " + std::to_string(image_files) +
+                " image files cannot be read, more than the policy allows";
+    f.details = {{"unreadable", unreadable}, {"image_files", image_files},
+                 {"max_unreadable_share", policy.max_unreadable_share}};
+    findings.push_back(std::move(f));
+  }
+  std::vector<Finding> kept;
+  for (auto& f : findings) {
+    auto it = policy.severity.find(f.code);
+    if (it != policy.severity.end()) {
+      if (!it->second) continue;  // off
+      f.severity = *it->second;
+    }
+    kept.push_back(std::move(f));
+  }
+  findings = std::move(kept);
+}
+
+}  // namespace tamis

@@ -1,0 +1,240 @@
+#include "tamis/relate/groups.h"
+
+#include <algorithm>
+#include <tuple>
+#include <numeric>
+#include <stdexcept>
+
+#include "tamis/read/features.h"
+#include "tamis/relate/lookalike_index.h"
+#include "tamis/base/parallel.h"
+
+namespace tamis {
+
+namespace {
+
+class UnionFind {
+ public:
+  explicit UnionFind(size_t n) : parent_(n), rank_(n, 0) { std::iota(parent_.begin(), parent_.end(), 0u); }
+  uint32_t find(uint32_t x) {
+    while (parent_[x] != x) {
+      parent_[x] = parent_[parent_[x]];
+      x = parent_[x];
+    }
+    return x;
+  }
+  bool unite(uint32_t a, uint32_t b) {  // true when a and b were apart
+    a = find(a);
+    b = find(b);
+    if (a == b) return false;
+    if (rank_[a] < rank_[b]) std::swap(a, b);
+    parent_[b] = a;
+    if (rank_[a] == rank_[b]) ++rank_[a];
+    return true;
+  }
+
+ private:
+  std::vector<uint32_t> parent_;
+  std::vector<uint8_t> rank_;
+};
+
+constexpr size_t kExactDiameterLimit = 512;
+
+}  // namespace
+
+int lookalike_distance(const LookalikeCodes& a, const LookalikeCodes& b) {
+  int best = 64;
+  for (int t = 0; t < kDihedralCount; ++t) best = std::min(best, hamming(a.phash[t], b.phash[0]));
+  return best;
+}
+
+GroupResult find_groups(const std::vector<FileRecord>& records, const ThumbnailTable& thumbs,
+                        const GroupSettings& settings) {
+  GroupResult out;
+  out.group_of.assign(records.size(), -1);
+  std::vector<uint32_t> eligible;  // record indices of readable images
+  for (uint32_t i = 0; i < records.size(); ++i)
+    if (records[i].kind == FileKind::image && records[i].features.has_lookalike) {
+      if (!thumbs.has(i)) throw std::logic_error("find_groups: an image without its thumbnail");
+      eligible.push_back(i);
+    }
+  const size_t n = eligible.size();
+  UnionFind uf(n);
+  std::vector<GroupLink> links;  // in eligible indices until the groups are made
+
+  // Byte-identical files: runs of equal content hash.
+  std::vector<uint32_t> exact_root(n);
+  std::iota(exact_root.begin(), exact_root.end(), 0u);
+  {
+    std::vector<uint32_t> by_hash(n);
+    std::iota(by_hash.begin(), by_hash.end(), 0u);
+    auto hash_of = [&](uint32_t k) { return records[eligible[k]].features.content_hash; };
+    std::sort(by_hash.begin(), by_hash.end(), [&](uint32_t a, uint32_t b) {
+      return hash_of(a) != hash_of(b) ? hash_of(a) < hash_of(b) : a < b;
+    });
+    for (size_t k = 1; k < n; ++k)
+      if (hash_of(by_hash[k]) == hash_of(by_hash[k - 1])) {
+        if (uf.unite(by_hash[k - 1], by_hash[k]))
+          links.push_back({std::min(by_hash[k - 1], by_hash[k]), std::max(by_hash[k - 1], by_hash[k]), -1, 1.0f, 0, false});
+        exact_root[by_hash[k]] = exact_root[by_hash[k - 1]];
+        ++out.exact_pairs;
+      }
+  }
+
+  // Look-alikes: candidates from an exact Hamming join of each flip/turn's codes
+  // with the identity codes, confirmed by the thumbnails' correlation.
+  std::vector<uint64_t> identity(n);
+  for (size_t k = 0; k < n; ++k) identity[k] = records[eligible[k]].features.look.phash[0];
+  if (n > 1) {
+    // Per image: the match profile (match.h, 128 bytes): the thumbnail's sums,
+    // spectral moments and low DCT coefficients, whose bounds reject most hash
+    // hits before any thumbnail is compared.
+    std::vector<MatchProfile> profile(n);
+    parallel_for(n, settings.threads, [&](size_t k) { profile[k] = match_profile(thumbs.at(eligible[k])); }, 256);
+    // A hit (8 * image + t, j) goes on to the confirmation unless it pairs an
+    // image with itself or the profiles prove that the thumbnails cannot match
+    // (neither as they are nor with any blur step the pair would try).
+    const PairFilter keep = [&](uint32_t variant, uint32_t j) {
+      const uint32_t i = variant / kDihedralCount;
+      if (i == j) return false;
+      const int t = static_cast<int>(variant % kDihedralCount);
+      return match_may_join(profile[i], t, profile[j], settings.match);
+    };
+    // Hits of an image with itself are counted by the join but are no candidates.
+    uint64_t self_hits = 0;
+    for (size_t k = 0; k < n; ++k)
+      for (int t = 0; t < kDihedralCount; ++t) self_hits += hamming(records[eligible[k]].features.look.phash[t], identity[k]) <= settings.radius;
+    std::vector<GroupLink> confirmed;
+    // Kept hits (8 * image + t, j), sorted by their first member: turn each
+    // (image, t) thumbnail once, then compare it with its partners.
+    auto confirm = [&](const std::vector<std::pair<uint32_t, uint32_t>>& hits) {
+      std::vector<size_t> starts;
+      for (size_t h = 0; h < hits.size(); ++h)
+        if (h == 0 || hits[h].first != hits[h - 1].first) starts.push_back(h);
+      starts.push_back(hits.size());
+      std::vector<std::vector<GroupLink>> found(starts.size() - 1);
+      parallel_for(found.size(), settings.threads, [&](size_t g) {
+        const uint32_t i = hits[starts[g]].first / kDihedralCount;
+        const int t = static_cast<int>(hits[starts[g]].first % kDihedralCount);
+        Thumbnail turned;
+        turn_thumbnail(thumbs.at(eligible[i]), turned, t);
+        std::vector<float> spectrum;  // the turned thumbnail's DCT, once needed
+        for (size_t h = starts[g]; h < starts[g + 1]; ++h) {
+          const uint32_t j = hits[h].second;
+          const Match m = match_thumbnails(turned, profile[i], t, thumbs.at(eligible[j]), profile[j], settings.match, &spectrum);
+          if (!m.joined) continue;
+          // Said of the pair (a, b), a < b: the flip/turn of a that matches b
+          // (the inverse of t when the hit was b's), and which side was blurred.
+          constexpr int kInverse[kDihedralCount] = {0, 1, 2, 3, 4, 6, 5, 7};
+          const bool forward = i < j;
+          const int fit = !m.fitted ? 0 : (m.fitted_a == forward ? 1 : 2);
+          found[g].push_back({std::min(i, j), std::max(i, j), forward ? t : kInverse[t], m.correlation, m.blur_step,
+                              forward ? m.blurred_a : !m.blurred_a, fit});
+        }
+      }, 64);
+      for (auto& f : found) confirmed.insert(confirmed.end(), f.begin(), f.end());
+    };
+    // One join of all 8 variants (id = 8 * image + t) is fastest (one plan, one
+    // pass over the buckets); it holds the 8 codes of every image twice (as given
+    // and with their bits permuted, 128 bytes a file), so it is used while they
+    // take at most a quarter of the memory budget. Above that the variants are
+    // joined one at a time. Either way the join's buffer of entries is searched in
+    // slices of the key space within the budget. The join is exact: both give the
+    // same pairs.
+    const bool one_join = double(n) * 2.0 * kDihedralCount * sizeof(uint64_t) <= 0.25 * double(settings.join_memory_bytes);
+    uint64_t found = 0;
+    if (one_join) {
+      std::vector<uint64_t> variants(n * kDihedralCount);
+      for (size_t k = 0; k < n; ++k)
+        for (int t = 0; t < kDihedralCount; ++t) variants[k * kDihedralCount + t] = records[eligible[k]].features.look.phash[t];
+      confirm(join_within(variants, identity, settings.radius, settings.threads, keep, &found, settings.join_memory_bytes));
+      out.candidate_hits += found;
+    } else {
+      std::vector<uint64_t> variant(n);
+      for (int t = 0; t < kDihedralCount; ++t) {
+        for (size_t k = 0; k < n; ++k) variant[k] = records[eligible[k]].features.look.phash[t];
+        const PairFilter keep_t = [&](uint32_t i, uint32_t j) {
+          return keep(i * kDihedralCount + static_cast<uint32_t>(t), j);
+        };
+        auto hits = join_within(variant, identity, settings.radius, settings.threads, keep_t, &found,
+                                settings.join_memory_bytes);
+        out.candidate_hits += found;
+        for (auto& h : hits) h.first = h.first * kDihedralCount + static_cast<uint32_t>(t);
+        confirm(hits);
+      }
+    }
+    out.candidate_hits -= self_hits;
+    // One measurement a pair: its first in (a, b, turn, blur step) order.
+    std::sort(confirmed.begin(), confirmed.end(), [](const GroupLink& x, const GroupLink& y) {
+      return std::tie(x.a, x.b, x.turn, x.blur_step, x.blurred_a, x.fit_source) <
+             std::tie(y.a, y.b, y.turn, y.blur_step, y.blurred_a, y.fit_source);
+    });
+    confirmed.erase(std::unique(confirmed.begin(), confirmed.end(),
+                                [](const GroupLink& x, const GroupLink& y) { return x.a == y.a && x.b == y.b; }),
+                    confirmed.end());
+    out.confirmed_pairs = confirmed.size();
+    for (const GroupLink& l : confirmed)
+      if (uf.unite(l.a, l.b)) links.push_back(l);
+  }
+
+  // Components with two or more members, numbered by first member.
+  std::vector<int64_t> comp_of_root(n, -1);
+  for (uint32_t k = 0; k < n; ++k) {  // k ascending = record order ascending
+    uint32_t r = uf.find(k);
+    if (comp_of_root[r] < 0) {
+      comp_of_root[r] = static_cast<int64_t>(out.groups.size());
+      out.groups.emplace_back();
+    }
+    out.groups[static_cast<size_t>(comp_of_root[r])].members.push_back(k);
+  }
+  // Components of two or more, in order, are the groups kept.
+  std::vector<int64_t> comp_kept(out.groups.size(), -1);
+  for (size_t c = 0, next = 0; c < out.groups.size(); ++c)
+    if (out.groups[c].members.size() >= 2) comp_kept[c] = static_cast<int64_t>(next++);
+  std::vector<Group> kept;
+  for (auto& g : out.groups) {
+    if (g.members.size() < 2) continue;
+    g.exact = std::all_of(g.members.begin(), g.members.end(),
+                          [&](uint32_t k) { return exact_root[k] == exact_root[g.members.front()]; });
+    // Diameter over the members' look-alike codes.
+    auto dist = [&](uint32_t x, uint32_t y) {
+      return lookalike_distance(records[eligible[x]].features.look, records[eligible[y]].features.look);
+    };
+    if (g.members.size() <= kExactDiameterLimit) {
+      for (size_t p = 0; p < g.members.size(); ++p)
+        for (size_t q = p + 1; q < g.members.size(); ++q) g.diameter = std::max(g.diameter, dist(g.members[p], g.members[q]));
+    } else {
+      g.diameter_exact = false;
+      uint32_t far = g.members.front();
+      for (int sweep = 0; sweep < 2; ++sweep) {
+        uint32_t from = far;
+        int best = -1;
+        for (uint32_t m : g.members) {
+          int d = dist(from, m);
+          if (d > best) {
+            best = d;
+            far = m;
+          }
+        }
+        g.diameter = std::max(g.diameter, best);
+      }
+    }
+    for (auto& m : g.members) m = eligible[m];  // to record indices
+    kept.push_back(std::move(g));
+  }
+  // Each link to its group, in record indices (links come in the order above).
+  for (const GroupLink& l : links) {
+    const int64_t gk = comp_kept[static_cast<size_t>(comp_of_root[uf.find(l.a)])];
+    if (gk < 0) continue;
+    GroupLink r = l;
+    r.a = eligible[l.a];
+    r.b = eligible[l.b];
+    kept[static_cast<size_t>(gk)].links.push_back(r);
+  }
+  out.groups = std::move(kept);
+  for (size_t gi = 0; gi < out.groups.size(); ++gi)
+    for (uint32_t m : out.groups[gi].members) out.group_of[m] = static_cast<int64_t>(gi);
+  return out;
+}
+
+}  // namespace tamis

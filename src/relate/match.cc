@@ -1,0 +1,794 @@
+#include "tamis/relate/match.h"
+
+#include <algorithm>
+#include <array>
+#include <cmath>
+#include <cstring>
+#include <vector>
+
+namespace tamis {
+
+double blur_sigma(int step) { return 0.25 * step; }
+
+namespace {
+
+constexpr double kChromaNoise = 1.5;  // levels a cell: the floor under the target's variation
+constexpr double kChromaFloorSs = 2.0 * double(kChromaPlane) * kChromaNoise * kChromaNoise;  // that floor over the 64 cells (Cb and Cr)
+constexpr double kColourless = 2.0;  // chroma standard deviation below which a side has no colour
+constexpr double kMaxCast = 0.15;  // largest |gamma| of chroma_unexplained's luma term
+constexpr double kLowScale = 32767.0;  // MatchProfile::low: unit coefficients x this
+
+// The gains exp(-tau_s lambda_uv) of every blur step, [step][32 u + v].
+struct BlurTable {
+  alignas(32) std::array<std::array<float, 1024>, kBlurSteps> gain{}, gain2{};  // gains, and squared
+  // The screen's coefficients: coefficient i is 32 u + v = index[i] of the full
+  // block; transposed[i] is the screen coefficient at (v, u).
+  std::array<int, kScreenCoefficients> index{}, transposed{};
+  // low_gain[s][i]: the gain of step s for screen coefficient i over 32767^2 (the
+  // stored coefficients' scale squared); the rows past the ladder are 0, so that
+  // four consecutive steps can always be read. low_gain2: the squared gains, in
+  // units of 1. sign[t][i]: the sign flip/turn t gives coefficient i (after its
+  // transpose, when t has one). Slots 42 and 43 are 0 throughout.
+  alignas(16) std::array<std::array<float, kScreenSlots>, kBlurSteps + 3> low_gain{};
+  alignas(16) std::array<std::array<float, kScreenSlots>, kBlurSteps> low_gain2{};
+  alignas(16) std::array<std::array<float, kScreenSlots>, kDihedralCount> sign{};
+  BlurTable() {
+    constexpr double kPi = 3.14159265358979323846;
+    for (int s = 0; s < kBlurSteps; ++s) {
+      const double sigma = blur_sigma(s), tau = sigma * sigma / 2.0;
+      for (int u = 0; u < 32; ++u)
+        for (int v = 0; v < 32; ++v) {
+          const double su = std::sin(kPi * u / 64.0), sv = std::sin(kPi * v / 64.0);
+          const double g = std::exp(-tau * (4.0 * su * su + 4.0 * sv * sv));
+          gain[size_t(s)][size_t(32 * u + v)] = static_cast<float>(g);
+          gain2[size_t(s)][size_t(32 * u + v)] = static_cast<float>(g * g);
+        }
+    }
+    int n = 0;
+    for (int u = 0; u < 8; ++u)
+      for (int v = 0; v < 8; ++v)
+        if (u + v > 0 && u + v <= 8) index[size_t(n++)] = 32 * u + v;
+    for (int i = 0; i < kScreenCoefficients; ++i) {
+      const int u = index[size_t(i)] / 32, v = index[size_t(i)] % 32;
+      for (int j = 0; j < kScreenCoefficients; ++j)
+        if (index[size_t(j)] == 32 * v + u) transposed[size_t(i)] = j;
+      for (int s = 0; s < kBlurSteps; ++s)
+        low_gain2[size_t(s)][size_t(i)] = gain2[size_t(s)][size_t(index[size_t(i)])];
+      for (int s = 0; s < kBlurSteps; ++s)
+        low_gain[size_t(s)][size_t(i)] =
+            static_cast<float>(double(gain[size_t(s)][size_t(index[size_t(i)])]) / (32767.0 * 32767.0));
+      for (int t = 0; t < kDihedralCount; ++t)
+        sign[size_t(t)][size_t(i)] = turn_negates(t, u, v) ? -1.0f : 1.0f;
+    }
+  }
+};
+const BlurTable& blur_table() {
+  static const BlurTable t;
+  return t;
+}
+
+typedef float Lanes __attribute__((vector_size(16)));  // four floats, one SIMD register
+typedef int16_t Shorts __attribute__((vector_size(8)));  // four int16
+
+inline Lanes lanes_at(const float* f) {
+  Lanes v;
+  std::memcpy(&v, f, sizeof v);
+  return v;
+}
+inline double lane_sum(Lanes v) { return (double(v[0]) + double(v[1])) + (double(v[2]) + double(v[3])); }
+
+// Largest mean square of (za - zb) over 8x8 windows at a step of 4, za and zb the
+// two planes standardized (each centred on its mean and divided by its standard
+// deviation).
+template <typename T, typename U>
+double local_residual(const T* a, const U* b) {
+  double ma = 0, mb = 0;
+  for (size_t i = 0; i < kGrayBytes; ++i) {
+    ma += double(a[i]);
+    mb += double(b[i]);
+  }
+  ma /= double(kGrayBytes);
+  mb /= double(kGrayBytes);
+  double va = 0, vb = 0;
+  for (size_t i = 0; i < kGrayBytes; ++i) {
+    va += (double(a[i]) - ma) * (double(a[i]) - ma);
+    vb += (double(b[i]) - mb) * (double(b[i]) - mb);
+  }
+  const double ia = 1.0 / std::sqrt(std::max(va / double(kGrayBytes), 1e-12));
+  const double ib = 1.0 / std::sqrt(std::max(vb / double(kGrayBytes), 1e-12));
+  // Squared residuals summed over 4x4 cells, then windows of 2x2 cells.
+  std::array<double, 64> cell{};
+  for (int y = 0; y < kThumbSide; ++y)
+    for (int x = 0; x < kThumbSide; ++x) {
+      const size_t i = size_t(y * kThumbSide + x);
+      const double r = (double(a[i]) - ma) * ia - (double(b[i]) - mb) * ib;
+      cell[static_cast<size_t>((y / 4) * 8 + x / 4)] += r * r;
+    }
+  double worst = 0;
+  for (int cy = 0; cy + 1 < 8; ++cy)
+    for (int cx = 0; cx + 1 < 8; ++cx) {
+      const size_t k = static_cast<size_t>(cy * 8 + cx);
+      worst = std::max(worst, (cell[k] + cell[k + 1] + cell[k + 8] + cell[k + 9]) / 64.0);
+    }
+  return worst;
+}
+
+// A thumbnail's chroma centred on its means, as complex values z = Cb + i Cr.
+struct CentredChroma {
+  std::array<double, kChromaPlane> u{}, v{};
+  double ss = 0;  // sum of |z|^2: the chroma's variation
+};
+
+CentredChroma centred_chroma(const Thumbnail& t) {
+  CentredChroma c;
+  const uint8_t* u = t.data() + kGrayBytes;
+  const uint8_t* v = u + kChromaPlane;
+  double mu = 0, mv = 0;
+  for (size_t k = 0; k < kChromaPlane; ++k) {
+    mu += u[k];
+    mv += v[k];
+  }
+  mu /= double(kChromaPlane);
+  mv /= double(kChromaPlane);
+  for (size_t k = 0; k < kChromaPlane; ++k) {
+    c.u[k] = u[k] - mu;
+    c.v[k] = v[k] - mv;
+    c.ss += c.u[k] * c.u[k] + c.v[k] * c.v[k];
+  }
+  return c;
+}
+
+// The 8x8 means of a thumbnail's gray plane (the chroma's cells).
+std::array<double, kChromaPlane> luma_cells(const Thumbnail& t) {
+  std::array<double, kChromaPlane> y{};
+  for (int r = 0; r < kThumbSide; ++r)
+    for (int c = 0; c < kThumbSide; ++c) y[size_t((r / 4) * kChromaSide + c / 4)] += t[size_t(r * kThumbSide + c)];
+  for (double& v : y) v /= 16.0;
+  return y;
+}
+
+// The same, centred.
+std::array<double, kChromaPlane> centred_luma_cells(const Thumbnail& t) {
+  std::array<double, kChromaPlane> y = luma_cells(t);
+  double m = 0;
+  for (double v : y) m += v;
+  m /= double(kChromaPlane);
+  for (double& v : y) v -= m;
+  return y;
+}
+
+// Share of the target's chroma variation that no global colour change of the
+// source explains: z_t = alpha z_s + gamma y_s + beta over the 64 cells, with
+// y_s the source's luma cells and alpha, gamma, beta complex (a hue rotation
+// with a saturation scale; a colour cast that grows with brightness, which is
+// what gains on the red and blue channels, a white-balance change, leave in
+// YCbCr; and a constant shift), fitted by least squares. beta absorbs the
+// means. A general affine map of the chroma plane would be too free: with a
+// two-colour backdrop it maps the backdrop onto itself and any object colour
+// onto any other. -1 when neither side has colour.
+struct ChromaFit {
+  double share = -1;  // -1: neither side has colour
+  double alpha_re = 0, alpha_im = 0;  // the fitted hue rotation and saturation scale
+  bool a_src = true;  // a was the source (the more colourful side)
+};
+
+ChromaFit chroma_unexplained(const Thumbnail& a, const Thumbnail& b) {
+  ChromaFit fit;
+  const CentredChroma ca = centred_chroma(a), cb = centred_chroma(b);
+  const double floor_ss = 2.0 * double(kChromaPlane) * kColourless * kColourless;
+  if (ca.ss < floor_ss && cb.ss < floor_ss) return fit;
+  // Fit the less colourful side (target) from the more colourful (source).
+  const bool a_src = ca.ss >= cb.ss;
+  const CentredChroma& src = a_src ? ca : cb;
+  const CentredChroma& dst = a_src ? cb : ca;
+  const std::array<double, kChromaPlane> y = centred_luma_cells(a_src ? a : b);
+  // Normal equations with complex unknowns (alpha, gamma); <p, q> = sum conj(p) q.
+  double ss_re = src.ss, yy = 0;
+  double sy_re = 0, sy_im = 0;  // <s, y>
+  double st_re = 0, st_im = 0;  // <s, t>
+  double yt_re = 0, yt_im = 0;  // <y, t>
+  for (size_t k = 0; k < kChromaPlane; ++k) {
+    yy += y[k] * y[k];
+    sy_re += src.u[k] * y[k];
+    sy_im -= src.v[k] * y[k];
+    st_re += src.u[k] * dst.u[k] + src.v[k] * dst.v[k];
+    st_im += src.u[k] * dst.v[k] - src.v[k] * dst.u[k];
+    yt_re += y[k] * dst.u[k];
+    yt_im += y[k] * dst.v[k];
+  }
+  // [ss  sy; conj(sy)  yy] [alpha; gamma] = [st; yt]. The cast a change of white
+  // balance leaves is small (|gamma| about 0.1 for gains of 15% on red and blue);
+  // a larger gamma would let an object's small difference in luma paint it any
+  // colour, so gamma is held within kMaxCast (on the boundary in the direction of
+  // the free fit, alpha refitted: a feasible fit, so the residual is an upper bound
+  // of the constrained least squares).
+  double ga_re = 0, ga_im = 0;
+  const double det = ss_re * yy - (sy_re * sy_re + sy_im * sy_im);
+  if (ss_re > 0 && yy > 0 && det > 1e-9 * ss_re * yy) {
+    ga_re = (ss_re * yt_re - (sy_re * st_re + sy_im * st_im)) / det;
+    ga_im = (ss_re * yt_im - (sy_re * st_im - sy_im * st_re)) / det;
+    const double g = std::sqrt(ga_re * ga_re + ga_im * ga_im);
+    if (g > kMaxCast) {
+      ga_re *= kMaxCast / g;
+      ga_im *= kMaxCast / g;
+    }
+  }
+  // t' = t - gamma y; alpha = <s, t'> / <s, s>; residual |t'|^2 - |<s, t'>|^2 / <s, s>.
+  double tt = 0, p_re = st_re, p_im = st_im;
+  for (size_t k = 0; k < kChromaPlane; ++k) {
+    const double u = dst.u[k] - ga_re * y[k], v = dst.v[k] - ga_im * y[k];
+    tt += u * u + v * v;
+  }
+  // <s, gamma y> = gamma <s, y> with <s, y> = sy.
+  p_re -= ga_re * sy_re - ga_im * sy_im;
+  p_im -= ga_re * sy_im + ga_im * sy_re;
+  const double explained = dst.ss - tt + (ss_re > 0 ? (p_re * p_re + p_im * p_im) / ss_re : 0.0);
+  const double res = std::max(0.0, dst.ss - explained);
+  fit.share = res / (dst.ss + kChromaFloorSs);
+  fit.a_src = a_src;
+  if (ss_re > 0) {
+    fit.alpha_re = p_re / ss_re;
+    fit.alpha_im = p_im / ss_re;
+  }
+  return fit;
+}
+
+// A colour turned by `degrees` around the HSV hue circle (value and saturation
+// kept), the way image editors and augmentation libraries turn hue.
+void hsv_turn(double& r, double& g, double& b, double degrees) {
+  r = std::clamp(r, 0.0, 255.0);
+  g = std::clamp(g, 0.0, 255.0);
+  b = std::clamp(b, 0.0, 255.0);
+  const double v = std::max({r, g, b}), m = std::min({r, g, b}), c = v - m;
+  if (c <= 1e-9) return;
+  double h = v == r ? std::fmod((g - b) / c + 6.0, 6.0) : v == g ? (b - r) / c + 2.0 : (r - g) / c + 4.0;
+  h = std::fmod(h + degrees / 60.0 + 12.0, 6.0);
+  const double x = c * (1.0 - std::fabs(std::fmod(h, 2.0) - 1.0));
+  const int sector = std::min(5, static_cast<int>(h));
+  const double rr[6] = {c, x, 0, 0, x, c}, gg[6] = {x, c, c, x, 0, 0}, bb[6] = {0, 0, x, c, c, x};
+  r = rr[sector] + m;
+  g = gg[sector] + m;
+  b = bb[sector] + m;
+}
+
+// Whether a pair whose chroma differs by a turn (arg alpha of the colour check's
+// fit) is a hue turn of the whole picture. Editors and augmentation libraries
+// turn hue on the HSV circle, about neutral gray: every colour turns, a weakly
+// coloured backdrop included, and a constant shift of the chroma is not part of
+// it. The colour check's fit allows that shift (for a tint) and a luma term (for
+// white balance), and with a weakly coloured backdrop they absorb the backdrop's
+// mismatch, so an object repainted another colour on an unchanged backdrop passes
+// it as a "hue rotation". Here each 8x8 cell's colour (its mean gray level, Cb,
+// Cr) of the more colourful side is turned on the HSV circle, the angle searched
+// over the whole circle (5 degrees, then 1 degree around the best), scaled by one
+// saturation factor, and compared with the other side's chroma about neutral; the
+// share of that chroma the turn leaves unexplained must be at most kHueResidual.
+// On the planted sets (bench/lookalike_truth, docs/lookalikes.md): hue-turned
+// copies (30 and 60 degrees, as they are and re-encoded at JPEG 75) leave at most
+// 0.015; pairs of rendered scenes whose chroma differs by a turn, 0.11-0.92. The
+// limit sits between, about 3x from each.
+constexpr double kTanHueMinTurn = 0.36397023426620234;  // tan(20 degrees): smaller turns of arg alpha are not checked
+constexpr double kHueResidual = 0.05;  // largest unexplained share of the target's chroma
+bool hue_turn_consistent(const Thumbnail& src, const Thumbnail& dst, double alpha_re, double alpha_im) {
+  // |arg alpha| < 20 degrees (no libm call: the same bits on every processor).
+  if (alpha_re > 0 && std::fabs(alpha_im) < kTanHueMinTurn * alpha_re) return true;
+  if (alpha_re * alpha_re + alpha_im * alpha_im < 0.25 * 0.25) return true;  // mostly gray: nothing turned
+  const std::array<double, kChromaPlane> ys = luma_cells(src);
+  const uint8_t* su = src.data() + kGrayBytes;
+  const uint8_t* sv = su + kChromaPlane;
+  const uint8_t* tu = dst.data() + kGrayBytes;
+  const uint8_t* tv = tu + kChromaPlane;
+  double tt = 0;  // the target's chroma about neutral
+  for (size_t k = 0; k < kChromaPlane; ++k) {
+    const double x = tu[k] - 128.0, y = tv[k] - 128.0;
+    tt += x * x + y * y;
+  }
+  // Unexplained chroma after turning by `degrees` and the best saturation factor.
+  auto unexplained = [&](double degrees) {
+    double pp = 0, pt = 0;
+    for (size_t k = 0; k < kChromaPlane; ++k) {
+      const double yk = ys[k], cb = su[k] - 128.0, cr = sv[k] - 128.0;
+      double r = yk + 1.402 * cr, g = yk - 0.344136 * cb - 0.714136 * cr, b = yk + 1.772 * cb;
+      hsv_turn(r, g, b, degrees);
+      const double y = 0.299 * r + 0.587 * g + 0.114 * b;
+      const double pu = (b - y) / 1.772, pv = (r - y) / 1.402;
+      pp += pu * pu + pv * pv;
+      pt += pu * (tu[k] - 128.0) + pv * (tv[k] - 128.0);
+    }
+    return pp > 0 && pt > 0 ? tt - pt * pt / pp : tt;
+  };
+  double best = unexplained(0), best_deg = 0;
+  for (int d = -175; d <= 180; d += 5) {
+    const double e = unexplained(d);
+    if (e < best) {
+      best = e;
+      best_deg = d;
+    }
+  }
+  const double coarse = best_deg;
+  for (int d = -4; d <= 4; ++d) best = std::min(best, unexplained(coarse + d));
+  return best <= kHueResidual * (tt + kChromaFloorSs);
+}
+
+// The colour checks of a pair whose gray pictures match: the chroma fit's
+// unexplained share (recorded in m.chroma) within max_chroma, and a turn of the
+// chroma only as a hue turn of the whole picture.
+bool colours_agree(const Thumbnail& ta, const Thumbnail& b, const MatchSettings& s, Match& m) {
+  const ChromaFit cf = chroma_unexplained(ta, b);
+  m.chroma = static_cast<float>(cf.share);
+  if (cf.share < 0) return true;
+  if (cf.share > s.max_chroma) return false;
+  return cf.a_src ? hue_turn_consistent(ta, b, cf.alpha_re, cf.alpha_im) : hue_turn_consistent(b, ta, cf.alpha_re, cf.alpha_im);
+}
+
+// Sums over 1,024 values in eight fixed lanes (vectorizable, and the same
+// result on any processor).
+inline double dot1024(const float* x, const float* y) {
+  float acc[8] = {};
+  for (int k = 0; k < 1024; k += 8)
+    for (int i = 0; i < 8; ++i) acc[i] += x[k + i] * y[k + i];
+  return ((double(acc[0]) + acc[1]) + (double(acc[2]) + acc[3])) + ((double(acc[4]) + acc[5]) + (double(acc[6]) + acc[7]));
+}
+inline double sum1024(const float* x) {
+  float acc[8] = {};
+  for (int k = 0; k < 1024; k += 8)
+    for (int i = 0; i < 8; ++i) acc[i] += x[k + i];
+  return ((double(acc[0]) + acc[1]) + (double(acc[2]) + acc[3])) + ((double(acc[4]) + acc[5]) + (double(acc[6]) + acc[7]));
+}
+
+// Least squares by the normal equations: Cholesky of the Gram matrix, a
+// regressor that the earlier ones already span (pivot below 1e-9 of its own
+// square) left out. Returns the explained sum of squares and the coefficients.
+constexpr int kFitMax = 7;
+double solve_normal(const double (&gram)[kFitMax][kFitMax], const double* rhs, int n, double* c) {
+  double chol[kFitMax][kFitMax] = {}, z[kFitMax] = {};
+  bool used[kFitMax] = {};
+  for (int k = 0; k < n; ++k) {
+    double d = gram[k][k];
+    for (int l = 0; l < k; ++l) d -= chol[k][l] * chol[k][l];
+    if (!(d > 1e-9 * gram[k][k]) || gram[k][k] <= 0) continue;
+    used[k] = true;
+    chol[k][k] = std::sqrt(d);
+    for (int m = k + 1; m < n; ++m) {
+      double v = gram[m][k];
+      for (int l = 0; l < k; ++l) v -= chol[m][l] * chol[k][l];
+      chol[m][k] = v / chol[k][k];
+    }
+  }
+  // Forward: L z = rhs (explained = |z|^2), back: L^T c = z.
+  double explained = 0;
+  for (int k = 0; k < n; ++k) {
+    if (!used[k]) continue;
+    double v = rhs[k];
+    for (int l = 0; l < k; ++l) v -= chol[k][l] * z[l];
+    z[k] = v / chol[k][k];
+    explained += z[k] * z[k];
+  }
+  for (int k = n - 1; k >= 0; --k) {
+    c[k] = 0;
+    if (!used[k]) continue;
+    double v = z[k];
+    for (int m = k + 1; m < n; ++m) v -= chol[m][k] * c[m];
+    c[k] = v / chol[k][k];
+  }
+  return explained;
+}
+
+// The tone-and-colour fit: the target's gray plane fitted by least squares as a
+// function of the source's pixels: a cubic tone curve of the gray level (a
+// gamma, a contrast or brightness change with clipping at one end) plus, when the
+// source has colour, linear terms in its chroma (bilinear from the 8x8 cells: Cb,
+// Cr, and the largest and smallest of R - Y, G - Y, B - Y), which is how a hue or
+// saturation change moves the gray level of coloured pixels. Returns the
+// correlation the fit explains, sqrt(explained / total) of the target's
+// variation, and, when `pred` is given, writes the fitted plane (centred) there.
+double tone_colour_fit(const Thumbnail& src, const Thumbnail& dst, bool colour, float* pred) {
+  double gram[kFitMax][kFitMax] = {}, rhs[kFitMax] = {}, c[kFitMax] = {}, yy = 0;
+  if (!colour) {
+    // A gray source: the tone curve depends on the source's level alone, so the
+    // sums come from per-level counts and sums of the target (four interleaved
+    // tables, merged), all in integers, then moments of g = level / 255.
+    uint32_t count[4][256] = {}, sum[4][256] = {};
+    uint64_t sy = 0, syy = 0;
+    for (size_t i = 0; i < 1024; i += 4)
+      for (size_t l = 0; l < 4; ++l) {
+        const uint32_t v = src[i + l], y = dst[i + l];
+        ++count[l][v];
+        sum[l][v] += y;
+        sy += y;
+        syy += y * y;
+      }
+    double m[7] = {}, r[4] = {};  // sum of g^k over pixels, sum of g^k y
+    for (int v = 0; v < 256; ++v) {
+      const uint32_t nv = count[0][v] + count[1][v] + count[2][v] + count[3][v];
+      if (nv == 0) continue;
+      const double sv = double(sum[0][v] + sum[1][v] + sum[2][v] + sum[3][v]);
+      const double g = double(v) / 255.0;
+      double p = 1;
+      for (int k = 0; k <= 6; ++k) {
+        m[k] += double(nv) * p;
+        if (k <= 3) r[k] += sv * p;
+        p *= g;
+      }
+    }
+    yy = double(syy) - double(sy) * double(sy) / 1024.0;
+    if (yy <= 0) return 0;
+    for (int k = 0; k < 3; ++k) {
+      rhs[k] = r[k + 1] - m[k + 1] / 1024.0 * r[0];
+      for (int l = 0; l < 3; ++l) gram[k][l] = m[k + l + 2] - m[k + 1] * m[l + 1] / 1024.0;
+    }
+    const double explained = solve_normal(gram, rhs, 3, c);
+    if (pred) {
+      float lut[256];
+      for (int v = 0; v < 256; ++v) {
+        const double g = double(v) / 255.0;
+        lut[v] = float(c[0] * (g - m[1] / 1024.0) + c[1] * (g * g - m[2] / 1024.0) + c[2] * (g * g * g - m[3] / 1024.0));
+      }
+      for (size_t i = 0; i < 1024; ++i) pred[i] = lut[src[i]];
+    }
+    return std::sqrt(std::clamp(explained / yy, 0.0, 1.0));
+  }
+  constexpr int n = kFitMax;
+  // Centred regressors, one plane each: g, g^2, Cb, Cr, max and min of the
+  // channels' offsets, g^3.
+  alignas(32) float x[kFitMax][1024];
+  for (size_t i = 0; i < 1024; ++i) {
+    const float g = float(src[i]) * (1.0f / 255.0f);
+    x[0][i] = g;
+    x[1][i] = g * g;
+    x[6][i] = g * g * g;
+  }
+  // The chroma cells interpolated bilinearly between their centres (4 c + 1.5),
+  // edges held.
+  for (int p = 0; p < 2; ++p) {
+    const uint8_t* plane = src.data() + kGrayBytes + size_t(p) * kChromaPlane;
+    for (int r = 0; r < kThumbSide; ++r) {
+      const float fy = std::clamp((float(r) - 1.5f) * 0.25f, 0.0f, float(kChromaSide - 1));
+      const int y0 = std::min(int(fy), kChromaSide - 2);
+      const float wy = fy - float(y0);
+      for (int cc = 0; cc < kThumbSide; ++cc) {
+        const float fx = std::clamp((float(cc) - 1.5f) * 0.25f, 0.0f, float(kChromaSide - 1));
+        const int x0 = std::min(int(fx), kChromaSide - 2);
+        const float wx = fx - float(x0);
+        const uint8_t* q = plane + y0 * kChromaSide + x0;
+        const float top = float(q[0]) + wx * (float(q[1]) - float(q[0]));
+        const float bottom = float(q[kChromaSide]) + wx * (float(q[kChromaSide + 1]) - float(q[kChromaSide]));
+        x[2 + p][size_t(r * kThumbSide + cc)] = (top + wy * (bottom - top) - 128.0f) * (1.0f / 255.0f);
+      }
+    }
+  }
+  // The largest and smallest of R - Y, G - Y, B - Y (BT.601, from Cb and Cr):
+  // where the brightest and darkest channel sit above and below the gray level.
+  // An HSV saturation change keeps the brightest channel and moves the others
+  // towards it, and a hue change keeps the brightest and darkest, so the gray
+  // level they leave is nearly linear in these two and the gray.
+  for (size_t i = 0; i < 1024; ++i) {
+    const float cb = x[2][i], cr = x[3][i];
+    const float r = 1.402f * cr, b = 1.772f * cb, g = -0.344136f * cb - 0.714136f * cr;
+    x[4][i] = std::max(r, std::max(g, b));
+    x[5][i] = std::min(r, std::min(g, b));
+  }
+  for (int k = 0; k < n; ++k) {
+    const float mean = float(sum1024(x[k]) / 1024.0);
+    for (size_t i = 0; i < 1024; ++i) x[k][i] -= mean;
+  }
+  alignas(32) float y[1024];
+  for (size_t i = 0; i < 1024; ++i) y[i] = float(dst[i]);
+  const float my = float(sum1024(y) / 1024.0);
+  for (size_t i = 0; i < 1024; ++i) y[i] -= my;
+  yy = dot1024(y, y);
+  if (yy <= 0) return 0;
+  for (int k = 0; k < n; ++k) {
+    rhs[k] = dot1024(x[k], y);
+    for (int l = 0; l <= k; ++l) gram[k][l] = gram[l][k] = dot1024(x[k], x[l]);
+  }
+  const double explained = solve_normal(gram, rhs, n, c);
+  if (pred)
+    for (size_t i = 0; i < 1024; ++i) {
+      double v = 0;
+      for (int k = 0; k < n; ++k) v += c[k] * double(x[k][i]);
+      pred[i] = float(v);
+    }
+  return std::sqrt(std::clamp(explained / yy, 0.0, 1.0));
+}
+
+// Whether a thumbnail's chroma varies (chroma_unexplained's rule).
+bool has_colour(const Thumbnail& t) {
+  return centred_chroma(t).ss >= 2.0 * double(kChromaPlane) * kColourless * kColourless;
+}
+
+}  // namespace
+
+MatchProfile match_profile(const Thumbnail& thumb) {
+  MatchProfile p;
+  p.stats = thumb_stats(thumb);
+  p.flat = thumb_is_flat(p.stats);
+  if (p.flat) return p;
+  // Spectral moments from pixel differences (exact integers): with reflecting
+  // edges, sum lambda |A|^2 is the sum of squared neighbour differences and
+  // sum lambda^2 |A|^2 the sum of the squared grid Laplacian.
+  const uint8_t* g = thumb.data();
+  // The plane with its edges repeated: a difference across an edge is then 0,
+  // which is the reflecting edge.
+  int32_t q[34][34];
+  for (int y = 0; y < 32; ++y) {
+    int32_t* row = q[y + 1];
+    for (int x = 0; x < 32; ++x) row[x + 1] = g[32 * y + x];
+    row[0] = row[1];
+    row[33] = row[32];
+  }
+  std::memcpy(q[0], q[1], sizeof q[0]);
+  std::memcpy(q[33], q[32], sizeof q[33]);
+  int32_t e1 = 0, e2 = 0;  // at most 2 * 1024 * 255^2 and 1024 * 1020^2, both < 2^31
+  for (int y = 1; y <= 32; ++y)
+    for (int x = 1; x <= 32; ++x) {
+      const int32_t dx = q[y][x + 1] - q[y][x], dy = q[y + 1][x] - q[y][x];
+      const int32_t lap = q[y][x - 1] + q[y][x + 1] + q[y - 1][x] + q[y + 1][x] - 4 * q[y][x];
+      e1 += dx * dx + dy * dy;
+      e2 += lap * lap;
+    }
+  const double e0 = double(p.stats.sum_sq) - double(p.stats.sum) * double(p.stats.sum) / 1024.0;
+  const double mean = double(e1) / e0;
+  p.lambda_mean = static_cast<float>(mean);
+  p.lambda_var = static_cast<float>(std::max(0.0, double(e2) / e0 - mean * mean));
+  double block[64];
+  dct_low_block(g, block);
+  const double norm = std::sqrt(e0);
+  const BlurTable& bt = blur_table();
+  std::array<double, kScreenCoefficients> unit{};
+  for (size_t i = 0; i < size_t(kScreenCoefficients); ++i) {
+    const int k = bt.index[i];
+    const double q = double(std::lround(std::clamp(block[8 * (k / 32) + k % 32] / norm, -1.0, 1.0) * kLowScale));
+    p.low[i] = static_cast<int16_t>(q);
+    unit[i] = q / kLowScale;
+  }
+  // (float lanes: the rounding is far inside the 2 / 65535 the screen allows for q)
+  alignas(16) float sq[kScreenSlots] = {};
+  for (size_t i = 0; i < size_t(kScreenCoefficients); ++i) sq[i] = float(unit[i] * unit[i]);
+  for (int s = 0; s < kBlurSteps; ++s) {
+    const float* g2 = bt.low_gain2[size_t(s)].data();
+    Lanes e = {};
+    for (size_t i = 0; i < size_t(kScreenSlots); i += 4) e += lanes_at(g2 + i) * lanes_at(sq + i);
+    p.energy[size_t(s)] = static_cast<uint16_t>(std::clamp(std::floor(lane_sum(e) * 65535.0), 0.0, 65535.0));
+  }
+  return p;
+}
+
+BlurCandidates blur_candidates(const MatchProfile& a, const MatchProfile& b) {
+  BlurCandidates c;
+  // A blur by tau lowers the mean of lambda by about 2 tau times its variance
+  // (the first term of the cumulant expansion, which underestimates strong blur:
+  // hence the two steps above the estimate).
+  c.blur_a = a.lambda_mean >= b.lambda_mean;
+  const MatchProfile& sharp = c.blur_a ? a : b;
+  // sigma^2 = 2 tau = drop / variance; j: the first step with sigma_j >= sigma.
+  const double drop = std::abs(double(a.lambda_mean) - double(b.lambda_mean));
+  const double var = double(sharp.lambda_var);
+  int j = 1;
+  while (j < kBlurSteps - 1 && blur_sigma(j) * blur_sigma(j) * var < drop) ++j;
+  for (int s = j - 1; s <= j + 2; ++s)
+    if (s >= 1 && s < kBlurSteps) c.steps[size_t(c.count++)] = s;
+  return c;
+}
+
+namespace {
+
+// One pair's screen sums (a after transform t), in units of 1: <a_L, b_L>,
+// |a_L|^2, |b_L|^2, and for the pair's blur candidates (consecutive steps from
+// c.steps[0]) p[d] = <g x_L, y_L> of step c.steps[0] + d.
+struct LowPair {
+  double dot = 0, aa = 0, bb = 0;
+  std::array<double, 4> p{};
+};
+
+LowPair low_pair(const MatchProfile& a, int t, const MatchProfile& b, const BlurCandidates& c) {
+  const BlurTable& bt = blur_table();
+  // a's coefficients after transform t, signs included; the join asks about one
+  // variant many times in a row, so the last one is kept per thread (checked by
+  // its content).
+  struct Turned {
+    int t = -1;
+    std::array<int16_t, kScreenSlots> low{};
+    alignas(16) float c[kScreenSlots] = {};
+    double aa = 0;
+  };
+  thread_local Turned turned;
+  if (turned.t != t || std::memcmp(turned.low.data(), a.low.data(), sizeof a.low) != 0) {
+    const float* sign = bt.sign[size_t(t)].data();
+    double aa = 0;
+    for (size_t i = 0; i < size_t(kScreenCoefficients); ++i) {
+      turned.c[i] = sign[i] * float(a.low[(t & 4) ? size_t(bt.transposed[i]) : i]);
+      aa += double(turned.c[i]) * turned.c[i];
+    }
+    turned.aa = aa / (kLowScale * kLowScale);
+    turned.low = a.low;
+    turned.t = t;
+  }
+  const size_t first = size_t(c.count > 0 ? c.steps[0] : 0);
+  const float* g0 = bt.low_gain[first].data();
+  const float* g1 = bt.low_gain[first + 1].data();
+  const float* g2 = bt.low_gain[first + 2].data();
+  const float* g3 = bt.low_gain[first + 3].data();
+  Lanes dot = {}, bb = {}, p0 = {}, p1 = {}, p2 = {}, p3 = {};
+  for (size_t i = 0; i < size_t(kScreenSlots); i += 4) {
+    Shorts raw;
+    std::memcpy(&raw, b.low.data() + i, sizeof raw);
+    const Lanes bv = __builtin_convertvector(raw, Lanes);
+    const Lanes prod = lanes_at(turned.c + i) * bv;
+    dot += prod;
+    bb += bv * bv;
+    p0 += lanes_at(g0 + i) * prod;
+    p1 += lanes_at(g1 + i) * prod;
+    p2 += lanes_at(g2 + i) * prod;
+    p3 += lanes_at(g3 + i) * prod;
+  }
+  LowPair lp;
+  constexpr double kUnit = 1.0 / (kLowScale * kLowScale);
+  lp.dot = lane_sum(dot) * kUnit;
+  lp.aa = turned.aa;
+  lp.bb = lane_sum(bb) * kUnit;
+  lp.p = {lane_sum(p0), lane_sum(p1), lane_sum(p2), lane_sum(p3)};  // low_gain carries 1 / 32767^2
+  return lp;
+}
+
+// False only when no blur step tried for the pair can bring the correlation to
+// thr. A blur step s on the sharper side x, target y (both unit vectors): with
+// p = <g x_L, y_L>, q = |g x_L|^2 and the rest of y of squared length
+// 1 - |y_L|^2, Cauchy-Schwarz on the rest gives
+// rho <= sqrt(max(p, 0)^2 / q + 1 - |y_L|^2).
+// The stored coefficients are rounded to 1/32767: each side's vector of them is
+// off by at most e = sqrt(42) / 2 / 32767 < 1e-4, so p is off by at most
+// e (1 + sqrt(q)), q by 2 e sqrt(q) (and 1/65535 for its own rounding down),
+// |y_L|^2 by 2 e; the slack adds what that can move the bound, so that the
+// screen never rejects a pair the exact correlation would join.
+bool blur_may_reach(const MatchProfile& a, const MatchProfile& b, const BlurCandidates& c, const LowPair& lp,
+                    double thr) {
+  const double thr2 = thr * thr;
+  const MatchProfile& x = c.blur_a ? a : b;
+  const double yl = c.blur_a ? lp.bb : lp.aa;
+  constexpr double e = 1e-4, dyl = 2 * e + 1e-6;
+  // The slack's largest value for q >= 0.02 (below, the pair is kept anyway):
+  // 2 sqrt(1 / 0.02) (2e + 1e-6) + (2e sqrt(0.02) + 2 / 65535) / 0.02 < 6e-3.
+  constexpr double kMostSlack = 6e-3;
+  const double need = thr2 - 1.0 + yl;  // what explained + slack must reach
+  if (need <= dyl) return true;
+  for (int i = 0; i < c.count; ++i) {
+    const int s = c.steps[size_t(i)];
+    const double p = lp.p[size_t(i)];
+    const double q = double(x.energy[size_t(s)]) / 65535.0;
+    if (q < 0.02) return true;  // too little of x left in the block for a sharp bound
+    // Most pairs fail even with the largest slack (no square root, no division).
+    if ((p > 0 ? std::min(yl * q, p * p) : 0.0) + (kMostSlack + dyl) * q < need * q) continue;
+    const double rq = std::sqrt(q);
+    const double dp = e * (1.0 + rq) + 1e-6, dq = 2.0 * e * rq + 2.0 / 65535.0;
+    const double slack = 2.0 * std::sqrt(yl / q) * dp + yl * dq / q + dyl;
+    const double explained = std::min(yl, p > 0 ? p * p / q : 0.0);
+    if (explained + slack >= need) return true;
+  }
+  return false;
+}
+
+}  // namespace
+
+double fit_gate(const MatchSettings& s) {
+  // With the fit off (fit_floor at or above min_correlation) the gate is the threshold itself.
+  return s.fit_floor < s.min_correlation ? std::clamp(kFitGate, s.fit_floor, s.min_correlation) : s.min_correlation;
+}
+
+bool match_may_join(const MatchProfile& a, int t, const MatchProfile& b, const MatchSettings& settings) {
+  const double thr = settings.min_correlation;
+  if (thr <= 0 || a.flat || b.flat) return true;
+  const BlurCandidates c = blur_candidates(a, b);
+  const LowPair lp = low_pair(a, t, b, c);
+  // No blur: 1 - rho = |a' - b'|^2 / 2 over all coefficients (unit vectors), and
+  // the screen's 42 coefficients bound it from below; the rounding moves the
+  // distance by at most sqrt(42) / 32767 < 2.5e-4.
+  const double dist = std::max(0.0, lp.aa + lp.bb - 2.0 * lp.dot);
+  const double d = std::max(0.0, std::sqrt(dist) - 2.5e-4);
+  if (1.0 - d * d / 2.0 >= thr) return true;
+  // The blurred bound at min_correlation, or at the fit's gate when the fit is on.
+  return blur_may_reach(a, b, c, lp, fit_gate(settings));
+}
+
+Match match_thumbnails(const Thumbnail& ta, const MatchProfile& pa, int t, const Thumbnail& b, const MatchProfile& pb,
+                       const MatchSettings& s, std::vector<float>* a_spectrum) {
+  Match m;
+  m.correlation = static_cast<float>(thumb_correlation(ta, pa.stats, b, pb.stats));
+  if (pa.flat || pb.flat) {  // the flat rule decides the gray pictures; the colours still count
+    m.joined = m.correlation >= s.min_correlation && colours_agree(ta, b, s, m);
+    return m;
+  }
+  const double plain = m.correlation;
+  std::vector<float> blurred;  // the blurred side's pixels, when a blur step matched best
+  // The blur steps, unless the low blocks prove that none can reach the
+  // threshold (blur_may_reach: a bound, so the result is the same). They are
+  // tried even when the thumbnails as they are reach it: the best step also
+  // gives the residual that the local check measures.
+  const BlurCandidates cand = blur_candidates(pa, pb);
+  const LowPair lp = low_pair(pa, t, pb, cand);
+  const bool may_reach = blur_may_reach(pa, pb, cand, lp, s.min_correlation);
+  if (may_reach) {
+    // Correlations from both full DCTs (DC left out).
+    std::vector<float> own;
+    std::vector<float>& sa = a_spectrum ? *a_spectrum : own;
+    if (sa.empty()) {
+      sa.resize(1024);
+      dct32(ta.data(), sa.data());
+    }
+    alignas(32) float sb[1024];
+    dct32(b.data(), sb);
+    // Per coefficient (DC left out): the product, and the blurred side's square.
+    const BlurCandidates& c = cand;
+    const float* x = c.blur_a ? sa.data() : sb;
+    alignas(32) float ab[1024], xx[1024], yy[1024];
+    for (size_t k = 0; k < 1024; ++k) {
+      ab[k] = sa[k] * sb[k];
+      xx[k] = x[k] * x[k];
+      yy[k] = (c.blur_a ? sb[k] : sa[k]) * (c.blur_a ? sb[k] : sa[k]);
+    }
+    ab[0] = xx[0] = yy[0] = 0;
+    const double ey = sum1024(yy);
+    int best_step = 0;
+    double best = m.correlation;
+    for (int i = 0; i < c.count; ++i) {
+      const int step = c.steps[size_t(i)];
+      const double num = dot1024(blur_table().gain[size_t(step)].data(), ab);
+      const double eg = dot1024(blur_table().gain2[size_t(step)].data(), xx);
+      const double r = num / std::sqrt(eg * ey);
+      if (r > best) {
+        best = r;
+        best_step = step;
+      }
+    }
+    m.correlation = static_cast<float>(best);
+    if (best_step > 0 && best >= s.min_correlation) {
+      m.blur_step = best_step;
+      m.blurred_a = c.blur_a;
+      const auto& gain = blur_table().gain[size_t(best_step)];
+      alignas(32) float coef[1024];
+      coef[0] = 0;
+      for (size_t k = 1; k < 1024; ++k) coef[k] = gain[k] * x[k];
+      blurred.resize(1024);
+      idct32(coef, blurred.data());
+    }
+  }
+  // The tone-and-colour fit, for pairs whose plain correlation reaches the fit's
+  // floor but that neither the plain nor a blurred comparison joins: both ways
+  // round (each side as the source), the better kept.
+  alignas(32) float fitted[1024];
+  if (m.correlation < s.min_correlation && plain >= s.fit_floor && s.fit_floor < s.min_correlation &&
+      blur_may_reach(pa, pb, cand, lp, fit_gate(s))) {
+    const bool ca = has_colour(ta), cb = has_colour(b);
+    const double ab = tone_colour_fit(ta, b, ca, nullptr);
+    const double ba = tone_colour_fit(b, ta, cb, nullptr);
+    const double best = std::max(ab, ba);
+    if (best > m.correlation) {
+      m.correlation = static_cast<float>(best);
+      m.fitted = true;
+      m.fitted_a = ab >= ba;
+      if (best >= s.min_correlation) {  // the fitted plane, for the local check
+        if (m.fitted_a) tone_colour_fit(ta, b, ca, fitted);
+        else tone_colour_fit(b, ta, cb, fitted);
+      }
+    }
+  }
+  if (m.correlation < s.min_correlation) return m;
+  if (m.fitted)
+    m.local = static_cast<float>(m.fitted_a ? local_residual(fitted, b.data()) : local_residual(ta.data(), fitted));
+  else if (m.blur_step == 0)
+    m.local = static_cast<float>(local_residual(ta.data(), b.data()));
+  else
+    m.local = static_cast<float>(m.blurred_a ? local_residual(blurred.data(), b.data())
+                                             : local_residual(ta.data(), blurred.data()));
+  if (m.local > s.max_local) return m;
+  m.joined = colours_agree(ta, b, s, m);
+  return m;
+}
+
+Match match_thumbnails(const Thumbnail& a, int t, const Thumbnail& b, const MatchSettings& s) {
+  Thumbnail ta;
+  turn_thumbnail(a, ta, t);
+  return match_thumbnails(ta, match_profile(a), t, b, match_profile(b), s);
+}
+
+}  // namespace tamis

@@ -1,0 +1,145 @@
+#include "tamis/report/manifest.h"
+
+#include <algorithm>
+#include <charconv>
+#include <istream>
+#include <numeric>
+#include <stdexcept>
+#include <string_view>
+
+#include "tamis/base/text.h"
+
+namespace tamis {
+
+void append_csv_field(std::string& out, std::string_view field) {
+  bool quote = field.find_first_of(",\"\r\n") != std::string_view::npos;
+  if (!quote) {
+    out.append(field);
+    return;
+  }
+  out.push_back('"');
+  for (char c : field) {
+    if (c == '"') out.push_back('"');
+    out.push_back(c);
+  }
+  out.push_back('"');
+}
+
+RecordFlags record_flags(const AuditResult& result) {
+  RecordFlags out;
+  const auto& records = result.records;
+  for (const auto& f : result.findings) out.codes.push_back(f.code);
+  std::sort(out.codes.begin(), out.codes.end());
+  out.codes.erase(std::unique(out.codes.begin(), out.codes.end()), out.codes.end());
+  // Records are in path order (the walk's); a table of them in that order finds a path.
+  std::vector<uint32_t> by_path(records.size());
+  std::iota(by_path.begin(), by_path.end(), 0u);
+  auto path_less = [&](uint32_t a, uint32_t b) { return records[a].path < records[b].path; };
+  if (!std::is_sorted(by_path.begin(), by_path.end(), path_less)) std::sort(by_path.begin(), by_path.end(), path_less);
+  auto below = [&](uint32_t i, const std::string& v) { return records[i].path < v; };
+  for (const auto& f : result.findings) {
+    const auto code = static_cast<uint32_t>(std::lower_bound(out.codes.begin(), out.codes.end(), f.code) - out.codes.begin());
+    // A finding's paths are sorted (sort_findings): each is searched for from
+    // where the last was found, by galloping (steps 1, 2, 4, ... then halving),
+    // so a finding naming every file costs a pass, not a binary search a path.
+    const bool sorted = std::is_sorted(f.paths.begin(), f.paths.end());
+    auto from = by_path.begin();
+    for (const auto& p : f.paths) {
+      if (!sorted) from = by_path.begin();
+      size_t step = 1;
+      auto to = from;
+      while (to != by_path.end() && below(*to, p)) {
+        from = to + 1;
+        to = static_cast<size_t>(by_path.end() - from) > step ? from + static_cast<long>(step) : by_path.end();
+        step *= 2;
+      }
+      auto it = std::lower_bound(from, to, p, below);
+      if (it != by_path.end() && records[*it].path == p) out.pairs.emplace_back(*it, code);
+      from = it;
+    }
+  }
+  std::sort(out.pairs.begin(), out.pairs.end());
+  out.pairs.erase(std::unique(out.pairs.begin(), out.pairs.end()), out.pairs.end());
+  return out;
+}
+
+void write_manifest(std::ostream& os, const AuditResult& r) {
+  static const char* kHeader[] = {"path", "label", "split", "group", "width", "height", "mode", "bit_depth",
+                                  "format", "mask_path", "flags", "reason", "bytes", "orientation", "frames",
+                                  "content_hash", "fold", "brightness", "contrast", "entropy", "sharpness",
+                                  "name_escape"};
+  std::string line;
+  for (size_t c = 0; c < std::size(kHeader); ++c) {
+    if (c) line.push_back(',');
+    line.append(kHeader[c]);
+  }
+  line.append("\r\n");
+  os << line;
+  const RecordFlags flags = record_flags(r);
+  size_t next_flag = 0;  // flags.pairs are in record order
+  std::string record_codes;
+  for (size_t i = 0; i < r.records.size(); ++i) {
+    record_codes.clear();
+    for (; next_flag < flags.pairs.size() && flags.pairs[next_flag].first == i; ++next_flag) {
+      if (!record_codes.empty()) record_codes.push_back(';');
+      record_codes.append(flags.codes[flags.pairs[next_flag].second]);
+    }
+    const FileRecord& rec = r.records[i];
+    if (!is_manifest_row(rec)) continue;
+    line.clear();
+    auto field = [&](std::string_view v) {
+      append_csv_field(line, v);
+      line.push_back(',');
+    };
+    bool readable = rec.kind == FileKind::image;
+    bool probed = rec.probe.format != Format::unknown;
+    // Names are bytes; a row whose path, label or mask path is not UTF-8 writes
+    // all three in the percent escape (text.h) and says so in name_escape.
+    const std::string_view label = r.labels.label_of[i] >= 0 ? std::string_view(r.labels.names[r.labels.label_of[i]]) : "";
+    const std::string_view mask = r.masks.mask_of[i] >= 0 ? std::string_view(r.records[static_cast<size_t>(r.masks.mask_of[i])].path) : "";
+    const bool escaped = !is_utf8(rec.path) || !is_utf8(label) || !is_utf8(mask);
+    std::string escaped_path, escaped_label, escaped_mask;  // filled only for an escaped row
+    if (escaped) {
+      escaped_path = escape_name(rec.path);
+      escaped_label = escape_name(label);
+      escaped_mask = escape_name(mask);
+    }
+    field(escaped ? std::string_view(escaped_path) : std::string_view(rec.path));
+    field(escaped ? std::string_view(escaped_label) : label);
+    field(to_string(r.split.placement[i]));
+    field(r.groups.group_of[i] >= 0 ? group_id(r.groups.group_of[i]) : "");
+    field(probed ? std::to_string(rec.probe.width) : "");
+    field(probed ? std::to_string(rec.probe.height) : "");
+    field(probed ? to_string(rec.probe.mode) : "");
+    field(probed ? std::to_string(rec.probe.bit_depth) : "");
+    field(probed ? to_string(rec.probe.format) : "");
+    field(escaped ? std::string_view(escaped_mask) : mask);
+    field(record_codes);
+    field(readable ? "" : defect_code(rec.defect));
+    field(std::to_string(rec.size));
+    field(probed && rec.probe.orientation ? std::to_string(rec.probe.orientation) : "");
+    field(probed ? std::to_string(rec.probe.frames) : "");
+    if (rec.features.has_content_hash) {
+      for (uint64_t h : rec.features.content_hash)
+        for (int shift = 60; shift >= 0; shift -= 4) line.push_back("0123456789abcdef"[(h >> shift) & 15]);
+    }
+    line.push_back(',');
+    if (r.split.fold[i] >= 0) line.append(std::to_string(r.split.fold[i]));
+    if (rec.features.has_lookalike) {
+      // std::to_chars with a precision writes what printf's "%.Nf" writes.
+      const auto& st = rec.features.stats;
+      char buf[64];
+      for (auto [v, digits] : {std::pair{st.luma_mean, 1}, {st.luma_std, 1}, {st.entropy, 2}, {st.focus, 1}}) {
+        line.push_back(',');
+        auto res = std::to_chars(buf, buf + sizeof buf, v, std::chars_format::fixed, digits);
+        line.append(buf, res.ptr);
+      }
+    } else {
+      line.append(",,,,");
+    }
+    line.append(escaped ? ",percent\r\n" : ",\r\n");
+    os << line;
+  }
+}
+
+}  // namespace tamis

@@ -1,0 +1,388 @@
+#include "tamis/report/report_html.h"
+
+#include <algorithm>
+#include <cmath>
+#include <set>
+#include <sstream>
+
+namespace tamis {
+
+using nlohmann::json;
+
+std::string html_escape(std::string_view s) {
+  std::string out;
+  out.reserve(s.size() + 16);
+  for (char c : s) {
+    switch (c) {
+      case '&': out += "&amp;"; break;
+      case '<': out += "&lt;"; break;
+      case '>': out += "&gt;"; break;
+      case '"': out += "&quot;"; break;
+      case '\'': out += "&#39;"; break;
+      default: out.push_back(c);
+    }
+  }
+  return out;
+}
+
+namespace {
+
+constexpr size_t kMaxRows = 200;  // rows per list on the page; the JSON has them all
+
+std::string str(const json& j) {
+  if (j.is_string()) return j.get<std::string>();
+  return j.dump(-1, ' ', false, json::error_handler_t::replace);
+}
+std::string esc(const json& j) { return html_escape(str(j)); }
+
+// The member `key` of object `j` by reference, or an empty array / object when
+// it is missing (json::value() would copy it: a finding's paths can be 70,000).
+const json& array_at(const json& j, const char* key) {
+  static const json empty = json::array();
+  if (!j.is_object()) return empty;
+  auto it = j.find(key);
+  return it != j.end() ? *it : empty;
+}
+const json& object_at(const json& j, const char* key) {
+  static const json empty = json::object();
+  if (!j.is_object()) return empty;
+  auto it = j.find(key);
+  return it != j.end() ? *it : empty;
+}
+
+const char* kStyle = R"CSS(
+:root{--ink:#1d2a30;--paper:#f6f1e9;--card:#fffdf8;--rule:#d9cfbf;--teal:#0f4c5c;--ochre:#e36414;--moss:#5f7f3a;--plum:#7a3b69}
+*{box-sizing:border-box}body{margin:0;font:15px/1.45 system-ui,-apple-system,"Segoe UI",sans-serif;color:var(--ink);background:var(--paper)}
+header{background:var(--teal);color:#fff;padding:18px 28px}header h1{margin:0;font-size:22px;letter-spacing:.5px}
+header p{margin:4px 0 0;opacity:.85;font-size:13px}main{padding:18px 28px;max-width:1200px}
+section{background:var(--card);border:1px solid var(--rule);border-radius:6px;padding:14px 18px;margin:0 0 16px}
+h2{margin:0 0 10px;font-size:17px;color:var(--teal)}
+.tiles{display:flex;flex-wrap:wrap;gap:10px}.tile{border-left:4px solid var(--teal);padding:6px 12px;min-width:120px;background:#fbf7f0}
+.tile b{display:block;font-size:22px}.tile.bad{border-color:var(--ochre)}.tile.mute{border-color:#9aa5a8}
+table{border-collapse:collapse;width:100%;font-size:13.5px}th,td{text-align:left;padding:4px 8px;border-bottom:1px solid #ece4d6;vertical-align:top}
+th{background:#f1ebe0;font-weight:600}td.num{text-align:right;font-variant-numeric:tabular-nums}
+.bar{display:flex;height:12px;min-width:40px;background:#eee6d8;border-radius:2px;overflow:hidden}
+.bar span{display:block;height:100%}.tr{background:var(--teal)}.va{background:var(--moss)}.te{background:var(--ochre)}.ex{background:#b9b2a6}
+.sev{font-weight:600;padding:1px 6px;border-radius:3px;font-size:12px;color:#fff}.sev.error{background:#b3261e}.sev.warning{background:var(--ochre)}.sev.info{background:#5b7083}
+code,.path{font-family:ui-monospace,Menlo,Consolas,monospace;font-size:12.5px;word-break:break-all;white-space:pre-wrap}
+.note{color:#5d6b70;font-size:12.5px}.filters{display:flex;gap:14px;align-items:center;margin:0 0 8px;font-size:13px}
+.group{border-top:1px solid #ece4d6;padding:8px 0}.gh{font-size:13px;margin-bottom:4px}.strip{display:flex;gap:8px;flex-wrap:wrap}
+figure{margin:0;width:96px}figure img,.nothumb{width:64px;height:64px;image-rendering:pixelated;border:1px solid var(--rule);background:#eee6d8}
+figcaption{font-size:10.5px}table.narrow{width:auto;margin-top:8px}.legend span{display:inline-block;width:10px;height:10px;margin:0 4px 0 10px;border-radius:2px}
+)CSS";
+
+void tiles(std::ostringstream& o, const json& t) {
+  o << "<section id=\"inventory\"><h2>Inventory</h2><div class=\"tiles\">";
+  auto tile = [&](const char* name, const char* key, const char* cls) {
+    o << "<div class=\"tile " << cls << "\"><b>" << esc(t.value(key, json(0))) << "</b>" << name << "</div>";
+  };
+  tile("files seen", "files_seen", "");
+  tile("images", "images", "");
+  tile("masks", "masks", "mute");
+  tile("unreadable", "unreadable", t.value("unreadable", 0) > 0 ? "bad" : "mute");
+  tile("ignored", "ignored", "mute");
+  o << "</div></section>\n";
+}
+
+void classes(std::ostringstream& o, const json& report) {
+  const json& cl = array_at(report, "classes");
+  o << "<section id=\"classes\"><h2>Classes and splits</h2>";
+  if (cl.empty()) {
+    o << "<p class=\"note\">No labelled images.</p></section>\n";
+    return;
+  }
+  uint64_t largest = 0, smallest = UINT64_MAX;
+  for (const auto& c : cl) {
+    uint64_t n = c.value("count", uint64_t{0});
+    largest = std::max(largest, n);
+    smallest = std::min(smallest, n);
+  }
+  o << "<p class=\"note\">" << cl.size() << " classes; largest " << largest << ", smallest " << smallest;
+  if (smallest > 0) o << ", imbalance ratio " << (largest * 100 / smallest) / 100.0;
+  o << ".<span class=\"legend\"><span class=\"tr\"></span>train<span class=\"va\"></span>val"
+       "<span class=\"te\"></span>test<span class=\"ex\"></span>excluded</span></p>";
+  o << "<table><tr><th>class</th><th class=\"num\">images</th><th class=\"num\">train</th><th class=\"num\">val</th>"
+       "<th class=\"num\">test</th><th style=\"width:40%\">share of the largest class</th></tr>";
+  size_t shown = 0;
+  for (const auto& c : cl) {
+    if (shown++ == kMaxRows) break;
+    uint64_t n = c.value("count", uint64_t{0});
+    const json& s = object_at(c, "splits");
+    uint64_t tr = s.value("train", uint64_t{0}), va = s.value("val", uint64_t{0}), te = s.value("test", uint64_t{0});
+    uint64_t ex = c.value("excluded", uint64_t{0});
+    double w = largest ? 100.0 * n / largest : 0;
+    auto pct = [&](uint64_t k) { return n ? 100.0 * k / n : 0.0; };
+    o << "<tr><td class=\"path\">" << esc(c.value("label", json(""))) << "</td><td class=\"num\">" << n
+      << "</td><td class=\"num\">" << tr << "</td><td class=\"num\">" << va << "</td><td class=\"num\">" << te
+      << "</td><td><div class=\"bar\" style=\"width:" << w << "%\"><span class=\"tr\" style=\"width:" << pct(tr)
+      << "%\"></span><span class=\"va\" style=\"width:" << pct(va) << "%\"></span><span class=\"te\" style=\"width:"
+      << pct(te) << "%\"></span><span class=\"ex\" style=\"width:" << pct(ex) << "%\"></span></div></td></tr>";
+  }
+  o << "</table>";
+  if (cl.size() > kMaxRows) o << "<p class=\"note\">First " << kMaxRows << " of " << cl.size() << " classes.</p>";
+  o << "</section>\n";
+}
+
+void storage(std::ostringstream& o, const json& report) {
+  o << "<section id=\"storage\"><h2>Formats and colour modes</h2><table><tr><th>format</th><th class=\"num\">images</th></tr>";
+  const json& formats = object_at(report, "formats");
+  const json& modes = object_at(report, "modes");
+  for (const auto& [k, v] : formats.items())
+    o << "<tr><td>" << html_escape(k) << "</td><td class=\"num\">" << esc(v) << "</td></tr>";
+  o << "</table><br><table><tr><th>mode / bits per sample</th><th class=\"num\">images</th></tr>";
+  for (const auto& [k, v] : modes.items())
+    o << "<tr><td>" << html_escape(k) << "</td><td class=\"num\">" << esc(v) << "</td></tr>";
+  o << "</table></section>\n";
+}
+
+std::string join_labels(const json& g) {
+  std::string out;
+  for (const auto& l : array_at(g, "labels")) out += (out.empty() ? "" : ", ") + str(l);
+  return out;
+}
+
+// The class a path belongs to, for the findings filter (display only).
+std::string class_of_path(const std::string& p, bool pre_split) {
+  size_t a = p.find('/');
+  if (a == std::string::npos) return "";
+  if (!pre_split) return p.substr(0, a);
+  size_t b = p.find('/', a + 1);
+  return b == std::string::npos ? "" : p.substr(a + 1, b - a - 1);
+}
+
+void findings(std::ostringstream& o, const json& report, const std::vector<Finding>* finding_list) {
+  const json& fs = array_at(report, "findings");
+  const bool pre_split = object_at(report, "layout").value("pre_split", false);
+  o << "<section id=\"findings\"><h2>Findings</h2>";
+  if (fs.empty()) {
+    o << "<p class=\"note\">Nothing to report.</p></section>\n";
+    return;
+  }
+  std::set<std::string> codes, classes;
+  for (const auto& f : fs) codes.insert(str(f.value("code", json(""))));
+  for (const auto& c : array_at(report, "classes")) classes.insert(str(c.value("label", json(""))));
+  o << "<div class=\"filters\"><label>severity <select id=\"f-sev\"><option value=\"\">all</option>"
+       "<option>error</option><option>warning</option><option>info</option></select></label>"
+       "<label>code <select id=\"f-code\"><option value=\"\">all</option>";
+  for (const auto& c : codes) o << "<option>" << html_escape(c) << "</option>";
+  o << "</select></label><label>class <select id=\"f-class\"><option value=\"\">all</option>";
+  for (const auto& c : classes) o << "<option>" << html_escape(c) << "</option>";
+  o << "</select></label><span class=\"note\" id=\"f-count\"></span></div>";
+  o << "<table id=\"findings-table\"><thead><tr><th data-sort=\"0\">severity</th><th data-sort=\"1\">code</th>"
+       "<th>what</th><th data-sort=\"3\" style=\"width:38%\">files</th></tr></thead><tbody>";
+  size_t shown = 0;
+  std::vector<std::string> from_json;
+  for (const auto& f : fs) {
+    if (shown == kMaxRows) break;
+    const size_t row = shown++;
+    std::string sev = str(f.value("severity", json("info")));
+    // The paths from the findings themselves when given (the report then holds none).
+    const std::vector<std::string>* list = &from_json;
+    if (finding_list && row < finding_list->size() && !f.contains("paths")) {
+      list = &(*finding_list)[row].paths;
+    } else {
+      from_json.clear();
+      for (const auto& p : array_at(f, "paths")) from_json.push_back(str(p));
+    }
+    const std::vector<std::string>& paths = *list;
+    std::set<std::string> row_classes;
+    for (const auto& p : paths) {
+      std::string c = class_of_path(p, pre_split);
+      if (!c.empty()) row_classes.insert(c);
+    }
+    const json& details = object_at(f, "details");
+    if (details.contains("label") && details["label"].is_string()) row_classes.insert(details["label"].get<std::string>());
+    if (details.contains("labels") && details["labels"].is_array())
+      for (const auto& l : details["labels"]) if (l.is_string()) row_classes.insert(l.get<std::string>());
+    std::string cls_attr;
+    for (const auto& c : row_classes) cls_attr += "\x1f" + c;
+    int rank = sev == "error" ? 0 : sev == "warning" ? 1 : 2;
+    o << "<tr data-sev=\"" << html_escape(sev) << "\" data-code=\"" << esc(f.value("code", json(""))) << "\" data-classes=\""
+      << html_escape(cls_attr + "\x1f") << "\" data-k0=\"" << rank << "\" data-k3=\"" << paths.size() << "\">"
+      << "<td><span class=\"sev " << html_escape(sev) << "\">" << html_escape(sev) << "</span>";
+    if (f.contains("baseline")) o << " <span class=\"note\">" << esc(f["baseline"]) << "</span>";
+    o << "</td><td><code>" << esc(f.value("code", json(""))) << "</code></td><td>" << esc(f.value("message", json("")))
+      << "</td><td>";
+    size_t k = 0;
+    for (const auto& p : paths) {
+      if (k++ == 8) {
+        o << "<div class=\"note\">… and " << paths.size() - 8 << " more (see report.json)</div>";
+        break;
+      }
+      o << "<div class=\"path\">" << html_escape(p) << "</div>";
+    }
+    o << "</td></tr>";
+  }
+  o << "</tbody></table>";
+  if (fs.size() > kMaxRows) o << "<p class=\"note\">First " << kMaxRows << " of " << fs.size() << " findings.</p>";
+  o << "</section>\n";
+}
+
+void sizes(std::ostringstream& o, const json& report) {
+  const json& sz = array_at(report, "sizes");
+  if (sz.empty()) return;
+  // Log-log scatter of stored width x height; circle area grows with the count.
+  double max_side = 16;
+  uint64_t max_count = 1;
+  for (const auto& e : sz) {
+    max_side = std::max({max_side, e.value("width", 1.0), e.value("height", 1.0)});
+    max_count = std::max(max_count, e.value("count", uint64_t{1}));
+  }
+  const double hi = std::log10(max_side * 1.5);
+  const int W = 520, H = 360, L = 56, B = 40;
+  auto px = [&](double v) { return L + std::log10(std::max(v, 1.0)) / hi * (W - L - 12); };
+  auto py = [&](double v) { return H - B - std::log10(std::max(v, 1.0)) / hi * (H - B - 12); };
+  o << "<section id=\"sizes\"><h2>Image sizes</h2><svg width=\"" << W << "\" height=\"" << H
+    << "\" viewBox=\"0 0 " << W << " " << H << "\" role=\"img\" aria-label=\"width by height\">";
+  o << "<rect x=\"" << L << "\" y=\"12\" width=\"" << W - L - 12 << "\" height=\"" << H - B - 12
+    << "\" fill=\"#fbf7f0\" stroke=\"#d9cfbf\"/>";
+  for (double t : {10.0, 100.0, 1000.0, 10000.0}) {
+    if (t > max_side * 1.5) break;
+    o << "<line x1=\"" << px(t) << "\" y1=\"12\" x2=\"" << px(t) << "\" y2=\"" << H - B << "\" stroke=\"#e6dccb\"/>"
+      << "<text x=\"" << px(t) << "\" y=\"" << H - B + 16 << "\" font-size=\"11\" text-anchor=\"middle\">" << t << "</text>"
+      << "<line x1=\"" << L << "\" y1=\"" << py(t) << "\" x2=\"" << W - 12 << "\" y2=\"" << py(t) << "\" stroke=\"#e6dccb\"/>"
+      << "<text x=\"" << L - 6 << "\" y=\"" << py(t) + 4 << "\" font-size=\"11\" text-anchor=\"end\">" << t << "</text>";
+  }
+  o << "<text x=\"" << (W + L) / 2 << "\" y=\"" << H - 6 << "\" font-size=\"12\" text-anchor=\"middle\">width (px)</text>"
+    << "<text x=\"14\" y=\"" << (H - B) / 2 << "\" font-size=\"12\" transform=\"rotate(-90 14 " << (H - B) / 2
+    << ")\" text-anchor=\"middle\">height (px)</text>";
+  for (const auto& e : sz) {
+    double w = e.value("width", 1.0), h = e.value("height", 1.0);
+    uint64_t n = e.value("count", uint64_t{1});
+    double r = 2.5 + 14.0 * std::sqrt(double(n) / double(max_count));
+    o << "<circle cx=\"" << px(w) << "\" cy=\"" << py(h) << "\" r=\"" << r
+      << "\" fill=\"#0f4c5c\" fill-opacity=\"0.45\"><title>" << w << " x " << h << ": " << n << "</title></circle>";
+  }
+  o << "</svg><table class=\"narrow\"><tr><th>most common sizes</th><th class=\"num\">images</th></tr>";
+  size_t k = 0;
+  for (const auto& e : sz) {
+    if (k++ == 8) break;
+    o << "<tr><td>" << esc(e.value("width", json(0))) << " x " << esc(e.value("height", json(0)))
+      << "</td><td class=\"num\">" << esc(e.value("count", json(0))) << "</td></tr>";
+  }
+  o << "</table></section>\n";
+}
+
+void mask_pairs(std::ostringstream& o, const json& report, const Thumbnails& thumbs) {
+  const json& m = object_at(report, "masks");
+  const json& pairs = array_at(m, "pairs");
+  if (pairs.empty()) return;
+  o << "<section id=\"masks\"><h2>Masks and their images</h2><p class=\"note\">" << pairs.size()
+    << " images have a mask or annotation twin; masks are not counted as images or classes.</p><table class=\"narrow\">"
+       "<tr><th>class</th><th class=\"num\">pairs</th></tr>";
+  for (const auto& c : array_at(m, "pairs_per_class"))
+    o << "<tr><td class=\"path\">" << esc(c.value("label", json(""))) << "</td><td class=\"num\">"
+      << esc(c.value("pairs", json(0))) << "</td></tr>";
+  o << "</table><table class=\"narrow\"><tr><th>folder</th><th>beside</th><th>layout</th><th class=\"num\">pairs</th>"
+       "<th class=\"num\">confirmed</th><th>masks?</th></tr>";
+  size_t k = 0;
+  for (const auto& e : array_at(m, "folders")) {
+    if (k++ == 50) break;
+    o << "<tr><td class=\"path\">" << esc(e.value("folder", json(""))) << "</td><td class=\"path\">"
+      << esc(e.value("partner", json(""))) << "</td><td>" << esc(e.value("layout", json(""))) << "</td><td class=\"num\">"
+      << esc(e.value("pairs", json(0))) << "</td><td class=\"num\">" << esc(e.value("confirmed", json(0)))
+      << "</td><td>" << (e.value("accepted", false) ? "yes" : "no") << " (" << esc(e.value("decided_by", json(""))) << ")</td></tr>";
+  }
+  o << "</table>";
+  auto it = thumbs.find("#masks");
+  if (it != thumbs.end()) {
+    o << "<div class=\"strip\">";
+    for (const auto& [path, uri] : it->second)
+      o << "<figure><img alt=\"\" width=\"64\" height=\"64\" src=\"" << uri << "\"><figcaption class=\"path\">"
+        << html_escape(path) << "</figcaption></figure>";
+    o << "</div>";
+  }
+  o << "</section>\n";
+}
+
+void groups(std::ostringstream& o, const json& report, const Thumbnails& thumbs) {
+  const json& gs = array_at(report, "groups");
+  if (gs.empty()) return;
+  o << "<section id=\"groups\"><h2>Copies and look-alikes</h2><p class=\"note\">" << gs.size()
+    << " groups; each strip shows the first images of a group (its 32x32 look-alike thumbnails) with their paths.</p>";
+  size_t shown = 0;
+  for (const auto& g : gs) {
+    if (shown++ == 60) {
+      o << "<p class=\"note\">First 60 of " << gs.size() << " groups (all in report.json).</p>";
+      break;
+    }
+    std::string id = str(g.value("id", json("")));
+    o << "<div class=\"group\"><div class=\"gh\"><b>" << html_escape(id) << "</b> " << esc(g.value("kind", json("")))
+      << " · " << array_at(g, "paths").size() << " images · " << html_escape(join_labels(g)) << "</div><div class=\"strip\">";
+    auto it = thumbs.find(id);
+    size_t k = 0;
+    for (const auto& p : array_at(g, "paths")) {
+      if (k++ == 8) break;
+      std::string path = str(p);
+      std::string uri;
+      if (it != thumbs.end())
+        for (const auto& [tp, data] : it->second)
+          if (tp == path) uri = data;
+      o << "<figure>";
+      if (!uri.empty()) o << "<img alt=\"\" width=\"64\" height=\"64\" src=\"" << uri << "\">";
+      else o << "<div class=\"nothumb\"></div>";
+      o << "<figcaption class=\"path\">" << html_escape(path) << "</figcaption></figure>";
+    }
+    o << "</div></div>";
+  }
+  o << "</section>\n";
+}
+
+void ignored(std::ostringstream& o, const json& report) {
+  const json& ig = array_at(report, "ignored");
+  if (ig.empty()) return;
+  o << "<section id=\"ignored\"><h2>Files left aside</h2><table><tr><th>path</th><th>why</th></tr>";
+  size_t shown = 0;
+  for (const auto& e : ig) {
+    if (shown++ == kMaxRows) break;
+    o << "<tr><td class=\"path\">" << esc(e.value("path", json(""))) << "</td><td>" << esc(e.value("reason", json("")))
+      << "</td></tr>";
+  }
+  o << "</table>";
+  if (ig.size() > kMaxRows) o << "<p class=\"note\">First " << kMaxRows << " of " << ig.size() << ".</p>";
+  o << "</section>\n";
+}
+
+}  // namespace
+
+// The filter and sort script. Its SHA-256 is in the page's Content-Security-Policy,
+// so it is the only script the browser will run (tests/report_html_test.py checks
+// the hash with hashlib). Edit both together.
+const char* kScriptHash = "sha256-Td//Re0L+8B9VfJd0a1kgglMrGyFXWxt54xy8WSTyvo=";
+const char* kScript = R"JS(
+(function(){var t=document.getElementById('findings-table');document.body.setAttribute('data-ready','1');if(!t)return;
+var rows=[].slice.call(t.tBodies[0].rows),s=document.getElementById('f-sev'),c=document.getElementById('f-code'),
+k=document.getElementById('f-class'),n=document.getElementById('f-count');
+function apply(){var v=0;rows.forEach(function(r){var ok=(!s.value||r.dataset.sev===s.value)&&(!c.value||r.dataset.code===c.value)
+&&(!k.value||r.dataset.classes.indexOf(''+k.value+'')>=0);r.style.display=ok?'':'none';if(ok)v++;});
+n.textContent=v+' of '+rows.length+' shown';}
+[s,c,k].forEach(function(e){e.addEventListener('change',apply);});
+[].slice.call(t.tHead.rows[0].cells).forEach(function(h){var col=h.dataset.sort;if(col===undefined)return;var up=true;
+h.style.cursor='pointer';h.addEventListener('click',function(){rows.sort(function(a,b){var x=a.dataset['k'+col],y=b.dataset['k'+col];
+if(x===undefined){x=a.cells[col].textContent;y=b.cells[col].textContent;return up?x.localeCompare(y):y.localeCompare(x);}
+return up?x-y:y-x;});up=!up;rows.forEach(function(r){t.tBodies[0].appendChild(r);});});});apply();})();
+)JS";
+
+std::string render_html(const json& report, const Thumbnails& thumbs, const std::vector<Finding>* finding_paths) {
+  std::ostringstream o;
+  const json& tool = object_at(report, "tool");
+  o << "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">"
+       "<meta http-equiv=\"Content-Security-Policy\" content=\"default-src 'none'; style-src 'unsafe-inline'; img-src data:; script-src '"
+    << kScriptHash << "'\">"
+       "<meta name=\"viewport\" content=\"width=device-width,initial-scale=1\"><title>tamis audit</title><style>"
+    << kStyle << "</style></head><body>\n<header><h1>tamis audit</h1><p>" << esc(tool.value("name", json("tamis")))
+    << " " << esc(tool.value("version", json(""))) << " · seed "
+    << esc(object_at(report, "settings").value("seed", json(1))) << "</p></header><main>\n";
+  tiles(o, object_at(report, "totals"));
+  findings(o, report, finding_paths);
+  classes(o, report);
+  groups(o, report, thumbs);
+  mask_pairs(o, report, thumbs);
+  sizes(o, report);
+  storage(o, report);
+  ignored(o, report);
+  o << "</main><script>" << kScript << "</script></body></html>\n";
+  return o.str();
+}
+
+}  // namespace tamis

@@ -1,0 +1,92 @@
+// The probe and the decoders against Pillow (Debian python3-pil), an independent
+// image library: tests/fixtures/pillow_images.py writes the files and records what
+// they hold; the ctest fixture `pillow_images` writes them into $TAMIS_TEST_DATA/pillow.
+#include <catch2/catch.hpp>
+
+#include <filesystem>
+#include <fstream>
+
+#include <nlohmann/json.hpp>
+#include <opencv2/imgcodecs.hpp>
+
+#include "support/temp_tree.h"
+#include "tamis/read/decode/decode.h"
+#include "tamis/read/probe.h"
+
+using namespace tamis;
+namespace fs = std::filesystem;
+
+namespace {
+fs::path pillow_dir() {
+  std::string root = test::env_or_empty("TAMIS_TEST_DATA");
+  REQUIRE_FALSE(root.empty());  // set by ctest; the fixture must have produced the files
+  fs::path d = fs::path(root) / "pillow";
+  REQUIRE(fs::exists(d / "expectations.json"));
+  return d;
+}
+Format format_of(const std::string& name) {
+  if (name.rfind("png", 0) == 0) return Format::png;
+  if (name.rfind("jpeg", 0) == 0) return Format::jpeg;
+  if (name.rfind("gif", 0) == 0) return Format::gif;
+  if (name.rfind("bmp", 0) == 0) return Format::bmp;
+  if (name.rfind("tiff", 0) == 0) return Format::tiff;
+  if (name.rfind("webp", 0) == 0) return Format::webp;
+  return Format::pnm;
+}
+}  // namespace
+
+TEST_CASE("probe agrees with Pillow on size, layout, depth, frames and EXIF", "[probe][pillow]") {
+  fs::path dir = pillow_dir();
+  nlohmann::json expect;
+  std::ifstream(dir / "expectations.json") >> expect;
+  REQUIRE(expect.size() >= 30);
+  for (const auto& [name, e] : expect.items()) {
+    INFO(name);
+    auto bytes = test::read_bytes(dir / name);
+    ProbeOutcome p = probe_bytes(bytes);
+    CHECK(p.defect == Defect::none);
+    CHECK(p.info.format == format_of(name));
+    CHECK(p.info.width == e["width"].get<uint32_t>());
+    CHECK(p.info.height == e["height"].get<uint32_t>());
+    CHECK(std::string(to_string(p.info.mode)) == e["mode"].get<std::string>());
+    if (e.contains("bits")) CHECK(int(p.info.bit_depth) == e["bits"].get<int>());
+    CHECK(p.info.frames == e["frames"].get<uint32_t>());
+    CHECK(p.info.orientation == e.value("orientation", p.info.has_exif ? p.info.orientation : 0));
+    CHECK(p.info.has_gps == e.value("gps", false));
+    Decoded d = decode_image(bytes, p.info, DecodeLimits{});
+    if (e.value("decodable", true)) {
+      CHECK(d.defect == Defect::none);
+      CHECK_FALSE(d.reduced.empty());
+    } else {
+      CHECK(d.defect == Defect::no_decoder);
+    }
+  }
+}
+
+TEST_CASE("tamis's GIF decoder gives Pillow's pixels exactly", "[decode][gif][pillow]") {
+  fs::path dir = pillow_dir();
+  for (const char* name : {"gif_static.gif", "gif_interlaced.gif", "gif_animated.gif"}) {
+    INFO(name);
+    auto bytes = test::read_bytes(dir / name);
+    Defect defect = Defect::none;
+    cv::Mat ours = decode_gif_first_frame(bytes, defect);
+    REQUIRE(defect == Defect::none);
+    cv::Mat ref = cv::imread((dir / (std::string(name) + ".ref.ppm")).string(), cv::IMREAD_COLOR);
+    REQUIRE(!ref.empty());
+    REQUIRE(ours.size() == ref.size());
+    CHECK(cv::norm(ours, ref, cv::NORM_INF) == 0);
+  }
+}
+
+TEST_CASE("GIF decoder reports damaged LZW data instead of inventing pixels", "[decode][gif][fault]") {
+  fs::path dir = pillow_dir();
+  auto good = test::read_bytes(dir / "gif_static.gif");
+  ProbeOutcome p = probe_bytes(good);
+  REQUIRE(p.defect == Defect::none);
+  // Cut inside the image data: the probe sees the missing trailer.
+  std::vector<uint8_t> cut(good.begin(), good.begin() + static_cast<long>(good.size() * 2 / 3));
+  CHECK(probe_bytes(cut).defect == Defect::truncated);
+  Defect d = Defect::none;
+  CHECK(decode_gif_first_frame(cut, d).empty());
+  CHECK(d != Defect::none);
+}
