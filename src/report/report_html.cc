@@ -346,7 +346,7 @@ void ignored(std::ostringstream& o, const json& report) {
 }  // namespace
 
 // The filter and sort script. Its SHA-256 is in the page's Content-Security-Policy,
-// so it is the only script the browser will run (tests/report_html_test.py checks
+// so it is the only script the browser will run (tests/report/report_html_test.py checks
 // the hash with hashlib). Edit both together.
 const char* kScriptHash = "sha256-Td//Re0L+8B9VfJd0a1kgglMrGyFXWxt54xy8WSTyvo=";
 const char* kScript = R"JS(

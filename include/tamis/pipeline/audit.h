@@ -1,11 +1,13 @@
 // The audit pipeline: the stages in order, from ROOT to the data every report renders.
 //
-//   walk -> read (probe, decode, features) -> labels -> groups -> checks -> split
+//   read_tree: walk -> read (probe, decode, features) -> masks -> labels -> groups
+//   place:     checks -> split -> policy
 //
-// run_audit() only wires the stages; each lives in its own header with its own
-// contract. It never writes anything (the reports do, into the output folder),
-// and its result depends only on the tree's contents and the settings, never on
-// the thread count or the file system's listing order.
+// Both wire stages that live in their own headers with their own contracts.
+// They write no output (the report layer does, into the output folder);
+// read_tree reads ROOT, and reads and updates the record cache when one is set
+// (cache.h). The result depends only on the tree's contents and the settings,
+// never on the cache, the thread count or the file system's listing order.
 #pragma once
 
 #include <chrono>

@@ -1,4 +1,4 @@
-// DEFLATE for small zlib streams (include/tamis/inflate.h). RFC 1951 section
+// DEFLATE for small zlib streams (include/tamis/read/decode/inflate.h). RFC 1951 section
 // numbers in the comments.
 #include "tamis/read/decode/inflate.h"
 
