@@ -148,6 +148,10 @@ AuditIndex read_tree(const AuditSettings& settings) {
     for (uint32_t i = 0; i < r.records.size(); ++i)
       if (thumbnail_row[i] >= 0) all.push_back(i);
     load_thumbnails(all);
+    // The listing's last use was re-reading files whose thumbnails had gone; its
+    // entries (about 110 bytes a file) are not held through the join.
+    r.walk.files.clear();
+    r.walk.files.shrink_to_fit();
     r.groups = find_groups(r.records, r.thumbs, gs);
     if (cache) {
       try {
@@ -162,7 +166,7 @@ AuditIndex read_tree(const AuditSettings& settings) {
     r.cache_note = "the cache file was damaged; it was moved aside, and the next run starts a new one";
   clock.lap(cached_groups ? "groups (cached)" : "groups");
   // Every thumbnail an output shows is loaded now; the others stay in the cache.
-  r.walk.files.clear();
+  r.walk.files.clear();  // (already, unless the groups came from the cache)
   r.walk.files.shrink_to_fit();
   for (const auto& rec : r.records) {
     ++r.totals.files_seen;
