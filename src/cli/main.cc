@@ -188,7 +188,7 @@ void print_summary(const tamis::AuditResult& r, const std::filesystem::path& out
     const auto& f = r.findings[k];
     if (f.severity == tamis::Severity::error) {
       ++errors;
-      if (!(r.fail_on_new_only && r.known[k])) ++failing;
+      if (tamis::breaks_policy(f.severity, r.known[k], r.fail_on_new_only)) ++failing;
     }
     if (f.severity == tamis::Severity::warning) ++warnings;
     if (f.severity == tamis::Severity::info) ++infos;
@@ -222,8 +222,9 @@ void print_summary(const tamis::AuditResult& r, const std::filesystem::path& out
     const auto& f = r.findings[k];
     if (f.severity != tamis::Severity::error) continue;
     ++shown;
-    std::printf("  %s%s%s %s%s\n", red, f.code.c_str(), off, safe(f.message).c_str(),
-                r.baseline.present ? (r.known[k] ? " (known)" : " (new)") : "");
+    const tamis::FindingKind* kind = tamis::finding_kind(f.code);
+    std::printf("  %s%s%s (%s) %s%s\n", red, f.code.c_str(), off, kind ? std::string(kind->title).c_str() : "",
+                safe(f.message).c_str(), r.baseline.present ? (r.known[k] ? " (known)" : " (new)") : "");
   }
   if (r.baseline.present)
     std::printf("against the baseline: %zu new, %zu gone findings; %zu files added, %zu removed\n",

@@ -282,7 +282,7 @@ AuditResult run_audit(const AuditSettings& settings) { return place(read_tree(se
 
 int policy_exit_status(const AuditResult& result) {
   for (size_t k = 0; k < result.findings.size(); ++k)
-    if (result.findings[k].severity == Severity::error && !(result.fail_on_new_only && result.known[k])) return 1;
+    if (breaks_policy(result.findings[k].severity, result.known[k], result.fail_on_new_only)) return 1;
   return 0;
 }
 

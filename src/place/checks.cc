@@ -23,21 +23,16 @@ void check_inventory(const std::vector<FileRecord>& records, const Labelling& la
     if (r.kind == FileKind::image && labels.label_of[i] < 0) unlabelled.push_back(r.path);
   }
   for (auto& [defect, paths] : unreadable) {
-    Finding f;
-    if (defect == Defect::over_memory_budget) {  // not damage: a file the settings do not let us decode
-      f.code = "over-memory-budget";
-      f.severity = Severity::warning;
+    const bool budget = defect == Defect::over_memory_budget, variant = is_undecodable_variant(defect);
+    Finding f = make_finding(budget ? "over-memory-budget" : variant ? "undecodable-variant" : "unreadable");
+    if (budget) {  // not damage: a file the settings do not let us decode
       f.message = plural(paths.size(), "image file was not decoded: ", "image files were not decoded: ") +
                   std::string(defect_message(defect));
-    } else if (is_undecodable_variant(defect)) {  // not damage: a file this build cannot decode
-      f.code = "undecodable-variant";
-      f.severity = Severity::warning;
+    } else if (variant) {  // not damage: a file this build cannot decode
       f.message = plural(paths.size(), "file is not damaged but cannot be decoded here: ",
                          "files are not damaged but cannot be decoded here: ") +
                   std::string(defect_message(defect));
     } else {
-      f.code = "unreadable";
-      f.severity = Severity::error;
       f.message = plural(paths.size(), "file cannot be read: ", "files cannot be read: ") +
                   std::string(defect_message(defect));
     }
@@ -46,9 +41,7 @@ void check_inventory(const std::vector<FileRecord>& records, const Labelling& la
     out.push_back(std::move(f));
   }
   if (!unlabelled.empty()) {
-    Finding f;
-    f.code = "no-label";
-    f.severity = Severity::warning;
+    Finding f = make_finding("no-label");
     f.message = plural(unlabelled.size(), "image has", "images have") +
                 " no class folder (they lie directly in ROOT or in a split folder) and are left out of the split";
     f.details = {{"count", unlabelled.size()}};
@@ -59,9 +52,7 @@ void check_inventory(const std::vector<FileRecord>& records, const Labelling& la
   auto left_alone = [&](const std::vector<std::string>& paths, const char* code, const char* one, const char* many,
                         const char* why) {
     if (paths.empty()) return;
-    Finding f;
-    f.code = code;
-    f.severity = Severity::info;
+    Finding f = make_finding(code);
     f.message = plural(paths.size(), one, many) + why;
     f.details = {{"count", paths.size()}};
     f.paths = paths;
@@ -72,9 +63,7 @@ void check_inventory(const std::vector<FileRecord>& records, const Labelling& la
   left_alone(walk.special, "special-file", "FIFO, socket or device was", "FIFOs, sockets or devices were",
              " met and left unopened (they are not files of a data set)");
   if (!walk.unreadable_dirs.empty()) {
-    Finding f;
-    f.code = "folder-unreadable";
-    f.severity = Severity::warning;
+    Finding f = make_finding("folder-unreadable");
     f.message = plural(walk.unreadable_dirs.size(), "folder or entry could not be listed",
                        "folders or entries could not be listed") +
                 "; files below them are not counted";
@@ -106,18 +95,14 @@ void check_groups(const std::vector<FileRecord>& records, const Labelling& label
     for (uint32_t m : g.members) by_hash[records[m].features.content_hash].push_back(records[m].path);
     for (auto& [hash, same] : by_hash) {
       if (same.size() < 2) continue;
-      Finding f;
-      f.code = "byte-identical";
-      f.severity = Severity::warning;
+      Finding f = make_finding("byte-identical");
       f.message = std::to_string(same.size()) + " files are byte-identical copies of each other";
       f.details = base;
       f.paths = std::move(same);
       out.push_back(std::move(f));
     }
     if (!g.exact) {
-      Finding f;
-      f.code = "look-alike";
-      f.severity = Severity::warning;
+      Finding f = make_finding("look-alike");
       f.message = std::to_string(g.members.size()) +
                   " images look alike (re-encoded, resized, recoloured, mirrored or turned copies); group " + id;
       f.details = base;
@@ -125,9 +110,7 @@ void check_groups(const std::vector<FileRecord>& records, const Labelling& label
       out.push_back(std::move(f));
     }
     if (label_set.size() > 1) {
-      Finding f;
-      f.code = "label-conflict";
-      f.severity = Severity::error;
+      Finding f = make_finding("label-conflict");
       std::string names;
       for (const auto& l : label_list) names += (names.empty() ? "" : ", ") + l;
       f.message = "the same picture carries " + std::to_string(label_set.size()) + " labels (" + names + "); group " + id;
@@ -137,9 +120,7 @@ void check_groups(const std::vector<FileRecord>& records, const Labelling& label
     }
     splits.erase(SplitName::none);
     if (splits.size() > 1) {
-      Finding f;
-      f.code = "split-leak";
-      f.severity = Severity::error;
+      Finding f = make_finding("split-leak");
       std::string names;
       for (auto s : splits) names += (names.empty() ? "" : ", ") + std::string(to_string(s));
       f.message = "copies of one picture sit in more than one split (" + names + "): test accuracy will be inflated; group " + id;
@@ -148,9 +129,7 @@ void check_groups(const std::vector<FileRecord>& records, const Labelling& label
       out.push_back(std::move(f));
     }
     if (g.diameter > 2 * settings.radius) {
-      Finding f;
-      f.code = "lookalike-chain";
-      f.severity = Severity::warning;
+      Finding f = make_finding("lookalike-chain");
       f.message = "group " + id + " spans a hash distance of " + std::to_string(g.diameter) +
                   ", more than twice the match radius: a chain of look-alikes may join unrelated images";
       f.details = base;
@@ -179,9 +158,7 @@ void check_split(const std::vector<FileRecord>& records, const Labelling& labels
   }
   for (size_t c = 0; c < nc; ++c) {
     if (capped[c] > 0) {
-      Finding f;
-      f.code = "class-capped";
-      f.severity = Severity::info;
+      Finding f = make_finding("class-capped");
       f.message = "class " + labels.names[c] + ": " + std::to_string(capped[c]) + " of " + std::to_string(total[c]) +
                   " images left out by the per-class cap of " + std::to_string(settings.per_class);
       f.details = {{"label", labels.names[c]}, {"capped", capped[c]}, {"count", total[c]}, {"cap", settings.per_class}};
@@ -193,9 +170,7 @@ void check_split(const std::vector<FileRecord>& records, const Labelling& labels
       if (expected && counts[c][s] == 0 && total[c] > capped[c]) missing.emplace_back(to_string(static_cast<Placement>(s)));
     }
     if (!missing.empty()) {
-      Finding f;
-      f.code = "split-without-class";
-      f.severity = Severity::warning;
+      Finding f = make_finding("split-without-class");
       std::string list;
       for (const auto& m : missing) list += (list.empty() ? "" : ", ") + m;
       f.message = "class " + labels.names[c] + " has no image in " + list + " (" + std::to_string(total[c]) +

@@ -9,34 +9,6 @@ namespace tamis {
 
 using nlohmann::json;
 
-const std::map<std::string, Severity>& finding_catalogue() {
-  static const std::map<std::string, Severity> c{
-      {"unreadable", Severity::error},          {"too-many-unreadable", Severity::error},
-      {"undecodable-variant", Severity::warning}, {"over-memory-budget", Severity::warning},
-      {"no-label", Severity::warning},          {"link-not-followed", Severity::info},
-      {"special-file", Severity::info},
-      {"folder-unreadable", Severity::warning}, {"byte-identical", Severity::warning},
-      {"look-alike", Severity::warning},    {"label-conflict", Severity::error},
-      {"split-leak", Severity::error},          {"lookalike-chain", Severity::warning},
-      {"split-without-class", Severity::warning}, {"class-capped", Severity::info},
-      {"tiny-image", Severity::warning},        {"below-input-size", Severity::info},
-      {"aspect-outlier", Severity::info},           {"near-uniform", Severity::warning},
-      {"underexposed", Severity::warning},          {"overexposed", Severity::warning},
-      {"low-entropy", Severity::info},      {"unsharp", Severity::warning},
-      {"gray-as-rgb", Severity::info},          {"alpha-unused", Severity::info},
-      {"transparency", Severity::info},         {"deep-bit-depth", Severity::info},
-      {"palette-image", Severity::info},        {"cmyk-image", Severity::warning},
-      {"multi-frame", Severity::info},          {"extension-mismatch", Severity::warning},
-      {"exif-rotated", Severity::warning},      {"gps-location", Severity::warning},
-      {"label-variants", Severity::warning},    {"label-near", Severity::info},
-      {"small-class", Severity::warning},       {"empty-class", Severity::warning},
-      {"class-imbalance", Severity::warning},   {"stray-file", Severity::info},
-      {"mask-orphan", Severity::warning},       {"mask-size-mismatch", Severity::error},
-      {"mask-empty", Severity::warning},        {"mask-misfiled", Severity::warning},
-  };
-  return c;
-}
-
 Policy default_policy() { return Policy{}; }
 
 namespace {
@@ -64,7 +36,7 @@ Policy parse_policy(const std::string& text) {
     if (key == "severity") {
       if (!value.is_object()) throw PolicyError("policy: severity must be an object of code: level");
       for (const auto& [code, level] : value.items()) {
-        if (!finding_catalogue().count(code)) throw PolicyError("policy: severity." + code + ": no such finding code");
+        if (!finding_kind(code)) throw PolicyError("policy: severity." + code + ": no such finding code");
         if (!level.is_string()) throw PolicyError("policy: severity." + code + " must be a string");
         std::string l = level.get<std::string>();
         if (l == "error") p.severity[code] = Severity::error;
@@ -115,9 +87,7 @@ Policy load_policy(const std::filesystem::path& file) {
 
 void apply_policy(const Policy& policy, uint64_t unreadable, uint64_t image_files, std::vector<Finding>& findings) {
   if (image_files > 0 && double(unreadable) / double(image_files) > policy.max_unreadable_share) {
-    Finding f;
-    f.code = "too-many-unreadable";
-    f.severity = Severity::error;
+    Finding f = make_finding("too-many-unreadable");
     f.message = std::to_string(unreadable) + " of " + std::to_string(image_files) +
                 " image files cannot be read, more than the policy allows";
     f.details = {{"unreadable", unreadable}, {"image_files", image_files},

@@ -159,38 +159,33 @@ void check_images(const std::vector<FileRecord>& records, const Labelling& label
   }
 
   struct Rule {
-    const char* code;
-    Severity severity;
+    const char* code;  // its default severity is the catalogue's (findings.h)
     const char* what;
   };
   static const Rule rules[] = {
-      {"tiny-image", Severity::warning, "the shorter side is below the minimum side"},
-      {"below-input-size", Severity::info, "smaller than the model input side: they will be upscaled"},
-      {"aspect-outlier", Severity::info, "an aspect ratio more than twice or under half the set's median"},
-      {"near-uniform", Severity::warning, "nearly uniform frames (luminance spread under 3 grey levels)"},
-      {"underexposed", Severity::warning, "very dark (mean luminance under 30, unusual for the class)"},
-      {"overexposed", Severity::warning, "very bright (mean luminance over 225, unusual for the class)"},
-      {"low-entropy", Severity::info, "a narrow tonal range (histogram entropy under 3 bits, unusual for the class)"},
-      {"unsharp", Severity::warning, "little fine detail, probably blurred (low Laplacian variance, unusual for the class)"},
-      {"gray-as-rgb", Severity::info, "grayscale pictures stored as colour (all channels equal)"},
-      {"alpha-unused", Severity::info, "an alpha channel that is fully opaque everywhere"},
-      {"transparency", Severity::info, "transparent pixels: loaders that drop alpha show what lies under them"},
-      {"deep-bit-depth", Severity::info, "more than 8 bits per sample: many loaders cut or mis-scale them"},
-      {"palette-image", Severity::info, "palette (indexed-colour) images"},
-      {"cmyk-image", Severity::warning, "CMYK images: many loaders convert them wrongly or refuse them"},
-      {"multi-frame", Severity::info, "several frames or pages: only the first is used"},
-      {"extension-mismatch", Severity::warning, "the file name's extension names another format than the bytes"},
-      {"exif-rotated", Severity::warning,
-       "an EXIF orientation other than upright: loaders that ignore it see the picture turned or mirrored"},
-      {"gps-location", Severity::warning,
-       "EXIF GPS position tags: the files reveal where they were taken (see README on personal data)"},
+      {"tiny-image", "the shorter side is below the minimum side"},
+      {"below-input-size", "smaller than the model input side: they will be upscaled"},
+      {"aspect-outlier", "an aspect ratio more than twice or under half the set's median"},
+      {"near-uniform", "nearly uniform frames (luminance spread under 3 grey levels)"},
+      {"underexposed", "very dark (mean luminance under 30, unusual for the class)"},
+      {"overexposed", "very bright (mean luminance over 225, unusual for the class)"},
+      {"low-entropy", "a narrow tonal range (histogram entropy under 3 bits, unusual for the class)"},
+      {"unsharp", "little fine detail, probably blurred (low Laplacian variance, unusual for the class)"},
+      {"gray-as-rgb", "grayscale pictures stored as colour (all channels equal)"},
+      {"alpha-unused", "an alpha channel that is fully opaque everywhere"},
+      {"transparency", "transparent pixels: loaders that drop alpha show what lies under them"},
+      {"deep-bit-depth", "more than 8 bits per sample: many loaders cut or mis-scale them"},
+      {"palette-image", "palette (indexed-colour) images"},
+      {"cmyk-image", "CMYK images: many loaders convert them wrongly or refuse them"},
+      {"multi-frame", "several frames or pages: only the first is used"},
+      {"extension-mismatch", "the file name's extension names another format than the bytes"},
+      {"exif-rotated", "an EXIF orientation other than upright: loaders that ignore it see the picture turned or mirrored"},
+      {"gps-location", "EXIF GPS position tags: the files reveal where they were taken (see README on personal data)"},
   };
   for (const auto& rule : rules) {
     auto it = col.paths.find(rule.code);
     if (it == col.paths.end()) continue;
-    Finding f;
-    f.code = rule.code;
-    f.severity = rule.severity;
+    Finding f = make_finding(rule.code);
     f.message = std::to_string(it->second.size()) + (it->second.size() == 1 ? " image: " : " images: ") + rule.what;
     f.details = {{"count", it->second.size()}};
     if (f.code == "tiny-image") f.details["min_side"] = cs.min_side;
@@ -270,9 +265,7 @@ void check_labels(const std::vector<FileRecord>& records, const Labelling& label
   for (size_t k = 0; k < names.size(); ++k) by_key[label_key(names[k])].push_back(k);
   for (const auto& [key, members] : by_key) {
     if (members.size() < 2) continue;
-    Finding f;
-    f.code = "label-variants";
-    f.severity = Severity::warning;
+    Finding f = make_finding("label-variants");
     std::vector<std::string> list;
     for (size_t k : members) list.push_back(names[k]);
     std::string joined;
@@ -291,9 +284,7 @@ void check_labels(const std::vector<FileRecord>& records, const Labelling& label
       if (keys[a].size() < 4 || keys[b].size() < 4) continue;  // short names collide by chance
       size_t longer = std::max(keys[a].size(), keys[b].size());
       if (longer - std::min(keys[a].size(), keys[b].size()) > 1 || edit_distance(keys[a], keys[b]) != 1) continue;
-      Finding f;
-      f.code = "label-near";
-      f.severity = Severity::info;
+      Finding f = make_finding("label-near");
       std::vector<std::string> list;
       for (size_t k : by_key[keys[a]]) list.push_back(names[k]);
       for (size_t k : by_key[keys[b]]) list.push_back(names[k]);
@@ -303,9 +294,7 @@ void check_labels(const std::vector<FileRecord>& records, const Labelling& label
     }
   for (size_t k = 0; k < names.size(); ++k)
     if (counts[k] < cs.min_class) {
-      Finding f;
-      f.code = "small-class";
-      f.severity = Severity::warning;
+      Finding f = make_finding("small-class");
       f.message = "class " + names[k] + " has " + std::to_string(counts[k]) + " images, fewer than " +
                   std::to_string(cs.min_class);
       f.details = {{"label", names[k]}, {"count", counts[k]}, {"min_class", cs.min_class}};
@@ -330,9 +319,7 @@ void check_labels(const std::vector<FileRecord>& records, const Labelling& label
     if (!any) empty.push_back(d);
   }
   if (!empty.empty()) {
-    Finding f;
-    f.code = "empty-class";
-    f.severity = Severity::warning;
+    Finding f = make_finding("empty-class");
     f.message = std::to_string(empty.size()) + (empty.size() == 1 ? " class folder holds" : " class folders hold") +
                 " no image";
     f.details = {{"count", empty.size()}};
@@ -341,9 +328,7 @@ void check_labels(const std::vector<FileRecord>& records, const Labelling& label
   }
   Balance b = class_balance(records, labels);
   if (b.smallest > 0 && b.imbalance_ratio > cs.max_imbalance) {
-    Finding f;
-    f.code = "class-imbalance";
-    f.severity = Severity::warning;
+    Finding f = make_finding("class-imbalance");
     char ratio[32];
     std::snprintf(ratio, sizeof ratio, "%.1f", b.imbalance_ratio);
     f.message = std::string("the largest class has ") + ratio + " times the images of the smallest (limit " +
@@ -356,9 +341,7 @@ void check_labels(const std::vector<FileRecord>& records, const Labelling& label
   for (const auto& r : records)
     if (r.kind == FileKind::ignored) stray.push_back(r.path);
   if (!stray.empty()) {
-    Finding f;
-    f.code = "stray-file";
-    f.severity = Severity::info;
+    Finding f = make_finding("stray-file");
     f.message = std::to_string(stray.size()) + (stray.size() == 1 ? " file is" : " files are") +
                 " not images (or hidden) and were left aside";
     f.details = {{"count", stray.size()}};

@@ -273,20 +273,18 @@ void check_masks(const std::vector<FileRecord>& records, const MaskPairing& m, s
   }
   for (uint32_t i : m.orphan_images) orphans.push_back(records[i].path);
   for (uint32_t i : m.misfiled) misfiled.push_back(records[i].path);
-  auto add = [&](const char* code, Severity sev, std::vector<std::string> paths, const std::string& what) {
+  auto add = [&](const char* code, std::vector<std::string> paths, const std::string& what) {
     if (paths.empty()) return;
-    Finding f;
-    f.code = code;
-    f.severity = sev;
+    Finding f = make_finding(code);
     f.message = std::to_string(paths.size()) + " " + what;
     f.details = {{"count", paths.size()}};
     f.paths = std::move(paths);
     out.push_back(std::move(f));
   };
-  add("mask-orphan", Severity::warning, orphans, "files without a partner: masks with no image, or images in a paired folder with no mask");
-  add("mask-size-mismatch", Severity::error, mismatch, "files in mask/image pairs whose sizes differ (each mask is listed before its image)");
-  add("mask-empty", Severity::warning, empty, "masks with a single value: no foreground (or nothing but foreground)");
-  add("mask-misfiled", Severity::warning, misfiled, "files filed on the wrong side: photographs in a mask folder, or masks among the photographs");
+  add("mask-orphan", orphans, "files without a partner: masks with no image, or images in a paired folder with no mask");
+  add("mask-size-mismatch", mismatch, "files in mask/image pairs whose sizes differ (each mask is listed before its image)");
+  add("mask-empty", empty, "masks with a single value: no foreground (or nothing but foreground)");
+  add("mask-misfiled", misfiled, "files filed on the wrong side: photographs in a mask folder, or masks among the photographs");
 }
 
 }  // namespace tamis

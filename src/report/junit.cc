@@ -48,10 +48,11 @@ void write_junit(std::ostream& os, const AuditResult& r) {
   for (size_t k = 0; k < r.findings.size(); ++k) by_code[r.findings[k].code].push_back(k);
   size_t failures = 0;
   std::map<std::string, bool> failing;
-  for (const auto& [code, sev] : finding_catalogue()) {
+  for (const FindingKind& kind : finding_catalogue()) {
+    const std::string code(kind.code);
     bool fail = false;
     for (size_t k : by_code[code])
-      if (r.findings[k].severity == Severity::error && !(r.fail_on_new_only && r.known[k])) fail = true;
+      if (breaks_policy(r.findings[k].severity, r.known[k], r.fail_on_new_only)) fail = true;
     failing[code] = fail;
     failures += fail;
   }

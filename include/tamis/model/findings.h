@@ -2,9 +2,10 @@
 //
 // A Finding has a stable code (kebab-case, the project's own vocabulary), a
 // severity, the paths it concerns (sorted), a message a person understands,
-// and the measurements behind it. Checks create findings; reports render
-// them; nothing else prints them. The policy (its own issue) may change a
-// finding's severity by code.
+// and the measurements behind it. Checks create findings (make_finding, from
+// the one catalogue below); reports render them; nothing else prints them.
+// The policy may change a finding's severity by code; breaks_policy is the one
+// place that decides whether a finding fails a run.
 #pragma once
 
 #include <string>
@@ -25,6 +26,29 @@ struct Finding {
   std::string message;
   nlohmann::json details = nlohmann::json::object();
 };
+
+// One entry of the finding catalogue: every code tamis raises, once. Checks
+// take the default severity from here (make_finding), the policy accepts only
+// these codes, JUnit has a test case per entry, and docs/findings.md (or the
+// page named in `doc`) lists each code with the same default severity (tested).
+struct FindingKind {
+  std::string_view code;
+  Severity severity;       // the default; a policy may change it
+  std::string_view title;  // a few words for headings and the terminal summary
+  std::string_view doc;    // the page that documents it
+};
+// Sorted by code.
+const std::vector<FindingKind>& finding_catalogue();
+// The entry of `code`, or nullptr when the catalogue has none.
+const FindingKind* finding_kind(std::string_view code);
+// A finding of a catalogued code at its default severity. A code missing from
+// the catalogue is a programming error: std::logic_error.
+Finding make_finding(std::string_view code);
+// Whether a finding fails the run: an error, unless the policy fails only on
+// new findings and the baseline knows this one.
+inline bool breaks_policy(Severity s, bool known, bool fail_on_new_only) {
+  return s == Severity::error && !(fail_on_new_only && known);
+}
 
 // Sorts findings by (severity desc, code, first path) and each finding's paths
 // bytewise, so reports list them the same way on every run.

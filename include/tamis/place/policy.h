@@ -42,9 +42,6 @@ Policy default_policy();
 Policy load_policy(const std::filesystem::path& file);
 Policy parse_policy(const std::string& text);
 
-// Every finding code tamis can raise, with its default severity.
-const std::map<std::string, Severity>& finding_catalogue();
-
 // Applies severities (dropping "off" codes) and adds `too-many-unreadable`.
 void apply_policy(const Policy& policy, uint64_t unreadable, uint64_t image_files, std::vector<Finding>& findings);
 
