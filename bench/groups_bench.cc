@@ -29,12 +29,13 @@ int main(int argc, char** argv) {
   RecordCache cache(argv[2], argv[1], "groups_bench");
   ReadOptions ro;
   ro.threads = threads;
-  ro.cache = &cache;
+  ReadContext ctx;
+  ctx.cache = &cache;
   std::vector<int64_t> thumbnail_row;
-  ro.thumbnail_row = &thumbnail_row;
+  ctx.thumbnail_row = &thumbnail_row;
   ThumbnailTable thumbs;
-  ro.thumbs = &thumbs;
-  std::vector<FileRecord> records = read_files(argv[1], w.files, ro);
+  ctx.thumbs = &thumbs;
+  std::vector<FileRecord> records = read_files(argv[1], w.files, ro, ctx);
   std::vector<uint32_t> all(records.size());
   for (uint32_t i = 0; i < all.size(); ++i) all[i] = i;
   if (!cache.load_thumbnails(thumbs, thumbnail_row, all).empty()) return 1;  // the join needs every thumbnail

@@ -68,8 +68,8 @@ enum class Source { read, cached_by_hash };  // (hits by path never reach read_o
 // `from_cache(row)`: a copy of the cached record of that row (a row another
 // entry took is copied from that entry's record).
 template <typename FromCache>
-Source read_one(int rootfd, const WalkEntry& e, const ReadOptions& opt, std::vector<uint8_t>& buf, FileRecord& r,
-                Thumbnail* thumb, const FromCache& from_cache) {
+Source read_one(int rootfd, const WalkEntry& e, const ReadOptions& opt, const RecordCache* cache,
+                std::vector<uint8_t>& buf, FileRecord& r, Thumbnail* thumb, const FromCache& from_cache) {
   r.path = e.path;
   r.size = e.size;
   r.mtime_ns = e.mtime_ns;
@@ -132,8 +132,8 @@ Source read_one(int rootfd, const WalkEntry& e, const ReadOptions& opt, std::vec
   XXH128_hash_t h = XXH3_128bits(bytes.data(), bytes.size());
   r.features.content_hash = {h.high64, h.low64};
   r.features.has_content_hash = true;
-  if (opt.cache) {  // the same bytes under another name: reuse, do not decode
-    if (int64_t row = opt.cache->row_with_content(r.features.content_hash, r.size); row >= 0) {
+  if (cache) {  // the same bytes under another name: reuse, do not decode
+    if (int64_t row = cache->row_with_content(r.features.content_hash, r.size); row >= 0) {
       FileRecord copy = from_cache(static_cast<size_t>(row));
       copy.path = e.path;
       copy.size = r.size;
@@ -176,7 +176,7 @@ bool is_hidden_path(std::string_view p) {
 }
 
 std::vector<FileRecord> read_files(const std::filesystem::path& root, const std::vector<WalkEntry>& entries,
-                                   const ReadOptions& opt) {
+                                   const ReadOptions& opt, const ReadContext& ctx) {
   Fd rootfd{open(root.c_str(), O_RDONLY | O_DIRECTORY | O_CLOEXEC)};
   if (rootfd.fd < 0) throw std::runtime_error("cannot open folder " + root.string());
   std::vector<FileRecord> records;
@@ -191,17 +191,17 @@ std::vector<FileRecord> read_files(const std::filesystem::path& root, const std:
   std::vector<int64_t> row_of(entries.size(), -1);
   std::vector<int64_t> entry_of_row;
   bool adopted = false;
-  if (opt.cache) {
-    row_of = opt.cache->match(entries);
-    bool one_to_one = opt.cache->rows() == entries.size();
+  if (ctx.cache) {
+    row_of = ctx.cache->match(entries);
+    bool one_to_one = ctx.cache->rows() == entries.size();
     for (size_t i = 0; i < entries.size() && one_to_one; ++i) one_to_one = row_of[i] == static_cast<int64_t>(i);
-    entry_of_row.assign(opt.cache->rows(), -1);
+    entry_of_row.assign(ctx.cache->rows(), -1);
     for (size_t i = 0; i < entries.size(); ++i) {
       if (is_hidden_path(entries[i].path)) row_of[i] = -1;  // hidden files are never trusted to the cache
       if (row_of[i] >= 0) entry_of_row[static_cast<size_t>(row_of[i])] = static_cast<int64_t>(i);
     }
     if (one_to_one) {  // an unchanged tree: the cache's table becomes the result, no record is copied
-      records = opt.cache->take_all();
+      records = ctx.cache->take_all();
       adopted = true;
       for (size_t i = 0; i < entries.size(); ++i)
         if (row_of[i] >= 0) {
@@ -213,38 +213,38 @@ std::vector<FileRecord> read_files(const std::filesystem::path& root, const std:
   if (!adopted) {
     reserve_huge(records, entries.size());
     records.resize(entries.size());
-    if (opt.cache)
+    if (ctx.cache)
       parallel_for(entries.size(), opt.threads, [&](size_t i) {
         if (row_of[i] < 0) return;
-        records[i] = opt.cache->take(static_cast<size_t>(row_of[i]));
+        records[i] = ctx.cache->take(static_cast<size_t>(row_of[i]));
         n_cached.fetch_add(1, std::memory_order_relaxed);
         progress();
       }, 256);
   }
   // Then every other file is read (each with a thumbnail slot). A content match
   // whose row was taken above is copied from the record it went to.
-  if (opt.thumbs) {
+  if (ctx.thumbs) {
     std::vector<uint32_t> to_read;
     for (size_t i = 0; i < entries.size(); ++i)
       if (row_of[i] < 0) to_read.push_back(static_cast<uint32_t>(i));
     if (to_read.size() == entries.size()) {
-      opt.thumbs->assign_all(entries.size(), false);  // every slot is written below, by its thread
+      ctx.thumbs->assign_all(entries.size(), false);  // every slot is written below, by its thread
     } else {
-      opt.thumbs->assign_none(entries.size());
-      opt.thumbs->make_room(to_read);
+      ctx.thumbs->assign_none(entries.size());
+      ctx.thumbs->make_room(to_read);
     }
   }
-  std::vector<int64_t> copied_row(opt.cache ? entries.size() : 0, -1);  // rows copied by content
+  std::vector<int64_t> copied_row(ctx.cache ? entries.size() : 0, -1);  // rows copied by content
   auto from_cache = [&](size_t row) {
-    return opt.cache->taken(row) ? records[static_cast<size_t>(entry_of_row[row])] : opt.cache->copy(row);
+    return ctx.cache->taken(row) ? records[static_cast<size_t>(entry_of_row[row])] : ctx.cache->copy(row);
   };
   parallel_for(entries.size(), opt.threads, [&](size_t i) {
     if (row_of[i] >= 0) return;
     thread_local std::vector<uint8_t> buf;
     if (adopted) records[i] = FileRecord{};  // it held the stored record of a hidden file
-    Thumbnail* thumb = opt.thumbs ? &opt.thumbs->at(i) : nullptr;
+    Thumbnail* thumb = ctx.thumbs ? &ctx.thumbs->at(i) : nullptr;
     if (thumb) thumb->fill(0);  // stays zeros unless the file is an image
-    Source src = read_one(rootfd.fd, entries[i], opt, buf, records[i], thumb, [&](size_t row) {
+    Source src = read_one(rootfd.fd, entries[i], opt, ctx.cache, buf, records[i], thumb, [&](size_t row) {
       copied_row[i] = static_cast<int64_t>(row);
       return from_cache(row);
     });
@@ -253,7 +253,7 @@ std::vector<FileRecord> read_files(const std::filesystem::path& root, const std:
     progress();
   }, 8);
   uint64_t moved = 0;
-  if (opt.cache) {
+  if (ctx.cache) {
     // Files moved or renamed: per content, the new paths (content matches under a
     // path no row has) that stored paths gone from the tree can account for. A copy
     // (its source still there) and a touched or rewritten file did not move.
@@ -265,8 +265,8 @@ std::vector<FileRecord> read_files(const std::filesystem::path& root, const std:
     std::map<int64_t, std::pair<uint64_t, size_t>> new_paths;  // by the content's first row: count, an entry
     for (size_t i = 0; i < entries.size(); ++i) {
       if (copied_row[i] < 0) continue;
-      if (opt.by_content) opt.by_content->push_back(static_cast<uint32_t>(i));
-      if (!opt.cache->has_path(entries[i].path)) {
+      if (ctx.by_content) ctx.by_content->push_back(static_cast<uint32_t>(i));
+      if (!ctx.cache->has_path(entries[i].path)) {
         auto& [count, entry] = new_paths.try_emplace(copied_row[i], 0, i).first->second;
         ++count;
       }
@@ -275,18 +275,18 @@ std::vector<FileRecord> read_files(const std::filesystem::path& root, const std:
       const auto& [n, entry] = seen;
       const FileRecord& r = records[entry];
       uint64_t gone = 0;
-      for (size_t k : opt.cache->rows_with_content(r.features.content_hash, r.size)) gone += !listed(opt.cache->path_of(k));
+      for (size_t k : ctx.cache->rows_with_content(r.features.content_hash, r.size)) gone += !listed(ctx.cache->path_of(k));
       moved += std::min(n, gone);
     }
   }
-  if (opt.thumbnail_row) {
-    opt.thumbnail_row->assign(entries.size(), -1);
+  if (ctx.thumbnail_row) {
+    ctx.thumbnail_row->assign(entries.size(), -1);
     for (size_t i = 0; i < entries.size(); ++i) {
-      const int64_t row = row_of[i] >= 0 ? row_of[i] : (opt.cache ? copied_row[i] : -1);
-      if (row >= 0 && records[i].features.has_lookalike) (*opt.thumbnail_row)[i] = row;
+      const int64_t row = row_of[i] >= 0 ? row_of[i] : (ctx.cache ? copied_row[i] : -1);
+      if (row >= 0 && records[i].features.has_lookalike) (*ctx.thumbnail_row)[i] = row;
     }
   }
-  if (opt.counts) *opt.counts = {n_read.load(), n_cached.load(), n_hash.load(), moved};
+  if (ctx.counts) *ctx.counts = {n_read.load(), n_cached.load(), n_hash.load(), moved};
   return records;
 }
 

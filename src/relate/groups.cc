@@ -42,6 +42,18 @@ constexpr size_t kExactDiameterLimit = 512;
 
 }  // namespace
 
+std::string group_settings_key(const GroupSettings& s) {
+  std::string key;
+  auto add = [&](const auto& v) { key.append(reinterpret_cast<const char*>(&v), sizeof v); };
+  add(kMatchRules);  // groups made by older rules are not reused
+  add(s.radius);
+  add(s.match.min_correlation);
+  add(s.match.max_local);
+  add(s.match.max_chroma);
+  add(s.match.fit_floor);
+  return key;
+}
+
 int lookalike_distance(const LookalikeCodes& a, const LookalikeCodes& b) {
   int best = 64;
   for (int t = 0; t < kDihedralCount; ++t) best = std::min(best, hamming(a.phash[t], b.phash[0]));

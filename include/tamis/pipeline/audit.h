@@ -29,6 +29,7 @@
 #include "tamis/model/record.h"
 #include "tamis/place/split.h"
 #include "tamis/read/walk.h"
+#include "tamis/base/stage_clock.h"
 
 namespace tamis {
 
@@ -40,30 +41,6 @@ struct AuditSettings {
   MaskSettings masks;
   SplitSettings split;
   std::filesystem::path cache_file;  // record cache (cache.h); empty: none
-};
-
-// Wall time of each stage, in the order the stages ran (for --timings and the
-// benchmarks; never in a report, since it is not deterministic).
-struct StageTime {
-  std::string stage;
-  double seconds = 0;
-  bool overlapped = false;  // part of a stage whose pieces ran at once: shown, not added up
-};
-
-// Appends the wall time since the previous lap (or since construction) to
-// `times` under `stage`; records nothing when `times` is null.
-class StageClock {
- public:
-  explicit StageClock(std::vector<StageTime>* times) : times_(times), last_(std::chrono::steady_clock::now()) {}
-  void lap(const char* stage) {
-    const auto now = std::chrono::steady_clock::now();
-    if (times_) times_->push_back({stage, std::chrono::duration<double>(now - last_).count()});
-    last_ = now;
-  }
-
- private:
-  std::vector<StageTime>* times_;
-  std::chrono::steady_clock::time_point last_;
 };
 
 struct Totals {

@@ -38,8 +38,19 @@ struct ReadCounts {
   uint64_t moved = 0;           // of those, files whose stored path is no longer in the tree (moved or renamed)
 };
 
+// The read's settings (each set once, by the command line).
 struct ReadOptions {
   unsigned threads = 0;                      // 0 = all cores
+  uint64_t max_bytes = 4ull << 30;           // files larger than this are not read
+  DecodeLimits decode;
+  std::function<void(size_t done, size_t total)> on_progress;
+};
+
+// What a read works with beyond its settings: the cache it reuses records from,
+// and where it leaves thumbnails and its bookkeeping. Each is used or filled only
+// when set. The read layer's tree reader (tree_reader.h) is the one caller that
+// sets the cache's parts.
+struct ReadContext {
   RecordCache* cache = nullptr;              // records to reuse (cache.h; taken out of it); none when null
   ReadCounts* counts = nullptr;              // filled when set
   // Filled when set (with a cache): per record, the cache row whose stored
@@ -53,13 +64,10 @@ struct ReadOptions {
   // Filled when set: the thumbnail of every image read from its file (records
   // from the cache get no slot here; their thumbnails stay in the cache).
   ThumbnailTable* thumbs = nullptr;
-  uint64_t max_bytes = 4ull << 30;           // files larger than this are not read
-  DecodeLimits decode;
-  std::function<void(size_t done, size_t total)> on_progress;
 };
 
 std::vector<FileRecord> read_files(const std::filesystem::path& root, const std::vector<WalkEntry>& entries,
-                                   const ReadOptions& options);
+                                   const ReadOptions& options, const ReadContext& context = {});
 
 // True when some component of the relative path starts with '.'.
 bool is_hidden_path(std::string_view rel_path);

@@ -47,6 +47,10 @@ struct GroupSettings {
 GroupResult find_groups(const std::vector<FileRecord>& records, const ThumbnailTable& thumbs,
                         const GroupSettings& settings);
 
+// A string naming every setting and rule that changes the groups (kMatchRules
+// and the settings' values, as bytes), for the cache's groups fingerprint.
+std::string group_settings_key(const GroupSettings& settings);
+
 // Smallest hash distance between a and b over the 8 flips/turns of a.
 int lookalike_distance(const LookalikeCodes& a, const LookalikeCodes& b);
 
