@@ -40,155 +40,143 @@ class UnionFind {
 
 constexpr size_t kExactDiameterLimit = 512;
 
-}  // namespace
-
-std::string group_settings_key(const GroupSettings& s) {
-  std::string key;
-  auto add = [&](const auto& v) { key.append(reinterpret_cast<const char*>(&v), sizeof v); };
-  add(kMatchRules);  // groups made by older rules are not reused
-  add(s.radius);
-  add(s.match.min_correlation);
-  add(s.match.max_local);
-  add(s.match.max_chroma);
-  add(s.match.fit_floor);
-  return key;
-}
-
-int lookalike_distance(const LookalikeCodes& a, const LookalikeCodes& b) {
-  int best = 64;
-  for (int t = 0; t < kDihedralCount; ++t) best = std::min(best, hamming(a.phash[t], b.phash[0]));
-  return best;
-}
-
-GroupResult find_groups(const std::vector<FileRecord>& records, const ThumbnailTable& thumbs,
-                        const GroupSettings& settings) {
-  GroupResult out;
-  out.group_of.assign(records.size(), -1);
-  std::vector<uint32_t> eligible;  // record indices of readable images
-  for (uint32_t i = 0; i < records.size(); ++i)
-    if (records[i].kind == FileKind::image && records[i].features.has_lookalike) {
-      if (!thumbs.has(i)) throw std::logic_error("find_groups: an image without its thumbnail");
-      eligible.push_back(i);
-    }
+// Phase 1, byte-identical files: runs of equal content hash joined, with a link
+// each. exact_root[k]: the first of k's run. Returns the pairs within runs.
+uint64_t join_byte_identical(const std::vector<FileRecord>& records, const std::vector<uint32_t>& eligible, UnionFind& uf,
+                             std::vector<GroupLink>& links, std::vector<uint32_t>& exact_root) {
   const size_t n = eligible.size();
-  UnionFind uf(n);
-  std::vector<GroupLink> links;  // in eligible indices until the groups are made
-
-  // Byte-identical files: runs of equal content hash.
-  std::vector<uint32_t> exact_root(n);
+  exact_root.resize(n);
   std::iota(exact_root.begin(), exact_root.end(), 0u);
-  {
-    std::vector<uint32_t> by_hash(n);
-    std::iota(by_hash.begin(), by_hash.end(), 0u);
-    auto hash_of = [&](uint32_t k) { return records[eligible[k]].features.content_hash; };
-    std::sort(by_hash.begin(), by_hash.end(), [&](uint32_t a, uint32_t b) {
-      return hash_of(a) != hash_of(b) ? hash_of(a) < hash_of(b) : a < b;
-    });
-    for (size_t k = 1; k < n; ++k)
-      if (hash_of(by_hash[k]) == hash_of(by_hash[k - 1])) {
-        if (uf.unite(by_hash[k - 1], by_hash[k]))
-          links.push_back({std::min(by_hash[k - 1], by_hash[k]), std::max(by_hash[k - 1], by_hash[k]), -1, 1.0f, 0, false});
-        exact_root[by_hash[k]] = exact_root[by_hash[k - 1]];
-        ++out.exact_pairs;
-      }
-  }
+  uint64_t exact_pairs = 0;
+  std::vector<uint32_t> by_hash(n);
+  std::iota(by_hash.begin(), by_hash.end(), 0u);
+  auto hash_of = [&](uint32_t k) { return records[eligible[k]].features.content_hash; };
+  std::sort(by_hash.begin(), by_hash.end(), [&](uint32_t a, uint32_t b) {
+    return hash_of(a) != hash_of(b) ? hash_of(a) < hash_of(b) : a < b;
+  });
+  for (size_t k = 1; k < n; ++k)
+    if (hash_of(by_hash[k]) == hash_of(by_hash[k - 1])) {
+      if (uf.unite(by_hash[k - 1], by_hash[k]))
+        links.push_back({std::min(by_hash[k - 1], by_hash[k]), std::max(by_hash[k - 1], by_hash[k]), -1, 1.0f, 0, false});
+      exact_root[by_hash[k]] = exact_root[by_hash[k - 1]];
+      ++exact_pairs;
+    }
+  return exact_pairs;
+}
 
-  // Look-alikes: candidates from an exact Hamming join of each flip/turn's codes
-  // with the identity codes, confirmed by the thumbnails' correlation.
+// Confirms kept hits (8 * image + t, j), sorted by their first member: turns each
+// (image, t) thumbnail once, then compares it with its partners (match.h), and
+// appends the pairs that match to `confirmed`, said of (a, b), a < b.
+void confirm_hits(const std::vector<std::pair<uint32_t, uint32_t>>& hits, const ThumbnailTable& thumbs,
+                  const std::vector<uint32_t>& eligible, const std::vector<MatchProfile>& profile,
+                  const GroupSettings& settings, std::vector<GroupLink>& confirmed) {
+  std::vector<size_t> starts;
+  for (size_t h = 0; h < hits.size(); ++h)
+    if (h == 0 || hits[h].first != hits[h - 1].first) starts.push_back(h);
+  starts.push_back(hits.size());
+  std::vector<std::vector<GroupLink>> found(starts.size() - 1);
+  parallel_for(found.size(), settings.threads, [&](size_t g) {
+    const uint32_t i = hits[starts[g]].first / kDihedralCount;
+    const int t = static_cast<int>(hits[starts[g]].first % kDihedralCount);
+    Thumbnail turned;
+    turn_thumbnail(thumbs.at(eligible[i]), turned, t);
+    std::vector<float> spectrum;  // the turned thumbnail's DCT, once needed
+    for (size_t h = starts[g]; h < starts[g + 1]; ++h) {
+      const uint32_t j = hits[h].second;
+      const Match m = match_thumbnails(turned, profile[i], t, thumbs.at(eligible[j]), profile[j], settings.match, &spectrum);
+      if (!m.joined) continue;
+      // Said of the pair (a, b), a < b: the flip/turn of a that matches b
+      // (the inverse of t when the hit was b's), and which side was blurred.
+      constexpr int kInverse[kDihedralCount] = {0, 1, 2, 3, 4, 6, 5, 7};
+      const bool forward = i < j;
+      const int fit = !m.fitted ? 0 : (m.fitted_a == forward ? 1 : 2);
+      found[g].push_back({std::min(i, j), std::max(i, j), forward ? t : kInverse[t], m.correlation, m.blur_step,
+                          forward ? m.blurred_a : !m.blurred_a, fit});
+    }
+  }, 64);
+  for (auto& f : found) confirmed.insert(confirmed.end(), f.begin(), f.end());
+}
+
+// Phase 2, look-alikes: candidates from an exact Hamming join of each flip/turn's
+// codes with the identity codes, confirmed by the thumbnails (match.h); each
+// confirmed pair joined, with a link where it joined two parts. Fills the
+// candidate and confirmed counts of `out`.
+void join_lookalikes(const std::vector<FileRecord>& records, const ThumbnailTable& thumbs,
+                     const std::vector<uint32_t>& eligible, const GroupSettings& settings, UnionFind& uf,
+                     std::vector<GroupLink>& links, GroupResult& out) {
+  const size_t n = eligible.size();
+  if (n < 2) return;
   std::vector<uint64_t> identity(n);
   for (size_t k = 0; k < n; ++k) identity[k] = records[eligible[k]].features.look.phash[0];
-  if (n > 1) {
-    // Per image: the match profile (match.h, 128 bytes): the thumbnail's sums,
-    // spectral moments and low DCT coefficients, whose bounds reject most hash
-    // hits before any thumbnail is compared.
-    std::vector<MatchProfile> profile(n);
-    parallel_for(n, settings.threads, [&](size_t k) { profile[k] = match_profile(thumbs.at(eligible[k])); }, 256);
-    // A hit (8 * image + t, j) goes on to the confirmation unless it pairs an
-    // image with itself or the profiles prove that the thumbnails cannot match
-    // (neither as they are nor with any blur step the pair would try).
-    const PairFilter keep = [&](uint32_t variant, uint32_t j) {
-      const uint32_t i = variant / kDihedralCount;
-      if (i == j) return false;
-      const int t = static_cast<int>(variant % kDihedralCount);
-      return match_may_join(profile[i], t, profile[j], settings.match);
-    };
-    // Hits of an image with itself are counted by the join but are no candidates.
-    uint64_t self_hits = 0;
+  // Per image: the match profile (match.h, 128 bytes): the thumbnail's sums,
+  // spectral moments and low DCT coefficients, whose bounds reject most hash
+  // hits before any thumbnail is compared.
+  std::vector<MatchProfile> profile(n);
+  parallel_for(n, settings.threads, [&](size_t k) { profile[k] = match_profile(thumbs.at(eligible[k])); }, 256);
+  // A hit (8 * image + t, j) goes on to the confirmation unless it pairs an
+  // image with itself or the profiles prove that the thumbnails cannot match
+  // (neither as they are nor with any blur step the pair would try).
+  const PairFilter keep = [&](uint32_t variant, uint32_t j) {
+    const uint32_t i = variant / kDihedralCount;
+    if (i == j) return false;
+    const int t = static_cast<int>(variant % kDihedralCount);
+    return match_may_join(profile[i], t, profile[j], settings.match);
+  };
+  // Hits of an image with itself are counted by the join but are no candidates.
+  uint64_t self_hits = 0;
+  for (size_t k = 0; k < n; ++k)
+    for (int t = 0; t < kDihedralCount; ++t) self_hits += hamming(records[eligible[k]].features.look.phash[t], identity[k]) <= settings.radius;
+  std::vector<GroupLink> confirmed;
+  // One join of all 8 variants (id = 8 * image + t) is fastest (one plan, one
+  // pass over the buckets); it holds the 8 codes of every image twice (as given
+  // and with their bits permuted, 128 bytes a file), so it is used while they
+  // take at most a quarter of the memory budget. Above that the variants are
+  // joined one at a time. Either way the join's buffer of entries is searched in
+  // slices of the key space within the budget. The join is exact: both give the
+  // same pairs.
+  const bool one_join = double(n) * 2.0 * kDihedralCount * sizeof(uint64_t) <= 0.25 * double(settings.join_memory_bytes);
+  uint64_t found = 0;
+  if (one_join) {
+    std::vector<uint64_t> variants(n * kDihedralCount);
     for (size_t k = 0; k < n; ++k)
-      for (int t = 0; t < kDihedralCount; ++t) self_hits += hamming(records[eligible[k]].features.look.phash[t], identity[k]) <= settings.radius;
-    std::vector<GroupLink> confirmed;
-    // Kept hits (8 * image + t, j), sorted by their first member: turn each
-    // (image, t) thumbnail once, then compare it with its partners.
-    auto confirm = [&](const std::vector<std::pair<uint32_t, uint32_t>>& hits) {
-      std::vector<size_t> starts;
-      for (size_t h = 0; h < hits.size(); ++h)
-        if (h == 0 || hits[h].first != hits[h - 1].first) starts.push_back(h);
-      starts.push_back(hits.size());
-      std::vector<std::vector<GroupLink>> found(starts.size() - 1);
-      parallel_for(found.size(), settings.threads, [&](size_t g) {
-        const uint32_t i = hits[starts[g]].first / kDihedralCount;
-        const int t = static_cast<int>(hits[starts[g]].first % kDihedralCount);
-        Thumbnail turned;
-        turn_thumbnail(thumbs.at(eligible[i]), turned, t);
-        std::vector<float> spectrum;  // the turned thumbnail's DCT, once needed
-        for (size_t h = starts[g]; h < starts[g + 1]; ++h) {
-          const uint32_t j = hits[h].second;
-          const Match m = match_thumbnails(turned, profile[i], t, thumbs.at(eligible[j]), profile[j], settings.match, &spectrum);
-          if (!m.joined) continue;
-          // Said of the pair (a, b), a < b: the flip/turn of a that matches b
-          // (the inverse of t when the hit was b's), and which side was blurred.
-          constexpr int kInverse[kDihedralCount] = {0, 1, 2, 3, 4, 6, 5, 7};
-          const bool forward = i < j;
-          const int fit = !m.fitted ? 0 : (m.fitted_a == forward ? 1 : 2);
-          found[g].push_back({std::min(i, j), std::max(i, j), forward ? t : kInverse[t], m.correlation, m.blur_step,
-                              forward ? m.blurred_a : !m.blurred_a, fit});
-        }
-      }, 64);
-      for (auto& f : found) confirmed.insert(confirmed.end(), f.begin(), f.end());
-    };
-    // One join of all 8 variants (id = 8 * image + t) is fastest (one plan, one
-    // pass over the buckets); it holds the 8 codes of every image twice (as given
-    // and with their bits permuted, 128 bytes a file), so it is used while they
-    // take at most a quarter of the memory budget. Above that the variants are
-    // joined one at a time. Either way the join's buffer of entries is searched in
-    // slices of the key space within the budget. The join is exact: both give the
-    // same pairs.
-    const bool one_join = double(n) * 2.0 * kDihedralCount * sizeof(uint64_t) <= 0.25 * double(settings.join_memory_bytes);
-    uint64_t found = 0;
-    if (one_join) {
-      std::vector<uint64_t> variants(n * kDihedralCount);
-      for (size_t k = 0; k < n; ++k)
-        for (int t = 0; t < kDihedralCount; ++t) variants[k * kDihedralCount + t] = records[eligible[k]].features.look.phash[t];
-      confirm(join_within(variants, identity, settings.radius, settings.threads, keep, &found, settings.join_memory_bytes));
+      for (int t = 0; t < kDihedralCount; ++t) variants[k * kDihedralCount + t] = records[eligible[k]].features.look.phash[t];
+    confirm_hits(join_within(variants, identity, settings.radius, settings.threads, keep, &found, settings.join_memory_bytes),
+                 thumbs, eligible, profile, settings, confirmed);
+    out.candidate_hits += found;
+  } else {
+    std::vector<uint64_t> variant(n);
+    for (int t = 0; t < kDihedralCount; ++t) {
+      for (size_t k = 0; k < n; ++k) variant[k] = records[eligible[k]].features.look.phash[t];
+      const PairFilter keep_t = [&](uint32_t i, uint32_t j) {
+        return keep(i * kDihedralCount + static_cast<uint32_t>(t), j);
+      };
+      auto hits = join_within(variant, identity, settings.radius, settings.threads, keep_t, &found,
+                              settings.join_memory_bytes);
       out.candidate_hits += found;
-    } else {
-      std::vector<uint64_t> variant(n);
-      for (int t = 0; t < kDihedralCount; ++t) {
-        for (size_t k = 0; k < n; ++k) variant[k] = records[eligible[k]].features.look.phash[t];
-        const PairFilter keep_t = [&](uint32_t i, uint32_t j) {
-          return keep(i * kDihedralCount + static_cast<uint32_t>(t), j);
-        };
-        auto hits = join_within(variant, identity, settings.radius, settings.threads, keep_t, &found,
-                                settings.join_memory_bytes);
-        out.candidate_hits += found;
-        for (auto& h : hits) h.first = h.first * kDihedralCount + static_cast<uint32_t>(t);
-        confirm(hits);
-      }
+      for (auto& h : hits) h.first = h.first * kDihedralCount + static_cast<uint32_t>(t);
+      confirm_hits(hits, thumbs, eligible, profile, settings, confirmed);
     }
-    out.candidate_hits -= self_hits;
-    // One measurement a pair: its first in (a, b, turn, blur step) order.
-    std::sort(confirmed.begin(), confirmed.end(), [](const GroupLink& x, const GroupLink& y) {
-      return std::tie(x.a, x.b, x.turn, x.blur_step, x.blurred_a, x.fit_source) <
-             std::tie(y.a, y.b, y.turn, y.blur_step, y.blurred_a, y.fit_source);
-    });
-    confirmed.erase(std::unique(confirmed.begin(), confirmed.end(),
-                                [](const GroupLink& x, const GroupLink& y) { return x.a == y.a && x.b == y.b; }),
-                    confirmed.end());
-    out.confirmed_pairs = confirmed.size();
-    for (const GroupLink& l : confirmed)
-      if (uf.unite(l.a, l.b)) links.push_back(l);
   }
+  out.candidate_hits -= self_hits;
+  // One measurement a pair: its first in (a, b, turn, blur step) order.
+  std::sort(confirmed.begin(), confirmed.end(), [](const GroupLink& x, const GroupLink& y) {
+    return std::tie(x.a, x.b, x.turn, x.blur_step, x.blurred_a, x.fit_source) <
+           std::tie(y.a, y.b, y.turn, y.blur_step, y.blurred_a, y.fit_source);
+  });
+  confirmed.erase(std::unique(confirmed.begin(), confirmed.end(),
+                              [](const GroupLink& x, const GroupLink& y) { return x.a == y.a && x.b == y.b; }),
+                  confirmed.end());
+  out.confirmed_pairs = confirmed.size();
+  for (const GroupLink& l : confirmed)
+    if (uf.unite(l.a, l.b)) links.push_back(l);
+}
 
+// Phase 3, the groups: components of two or more members, numbered by first
+// member, with their exactness, diameter and links, in record indices.
+void make_groups(const std::vector<FileRecord>& records, const std::vector<uint32_t>& eligible,
+                 const std::vector<uint32_t>& exact_root, const std::vector<GroupLink>& links, UnionFind& uf,
+                 GroupResult& out) {
+  const size_t n = eligible.size();
   // Components with two or more members, numbered by first member.
   std::vector<int64_t> comp_of_root(n, -1);
   for (uint32_t k = 0; k < n; ++k) {  // k ascending = record order ascending
@@ -246,6 +234,45 @@ GroupResult find_groups(const std::vector<FileRecord>& records, const ThumbnailT
   out.groups = std::move(kept);
   for (size_t gi = 0; gi < out.groups.size(); ++gi)
     for (uint32_t m : out.groups[gi].members) out.group_of[m] = static_cast<int64_t>(gi);
+}
+
+
+}  // namespace
+
+std::string group_settings_key(const GroupSettings& s) {
+  std::string key;
+  auto add = [&](const auto& v) { key.append(reinterpret_cast<const char*>(&v), sizeof v); };
+  add(kMatchRules);  // groups made by older rules are not reused
+  add(s.radius);
+  add(s.match.min_correlation);
+  add(s.match.max_local);
+  add(s.match.max_chroma);
+  add(s.match.fit_floor);
+  return key;
+}
+
+int lookalike_distance(const LookalikeCodes& a, const LookalikeCodes& b) {
+  int best = 64;
+  for (int t = 0; t < kDihedralCount; ++t) best = std::min(best, hamming(a.phash[t], b.phash[0]));
+  return best;
+}
+
+GroupResult find_groups(const std::vector<FileRecord>& records, const ThumbnailTable& thumbs,
+                        const GroupSettings& settings) {
+  GroupResult out;
+  out.group_of.assign(records.size(), -1);
+  std::vector<uint32_t> eligible;  // record indices of readable images
+  for (uint32_t i = 0; i < records.size(); ++i)
+    if (records[i].kind == FileKind::image && records[i].features.has_lookalike) {
+      if (!thumbs.has(i)) throw std::logic_error("find_groups: an image without its thumbnail");
+      eligible.push_back(i);
+    }
+  UnionFind uf(eligible.size());
+  std::vector<GroupLink> links;  // in eligible indices until the groups are made
+  std::vector<uint32_t> exact_root;
+  out.exact_pairs = join_byte_identical(records, eligible, uf, links, exact_root);
+  join_lookalikes(records, thumbs, eligible, settings, uf, links, out);
+  make_groups(records, eligible, exact_root, links, uf, out);
   return out;
 }
 
