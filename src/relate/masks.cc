@@ -92,52 +92,76 @@ bool looks_like_photo(const FileRecord& r) {
   return r.kind == FileKind::image && r.features.has_lookalike && r.features.stats.distinct > 64;
 }
 
-MaskPairing pair_masks(std::vector<FileRecord>& records, const MaskSettings& settings) {
-  MaskPairing out;
-  out.mask_of.assign(records.size(), -1);
-  out.image_of.assign(records.size(), -1);
-  // Every folder that directly or indirectly holds an image, and each folder's children.
-  std::set<std::string> folders;
-  std::string_view last_folder;  // records are in path order: a folder's files come together
-  for (const auto& r : records) {
-    if (r.kind != FileKind::image) continue;
-    const size_t slash = r.path.rfind('/');
-    const std::string_view folder = slash == std::string::npos ? std::string_view() : std::string_view(r.path).substr(0, slash);
-    if (folder.empty() || folder == last_folder) continue;
-    last_folder = folder;
-    for (std::string f(folder); !f.empty(); f = parent_of(f)) folders.insert(f);
+namespace {
+
+bool contains(const std::vector<std::string>& v, const std::string& f) { return std::find(v.begin(), v.end(), f) != v.end(); }
+
+// pair_masks' state and its phases: folder layouts (sibling and parallel
+// folders), then suffix pairs inside one folder, then the lists sorted.
+class MaskPairer {
+ public:
+  MaskPairer(std::vector<FileRecord>& records, const MaskSettings& settings)
+      : records_(records), settings_(settings), taken_(records.size(), false) {
+    out_.mask_of.assign(records.size(), -1);
+    out_.image_of.assign(records.size(), -1);
   }
-  std::map<std::string, std::vector<std::string>> children;  // parent -> sub-folders, sorted
-  for (const auto& f : folders) children[parent_of(f)].push_back(f);
-  auto contains = [](const std::vector<std::string>& v, const std::string& f) {
-    return std::find(v.begin(), v.end(), f) != v.end();
-  };
+  MaskPairing run() {
+    folder_layouts();
+    suffix_pairs();
+    finish();
+    return std::move(out_);
+  }
+
+ private:
+  std::vector<FileRecord>& records_;
+  const MaskSettings& settings_;
+  MaskPairing out_;
+  std::vector<bool> taken_;  // already a mask
+
+  // Every folder that directly or indirectly holds an image, by parent.
+  std::map<std::string, std::vector<std::string>> folder_children() const {
+    std::set<std::string> folders;
+    std::string_view last_folder;  // records_ are in path order: a folder's files come together
+    for (const auto& r : records_) {
+      if (r.kind != FileKind::image) continue;
+      const size_t slash = r.path.rfind('/');
+      const std::string_view folder = slash == std::string::npos ? std::string_view() : std::string_view(r.path).substr(0, slash);
+      if (folder.empty() || folder == last_folder) continue;
+      last_folder = folder;
+      for (std::string f(folder); !f.empty(); f = parent_of(f)) folders.insert(f);
+    }
+    std::map<std::string, std::vector<std::string>> children;  // parent -> sub-folders, sorted
+    for (const auto& f : folders) children[parent_of(f)].push_back(f);
+    return children;
+  }
+
   // Records below a folder: a contiguous, sorted range.
-  auto range_of = [&](const std::string& folder) {
+  std::pair<size_t, size_t> range_of(const std::string& folder) const {
     std::string prefix = folder + "/";
-    auto lo = std::lower_bound(records.begin(), records.end(), prefix,
+    auto lo = std::lower_bound(records_.begin(), records_.end(), prefix,
                                [](const FileRecord& r, const std::string& p) { return r.path < p; });
     auto hi = lo;
-    while (hi != records.end() && hi->path.compare(0, prefix.size(), prefix) == 0) ++hi;
-    return std::make_pair(static_cast<size_t>(lo - records.begin()), static_cast<size_t>(hi - records.begin()));
-  };
-  std::vector<bool> taken(records.size(), false);  // already a mask
+    while (hi != records_.end() && hi->path.compare(0, prefix.size(), prefix) == 0) ++hi;
+    return std::make_pair(static_cast<size_t>(lo - records_.begin()), static_cast<size_t>(hi - records_.begin()));
+  }
 
-  auto decide_folder = [&](const std::string& mask_dir, const std::string& photo_dir, const std::string& layout) {
+  // One candidate mask folder beside one photo folder: pairs by stem, decided by
+  // the settings_ or the pixels; an accepted folder's files become masks.
+  void decide_folder(const std::string& mask_dir, const std::string& photo_dir, const std::string& layout) {
     auto [ml, mh] = range_of(mask_dir);
     auto [pl, ph] = range_of(photo_dir);
     std::map<std::string, uint32_t> photos;  // relative stem -> record
     for (size_t i = pl; i < ph; ++i)
-      if (records[i].kind == FileKind::image && !taken[i])
-        photos.emplace(drop_ext(records[i].path.substr(photo_dir.size() + 1)), static_cast<uint32_t>(i));
+      if (records_[i].kind == FileKind::image && !taken_[i])
+        photos.emplace(drop_ext(records_[i].path.substr(photo_dir.size() + 1)), static_cast<uint32_t>(i));
     MaskEvidence ev;
     ev.folder = mask_dir;
     ev.partner = photo_dir;
     ev.layout = layout;
     std::vector<std::pair<uint32_t, uint32_t>> pairs;  // (mask, photo)
     for (size_t i = ml; i < mh; ++i) {
-      if (records[i].kind != FileKind::image) continue;
-      std::string stem = drop_ext(records[i].path.substr(mask_dir.size() + 1));
+      if (records_[i].kind != FileKind::image) continue;
+      std::string stem = drop_ext(records_[i].path.substr(mask_dir.size() + 1));
       auto it = photos.find(stem);
       if (it == photos.end()) {
         std::string cut(drop_token(stem));
@@ -145,12 +169,12 @@ MaskPairing pair_masks(std::vector<FileRecord>& records, const MaskSettings& set
       }
       if (it == photos.end()) continue;
       ++ev.pairs;
-      if (looks_like_mask(records[i]) && looks_like_photo(records[it->second])) ++ev.confirmed;
+      if (looks_like_mask(records_[i]) && looks_like_photo(records_[it->second])) ++ev.confirmed;
       pairs.emplace_back(static_cast<uint32_t>(i), it->second);
     }
     if (ev.pairs == 0) return;
-    const bool forced = contains(settings.force, mask_dir);
-    if (contains(settings.forbid, mask_dir)) {
+    const bool forced = contains(settings_.force, mask_dir);
+    if (contains(settings_.forbid, mask_dir)) {
       ev.decided_by = "forbidden";
     } else if (forced) {
       ev.accepted = true;
@@ -162,99 +186,112 @@ MaskPairing pair_masks(std::vector<FileRecord>& records, const MaskSettings& set
     if (ev.accepted) {
       std::set<uint32_t> paired_photos;
       for (auto [m, p] : pairs) {
-        if (!forced && looks_like_photo(records[m])) {
-          out.misfiled.push_back(m);  // a photograph inside the mask folder stays an image
+        if (!forced && looks_like_photo(records_[m])) {
+          out_.misfiled.push_back(m);  // a photograph inside the mask folder stays an image
           continue;
         }
-        records[m].kind = FileKind::mask;
-        taken[m] = true;
-        out.image_of[m] = p;
-        if (out.mask_of[p] < 0) out.mask_of[p] = m;  // a second mask of one image links back only
+        records_[m].kind = FileKind::mask;
+        taken_[m] = true;
+        out_.image_of[m] = p;
+        if (out_.mask_of[p] < 0) out_.mask_of[p] = m;  // a second mask of one image links back only
         paired_photos.insert(p);
       }
       for (size_t i = ml; i < mh; ++i)  // unpaired mask-like files in the folder are orphan masks
-        if (records[i].kind == FileKind::image && !taken[i] && (forced || looks_like_mask(records[i])) &&
-            out.image_of[i] < 0 && std::none_of(pairs.begin(), pairs.end(), [&](auto pr) { return pr.first == i; })) {
-          records[i].kind = FileKind::mask;
-          taken[i] = true;
+        if (records_[i].kind == FileKind::image && !taken_[i] && (forced || looks_like_mask(records_[i])) &&
+            out_.image_of[i] < 0 && std::none_of(pairs.begin(), pairs.end(), [&](auto pr) { return pr.first == i; })) {
+          records_[i].kind = FileKind::mask;
+          taken_[i] = true;
         }
       for (const auto& [stem, p] : photos) {
-        if (paired_photos.count(p) || out.mask_of[p] >= 0) continue;
-        if (looks_like_mask(records[p])) out.misfiled.push_back(p);  // a mask among the photographs
-        else out.orphan_images.push_back(p);
+        if (paired_photos.count(p) || out_.mask_of[p] >= 0) continue;
+        if (looks_like_mask(records_[p])) out_.misfiled.push_back(p);  // a mask among the photographs
+        else out_.orphan_images.push_back(p);
       }
-      if (parent_of(mask_dir).empty() && layout == "parallel") out.layout_roots.push_back(photo_dir);
+      if (parent_of(mask_dir).empty() && layout == "parallel") out_.layout_roots.push_back(photo_dir);
     }
-    out.evidence.push_back(std::move(ev));
-  };
+    out_.evidence.push_back(std::move(ev));
+  }
 
   // Folder layouts: siblings that differ by a token, and mask-word folders beside others.
-  for (const auto& [parent, subs] : children) {
-    for (const auto& b : subs) {
-      const std::string bn = name_of(b);
-      for (const auto& a : subs) {
-        if (a == b) continue;
-        const std::string an = name_of(a);
-        if (differs_by_token(an, bn) && !differs_by_token(bn, an)) {
-          decide_folder(b, a, "sibling");
-        } else if (mask_words().count(lower(bn)) && !mask_words().count(lower(an))) {
-          decide_folder(b, a, "parallel");
+  void folder_layouts() {
+    const auto children = folder_children();
+    for (const auto& [parent, subs] : children) {
+      for (const auto& b : subs) {
+        const std::string bn = name_of(b);
+        for (const auto& a : subs) {
+          if (a == b) continue;
+          const std::string an = name_of(a);
+          if (differs_by_token(an, bn) && !differs_by_token(bn, an)) {
+            decide_folder(b, a, "sibling");
+          } else if (mask_words().count(lower(bn)) && !mask_words().count(lower(an))) {
+            decide_folder(b, a, "parallel");
+          }
         }
       }
+      (void)parent;
     }
-    (void)parent;
   }
 
   // Suffix pairs inside one folder: "X.ext" and "X<sep><token>.ext".
-  std::map<std::pair<std::string, std::string>, std::vector<std::pair<uint32_t, uint32_t>>> groups;  // (folder, token)
-  // First the images whose name ends in a separator and a token with a letter
-  // (most sets have none: then no table of stems is made).
-  std::vector<std::pair<uint32_t, size_t>> candidates;  // (record, length of the stem without the token)
-  for (uint32_t i = 0; i < records.size(); ++i) {
-    if (records[i].kind != FileKind::image) continue;
-    const std::string_view stem = stem_view(records[i].path);
-    const std::string_view cut = drop_token(stem);
-    if (cut.empty() || parent_view(cut) != parent_view(stem)) continue;
-    if (!has_letter(stem.substr(cut.size() + 1))) continue;
-    candidates.emplace_back(i, cut.size());
+  void suffix_pairs() {
+    std::map<std::pair<std::string, std::string>, std::vector<std::pair<uint32_t, uint32_t>>> groups;  // (folder, token)
+    // First the images whose name ends in a separator and a token with a letter
+    // (most sets have none: then no table of stems is made).
+    std::vector<std::pair<uint32_t, size_t>> candidates;  // (record, length of the stem without the token)
+    for (uint32_t i = 0; i < records_.size(); ++i) {
+      if (records_[i].kind != FileKind::image) continue;
+      const std::string_view stem = stem_view(records_[i].path);
+      const std::string_view cut = drop_token(stem);
+      if (cut.empty() || parent_view(cut) != parent_view(stem)) continue;
+      if (!has_letter(stem.substr(cut.size() + 1))) continue;
+      candidates.emplace_back(i, cut.size());
+    }
+    std::map<std::string, uint32_t> by_stem;
+    if (!candidates.empty())
+      for (uint32_t i = 0; i < records_.size(); ++i)
+        if (records_[i].kind == FileKind::image) by_stem.emplace(drop_ext(records_[i].path), i);
+    for (auto [i, cut_size] : candidates) {
+      const std::string stem = drop_ext(records_[i].path);
+      const std::string cut = stem.substr(0, cut_size), token = stem.substr(cut_size + 1);
+      auto it = by_stem.find(cut);
+      if (it == by_stem.end() || it->second == i) continue;
+      groups[{parent_of(stem), lower(token)}].emplace_back(i, it->second);
+    }
+    for (auto& [key, pairs] : groups) {
+      MaskEvidence ev;
+      ev.folder = (key.first.empty() ? "" : key.first + "/") + "*" + key.second;
+      ev.partner = key.first;
+      ev.layout = "suffix";
+      ev.pairs = pairs.size();
+      for (auto [m, p] : pairs) ev.confirmed += looks_like_mask(records_[m]) && looks_like_photo(records_[p]);
+      ev.accepted = !contains(settings_.forbid, key.first) && ev.confirmed * 2 > ev.pairs;
+      ev.decided_by = contains(settings_.forbid, key.first) ? "forbidden" : "pixels";
+      if (ev.accepted)
+        for (auto [m, p] : pairs) {
+          if (taken_[m] || out_.mask_of[p] >= 0 || !looks_like_mask(records_[m])) continue;
+          records_[m].kind = FileKind::mask;
+          taken_[m] = true;
+          out_.mask_of[p] = m;
+          out_.image_of[m] = p;
+        }
+      out_.evidence.push_back(std::move(ev));
+    }
   }
-  std::map<std::string, uint32_t> by_stem;
-  if (!candidates.empty())
-    for (uint32_t i = 0; i < records.size(); ++i)
-      if (records[i].kind == FileKind::image) by_stem.emplace(drop_ext(records[i].path), i);
-  for (auto [i, cut_size] : candidates) {
-    const std::string stem = drop_ext(records[i].path);
-    const std::string cut = stem.substr(0, cut_size), token = stem.substr(cut_size + 1);
-    auto it = by_stem.find(cut);
-    if (it == by_stem.end() || it->second == i) continue;
-    groups[{parent_of(stem), lower(token)}].emplace_back(i, it->second);
+
+  void finish() {
+    std::sort(out_.misfiled.begin(), out_.misfiled.end());
+    out_.misfiled.erase(std::unique(out_.misfiled.begin(), out_.misfiled.end()), out_.misfiled.end());
+    std::sort(out_.orphan_images.begin(), out_.orphan_images.end());
+    out_.orphan_images.erase(std::unique(out_.orphan_images.begin(), out_.orphan_images.end()), out_.orphan_images.end());
+    std::sort(out_.layout_roots.begin(), out_.layout_roots.end());
+    out_.layout_roots.erase(std::unique(out_.layout_roots.begin(), out_.layout_roots.end()), out_.layout_roots.end());
   }
-  for (auto& [key, pairs] : groups) {
-    MaskEvidence ev;
-    ev.folder = (key.first.empty() ? "" : key.first + "/") + "*" + key.second;
-    ev.partner = key.first;
-    ev.layout = "suffix";
-    ev.pairs = pairs.size();
-    for (auto [m, p] : pairs) ev.confirmed += looks_like_mask(records[m]) && looks_like_photo(records[p]);
-    ev.accepted = !contains(settings.forbid, key.first) && ev.confirmed * 2 > ev.pairs;
-    ev.decided_by = contains(settings.forbid, key.first) ? "forbidden" : "pixels";
-    if (ev.accepted)
-      for (auto [m, p] : pairs) {
-        if (taken[m] || out.mask_of[p] >= 0 || !looks_like_mask(records[m])) continue;
-        records[m].kind = FileKind::mask;
-        taken[m] = true;
-        out.mask_of[p] = m;
-        out.image_of[m] = p;
-      }
-    out.evidence.push_back(std::move(ev));
-  }
-  std::sort(out.misfiled.begin(), out.misfiled.end());
-  out.misfiled.erase(std::unique(out.misfiled.begin(), out.misfiled.end()), out.misfiled.end());
-  std::sort(out.orphan_images.begin(), out.orphan_images.end());
-  out.orphan_images.erase(std::unique(out.orphan_images.begin(), out.orphan_images.end()), out.orphan_images.end());
-  std::sort(out.layout_roots.begin(), out.layout_roots.end());
-  out.layout_roots.erase(std::unique(out.layout_roots.begin(), out.layout_roots.end()), out.layout_roots.end());
-  return out;
+};
+
+}  // namespace
+
+MaskPairing pair_masks(std::vector<FileRecord>& records, const MaskSettings& settings) {
+  return MaskPairer(records, settings).run();
 }
 
 void check_masks(const std::vector<FileRecord>& records, const MaskPairing& m, std::vector<Finding>& out) {
