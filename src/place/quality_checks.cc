@@ -55,8 +55,20 @@ double round2(double x) { return std::round(x * 100) / 100; }
 
 }  // namespace
 
-void check_images(const std::vector<FileRecord>& records, const Labelling& labels, const CheckSettings& cs,
-                  std::vector<Finding>& out) {
+namespace {
+
+// The robust distributions the image checks compare with: per class (index c)
+// and for the whole set (index nc), of mean luminance, entropy and log focus,
+// and the set's log aspect ratios. A class too small for its own falls back on
+// the set's (pick).
+struct Pools {
+  size_t nc = 0;
+  std::vector<Robust> mean, entropy, focus;
+  Robust aspect;
+  const Robust& pick(const std::vector<Robust>& z, size_t c) const { return z[c].usable ? z[c] : z[nc]; }
+};
+
+Pools image_pools(const std::vector<FileRecord>& records, const Labelling& labels) {
   // Per-class (or, for classes under 8 images, whole-set) distributions.
   const size_t nc = labels.names.size();
   std::vector<std::vector<double>> mean_c(nc + 1), ent_c(nc + 1), focus_c(nc + 1);
@@ -95,28 +107,38 @@ void check_images(const std::vector<FileRecord>& records, const Labelling& label
     ze[k] = robust(std::move(ent_c[k]));
     zf[k] = robust(std::move(focus_c[k]));
   }
-  auto pick = [&](const std::vector<Robust>& z, size_t c) -> const Robust& { return z[c].usable ? z[c] : z[nc]; };
-  Robust aspect = robust(std::move(log_aspect));
+  Pools pools;
+  pools.nc = nc;
+  pools.mean = std::move(zm);
+  pools.entropy = std::move(ze);
+  pools.focus = std::move(zf);
+  pools.aspect = robust(std::move(log_aspect));
+  return pools;
 
-  Collector col;
-  uint64_t upscaled = 0;
+}
+
+// Each image against the thresholds and its class's distributions: the codes
+// it raises, with their measurements, into `col`; images below the input side
+// counted in `upscaled`.
+void collect_image_flags(const std::vector<FileRecord>& records, const Labelling& labels, const CheckSettings& cs,
+                         const Pools& pools, Collector& col, uint64_t& upscaled) {
   for (size_t i = 0; i < records.size(); ++i) {
     const auto& r = records[i];
     if (r.kind != FileKind::image) continue;
     const auto& p = r.probe;
     const auto& st = r.features.stats;
-    const size_t c = labels.label_of[i] >= 0 ? static_cast<size_t>(labels.label_of[i]) : nc;
+    const size_t c = labels.label_of[i] >= 0 ? static_cast<size_t>(labels.label_of[i]) : pools.nc;
     const uint32_t shorter = std::min(p.width, p.height);
     if (shorter < cs.min_side) col.add("tiny-image", r, [&] { return nlohmann::json{{"width", p.width}, {"height", p.height}}; });
     if (shorter < cs.input_side) {
       ++upscaled;
       col.add("below-input-size", r);
     }
-    if (aspect.usable) {
+    if (pools.aspect.usable) {
       double la = std::log(double(p.width) / p.height);
-      if (std::abs(la - aspect.median) > std::log(2.0))
+      if (std::abs(la - pools.aspect.median) > std::log(2.0))
         col.add("aspect-outlier", r, [&] {
-          return nlohmann::json{{"aspect", round2(double(p.width) / p.height)}, {"set_median", round2(std::exp(aspect.median))}};
+          return nlohmann::json{{"aspect", round2(double(p.width) / p.height)}, {"set_median", round2(std::exp(pools.aspect.median))}};
         });
     }
     if (r.features.has_lookalike) {
@@ -127,11 +149,11 @@ void check_images(const std::vector<FileRecord>& records, const Labelling& label
       if (st.luma_std < 3.0) {
         col.add("near-uniform", r, m);
       } else {
-        double z = pick(zm, c).z(st.luma_mean);
+        double z = pools.pick(pools.mean, c).z(st.luma_mean);
         if (st.luma_mean < 30 && z < -cs.outlier_z) col.add("underexposed", r, m);
         if (st.luma_mean > 225 && z > cs.outlier_z) col.add("overexposed", r, m);
-        if (st.entropy < 3.0 && pick(ze, c).z(st.entropy) < -cs.outlier_z) col.add("low-entropy", r, m);
-        if (st.focus < 100 && pick(zf, c).z(std::log1p(st.focus)) < -cs.outlier_z) col.add("unsharp", r, m);
+        if (st.entropy < 3.0 && pools.pick(pools.entropy, c).z(st.entropy) < -cs.outlier_z) col.add("low-entropy", r, m);
+        if (st.focus < 100 && pools.pick(pools.focus, c).z(std::log1p(st.focus)) < -cs.outlier_z) col.add("unsharp", r, m);
       }
       bool colour = p.mode == ColorMode::rgb || p.mode == ColorMode::rgba || p.mode == ColorMode::cmyk;
       if (colour && st.channels_equal) col.add("gray-as-rgb", r);
@@ -157,7 +179,10 @@ void check_images(const std::vector<FileRecord>& records, const Labelling& label
     }
     if (p.has_gps) col.add("gps-location", r);
   }
+}
 
+// One finding a code raised, in the rules' order, with its measurements.
+void emit_image_findings(Collector& col, uint64_t upscaled, const CheckSettings& cs, std::vector<Finding>& out) {
   struct Rule {
     const char* code;  // its default severity is the catalogue's (findings.h)
     const char* what;
@@ -198,6 +223,17 @@ void check_images(const std::vector<FileRecord>& records, const Labelling& label
     f.paths = std::move(it->second);
     out.push_back(std::move(f));
   }
+}
+
+}  // namespace
+
+void check_images(const std::vector<FileRecord>& records, const Labelling& labels, const CheckSettings& cs,
+                  std::vector<Finding>& out) {
+  const Pools pools = image_pools(records, labels);
+  Collector col;
+  uint64_t upscaled = 0;
+  collect_image_flags(records, labels, cs, pools, col, upscaled);
+  emit_image_findings(col, upscaled, cs, out);
 }
 
 size_t edit_distance(std::string_view a, std::string_view b) {
