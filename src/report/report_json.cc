@@ -50,17 +50,10 @@ json build_report_without_paths(const AuditResult& r) { return build_report_impl
 
 namespace {
 
-json build_report_impl(const AuditResult& r, bool with_paths) {
+// The classes with their split counts and targets, the balance, and the
+// formats and colour modes of the images.
+void add_classes(json& j, const AuditResult& r) {
   const AuditSettings& s = r.settings;
-  json j;
-  j["schema_version"] = kReportSchemaVersion;
-  j["tool"] = {{"name", kToolName}, {"version", kToolVersion}};
-  j["settings"] = settings_json(s);
-  j["totals"] = {{"files_seen", r.totals.files_seen}, {"images", r.totals.images}, {"masks", r.totals.masks},
-                 {"unreadable", r.totals.unreadable}, {"ignored", r.totals.ignored}};
-  j["layout"] = {{"pre_split", r.labels.pre_split}};
-  j["split"] = {{"kept_from_folders", r.labels.pre_split && !s.split.resplit}, {"kept_from_manifest", r.split.kept}};
-
   struct ClassCount {
     uint64_t count = 0;
     std::array<uint64_t, 3> split{};
@@ -111,7 +104,12 @@ json build_report_impl(const AuditResult& r, bool with_paths) {
   Balance bal = class_balance(r.records, r.labels);
   j["balance"] = {{"largest", bal.largest}, {"smallest", bal.smallest}, {"imbalance_ratio", bal.imbalance_ratio},
                   {"normalized_entropy", bal.normalized_entropy}};
-  // The most common stored sizes (for the size scatter), most frequent first.
+  j["formats"] = formats;
+  j["modes"] = modes;
+}
+
+// The most common stored sizes (for the size scatter), most frequent first.
+void add_sizes(json& j, const AuditResult& r) {
   std::map<std::pair<uint32_t, uint32_t>, uint64_t> size_counts;
   for (const auto& rec : r.records)
     if (rec.kind == FileKind::image) ++size_counts[{rec.probe.width, rec.probe.height}];
@@ -125,8 +123,10 @@ json build_report_impl(const AuditResult& r, bool with_paths) {
   for (const auto& [n, wh] : by_count) sizes.push_back({{"width", wh.first}, {"height", wh.second}, {"count", n}});
   j["sizes"] = std::move(sizes);
   j["distinct_sizes"] = size_counts.size();
-  j["formats"] = formats;
-  j["modes"] = modes;
+}
+
+// Every group with its members, classes, diameter and the links that joined it.
+json groups_json(const AuditResult& r) {
   json groups = json::array();
   for (size_t gi = 0; gi < r.groups.groups.size(); ++gi) {
     const Group& g = r.groups.groups[gi];
@@ -159,8 +159,11 @@ json build_report_impl(const AuditResult& r, bool with_paths) {
                       {"diameter_exact", g.diameter_exact},
                       {"links", links}});
   }
-  j["groups"] = std::move(groups);
-  // Mask pairs per class, the folder evidence, and every pair.
+  return groups;
+}
+
+// Mask pairs per class, the folder evidence, and every pair.
+json masks_json(const AuditResult& r) {
   json pairs = json::array();
   std::map<std::string, uint64_t> pairs_per_class;
   for (size_t i = 0; i < r.records.size(); ++i) {
@@ -178,12 +181,13 @@ json build_report_impl(const AuditResult& r, bool with_paths) {
                         {"accepted", e.accepted}, {"decided_by", e.decided_by}});
   json per_class = json::array();
   for (const auto& [label, n] : pairs_per_class) per_class.push_back({{"label", label}, {"pairs", n}});
-  j["masks"] = {{"pairs_per_class", per_class}, {"folders", evidence}, {"pairs", pairs},
-                {"layout_roots", r.masks.layout_roots}};
-  j["lookalike_search"] = {{"exact_pairs", r.groups.exact_pairs},
-                           {"candidate_hits", r.groups.candidate_hits},
-                           {"confirmed_pairs", r.groups.confirmed_pairs}};
+  return {{"pairs_per_class", per_class}, {"folders", evidence}, {"pairs", pairs},
+          {"layout_roots", r.masks.layout_roots}};
+}
 
+// The findings (with their paths, or without for the page's embedded copy), the
+// policy's verdict and the baseline's comparison.
+void add_findings(json& j, const AuditResult& r, bool with_paths) {
   json findings = json::array();
   for (size_t k = 0; k < r.findings.size(); ++k) {
     const auto& f = r.findings[k];
@@ -202,6 +206,10 @@ json build_report_impl(const AuditResult& r, bool with_paths) {
                      {"findings_gone", r.baseline.findings_gone}};
   }
 
+}
+
+// Files left aside (ignored) and files that could not be read, with their reasons.
+void add_files_aside(json& j, const AuditResult& r) {
   json ignored = json::array(), unreadable = json::array();
   for (const auto& rec : r.records) {
     if (rec.kind == FileKind::ignored) ignored.push_back({{"path", rec.path}, {"reason", defect_code(rec.defect)}});
@@ -210,6 +218,29 @@ json build_report_impl(const AuditResult& r, bool with_paths) {
   }
   j["ignored"] = std::move(ignored);
   j["unreadable"] = std::move(unreadable);
+}
+
+json build_report_impl(const AuditResult& r, bool with_paths) {
+  const AuditSettings& s = r.settings;
+  json j;
+  j["schema_version"] = kReportSchemaVersion;
+  j["tool"] = {{"name", kToolName}, {"version", kToolVersion}};
+  j["settings"] = settings_json(s);
+  j["totals"] = {{"files_seen", r.totals.files_seen}, {"images", r.totals.images}, {"masks", r.totals.masks},
+                 {"unreadable", r.totals.unreadable}, {"ignored", r.totals.ignored}};
+  j["layout"] = {{"pre_split", r.labels.pre_split}};
+  j["split"] = {{"kept_from_folders", r.labels.pre_split && !s.split.resplit}, {"kept_from_manifest", r.split.kept}};
+
+  add_classes(j, r);
+  add_sizes(j, r);
+  j["groups"] = groups_json(r);
+  j["masks"] = masks_json(r);
+  j["lookalike_search"] = {{"exact_pairs", r.groups.exact_pairs},
+                           {"candidate_hits", r.groups.candidate_hits},
+                           {"confirmed_pairs", r.groups.confirmed_pairs}};
+
+  add_findings(j, r, with_paths);
+  add_files_aside(j, r);
   return j;
 }
 
