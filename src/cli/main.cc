@@ -270,19 +270,17 @@ int finish(tamis::AuditResult& result, const std::string& out, const JudgeOption
 int run_audit_command(const std::string& root, const std::string& out, const SplitOptions& so,
                       const JudgeOptions& jo, const CommonOptions& o) {
   namespace fs = std::filesystem;
-  tamis::AuditSettings settings;
+  tamis::TreeSettings settings;
   settings.root = root;
+  tamis::PlaceOptions place;
   tamis::KeepMap keep;
   bool have_keep = false;
-  if (!resolve_split(so, settings.split, keep, have_keep)) return kExitBadUsage;
-  tamis::PlaceOptions place;
+  if (!resolve_split(so, place.split, keep, have_keep)) return kExitBadUsage;
   tamis::Baseline baseline;
   bool have_baseline = false;
   if (!resolve_judge(jo, place.policy, baseline, have_baseline)) return kExitBadUsage;
-  place.split = settings.split;
   place.keep = have_keep ? &keep : nullptr;
   place.baseline = have_baseline ? &baseline : nullptr;
-  settings.checks = place.policy.thresholds;
   settings.groups.radius = place.policy.lookalike.radius;
   settings.groups.match = place.policy.lookalike.match;
   if (!o.no_cache) {

@@ -11,7 +11,7 @@
 
 namespace tamis {
 
-AuditIndex read_tree(const AuditSettings& settings) {
+AuditIndex read_tree(const TreeSettings& settings) {
   AuditIndex r;
   r.settings = settings;
   r.settings.read.on_progress = nullptr;
@@ -66,8 +66,8 @@ AuditIndex read_tree(const AuditSettings& settings) {
 AuditResult place(AuditIndex index, const PlaceOptions& opt) {
   AuditResult r;
   static_cast<AuditIndex&>(r) = std::move(index);
-  r.settings.split = opt.split;
-  r.settings.checks = opt.policy.thresholds;
+  r.placed.split = opt.split;
+  r.placed.checks = opt.policy.thresholds;
   r.fail_on_new_only = opt.policy.fail_on_new_only;
   StageClock clock(&r.times);
 
@@ -113,8 +113,8 @@ AuditResult place(AuditIndex index, const PlaceOptions& opt) {
     check_inventory(r.records, r.labels, r.walk, r.findings);
     check_masks(r.records, r.masks, r.findings);
     check_groups(r.records, r.labels, r.groups, r.settings.groups, r.findings);
-    check_images(r.records, r.labels, r.settings.checks, r.findings);
-    check_labels(r.records, r.labels, r.walk, r.settings.checks, r.findings);
+    check_images(r.records, r.labels, r.placed.checks, r.findings);
+    check_labels(r.records, r.labels, r.walk, r.placed.checks, r.findings);
   } catch (...) {
     if (splitter.joinable()) splitter.join();
     throw;
@@ -156,12 +156,16 @@ AuditResult place(AuditIndex index, const PlaceOptions& opt) {
 AuditResult place(AuditIndex index, const SplitSettings& split, const KeepMap* keep) {
   PlaceOptions opt;
   opt.split = split;
-  opt.policy.thresholds = index.settings.checks;
+  opt.policy.thresholds = index.placed.checks;
   opt.keep = keep;
   return place(std::move(index), opt);
 }
 
-AuditResult run_audit(const AuditSettings& settings) { return place(read_tree(settings), settings.split); }
+AuditResult run_audit(const AuditSettings& settings) {
+  AuditIndex index = read_tree(settings);
+  index.placed.checks = settings.checks;
+  return place(std::move(index), settings.split);
+}
 
 int policy_exit_status(const AuditResult& result) {
   for (size_t k = 0; k < result.findings.size(); ++k)

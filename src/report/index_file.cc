@@ -92,7 +92,7 @@ void save_index(const std::filesystem::path& file, const AuditIndex& x, StagedFi
                           {"max_local", x.settings.groups.match.max_local},
                           {"max_chroma", x.settings.groups.match.max_chroma},
                           {"fit_floor", x.settings.groups.match.fit_floor}};
-  const auto& cs = x.settings.checks;
+  const auto& cs = x.placed.checks;
   j["checks"] = {{"min_side", cs.min_side}, {"input_side", cs.input_side}, {"min_class", cs.min_class},
                  {"max_imbalance", cs.max_imbalance}, {"outlier_z", cs.outlier_z}};
   // Arrays with an entry a record are written straight into the stream below;
@@ -261,11 +261,11 @@ AuditIndex load_index(const std::filesystem::path& file) {
     x.settings.masks.force = strs(j.at("mask_settings").at("force"));
     x.settings.masks.forbid = strs(j.at("mask_settings").at("forbid"));
     const json& ck = j.at("checks");
-    x.settings.checks.min_side = ck.at("min_side").get<uint32_t>();
-    x.settings.checks.input_side = ck.at("input_side").get<uint32_t>();
-    x.settings.checks.min_class = ck.at("min_class").get<uint64_t>();
-    x.settings.checks.max_imbalance = ck.at("max_imbalance").get<double>();
-    x.settings.checks.outlier_z = ck.at("outlier_z").get<double>();
+    x.placed.checks.min_side = ck.at("min_side").get<uint32_t>();
+    x.placed.checks.input_side = ck.at("input_side").get<uint32_t>();
+    x.placed.checks.min_class = ck.at("min_class").get<uint64_t>();
+    x.placed.checks.max_imbalance = ck.at("max_imbalance").get<double>();
+    x.placed.checks.outlier_z = ck.at("outlier_z").get<double>();
     for (const auto& e : j.at("records")) {
       FileRecord r = record_from_json(e);
       x.records.push_back(std::move(r));

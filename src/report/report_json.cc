@@ -12,15 +12,15 @@ namespace tamis {
 
 using nlohmann::json;
 
-json settings_json(const AuditSettings& s) {
-  const auto& p = s.split.percent;
+json settings_json(const TreeSettings& s, const PlaceSettings& placed) {
+  const auto& p = placed.split.percent;
   return json{
-      {"seed", s.split.seed},
+      {"seed", placed.split.seed},
       {"split", {{"train", p[0]}, {"val", p[1]}, {"test", p[2]}}},
-      {"split_method", s.split.method == SplitMethod::stable ? "stable" : "shuffle"},
-      {"per_class", s.split.per_class},
-      {"folds", s.split.folds},
-      {"resplit", s.split.resplit},
+      {"split_method", placed.split.method == SplitMethod::stable ? "stable" : "shuffle"},
+      {"per_class", placed.split.per_class},
+      {"folds", placed.split.folds},
+      {"resplit", placed.split.resplit},
       {"max_pixels", s.read.decode.max_pixels},
       {"max_image_bytes", s.read.decode.max_image_bytes},
       {"max_bytes", s.read.max_bytes},
@@ -30,11 +30,11 @@ json settings_json(const AuditSettings& s) {
       {"lookalike_max_local", s.groups.match.max_local},
       {"lookalike_max_chroma", s.groups.match.max_chroma},
       {"lookalike_fit_floor", s.groups.match.fit_floor},
-      {"min_side", s.checks.min_side},
-      {"input_side", s.checks.input_side},
-      {"min_class", s.checks.min_class},
-      {"max_imbalance", s.checks.max_imbalance},
-      {"outlier_z", s.checks.outlier_z},
+      {"min_side", placed.checks.min_side},
+      {"input_side", placed.checks.input_side},
+      {"min_class", placed.checks.min_class},
+      {"max_imbalance", placed.checks.max_imbalance},
+      {"outlier_z", placed.checks.outlier_z},
       {"mask_folders", s.masks.force},
       {"not_mask_folders", s.masks.forbid},
   };
@@ -53,7 +53,7 @@ namespace {
 // The classes with their split counts and targets, the balance, and the
 // formats and colour modes of the images.
 void add_classes(json& j, const AuditResult& r) {
-  const AuditSettings& s = r.settings;
+  const PlaceSettings& s = r.placed;
   struct ClassCount {
     uint64_t count = 0;
     std::array<uint64_t, 3> split{};
@@ -221,11 +221,11 @@ void add_files_aside(json& j, const AuditResult& r) {
 }
 
 json build_report_impl(const AuditResult& r, bool with_paths) {
-  const AuditSettings& s = r.settings;
+  const PlaceSettings& s = r.placed;
   json j;
   j["schema_version"] = kReportSchemaVersion;
   j["tool"] = {{"name", kToolName}, {"version", kToolVersion}};
-  j["settings"] = settings_json(s);
+  j["settings"] = settings_json(r.settings, r.placed);
   j["totals"] = {{"files_seen", r.totals.files_seen}, {"images", r.totals.images}, {"masks", r.totals.masks},
                  {"unreadable", r.totals.unreadable}, {"ignored", r.totals.ignored}};
   j["layout"] = {{"pre_split", r.labels.pre_split}};

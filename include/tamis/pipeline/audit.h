@@ -33,14 +33,26 @@
 
 namespace tamis {
 
-struct AuditSettings {
+// What read_tree uses: the tree, how to read it and how to relate its files.
+struct TreeSettings {
   std::filesystem::path root;
   ReadOptions read;
   GroupSettings groups;
-  CheckSettings checks;   // from the policy's thresholds
   MaskSettings masks;
-  SplitSettings split;
   std::filesystem::path cache_file;  // record cache (cache.h); empty: none
+};
+
+// What place() used: the split and the check thresholds (the policy's).
+struct PlaceSettings {
+  SplitSettings split;
+  CheckSettings checks;
+};
+
+// Both at once, for run_audit (the tests and benchmarks); the command line
+// sets TreeSettings and PlaceOptions apart, each once.
+struct AuditSettings : TreeSettings {
+  SplitSettings split;
+  CheckSettings checks;
 };
 
 struct Totals {
@@ -50,7 +62,10 @@ struct Totals {
 // Everything an audit knows before the split: what `tamis split` reloads from the
 // index an audit saves (index_file.h), so a re-split never reads an image.
 struct AuditIndex {
-  AuditSettings settings;           // root, read and group settings of the reading run
+  TreeSettings settings;            // root, read, group and mask settings of the reading run
+  // The split and thresholds place() used: set by place(); saved in the index, whose
+  // thresholds a re-split by place(index, split) takes (empty after read_tree).
+  PlaceSettings placed;
   WalkResult walk;                  // walk.files is released once read; links and dirs kept
   std::vector<FileRecord> records;  // sorted by path, one per regular file
   // Thumbnails at hand after read_tree: every image's when the groups were made
@@ -85,7 +100,7 @@ struct AuditResult : AuditIndex {
 };
 
 // walk -> read -> masks -> labels -> groups. Throws std::runtime_error when ROOT cannot be read.
-AuditIndex read_tree(const AuditSettings& settings);
+AuditIndex read_tree(const TreeSettings& settings);
 
 // checks -> split -> policy -> baseline, on an index (fresh, or loaded by `tamis
 // split`). A pre-split tree keeps its folders' splits unless split.resplit.

@@ -16,7 +16,7 @@ namespace tamis {
 inline constexpr int kReportSchemaVersion = 1;
 
 // The settings as they are recorded in report.json (and compared on re-split).
-nlohmann::json settings_json(const AuditSettings& settings);
+nlohmann::json settings_json(const TreeSettings& settings, const PlaceSettings& placed);
 
 nlohmann::json build_report(const AuditResult& result);
 
