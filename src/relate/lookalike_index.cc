@@ -324,200 +324,261 @@ void close_pairs_within(const uint64_t* c, size_t n, int r, bool wide, OnHit&& o
 constexpr uint64_t kIdMask = 0x7fffffffu;
 constexpr uint64_t kSideB = 0x80000000u;
 
-// The join behind pairs_within and join_within. `b` == nullptr: self-join of `a`,
-// pairs (i, j) with i < j. Otherwise pairs (i in a, j in b). Sorted and unique.
+// The join behind pairs_within and join_within, as a state and its phases:
+// prepare (constructor: the plan, and the codes permuted so that each table's
+// substring is a run of bits), then per table (run_table): the entries counted
+// per generation chunk and bucket, and slices of whole buckets within the
+// memory budget, each generated (fill_slice) and searched (search_buckets).
+// `b` == nullptr: self-join of `a`, pairs (i, j) with i < j. Otherwise pairs
+// (i in a, j in b). run() gives them sorted and unique.
+class HammingJoin {
+ public:
+  HammingJoin(const std::vector<uint64_t>& a_in, const std::vector<uint64_t>* b_in, int radius, unsigned threads,
+              const PairFilter& keep, size_t max_entries)
+      : radius_(radius), threads_(threads), keep_(keep), max_entries_(max_entries), self_(b_in == nullptr) {
+    if (radius < 0 || radius > 32) throw std::invalid_argument("Hamming join radius must be in [0, 32]");
+    if (a_in.size() > kIdMask || (b_in && b_in->size() > kIdMask))
+      throw std::invalid_argument("Hamming join holds fewer than 2^31 codes a side");
+    plan_ = plan_join(a_in.size(), self_ ? a_in.size() : b_in->size(), self_, radius);
+    const BitPermutation permute(deal_bits(a_in, self_ ? a_in : *b_in, plan_.bits));
+    a_.resize(a_in.size());
+    for (size_t i = 0; i < a_.size(); ++i) a_[i] = permute(a_in[i]);
+    if (!self_) {
+      b_.resize(b_in->size());
+      for (size_t i = 0; i < b_.size(); ++i) b_[i] = permute((*b_in)[i]);
+    }
+    s_ = radius / plan_.m;
+    ra_ = plan_.ra;
+    rb_ = plan_.rb;
+    one_side_ = self_ && ra_ == rb_;
+    wide_ = wide_popcount_usable();
+    for (int e = 0, sh = 0; e < plan_.m; ++e) {
+      table_shift_[e] = sh;
+      sh += plan_.bits[static_cast<size_t>(e)];
+    }
+    // Codes of side a, then of side b (unless one side serves both), are numbered
+    // 0..n_codes-1; generation chunks cut that sequence in order.
+    n_codes_ = a_.size() + (one_side_ ? 0 : bb().size());
+    n_chunks_ = std::clamp<size_t>(n_codes_ / 4096, 1, 8 * size_t{resolve_threads(threads)});
+  }
+
+  std::vector<std::pair<uint32_t, uint32_t>> run(uint64_t* found_count) {
+    for (int k = 0; k < plan_.m; ++k) run_table(k);
+    if (found_count) *found_count = total_found_;
+    std::sort(found_.begin(), found_.end());
+    found_.erase(std::unique(found_.begin(), found_.end()), found_.end());
+    return std::move(found_);
+  }
+
+ private:
+  // One table: its substring and its buckets.
+  struct Table {
+    int k = 0, w = 0, shift = 0, low = 0;
+    uint64_t mask = 0;
+    size_t count = 0, n_buckets = 0;
+    std::vector<size_t> place;         // [chunk][bucket]: counts, then write positions
+    std::vector<size_t> bucket_start;  // n_buckets + 1
+  };
+
+  const std::vector<uint64_t>& bb() const { return self_ ? a_ : b_; }
+
+  // fn(entry) for every entry of chunk c of table t, in order. Entries hold the
+  // key in the high 32 bits, the id in bits 0..30, bit 31 set for side b.
+  template <typename Fn>
+  void for_chunk(const Table& t, size_t c, Fn&& fn) const {
+    const std::vector<uint64_t>& a = a_;
+    const std::vector<uint64_t>& b = bb();
+    const size_t from = n_codes_ * c / n_chunks_, to = n_codes_ * (c + 1) / n_chunks_;
+    for (size_t x = from; x < to; ++x) {
+      const bool side_b = x >= a.size();
+      const uint32_t id = static_cast<uint32_t>(side_b ? x - a.size() : x);
+      const uint64_t code = side_b ? b[id] : a[id];
+      const uint64_t tag = side_b ? (id | kSideB) : id;
+      for_each_within(static_cast<uint32_t>((code >> t.shift) & t.mask), t.w, side_b ? rb_ : ra_,
+                      [&](uint32_t v) { fn((uint64_t{v} << 32) | tag); });
+    }
+  }
+
+  void run_table(int k) {
+    Table t;
+    t.k = k;
+    t.w = plan_.bits[static_cast<size_t>(k)];
+    t.shift = table_shift_[k];
+    t.mask = (uint64_t{1} << t.w) - 1;
+    t.count = a_.size() * binomial_ball(t.w, ra_) + (one_side_ ? 0 : bb().size() * binomial_ball(t.w, rb_));
+    // Entries are first placed by the key's top bits into buckets of a few
+    // thousand, so that each bucket is then sorted and searched within the
+    // processor's cache.
+    const int top = std::clamp(static_cast<int>(std::ceil(std::log2(std::max(1.0, double(t.count) / 8192.0)))), 0,
+                               std::min(t.w, 16));
+    t.low = t.w - top;
+    t.n_buckets = size_t{1} << top;
+    t.place.assign(n_chunks_ * t.n_buckets, 0);
+    parallel_for(n_chunks_, threads_, [&](size_t c) {
+      size_t* h = &t.place[c * t.n_buckets];
+      for_chunk(t, c, [&](uint64_t e) { ++h[(e >> 32) >> t.low]; });
+    }, 1);
+    t.bucket_start.assign(t.n_buckets + 1, 0);
+    for (size_t d = 0, at = 0; d < t.n_buckets; ++d) {
+      t.bucket_start[d] = at;
+      for (size_t c = 0; c < n_chunks_; ++c) {
+        const size_t n = t.place[c * t.n_buckets + d];
+        t.place[c * t.n_buckets + d] = at;
+        at += n;
+      }
+    }
+    t.bucket_start[t.n_buckets] = t.count;
+    // Slices of whole buckets within the memory budget, each generated and searched in turn.
+    for (size_t d0 = 0; d0 < t.n_buckets;) {
+      size_t d1 = d0 + 1;
+      while (d1 < t.n_buckets && (max_entries_ == 0 || t.bucket_start[d1 + 1] - t.bucket_start[d0] <= max_entries_)) ++d1;
+      search_slice(t, d0, d1);
+      d0 = d1;
+    }
+  }
+
+  // Generates the entries of buckets [d0, d1) into the buffer (grown to the
+  // largest slice; no zero-filling: every slot is written first), then searches
+  // them in tasks of whole buckets holding about 64K entries each.
+  void search_slice(Table& t, size_t d0, size_t d1) {
+    const size_t base = t.bucket_start[d0], slice = t.bucket_start[d1] - base;
+    if (!buffer_ || buffer_->size() < slice) {
+      buffer_.reset();
+      buffer_ = std::make_unique<LargeBuffer>(slice);
+    }
+    uint64_t* const entries = buffer_->data();  // entry p of the table at entries[p - base]
+    parallel_for(n_chunks_, threads_, [&](size_t c) {
+      size_t* pos = &t.place[c * t.n_buckets];
+      for_chunk(t, c, [&](uint64_t e) {
+        const size_t d = (e >> 32) >> t.low;
+        if (d >= d0 && d < d1) entries[pos[d]++ - base] = e;
+      });
+    }, 1);
+    std::vector<size_t> cuts{d0};
+    for (size_t d = d0 + 1; d < d1; ++d)
+      if (t.bucket_start[d] - t.bucket_start[cuts.back()] >= (size_t{1} << 16)) cuts.push_back(d);
+    cuts.push_back(d1);
+    std::vector<std::vector<std::pair<uint32_t, uint32_t>>> parts(cuts.size() - 1);
+    std::vector<uint64_t> part_found(parts.size(), 0);
+    parallel_for(parts.size(), threads_, [&](size_t c) {
+      search_buckets(t, entries, base, cuts[c], cuts[c + 1], parts[c], part_found[c]);
+    }, 1);
+    for (auto& p : parts) found_.insert(found_.end(), p.begin(), p.end());
+    for (uint64_t f : part_found) total_found_ += f;
+  }
+
+  // Each pair is reported once: only from the first table where its substrings
+  // are within s, and there only in its canonical bucket: the a-side key with
+  // the lowest min(d, ra) differing bits flipped (the rest flipped on side b).
+  bool first_meeting(const Table& t, uint64_t code_a, uint64_t code_b, uint64_t key) const {
+    for (int e = 0; e < t.k; ++e) {
+      const uint64_t me = (uint64_t{1} << plan_.bits[static_cast<size_t>(e)]) - 1;
+      if (__builtin_popcountll(((code_a ^ code_b) >> table_shift_[e]) & me) <= s_) return false;
+    }
+    const uint64_t d = ((code_a ^ code_b) >> t.shift) & t.mask;
+    return ((((code_a >> t.shift) & t.mask) ^ low_bits(d, ra_)) == key);
+  }
+
+  // Buckets [from, to) of the slice at `entries`: each sorted by key, then every
+  // run of one key compared all against all (or side a against side b).
+  void search_buckets(const Table& t, const uint64_t* entries, size_t base, size_t from, size_t to,
+                      std::vector<std::pair<uint32_t, uint32_t>>& out, uint64_t& found) const {
+    const std::vector<uint64_t>& a = a_;
+    const std::vector<uint64_t>& bb = this->bb();
+    const int radius = radius_, low = t.low;
+    const bool wide = wide_;
+    uint64_t n_found = 0;
+    auto emit = [&](uint32_t x, uint32_t y) {
+      ++n_found;
+      if (!keep_ || keep_(x, y)) out.emplace_back(x, y);
+    };
+    thread_local std::vector<uint64_t> sorted, codes;
+    thread_local std::vector<uint32_t> counts;
+    for (size_t d = from; d < to; ++d) {
+      const size_t b0 = t.bucket_start[d] - base, n = t.bucket_start[d + 1] - t.bucket_start[d];
+      if (n < 2) continue;
+      // Sort the bucket by key, keeping the generation order (side a before
+      // side b, ids ascending) within a key.
+      sorted.resize(n);
+      if (low == 0) {
+        std::copy(entries + b0, entries + b0 + n, sorted.begin());
+      } else if (low <= 16) {
+        const uint64_t lmask = (uint64_t{1} << low) - 1;
+        counts.assign((size_t{1} << low) + 1, 0);
+        for (size_t p = 0; p < n; ++p) ++counts[((entries[b0 + p] >> 32) & lmask) + 1];
+        for (size_t v = 1; v < counts.size(); ++v) counts[v] += counts[v - 1];
+        for (size_t p = 0; p < n; ++p) sorted[counts[(entries[b0 + p] >> 32) & lmask]++] = entries[b0 + p];
+      } else {
+        std::copy(entries + b0, entries + b0 + n, sorted.begin());
+        std::sort(sorted.begin(), sorted.end());  // key, then side, then id: the same order
+      }
+      // Codes in entry order, so the comparisons below read memory sequentially.
+      codes.resize(n);
+      for (size_t p = 0; p < n; ++p) codes[p] = (sorted[p] & kSideB ? bb : a)[sorted[p] & kIdMask];
+      for (size_t begin = 0; begin < n;) {
+        const uint64_t key = sorted[begin] >> 32;
+        size_t end = begin;
+        while (end < n && (sorted[end] >> 32) == key) ++end;
+        if (one_side_) {
+          const uint64_t* const cr = codes.data() + begin;
+          close_pairs_within(cr, end - begin, radius, wide, [&](size_t px, size_t py) {
+            const uint32_t ix = static_cast<uint32_t>(sorted[begin + px] & kIdMask);
+            const uint32_t iy = static_cast<uint32_t>(sorted[begin + py] & kIdMask);
+            if (ix == iy) return;
+            // side a of a self-join pair is its smaller id
+            const bool x_first = ix < iy;
+            if (!first_meeting(t, x_first ? cr[px] : cr[py], x_first ? cr[py] : cr[px], key)) return;
+            emit(std::min(ix, iy), std::max(ix, iy));
+          });
+        } else {
+          // A run is [a..., b...].
+          size_t mid = begin;
+          while (mid < end && !(sorted[mid] & kSideB)) ++mid;
+          // The rare hits are handled apart from the comparisons.
+          const uint64_t* const cb = codes.data();
+          close_pairs(cb + begin, mid - begin, cb + mid, end - mid, radius, wide, [&](size_t px, size_t py) {
+            const size_t x = begin + px, y = mid + py;
+            const uint32_t ia = static_cast<uint32_t>(sorted[x] & kIdMask);
+            const uint32_t ib = static_cast<uint32_t>(sorted[y] & kIdMask);
+            if (!first_meeting(t, cb[x], cb[y], key)) return;
+            if (!self_) {
+              emit(ia, ib);
+            } else if (ia != ib) {
+              emit(std::min(ia, ib), std::max(ia, ib));
+            }
+          });
+        }
+        begin = end;
+      }
+    }
+    if (sorted.capacity() > (size_t{1} << 20)) {  // do not pin a huge bucket's buffers
+      std::vector<uint64_t>().swap(sorted);
+      std::vector<uint64_t>().swap(codes);
+    }
+    found = n_found;
+  }
+
+  int radius_;
+  unsigned threads_;
+  const PairFilter& keep_;
+  size_t max_entries_;
+  bool self_;
+  JoinPlan plan_;
+  std::vector<uint64_t> a_, b_;  // the codes permuted; b_ empty for a self-join
+  int s_ = 0, ra_ = 0, rb_ = 0;
+  bool one_side_ = false, wide_ = false;
+  int table_shift_[64] = {};
+  size_t n_codes_ = 0, n_chunks_ = 1;
+  std::unique_ptr<LargeBuffer> buffer_;
+  std::vector<std::pair<uint32_t, uint32_t>> found_;
+  uint64_t total_found_ = 0;
+};
+
 std::vector<std::pair<uint32_t, uint32_t>> hamming_join(const std::vector<uint64_t>& a_in,
                                                         const std::vector<uint64_t>* b_in, int radius,
                                                         unsigned threads, const PairFilter& keep,
                                                         uint64_t* found_count, size_t max_entries) {
-  if (radius < 0 || radius > 32) throw std::invalid_argument("Hamming join radius must be in [0, 32]");
-  const bool self = b_in == nullptr;
-  if (a_in.size() > kIdMask || (b_in && b_in->size() > kIdMask))
-    throw std::invalid_argument("Hamming join holds fewer than 2^31 codes a side");
-  JoinPlan plan = plan_join(a_in.size(), self ? a_in.size() : b_in->size(), self, radius);
-  const BitPermutation permute(deal_bits(a_in, self ? a_in : *b_in, plan.bits));
-  std::vector<uint64_t> a(a_in.size()), b_permuted;
-  for (size_t i = 0; i < a.size(); ++i) a[i] = permute(a_in[i]);
-  if (!self) {
-    b_permuted.resize(b_in->size());
-    for (size_t i = 0; i < b_permuted.size(); ++i) b_permuted[i] = permute((*b_in)[i]);
-  }
-  const std::vector<uint64_t>& bb = self ? a : b_permuted;
-  const int s = radius / plan.m;
-  const int ra = plan.ra, rb = plan.rb;
-  const bool one_side = self && ra == rb;
-  const bool wide = wide_popcount_usable();
-  std::vector<std::pair<uint32_t, uint32_t>> found;
-  uint64_t total_found = 0;
-  // One buffer of entries serves every table and slice (no zero-filling: every
-  // slot is written first); it grows to the largest slice.
-  std::unique_ptr<LargeBuffer> buffer;
-  int table_shift[64];
-  {
-    int sh = 0;
-    for (int e = 0; e < plan.m; ++e) {
-      table_shift[e] = sh;
-      sh += plan.bits[static_cast<size_t>(e)];
-    }
-  }
-  // Codes of side a, then of side b (unless one side serves both), are numbered
-  // 0..n_codes-1; generation chunks cut that sequence in order.
-  const size_t n_codes = a.size() + (one_side ? 0 : bb.size());
-  const size_t n_chunks = std::clamp<size_t>(n_codes / 4096, 1, 8 * size_t{resolve_threads(threads)});
-  for (int k = 0; k < plan.m; ++k) {
-    const int w = plan.bits[static_cast<size_t>(k)];
-    const int shift = table_shift[k];
-    const uint64_t mask = (uint64_t{1} << w) - 1;
-    const size_t count = a.size() * binomial_ball(w, ra) + (one_side ? 0 : bb.size() * binomial_ball(w, rb));
-    // Entries (key in the high 32 bits, id in bits 0..30, bit 31 set for side b)
-    // are first placed by the key's top bits into buckets of a few thousand, so
-    // that each bucket is then sorted and searched within the processor's cache.
-    const int top = std::clamp(static_cast<int>(std::ceil(std::log2(std::max(1.0, double(count) / 8192.0)))), 0,
-                               std::min(w, 16));
-    const int low = w - top;
-    const size_t n_buckets = size_t{1} << top;
-    auto for_chunk = [&](size_t c, auto&& fn) {  // fn(entry) for every entry of chunk c, in order
-      const size_t from = n_codes * c / n_chunks, to = n_codes * (c + 1) / n_chunks;
-      for (size_t x = from; x < to; ++x) {
-        const bool side_b = x >= a.size();
-        const uint32_t id = static_cast<uint32_t>(side_b ? x - a.size() : x);
-        const uint64_t code = side_b ? bb[id] : a[id];
-        const uint64_t tag = side_b ? (id | kSideB) : id;
-        for_each_within(static_cast<uint32_t>((code >> shift) & mask), w, side_b ? rb : ra,
-                        [&](uint32_t v) { fn((uint64_t{v} << 32) | tag); });
-      }
-    };
-    std::vector<size_t> place(n_chunks * n_buckets, 0);  // [chunk][bucket]: counts, then write positions
-    parallel_for(n_chunks, threads, [&](size_t c) {
-      size_t* h = &place[c * n_buckets];
-      for_chunk(c, [&](uint64_t e) { ++h[(e >> 32) >> low]; });
-    }, 1);
-    std::vector<size_t> bucket_start(n_buckets + 1, 0);
-    for (size_t d = 0, at = 0; d < n_buckets; ++d) {
-      bucket_start[d] = at;
-      for (size_t c = 0; c < n_chunks; ++c) {
-        const size_t n = place[c * n_buckets + d];
-        place[c * n_buckets + d] = at;
-        at += n;
-      }
-    }
-    bucket_start[n_buckets] = count;
-    // Slices of whole buckets within the memory budget, each generated and searched in turn.
-    for (size_t d0 = 0; d0 < n_buckets;) {
-      size_t d1 = d0 + 1;
-      while (d1 < n_buckets && (max_entries == 0 || bucket_start[d1 + 1] - bucket_start[d0] <= max_entries)) ++d1;
-      const size_t base = bucket_start[d0], slice = bucket_start[d1] - base;
-      if (!buffer || buffer->size() < slice) {
-        buffer.reset();
-        buffer = std::make_unique<LargeBuffer>(slice);
-      }
-      uint64_t* const entries = buffer->data();  // entry p of the table at entries[p - base]
-      parallel_for(n_chunks, threads, [&](size_t c) {
-        size_t* pos = &place[c * n_buckets];
-        for_chunk(c, [&](uint64_t e) {
-          const size_t d = (e >> 32) >> low;
-          if (d >= d0 && d < d1) entries[pos[d]++ - base] = e;
-        });
-      }, 1);
-      // Tasks: runs of whole buckets holding about 64K entries each.
-      std::vector<size_t> cuts{d0};
-      for (size_t d = d0 + 1; d < d1; ++d)
-        if (bucket_start[d] - bucket_start[cuts.back()] >= (size_t{1} << 16)) cuts.push_back(d);
-      cuts.push_back(d1);
-      std::vector<std::vector<std::pair<uint32_t, uint32_t>>> parts(cuts.size() - 1);
-      std::vector<uint64_t> part_found(parts.size(), 0);
-      // Each pair is reported once: only from the first table where its substrings
-      // are within s, and there only in its canonical bucket: the a-side key with
-      // the lowest min(d, ra) differing bits flipped (the rest flipped on side b).
-      auto first_meeting = [&](uint64_t code_a, uint64_t code_b, uint64_t key) {
-        for (int e = 0; e < k; ++e) {
-          const uint64_t me = (uint64_t{1} << plan.bits[static_cast<size_t>(e)]) - 1;
-          if (__builtin_popcountll(((code_a ^ code_b) >> table_shift[e]) & me) <= s) return false;
-        }
-        const uint64_t d = ((code_a ^ code_b) >> shift) & mask;
-        return ((((code_a >> shift) & mask) ^ low_bits(d, ra)) == key);
-      };
-      parallel_for(parts.size(), threads, [&](size_t c) {
-        auto& out = parts[c];
-        uint64_t n_found = 0;
-        auto emit = [&](uint32_t x, uint32_t y) {
-          ++n_found;
-          if (!keep || keep(x, y)) out.emplace_back(x, y);
-        };
-        thread_local std::vector<uint64_t> sorted, codes;
-        thread_local std::vector<uint32_t> counts;
-        for (size_t d = cuts[c]; d < cuts[c + 1]; ++d) {
-          const size_t b0 = bucket_start[d] - base, n = bucket_start[d + 1] - bucket_start[d];
-          if (n < 2) continue;
-          // Sort the bucket by key, keeping the generation order (side a before
-          // side b, ids ascending) within a key.
-          sorted.resize(n);
-          if (low == 0) {
-            std::copy(entries + b0, entries + b0 + n, sorted.begin());
-          } else if (low <= 16) {
-            const uint64_t lmask = (uint64_t{1} << low) - 1;
-            counts.assign((size_t{1} << low) + 1, 0);
-            for (size_t p = 0; p < n; ++p) ++counts[((entries[b0 + p] >> 32) & lmask) + 1];
-            for (size_t v = 1; v < counts.size(); ++v) counts[v] += counts[v - 1];
-            for (size_t p = 0; p < n; ++p) sorted[counts[(entries[b0 + p] >> 32) & lmask]++] = entries[b0 + p];
-          } else {
-            std::copy(entries + b0, entries + b0 + n, sorted.begin());
-            std::sort(sorted.begin(), sorted.end());  // key, then side, then id: the same order
-          }
-          // Codes in entry order, so the comparisons below read memory sequentially.
-          codes.resize(n);
-          for (size_t p = 0; p < n; ++p) codes[p] = (sorted[p] & kSideB ? bb : a)[sorted[p] & kIdMask];
-          for (size_t begin = 0; begin < n;) {
-            const uint64_t key = sorted[begin] >> 32;
-            size_t end = begin;
-            while (end < n && (sorted[end] >> 32) == key) ++end;
-            if (one_side) {
-              const uint64_t* const cr = codes.data() + begin;
-              close_pairs_within(cr, end - begin, radius, wide, [&](size_t px, size_t py) {
-                const uint32_t ix = static_cast<uint32_t>(sorted[begin + px] & kIdMask);
-                const uint32_t iy = static_cast<uint32_t>(sorted[begin + py] & kIdMask);
-                if (ix == iy) return;
-                // side a of a self-join pair is its smaller id
-                const bool x_first = ix < iy;
-                if (!first_meeting(x_first ? cr[px] : cr[py], x_first ? cr[py] : cr[px], key)) return;
-                emit(std::min(ix, iy), std::max(ix, iy));
-              });
-            } else {
-              // A run is [a..., b...].
-              size_t mid = begin;
-              while (mid < end && !(sorted[mid] & kSideB)) ++mid;
-              // The rare hits are handled apart from the comparisons.
-              const uint64_t* const cb = codes.data();
-              close_pairs(cb + begin, mid - begin, cb + mid, end - mid, radius, wide, [&](size_t px, size_t py) {
-                const size_t x = begin + px, y = mid + py;
-                const uint32_t ia = static_cast<uint32_t>(sorted[x] & kIdMask);
-                const uint32_t ib = static_cast<uint32_t>(sorted[y] & kIdMask);
-                if (!first_meeting(cb[x], cb[y], key)) return;
-                if (!self) {
-                  emit(ia, ib);
-                } else if (ia != ib) {
-                  emit(std::min(ia, ib), std::max(ia, ib));
-                }
-              });
-            }
-            begin = end;
-          }
-        }
-        if (sorted.capacity() > (size_t{1} << 20)) {  // do not pin a huge bucket's buffers
-          std::vector<uint64_t>().swap(sorted);
-          std::vector<uint64_t>().swap(codes);
-        }
-        part_found[c] = n_found;
-      }, 1);
-      for (auto& p : parts) found.insert(found.end(), p.begin(), p.end());
-      for (uint64_t f : part_found) total_found += f;
-      d0 = d1;
-    }
-  }
-  if (found_count) *found_count = total_found;
-  std::sort(found.begin(), found.end());
-  found.erase(std::unique(found.begin(), found.end()), found.end());
-  return found;
+  return HammingJoin(a_in, b_in, radius, threads, keep, max_entries).run(found_count);
 }
 
 }  // namespace
