@@ -64,6 +64,12 @@ unsigned jpeg_scale_num(uint32_t w, uint32_t h, uint32_t side) {
   return 8;
 }
 
+// The bytes of a JPEG's output at scale num/8 (sizes round up, as libjpeg's
+// do), `comps` bytes a pixel.
+uint64_t jpeg_output_bytes(uint64_t w, uint64_t h, uint64_t num, uint64_t comps) {
+  return ((w * num + 7) / 8) * ((h * num + 7) / 8) * comps;
+}
+
 // libjpeg's error handling: errors and corrupt-data warnings both end the decode
 // (longjmp back to jpeg_decode_scaled), so a damaged JPEG is reported rather than
 // passed on grey-filled.
@@ -137,7 +143,7 @@ bool jpeg_decode_scaled(JpegDecompressor& dec, Bytes b, const DecodeLimits& limi
   // libjpeg's, which it enforces itself: a progressive or multi-scan JPEG whose
   // coefficient arrays do not fit fails with JERR_NO_BACKING_STORE.
   const uint64_t comps = ci.num_components == 1 ? 1 : ci.num_components == 4 ? 7 : 3;
-  const uint64_t ours = ((uint64_t{ci.image_width} * num + 7) / 8) * ((uint64_t{ci.image_height} * num + 7) / 8) * comps;
+  const uint64_t ours = jpeg_output_bytes(ci.image_width, ci.image_height, num, comps);
   if (ours >= limits.max_image_bytes) {
     dec.err.over_budget = true;
     return false;
@@ -176,7 +182,7 @@ Decoded decode_jpeg(Bytes b, const DecodeLimits& limits) {
     out.defect = dec.err.over_budget || (!dec.err.warning && (code == JERR_NO_BACKING_STORE || code == JERR_OUT_OF_MEMORY))
                      ? Defect::over_memory_budget
                  : dec.err.warning                                ? Defect::decode_warning
-                 : unsupported_variant(dec.err.mgr.msg_code) ? Defect::unsupported_variant
+                 : unsupported_variant(code)                   ? Defect::unsupported_variant
                                                                 : Defect::decode_failed;
     return out;
   }
@@ -420,7 +426,7 @@ uint64_t decode_memory_estimate(const ProbeInfo& p, const DecodeLimits& limits) 
   if (p.format == Format::jpeg) {  // the scaled output; a progressive JPEG keeps every coefficient (2 bytes; 4:4:4 at most)
     const uint64_t comps = p.mode == ColorMode::gray ? 1 : p.mode == ColorMode::cmyk ? 4 : 3;
     const uint64_t num = jpeg_scale_num(p.width, p.height, limits.reduced_side);
-    const uint64_t out = ((uint64_t{p.width} * num + 7) / 8) * ((uint64_t{p.height} * num + 7) / 8) * comps;
+    const uint64_t out = jpeg_output_bytes(p.width, p.height, num, comps == 4 ? 7 : comps);  // CMYK: and its BGR copy
     return out + (p.interlaced ? px * comps * 2 : 0);
   }
   if (streams(p, limits)) return png_streamed_bytes(p, limits.reduced_side);

@@ -22,16 +22,21 @@ using namespace detail;
 
 namespace {
 
-// One inflate state a thread, reset between files (inflateInit allocates its
-// 32 KB window once).
+// A zlib inflate state (inflateInit allocates its 32 KB window; freed with it).
+struct ZStream {
+  z_stream z{};
+  bool ok = false;
+  ZStream() { ok = inflateInit(&z) == Z_OK; }
+  ~ZStream() {
+    if (ok) inflateEnd(&z);
+  }
+  ZStream(const ZStream&) = delete;
+  ZStream& operator=(const ZStream&) = delete;
+};
+
+// One inflate state a thread, reset between files (the window allocated once).
 class Inflater {
  public:
-  Inflater() { ok_ = inflateInit(&z_) == Z_OK; }
-  ~Inflater() {
-    if (ok_) inflateEnd(&z_);
-  }
-  Inflater(const Inflater&) = delete;
-  Inflater& operator=(const Inflater&) = delete;
   // Inflates the zlib stream held in `parts`, in order, into exactly `out_size`
   // bytes. True only when the stream ends exactly there, with its checksum right,
   // and no input is left over.
@@ -45,26 +50,25 @@ class Inflater {
       for (const auto& p : parts) joined_.insert(joined_.end(), p.begin(), p.end());
       if (inflate_small(joined_, out, out_size)) return true;
     }
-    if (!ok_ || out_size > UINT32_MAX || inflateReset(&z_) != Z_OK) return false;
-    z_.next_out = out;
-    z_.avail_out = static_cast<uInt>(out_size);
+    if (!zs_.ok || out_size > UINT32_MAX || inflateReset(&zs_.z) != Z_OK) return false;
+    zs_.z.next_out = out;
+    zs_.z.avail_out = static_cast<uInt>(out_size);
     for (size_t p = 0; p < parts.size(); ++p) {
-      z_.next_in = const_cast<Bytef*>(parts[p].data());
-      z_.avail_in = static_cast<uInt>(parts[p].size());
-      while (z_.avail_in > 0) {
-        const uInt in_before = z_.avail_in, out_before = z_.avail_out;
-        const int rc = inflate(&z_, Z_NO_FLUSH);
-        if (rc == Z_STREAM_END) return z_.avail_out == 0 && z_.avail_in == 0 && p + 1 == parts.size();
+      zs_.z.next_in = const_cast<Bytef*>(parts[p].data());
+      zs_.z.avail_in = static_cast<uInt>(parts[p].size());
+      while (zs_.z.avail_in > 0) {
+        const uInt in_before = zs_.z.avail_in, out_before = zs_.z.avail_out;
+        const int rc = inflate(&zs_.z, Z_NO_FLUSH);
+        if (rc == Z_STREAM_END) return zs_.z.avail_out == 0 && zs_.z.avail_in == 0 && p + 1 == parts.size();
         if (rc != Z_OK && rc != Z_BUF_ERROR) return false;
-        if (z_.avail_in == in_before && z_.avail_out == out_before) return false;  // output full, data left
+        if (zs_.z.avail_in == in_before && zs_.z.avail_out == out_before) return false;  // output full, data left
       }
     }
     return false;  // the stream did not end
   }
 
  private:
-  z_stream z_{};
-  bool ok_ = false;
+  ZStream zs_;
   std::vector<uint8_t> joined_;  // the IDAT parts end to end, when there are several
 };
 
@@ -103,6 +107,18 @@ bool unfilter(uint8_t type, uint8_t* row, const uint8_t* prev, size_t n, size_t 
   }
 }
 
+// Samples a pixel of a PNG colour type the direct and streamed paths read
+// (grey, grey+alpha, RGB, RGBA); 0 for the others (palettes).
+int png_samples(ColorMode mode) {
+  switch (mode) {
+    case ColorMode::gray: return 1;
+    case ColorMode::graya: return 2;
+    case ColorMode::rgb: return 3;
+    case ColorMode::rgba: return 4;
+    default: return 0;
+  }
+}
+
 // The IDAT chunks, which must follow one another; false when there are none, when
 // they are apart, or when a tRNS chunk (which would add alpha) is present.
 bool idat_parts(Bytes b, std::vector<Bytes>& idat) {
@@ -123,18 +139,6 @@ bool idat_parts(Bytes b, std::vector<Bytes>& idat) {
   }
   return !idat.empty();
 }
-
-// A zlib stream of its own for one streamed image (its 32 KB window freed after).
-struct ZStream {
-  z_stream z{};
-  bool ok = false;
-  ZStream() { ok = inflateInit(&z) == Z_OK; }
-  ~ZStream() {
-    if (ok) inflateEnd(&z);
-  }
-  ZStream(const ZStream&) = delete;
-  ZStream& operator=(const ZStream&) = delete;
-};
 
 // Pulls exactly `n` bytes of the zlib stream held in `parts` into `out`,
 // advancing through the parts. False when the data ends, is damaged, or the
@@ -167,14 +171,8 @@ bool pull(ZStream& zs, const std::vector<Bytes>& parts, size_t& part, uint8_t* o
 
 uint64_t detail::png_streamed_bytes(const ProbeInfo& p, uint32_t side) {
   if (p.format != Format::png || p.interlaced || (p.bit_depth != 8 && p.bit_depth != 16)) return 0;
-  uint64_t in_ch = 0;
-  switch (p.mode) {
-    case ColorMode::gray: in_ch = 1; break;
-    case ColorMode::graya: in_ch = 2; break;
-    case ColorMode::rgb: in_ch = 3; break;
-    case ColorMode::rgba: in_ch = 4; break;
-    default: return 0;
-  }
+  const uint64_t in_ch = static_cast<uint64_t>(png_samples(p.mode));
+  if (in_ch == 0) return 0;
   const uint64_t w = p.width, h = p.height, out_ch = in_ch == 1 ? 1 : in_ch == 3 ? 3 : 4;
   if (w == 0 || h == 0 || w * in_ch * (p.bit_depth / 8) + 1 > UINT32_MAX) return 0;
   const uint64_t stride = w * in_ch * (p.bit_depth / 8);
@@ -186,7 +184,7 @@ bool detail::decode_png_streamed(std::span<const uint8_t> b, const ProbeInfo& pr
   if (png_streamed_bytes(probe, side) == 0) return false;
   std::vector<Bytes> idat;
   if (!idat_parts(b, idat)) return false;
-  const int in_ch = probe.mode == ColorMode::gray ? 1 : probe.mode == ColorMode::graya ? 2 : probe.mode == ColorMode::rgb ? 3 : 4;
+  const int in_ch = png_samples(probe.mode);
   const int out_ch = in_ch == 1 ? 1 : in_ch == 3 ? 3 : 4;
   const size_t bps = probe.bit_depth / 8, w = probe.width, h = probe.height;
   const size_t stride = w * size_t(in_ch) * bps;
@@ -238,13 +236,8 @@ bool detail::decode_png_streamed(std::span<const uint8_t> b, const ProbeInfo& pr
 
 bool decode_png_direct(std::span<const uint8_t> b, const ProbeInfo& probe, cv::Mat& out) {
   if (probe.format != Format::png || probe.bit_depth != 8 || probe.interlaced) return false;
-  size_t channels = 0;
-  switch (probe.mode) {
-    case ColorMode::gray: channels = 1; break;
-    case ColorMode::rgb: channels = 3; break;
-    case ColorMode::rgba: channels = 4; break;
-    default: return false;
-  }
+  const size_t channels = static_cast<size_t>(png_samples(probe.mode));
+  if (channels == 0 || channels == 2) return false;  // grey+alpha: libpng (OpenCV gives it as BGRA)
   const size_t w = probe.width, h = probe.height;
   if (w == 0 || h == 0 || w > (1u << 24) / channels || h > (1u << 24)) return false;
   if (uint64_t{h} * (w * channels + 1) > (uint64_t{1} << 31)) return false;  // huge: libpng (and its limits) decide
