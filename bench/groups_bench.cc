@@ -8,10 +8,10 @@
 #include <cstdlib>
 
 #include "tamis/read/cache.h"
-#include "tamis/relate/groups.h"
-#include "tamis/relate/lookalike_index.h"
 #include "tamis/read/read_stage.h"
 #include "tamis/read/walk.h"
+#include "tamis/relate/groups.h"
+#include "tamis/relate/lookalike_index.h"
 
 using namespace tamis;
 using Clock = std::chrono::steady_clock;

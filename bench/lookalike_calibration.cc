@@ -23,9 +23,9 @@
 #include "support/temp_tree.h"
 #include "tamis/read/decode/decode.h"
 #include "tamis/read/features.h"
-#include "tamis/relate/lookalike_index.h"
-#include "tamis/relate/groups.h"
 #include "tamis/read/probe.h"
+#include "tamis/relate/groups.h"
+#include "tamis/relate/lookalike_index.h"
 
 using namespace tamis;
 

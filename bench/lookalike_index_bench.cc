@@ -11,8 +11,8 @@
 #include <cstdio>
 #include <cstdlib>
 
-#include "tamis/relate/lookalike_index.h"
 #include "tamis/base/random.h"
+#include "tamis/relate/lookalike_index.h"
 
 using namespace tamis;
 using Clock = std::chrono::steady_clock;

@@ -10,10 +10,10 @@
 #include <cstdlib>
 #include <filesystem>
 
+#include "tamis/base/random.h"
 #include "tamis/pipeline/audit.h"
 #include "tamis/read/features.h"
 #include "tamis/report/outputs.h"
-#include "tamis/base/random.h"
 
 using namespace tamis;
 using Clock = std::chrono::steady_clock;

@@ -16,12 +16,12 @@
 #include <nlohmann/json.hpp>
 
 #include "progress.h"
-#include "tamis/pipeline/audit.h"
-#include "tamis/read/cache.h"
-#include "tamis/demo/demo.h"
-#include "tamis/report/index_file.h"
-#include "tamis/place/manifest_reader.h"
 #include "tamis/base/atomic_file.h"
+#include "tamis/demo/demo.h"
+#include "tamis/pipeline/audit.h"
+#include "tamis/place/manifest_reader.h"
+#include "tamis/read/cache.h"
+#include "tamis/report/index_file.h"
 #include "tamis/report/outputs.h"
 #include "tamis/version.h"
 

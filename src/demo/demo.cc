@@ -8,8 +8,8 @@
 #include <opencv2/imgcodecs.hpp>
 #include <opencv2/imgproc.hpp>
 
-#include "tamis/read/decode/codecs.h"
 #include "tamis/base/random.h"
+#include "tamis/read/decode/codecs.h"
 
 namespace tamis {
 

@@ -13,8 +13,8 @@
 #include <nlohmann/json.hpp>
 #include <xxhash.h>
 
-#include "tamis/model/record_codec.h"
 #include "tamis/base/memory.h"
+#include "tamis/model/record_codec.h"
 
 namespace tamis {
 

@@ -11,10 +11,10 @@
 #include <cerrno>
 #include <stdexcept>
 
-#include "tamis/read/cache.h"
-#include "tamis/read/features.h"
 #include "tamis/base/memory.h"
 #include "tamis/base/parallel.h"
+#include "tamis/read/cache.h"
+#include "tamis/read/features.h"
 #include "tamis/read/probe.h"
 
 namespace tamis {

@@ -5,9 +5,9 @@
 #include <numeric>
 #include <stdexcept>
 
+#include "tamis/base/parallel.h"
 #include "tamis/read/features.h"
 #include "tamis/relate/lookalike_index.h"
-#include "tamis/base/parallel.h"
 
 namespace tamis {
 

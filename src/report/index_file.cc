@@ -12,8 +12,8 @@
 #include <nlohmann/json.hpp>
 #include <xxhash.h>
 
-#include "tamis/model/record_codec.h"
 #include "tamis/base/atomic_file.h"
+#include "tamis/model/record_codec.h"
 
 namespace tamis {
 

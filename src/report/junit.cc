@@ -3,8 +3,8 @@
 #include <map>
 #include <string>
 
-#include "tamis/place/policy.h"
 #include "tamis/base/text.h"
+#include "tamis/place/policy.h"
 
 namespace tamis {
 

@@ -8,9 +8,9 @@
 #include <vector>
 
 #include "tamis/base/atomic_file.h"
+#include "tamis/read/walk.h"
 #include "tamis/report/index_file.h"
 #include "tamis/report/junit.h"
-#include "tamis/read/walk.h"
 #include "tamis/report/manifest.h"
 #include "tamis/report/report_html.h"
 #include "tamis/report/report_json.h"

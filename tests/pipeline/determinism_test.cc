@@ -11,8 +11,8 @@
 
 #include "support/temp_tree.h"
 #include "tamis/base/atomic_file.h"
-#include "tamis/pipeline/audit.h"
 #include "tamis/demo/demo.h"
+#include "tamis/pipeline/audit.h"
 #include "tamis/report/manifest.h"
 #include "tamis/report/outputs.h"
 

@@ -13,15 +13,15 @@
 #include "support/fashion_mnist.h"
 #include "support/photos.h"
 #include "support/temp_tree.h"
+#include "tamis/base/random.h"
 #include "tamis/pipeline/audit.h"
 #include "tamis/place/baseline.h"
-#include "tamis/report/report_json.h"
-#include "tamis/place/policy.h"
 #include "tamis/place/checks.h"
+#include "tamis/place/policy.h"
 #include "tamis/read/decode/decode.h"
 #include "tamis/read/features.h"
 #include "tamis/read/probe.h"
-#include "tamis/base/random.h"
+#include "tamis/report/report_json.h"
 
 using namespace tamis;
 namespace fs = std::filesystem;

@@ -10,12 +10,12 @@
 
 #include "support/fashion_mnist.h"
 #include "support/temp_tree.h"
-#include "tamis/pipeline/audit.h"
+#include "tamis/base/random.h"
 #include "tamis/demo/demo.h"
+#include "tamis/pipeline/audit.h"
+#include "tamis/place/manifest_reader.h"
 #include "tamis/report/index_file.h"
 #include "tamis/report/manifest.h"
-#include "tamis/place/manifest_reader.h"
-#include "tamis/base/random.h"
 #include "tamis/report/report_json.h"
 
 using namespace tamis;

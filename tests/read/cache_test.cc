@@ -12,8 +12,8 @@
 
 #include "tamis/model/record_codec.h"
 #include "support/temp_tree.h"
-#include "tamis/pipeline/audit.h"
 #include "tamis/demo/demo.h"
+#include "tamis/pipeline/audit.h"
 #include "tamis/report/outputs.h"
 
 using namespace tamis;

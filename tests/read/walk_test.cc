@@ -8,9 +8,9 @@
 #include <filesystem>
 
 #include "support/temp_tree.h"
-#include "tamis/relate/labels.h"
 #include "tamis/read/read_stage.h"
 #include "tamis/read/walk.h"
+#include "tamis/relate/labels.h"
 
 using namespace tamis;
 namespace fs = std::filesystem;

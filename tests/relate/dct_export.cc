@@ -18,9 +18,9 @@
 
 #include "support/fashion_mnist.h"
 #include "support/photos.h"
+#include "tamis/base/random.h"
 #include "tamis/read/features.h"
 #include "tamis/relate/match.h"
-#include "tamis/base/random.h"
 
 int main(int argc, char** argv) {
   if (argc != 2) return 2;

@@ -6,11 +6,11 @@
 #include <mutex>
 
 #include "support/fashion_mnist.h"
-#include "tamis/pipeline/audit.h"
-#include "tamis/relate/lookalike_index.h"
 #include "tamis/base/parallel.h"
 #include "tamis/base/random.h"
 #include "tamis/base/simd.h"
+#include "tamis/pipeline/audit.h"
+#include "tamis/relate/lookalike_index.h"
 
 using namespace tamis;
 

@@ -25,9 +25,9 @@
 #include "support/temp_tree.h"
 #include "tamis/read/decode/decode.h"
 #include "tamis/read/features.h"
+#include "tamis/read/probe.h"
 #include "tamis/relate/lookalike_index.h"
 #include "tamis/relate/match.h"
-#include "tamis/read/probe.h"
 
 using namespace tamis;
 

@@ -11,8 +11,8 @@
 #include <opencv2/imgproc.hpp>
 
 #include "support/temp_tree.h"
-#include "tamis/pipeline/audit.h"
 #include "tamis/base/random.h"
+#include "tamis/pipeline/audit.h"
 
 using namespace tamis;
 namespace fs = std::filesystem;

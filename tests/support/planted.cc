@@ -7,12 +7,12 @@
 #include <opencv2/imgcodecs.hpp>
 #include <opencv2/imgproc.hpp>
 
+#include "tamis/base/random.h"
 #include "tamis/read/decode/decode.h"
 #include "tamis/read/features.h"
+#include "tamis/read/probe.h"
 #include "tamis/relate/lookalike_index.h"
 #include "tamis/relate/match.h"
-#include "tamis/read/probe.h"
-#include "tamis/base/random.h"
 #include "support/photos.h"
 
 namespace tamis::test {

@@ -10,7 +10,6 @@
 // never on the cache, the thread count or the file system's listing order.
 #pragma once
 
-#include <chrono>
 #include <cstdint>
 #include <filesystem>
 #include <functional>
@@ -18,18 +17,18 @@
 #include <unordered_map>
 #include <vector>
 
-#include "tamis/place/checks.h"
+#include "tamis/base/stage_clock.h"
 #include "tamis/model/findings.h"
+#include "tamis/model/record.h"
 #include "tamis/place/baseline.h"
-#include "tamis/relate/groups.h"
+#include "tamis/place/checks.h"
 #include "tamis/place/policy.h"
+#include "tamis/place/split.h"
+#include "tamis/read/read_stage.h"
+#include "tamis/read/walk.h"
+#include "tamis/relate/groups.h"
 #include "tamis/relate/labels.h"
 #include "tamis/relate/masks.h"
-#include "tamis/read/read_stage.h"
-#include "tamis/model/record.h"
-#include "tamis/place/split.h"
-#include "tamis/read/walk.h"
-#include "tamis/base/stage_clock.h"
 
 namespace tamis {
 

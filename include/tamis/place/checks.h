@@ -10,11 +10,11 @@
 #include <vector>
 
 #include "tamis/model/findings.h"
+#include "tamis/model/record.h"
+#include "tamis/place/split.h"
+#include "tamis/read/walk.h"
 #include "tamis/relate/groups.h"
 #include "tamis/relate/labels.h"
-#include "tamis/place/split.h"
-#include "tamis/model/record.h"
-#include "tamis/read/walk.h"
 
 namespace tamis {
 

@@ -16,8 +16,8 @@
 #include <stdexcept>
 #include <string>
 
-#include "tamis/place/checks.h"
 #include "tamis/model/findings.h"
+#include "tamis/place/checks.h"
 #include "tamis/relate/groups.h"
 
 namespace tamis {

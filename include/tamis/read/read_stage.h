@@ -22,8 +22,8 @@
 #include <functional>
 #include <vector>
 
-#include "tamis/read/decode/decode.h"
 #include "tamis/model/record.h"
+#include "tamis/read/decode/decode.h"
 #include "tamis/read/walk.h"
 
 namespace tamis {

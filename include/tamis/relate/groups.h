@@ -27,8 +27,8 @@
 #include <vector>
 
 #include "tamis/model/group.h"
-#include "tamis/relate/match.h"
 #include "tamis/model/record.h"
+#include "tamis/relate/match.h"
 
 namespace tamis {
 

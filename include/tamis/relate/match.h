@@ -72,9 +72,9 @@
 #include <cstdint>
 #include <vector>
 
-#include "tamis/read/features.h"
 #include "tamis/model/group.h"
 #include "tamis/model/record.h"
+#include "tamis/read/features.h"
 
 namespace tamis {
 

@@ -21,9 +21,9 @@
 #include <opencv2/imgcodecs.hpp>
 #include <opencv2/imgproc.hpp>
 
+#include "tamis/base/random.h"
 #include "tamis/read/decode/decode.h"
 #include "tamis/read/probe.h"
-#include "tamis/base/random.h"
 
 using namespace tamis;
 

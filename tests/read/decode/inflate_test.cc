@@ -11,8 +11,8 @@
 #include <vector>
 
 #include "support/fashion_mnist.h"
-#include "tamis/read/decode/inflate.h"
 #include "tamis/base/random.h"
+#include "tamis/read/decode/inflate.h"
 
 using namespace tamis;
 
