@@ -1,8 +1,11 @@
 // How the in-memory stages grow with the number of files (docs/performance.md):
 // synthetic records (100 classes, random DCT codes and thumbnails, 1% planted
 // look-alike copies), timed through masks, labels, groups, checks, split and the
-// output files, with the peak resident memory per record.
-// Usage: scaling_bench N [THREADS=2] [JOIN_MB=the default of GroupSettings]
+// output files, with the peak resident memory per record. As in an audit, the
+// thumbnails go to a scratch file in /tmp when they would take more than the
+// read's default thumbnail memory (ReadOptions), and only the group members'
+// are kept after the groups stage.
+// Usage: scaling_bench N [THREADS=2] [JOIN_MB=the default of GroupSettings] [THUMB_MB=64]
 #include <sys/resource.h>
 
 #include <chrono>
@@ -39,7 +42,11 @@ int main(int argc, char** argv) {
   std::sort(order.begin(), order.end(), [](uint32_t a, uint32_t b) { return a % 100 != b % 100 ? a % 100 < b % 100 : a < b; });
   for (uint32_t k = 0; k < n; ++k) pos[order[k]] = k;
   x.records.resize(n);
-  x.thumbs.assign_all(n);
+  const uint64_t thumb_bytes = argc > 4 ? std::strtoull(argv[4], nullptr, 10) << 20 : ReadOptions{}.thumbnail_memory_bytes;
+  if (n * sizeof(Thumbnail) > thumb_bytes)
+    x.thumbs.assign_spilled(n, "/tmp");
+  else
+    x.thumbs.assign_all(n);
   SplitMix64 rng(7);
   for (size_t k = 0; k < n; ++k) {
     const size_t i = order[k];
@@ -57,16 +64,17 @@ int main(int argc, char** argv) {
     r.features.content_hash = {rng.next(), rng.next()};
     r.features.has_content_hash = true;
     r.features.has_lookalike = true;
-    Thumbnail& thumb = x.thumbs.at(k);
+    Thumbnail thumb;
     for (auto& b : thumb) b = static_cast<uint8_t>(rng.below(256));
     if (i % 100 == 99) {  // a look-alike copy of image i - 1 (class 98: made before)
       r.features.look = x.records[pos[i - 1]].features.look;
       r.features.look.phash[0] ^= 1ULL << rng.below(64);
-      thumb = x.thumbs.at(pos[i - 1]);
+      x.thumbs.get(pos[i - 1], thumb);
     } else {
       cv::Mat t(32, 32, CV_8UC1, thumb.data());
       r.features.look.phash = dct_hashes(t);
     }
+    x.thumbs.put(k, thumb);
     r.features.stats = {120.0f + float(rng.below(40)), 40.0f, 7.0f, 900.0f + float(rng.below(500)), 255, false, 65};
   }
   std::vector<uint32_t>().swap(order);
@@ -85,6 +93,9 @@ int main(int argc, char** argv) {
   gs.threads = threads;
   if (argc > 3) gs.join_memory_bytes = std::strtoull(argv[3], nullptr, 10) << 20;
   x.groups = find_groups(x.records, x.thumbs, gs);
+  std::vector<uint32_t> shown;
+  for (const auto& g : x.groups.groups) shown.insert(shown.end(), g.members.begin(), g.members.end());
+  x.thumbs.keep_only(shown);
   double t_groups = seconds_since(t0);
   const long groups_kb = peak_kb();
   t0 = Clock::now();

@@ -59,6 +59,7 @@ struct CommonOptions {
   bool timings = false;
   uint64_t max_pixels = tamis::DecodeLimits{}.max_pixels;
   uint64_t image_memory_mb = tamis::DecodeLimits{}.max_image_bytes >> 20;
+  uint64_t thumbnail_memory_mb = tamis::ReadOptions{}.thumbnail_memory_bytes >> 20;
 };
 
 void add_reading_options(CLI::App* cmd, CommonOptions& o) {
@@ -76,6 +77,10 @@ void add_reading_options(CLI::App* cmd, CommonOptions& o) {
   cmd->add_option("--image-memory-mb", o.image_memory_mb,
                   "memory one image's decode may hold, in MB (default 1024); larger images are reported, not read")
       ->check(CLI::Range(uint64_t{16}, uint64_t{1} << 24));
+  cmd->add_option("--thumbnail-memory-mb", o.thumbnail_memory_mb,
+                  "memory the look-alike thumbnails may take, in MB (default 64); beyond it they go to an unnamed "
+                  "scratch file in $TMPDIR (or /tmp); 0: always")
+      ->check(CLI::Range(uint64_t{0}, uint64_t{1} << 24));
 }
 
 // Options of the judging stages, shared by `audit` and `split`.
@@ -303,6 +308,9 @@ int run_audit_command(const std::string& root, const std::string& out, const Spl
   settings.read.threads = o.threads;
   settings.read.decode.max_pixels = o.max_pixels;
   settings.read.decode.max_image_bytes = o.image_memory_mb << 20;
+  settings.read.thumbnail_memory_bytes = o.thumbnail_memory_mb << 20;
+  const char* tmpdir = std::getenv("TMPDIR");
+  settings.read.scratch_dir = tmpdir && *tmpdir ? fs::path(tmpdir) : fs::path("/tmp");  // never used inside ROOT
   // Early, before a long read: the output layer checks again when it writes.
   try {
     tamis::refuse_inside_root(root, out, "--out");

@@ -90,7 +90,7 @@ std::string_view defect_message(Defect d) {
 }
 
 ThumbnailTable::ThumbnailTable(const ThumbnailTable& other)
-    : n_(other.n_), all_(other.all_), slot_(other.slot_), data_(other.data_) {
+    : n_(other.n_), all_(other.all_), file_(other.file_), slot_(other.slot_), data_(other.data_) {
   if (other.dense_) {
     dense_.reset(new Thumbnail[std::max<size_t>(n_, 1)]);
     std::copy_n(other.dense_.get(), n_, dense_.get());
@@ -108,6 +108,7 @@ ThumbnailTable& ThumbnailTable::operator=(const ThumbnailTable& other) {
 void ThumbnailTable::assign_all(size_t records, bool zeroed) {
   n_ = records;
   all_ = true;
+  file_.reset();
   slot_.clear();
   slot_.shrink_to_fit();
   data_.clear();
@@ -122,9 +123,18 @@ void ThumbnailTable::assign_none(size_t records) {
   n_ = records;
   all_ = false;
   dense_.reset();
+  file_.reset();
   slot_.assign(records, kNone);
   data_.clear();
   data_.shrink_to_fit();
+}
+
+void ThumbnailTable::assign_spilled(size_t records, const std::filesystem::path& dir) {
+  auto file = std::make_shared<SpillFile>(dir, static_cast<uint64_t>(records) * sizeof(Thumbnail));
+  assign_none(0);
+  n_ = records;
+  all_ = true;
+  file_ = std::move(file);
 }
 
 void ThumbnailTable::make_room(const std::vector<uint32_t>& which) {
@@ -137,6 +147,55 @@ void ThumbnailTable::make_room(const std::vector<uint32_t>& which) {
       slot_[r] = static_cast<uint32_t>(data_.size());
       data_.emplace_back();
     }
+}
+
+void ThumbnailTable::get(size_t record, Thumbnail& out) const {
+  if (file_)
+    file_->read_at(static_cast<uint64_t>(record) * sizeof(Thumbnail), out.data(), out.size());
+  else
+    out = at(record);
+}
+
+void ThumbnailTable::put(size_t record, const Thumbnail& t) {
+  if (file_)
+    file_->write_at(static_cast<uint64_t>(record) * sizeof(Thumbnail), t.data(), t.size());
+  else
+    at(record) = t;
+}
+
+void ThumbnailTable::put_range(size_t first, size_t count, const Thumbnail* data) {
+  if (file_)
+    file_->write_at(static_cast<uint64_t>(first) * sizeof(Thumbnail), data, count * sizeof(Thumbnail));
+  else
+    for (size_t k = 0; k < count; ++k) at(first + k) = data[k];
+}
+
+void ThumbnailTable::get_many(const uint32_t* which, size_t count, Thumbnail* out) const {
+  if (!file_) {
+    for (size_t k = 0; k < count; ++k) out[k] = at(which[k]);
+    return;
+  }
+  // Runs of consecutive records, one read each (Thumbnail is a byte array: no padding).
+  static_assert(sizeof(Thumbnail) == kGrayBytes + 2 * kChromaPlane);
+  for (size_t k = 0; k < count;) {
+    size_t e = k + 1;
+    while (e < count && which[e] == which[e - 1] + 1) ++e;
+    file_->read_at(static_cast<uint64_t>(which[k]) * sizeof(Thumbnail), out[k].data(), (e - k) * sizeof(Thumbnail));
+    k = e;
+  }
+}
+
+void ThumbnailTable::keep_only(const std::vector<uint32_t>& which) {
+  std::vector<uint32_t> kept;
+  for (uint32_t r : which)
+    if (has(r)) kept.push_back(r);
+  std::sort(kept.begin(), kept.end());
+  kept.erase(std::unique(kept.begin(), kept.end()), kept.end());
+  std::vector<Thumbnail> data(kept.size());
+  get_many(kept.data(), kept.size(), data.data());
+  assign_none(n_);
+  for (size_t k = 0; k < kept.size(); ++k) slot_[kept[k]] = static_cast<uint32_t>(k);
+  data_ = std::move(data);
 }
 
 }  // namespace tamis

@@ -9,6 +9,22 @@
 #include "tamis/read/tree_reader.h"
 
 namespace tamis {
+namespace {
+
+// The records whose thumbnails the outputs may show: group members, and images
+// paired with masks and their masks.
+std::vector<uint32_t> shown_records(const AuditIndex& r) {
+  std::vector<uint32_t> shown;
+  for (const auto& g : r.groups.groups) shown.insert(shown.end(), g.members.begin(), g.members.end());
+  for (uint32_t i = 0; i < r.records.size(); ++i)
+    if (r.masks.mask_of[i] >= 0) {
+      shown.push_back(i);
+      shown.push_back(static_cast<uint32_t>(r.masks.mask_of[i]));
+    }
+  return shown;
+}
+
+}  // namespace
 
 AuditIndex read_tree(const TreeSettings& settings) {
   AuditIndex r;
@@ -27,15 +43,7 @@ AuditIndex read_tree(const TreeSettings& settings) {
   std::optional<GroupResult> stored = reader.stored_groups(r.records, group_settings_key(gs));
   if (stored) {
     r.groups = std::move(*stored);
-    // The outputs show the thumbnails of group members and of masked images.
-    std::vector<uint32_t> shown;
-    for (const auto& g : r.groups.groups) shown.insert(shown.end(), g.members.begin(), g.members.end());
-    for (uint32_t i = 0; i < r.records.size(); ++i)
-      if (r.masks.mask_of[i] >= 0) {
-        shown.push_back(i);
-        shown.push_back(static_cast<uint32_t>(r.masks.mask_of[i]));
-      }
-    reader.load_thumbnails(r.records, r.thumbs, shown);
+    reader.load_thumbnails(r.records, r.thumbs, shown_records(r));
   } else {
     reader.load_all_thumbnails(r.records, r.thumbs);
     // The listing's last use was re-reading files whose thumbnails had gone; its
@@ -47,7 +55,9 @@ AuditIndex read_tree(const TreeSettings& settings) {
   }
   r.cache_note = reader.note();
   clock.lap(stored ? "groups (cached)" : "groups");
-  // Every thumbnail an output shows is loaded now; the others stay in the cache.
+  // Every thumbnail an output shows is loaded now and kept in memory; the others
+  // are freed (a scratch file with them closes) or stay in the cache.
+  r.thumbs.keep_only(shown_records(r));
   r.walk.files.clear();  // (already, unless the groups came from the cache)
   r.walk.files.shrink_to_fit();
   for (const auto& rec : r.records) {

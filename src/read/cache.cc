@@ -288,8 +288,8 @@ std::vector<uint32_t> RecordCache::load_thumbnails(ThumbnailTable& thumbs, const
   thumbs.make_room(receiving);
   std::sort(wanted.begin(), wanted.end());
   std::vector<uint8_t> found(wanted.size(), 0);
+  Thumbnail thumb;
   auto fill = [&](size_t w, std::span<const uint8_t> stored) {
-    auto& thumb = thumbs.at(wanted[w].second);
     bool bad = false;
     const auto data = checked(stored, row_seed(paths_[wanted[w].first]), bad);
     if (bad || data.size() != thumb.size()) {
@@ -297,6 +297,7 @@ std::vector<uint32_t> RecordCache::load_thumbnails(ThumbnailTable& thumbs, const
       return;
     }
     std::copy(data.begin(), data.end(), thumb.begin());
+    thumbs.put(wanted[w].second, thumb);
     found[w] = 1;
   };
   if (wanted.size() * 8 >= paths_.size()) {  // many: one pass over the table in path order
@@ -488,6 +489,7 @@ void RecordCache::store_rows(const std::vector<FileRecord>& records, const Thumb
     Stmt ins_thumb(db_->h, "INSERT OR REPLACE INTO thumbs(root, path, data) VALUES(?, ?, ?)");
     Stmt del_thumb(db_->h, "DELETE FROM thumbs WHERE root = ? AND path = ?");
     std::vector<uint8_t> data, thumb_data;
+    Thumbnail thumb;
     for (uint32_t i : write) {
       const FileRecord& r = records[i];
       data.clear();
@@ -509,7 +511,8 @@ void RecordCache::store_rows(const std::vector<FileRecord>& records, const Thumb
       sqlite3_bind_text(t.s, 1, root_.c_str(), -1, SQLITE_TRANSIENT);
       sqlite3_bind_blob(t.s, 2, r.path.data(), static_cast<int>(r.path.size()), SQLITE_TRANSIENT);
       if (with_thumb) {
-        thumb_data.assign(thumbs.at(i).begin(), thumbs.at(i).end());
+        thumbs.get(i, thumb);
+        thumb_data.assign(thumb.begin(), thumb.end());
         append_sum(thumb_data, row_seed(r.path));
         sqlite3_bind_blob(t.s, 3, thumb_data.data(), static_cast<int>(thumb_data.size()), SQLITE_STATIC);
       }

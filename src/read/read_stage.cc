@@ -162,6 +162,19 @@ Source read_one(int rootfd, const WalkEntry& e, const ReadOptions& opt, const Re
   return Source::read;
 }
 
+constexpr size_t kSpillWindow = 16384;  // records whose thumbnails are staged at once (19 MB)
+
+// Whether a read of `records` files keeps their thumbnails in a scratch file:
+// when they would take more than the options allow and the scratch folder is
+// usable (it exists and is not ROOT or inside it: nothing is written in the data set).
+bool spill_thumbnails(const std::filesystem::path& root, size_t records, const ReadOptions& opt) {
+  if (opt.scratch_dir.empty() || static_cast<uint64_t>(records) * sizeof(Thumbnail) <= opt.thumbnail_memory_bytes)
+    return false;
+  std::error_code ec;
+  if (!std::filesystem::is_directory(opt.scratch_dir, ec)) return false;
+  return !path_is_inside(root, opt.scratch_dir);
+}
+
 }  // namespace
 
 bool is_hidden_path(std::string_view p) {
@@ -227,7 +240,10 @@ std::vector<FileRecord> read_files(const std::filesystem::path& root, const std:
     std::vector<uint32_t> to_read;
     for (size_t i = 0; i < entries.size(); ++i)
       if (row_of[i] < 0) to_read.push_back(static_cast<uint32_t>(i));
-    if (to_read.size() == entries.size()) {
+    // Judged on every record (a later stage may load all the stored ones too).
+    if (spill_thumbnails(root, entries.size(), opt)) {
+      ctx.thumbs->assign_spilled(entries.size(), opt.scratch_dir);
+    } else if (to_read.size() == entries.size()) {
       ctx.thumbs->assign_all(entries.size(), false);  // every slot is written below, by its thread
     } else {
       ctx.thumbs->assign_none(entries.size());
@@ -238,20 +254,31 @@ std::vector<FileRecord> read_files(const std::filesystem::path& root, const std:
   auto from_cache = [&](size_t row) {
     return ctx.cache->taken(row) ? records[static_cast<size_t>(entry_of_row[row])] : ctx.cache->copy(row);
   };
-  parallel_for(entries.size(), opt.threads, [&](size_t i) {
-    if (row_of[i] >= 0) return;
-    thread_local std::vector<uint8_t> buf;
-    if (adopted) records[i] = FileRecord{};  // it held the stored record of a hidden file
-    Thumbnail* thumb = ctx.thumbs ? &ctx.thumbs->at(i) : nullptr;
-    if (thumb) thumb->fill(0);  // stays zeros unless the file is an image
-    Source src = read_one(rootfd.fd, entries[i], opt, ctx.cache, buf, records[i], thumb, [&](size_t row) {
-      copied_row[i] = static_cast<int64_t>(row);
-      return from_cache(row);
-    });
-    (src == Source::cached_by_hash ? n_hash : n_read)++;
-    if (buf.capacity() > (64u << 20)) std::vector<uint8_t>().swap(buf);  // do not pin huge buffers
-    progress();
-  }, 8);
+  // Into a spilled table (a scratch file) the thumbnails go a window of records
+  // at a time: made in memory, then written in one piece.
+  const bool spilled = ctx.thumbs && ctx.thumbs->spilled();
+  const size_t window = spilled ? kSpillWindow : std::max<size_t>(entries.size(), 1);
+  std::vector<Thumbnail> staged(spilled ? std::min(window, entries.size()) : 0);
+  for (size_t first = 0; first < entries.size(); first += window) {
+    const size_t count = std::min(window, entries.size() - first);
+    parallel_for(count, opt.threads, [&](size_t d) {
+      const size_t i = first + d;
+      if (spilled) staged[d].fill(0);  // a stored record's slot too: its thumbnail is loaded later
+      if (row_of[i] >= 0) return;
+      Thumbnail* thumb = !ctx.thumbs ? nullptr : spilled ? &staged[d] : &ctx.thumbs->at(i);
+      if (thumb) thumb->fill(0);  // stays zeros unless the file is an image
+      thread_local std::vector<uint8_t> buf;
+      if (adopted) records[i] = FileRecord{};  // it held the stored record of a hidden file
+      Source src = read_one(rootfd.fd, entries[i], opt, ctx.cache, buf, records[i], thumb, [&](size_t row) {
+        copied_row[i] = static_cast<int64_t>(row);
+        return from_cache(row);
+      });
+      (src == Source::cached_by_hash ? n_hash : n_read)++;
+      if (buf.capacity() > (64u << 20)) std::vector<uint8_t>().swap(buf);  // do not pin huge buffers
+      progress();
+    }, 8);
+    if (spilled) ctx.thumbs->put_range(first, count, staged.data());
+  }
   uint64_t moved = 0;
   if (ctx.cache) {
     // Files moved or renamed: per content, the new paths (content matches under a

@@ -126,7 +126,7 @@ void TreeReader::load_thumbnails(std::vector<FileRecord>& records, ThumbnailTabl
   thumbs.make_room(missing);
   for (size_t k = 0; k < missing.size(); ++k) {
     records[missing[k]] = std::move(fresh[k]);
-    thumbs.at(missing[k]) = fresh_thumbs.at(k);
+    thumbs.put(missing[k], fresh_thumbs.at(k));
   }
   if (counts_) counts_->read += missing.size();
 }

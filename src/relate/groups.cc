@@ -66,7 +66,13 @@ uint64_t join_byte_identical(const std::vector<FileRecord>& records, const std::
 
 // Confirms kept hits (8 * image + t, j), sorted by their first member: turns each
 // (image, t) thumbnail once, then compares it with its partners (match.h), and
-// appends the pairs that match to `confirmed`, said of (a, b), a < b.
+// appends the pairs that match to `confirmed`, said of (a, b), a < b. The hits
+// of one (image, t) form a task. From a spilled table (a scratch file) the tasks
+// go in batches, each first reading the thumbnails its hits name (about
+// kConfirmBatch of them: runs of neighbouring records in one read each) rather
+// than one read per partner; the results are the same either way.
+constexpr size_t kConfirmBatch = 16384;  // thumbnails a batch reads at most (plus one task's): 19 MB
+
 void confirm_hits(const std::vector<std::pair<uint32_t, uint32_t>>& hits, const ThumbnailTable& thumbs,
                   const std::vector<uint32_t>& eligible, const std::vector<MatchProfile>& profile,
                   const GroupSettings& settings, std::vector<GroupLink>& confirmed) {
@@ -74,16 +80,18 @@ void confirm_hits(const std::vector<std::pair<uint32_t, uint32_t>>& hits, const 
   for (size_t h = 0; h < hits.size(); ++h)
     if (h == 0 || hits[h].first != hits[h - 1].first) starts.push_back(h);
   starts.push_back(hits.size());
-  std::vector<std::vector<GroupLink>> found(starts.size() - 1);
-  parallel_for(found.size(), settings.threads, [&](size_t g) {
+  const size_t tasks = starts.size() - 1;
+  std::vector<std::vector<GroupLink>> found(tasks);
+  // Task g with thumb_of(k): image k's thumbnail (k indexes `eligible`).
+  auto confirm_task = [&](size_t g, const auto& thumb_of) {
     const uint32_t i = hits[starts[g]].first / kDihedralCount;
     const int t = static_cast<int>(hits[starts[g]].first % kDihedralCount);
     Thumbnail turned;
-    turn_thumbnail(thumbs.at(eligible[i]), turned, t);
+    turn_thumbnail(thumb_of(i), turned, t);
     std::vector<float> spectrum;  // the turned thumbnail's DCT, once needed
     for (size_t h = starts[g]; h < starts[g + 1]; ++h) {
       const uint32_t j = hits[h].second;
-      const Match m = match_thumbnails(turned, profile[i], t, thumbs.at(eligible[j]), profile[j], settings.match, &spectrum);
+      const Match m = match_thumbnails(turned, profile[i], t, thumb_of(j), profile[j], settings.match, &spectrum);
       if (!m.joined) continue;
       // Said of the pair (a, b), a < b: the flip/turn of a that matches b
       // (the inverse of t when the hit was b's), and which side was blurred.
@@ -93,7 +101,46 @@ void confirm_hits(const std::vector<std::pair<uint32_t, uint32_t>>& hits, const 
       found[g].push_back({std::min(i, j), std::max(i, j), forward ? t : kInverse[t], m.correlation, m.blur_step,
                           forward ? m.blurred_a : !m.blurred_a, fit});
     }
-  }, 64);
+  };
+  if (!thumbs.spilled()) {
+    parallel_for(tasks, settings.threads, [&](size_t g) {
+      confirm_task(g, [&](uint32_t k) -> const Thumbnail& { return thumbs.at(eligible[k]); });
+    }, 64);
+  } else {
+    constexpr uint32_t kUnseen = UINT32_MAX;
+    std::vector<uint32_t> slot_of(eligible.size(), kUnseen);
+    std::vector<uint32_t> named, records;
+    std::vector<Thumbnail> batch;
+    for (size_t g = 0; g < tasks;) {
+      // The batch: whole tasks, until their images reach kConfirmBatch.
+      named.clear();
+      auto name = [&](uint32_t k) {
+        if (slot_of[k] == kUnseen) {
+          slot_of[k] = 0;
+          named.push_back(k);
+        }
+      };
+      size_t end = g;
+      while (end < tasks && named.size() < kConfirmBatch) {
+        name(hits[starts[end]].first / kDihedralCount);
+        for (size_t h = starts[end]; h < starts[end + 1]; ++h) name(hits[h].second);
+        ++end;
+      }
+      std::sort(named.begin(), named.end());  // ascending images, ascending records
+      records.resize(named.size());
+      for (size_t q = 0; q < named.size(); ++q) {
+        slot_of[named[q]] = static_cast<uint32_t>(q);
+        records[q] = eligible[named[q]];
+      }
+      batch.resize(named.size());
+      thumbs.get_many(records.data(), records.size(), batch.data());
+      parallel_for(end - g, settings.threads, [&](size_t d) {
+        confirm_task(g + d, [&](uint32_t k) -> const Thumbnail& { return batch[slot_of[k]]; });
+      }, 64);
+      for (uint32_t k : named) slot_of[k] = kUnseen;
+      g = end;
+    }
+  }
   for (auto& f : found) confirmed.insert(confirmed.end(), f.begin(), f.end());
 }
 
@@ -112,7 +159,13 @@ void join_lookalikes(const std::vector<FileRecord>& records, const ThumbnailTabl
   // spectral moments and low DCT coefficients, whose bounds reject most hash
   // hits before any thumbnail is compared.
   std::vector<MatchProfile> profile(n);
-  parallel_for(n, settings.threads, [&](size_t k) { profile[k] = match_profile(thumbs.at(eligible[k])); }, 256);
+  constexpr size_t kBlock = 256;  // thumbnails read at once (runs of neighbours: one read from a scratch file)
+  parallel_for((n + kBlock - 1) / kBlock, settings.threads, [&](size_t b) {
+    const size_t first = b * kBlock, count = std::min(kBlock, n - first);
+    std::vector<Thumbnail> block(count);
+    thumbs.get_many(eligible.data() + first, count, block.data());
+    for (size_t k = 0; k < count; ++k) profile[first + k] = match_profile(block[k]);
+  }, 1);
   // A hit (8 * image + t, j) goes on to the confirmation unless it pairs an
   // image with itself or the profiles prove that the thumbnails cannot match
   // (neither as they are nor with any blur step the pair would try).

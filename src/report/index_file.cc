@@ -167,9 +167,12 @@ void save_index(const std::filesystem::path& file, const AuditIndex& x, StagedFi
          [&] {
            put(cbor_head(4, shown.size()));
            std::vector<uint8_t> one;
-           static const Thumbnail none{};
+           Thumbnail t;
            for (uint32_t m : shown) {
-             const auto& t = x.thumbs.has(m) ? x.thumbs.at(m) : none;
+             if (x.thumbs.has(m))
+               x.thumbs.get(m, t);
+             else
+               t.fill(0);
              one.clear();
              json::to_cbor(json::array({m, json::binary(std::vector<uint8_t>(t.begin(), t.end()))}), one);
              put(one);

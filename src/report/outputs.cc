@@ -56,7 +56,9 @@ Thumbnails group_thumbnails(const AuditResult& r, size_t budget) {
   size_t used = 0;
   auto uri_of = [&](size_t record) {
     if (!r.thumbs.has(record)) return std::string();
-    std::vector<uint8_t> jpg = gray_jpeg(r.thumbs.at(record).data(), 32, 32, 85);
+    Thumbnail t;
+    r.thumbs.get(record, t);
+    std::vector<uint8_t> jpg = gray_jpeg(t.data(), 32, 32, 85);
     if (jpg.empty()) return std::string();
     return "data:image/jpeg;base64," + base64(jpg);
   };

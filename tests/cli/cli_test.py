@@ -498,6 +498,32 @@ class Outputs(unittest.TestCase):
             validate_report(self, os.path.join(out2, "report.json"))
             self.assertEqual(run("audit", root, "--out", out2, "--image-memory-mb", "8").returncode, 2)
 
+    def test_thumbnails_in_a_scratch_file_change_no_output_and_never_land_in_root(self):
+        # --thumbnail-memory-mb 0 keeps every thumbnail in an unnamed scratch file in
+        # $TMPDIR: the four outputs equal those of a run that keeps them in memory
+        # (truth: the same build), the scratch folder is empty afterwards, and a
+        # $TMPDIR inside ROOT is not used (ROOT unchanged, same outputs).
+        with tempfile.TemporaryDirectory() as t:
+            root = os.path.join(t, "demo")
+            self.assertEqual(run("demo", root).returncode, 0)
+            scratch = os.path.join(t, "scratch")
+            os.mkdir(scratch)
+            inside = os.path.join(root, "gingham")
+            before = snapshot(root)
+            outs = {}
+            for name, mb, tmpdir in (("memory", "1024", scratch), ("spilled", "0", scratch), ("inside", "0", inside)):
+                outs[name] = os.path.join(t, name)
+                r = run("audit", root, "--out", outs[name], "--no-cache", "--thumbnail-memory-mb", mb,
+                        env=dict(os.environ, TMPDIR=tmpdir), timeout=120)
+                self.assertIn(r.returncode, (0, 1), r.stderr)
+            for f in ("manifest.csv", "report.json", "report.html", "index.cbor"):
+                for name in ("spilled", "inside"):
+                    self.assertEqual(read_bytes(os.path.join(outs[name], f)), read_bytes(os.path.join(outs["memory"], f)),
+                                     f"{name}: {f}")
+            self.assertEqual(os.listdir(scratch), [])
+            self.assertEqual(snapshot(root), before)
+            self.assertEqual(run("audit", root, "--out", outs["memory"], "--thumbnail-memory-mb", "-1").returncode, 2)
+
     def test_output_sets_stay_whole_under_faults_and_kills(self):
         # Fault injection (TAMIS_FAULT, atomic_file.cc) at every step of writing
         # the outputs: each temporary's write, its fsync, the removal of the old

@@ -25,10 +25,15 @@
 using namespace tamis;
 
 namespace {
-std::string manifest_of(const std::filesystem::path& root, unsigned threads, uint64_t seed = 1) {
+std::string manifest_of(const std::filesystem::path& root, unsigned threads, uint64_t seed = 1,
+                        const std::filesystem::path& scratch = {}) {
   AuditSettings s;
   s.root = root;
   s.read.threads = threads;
+  if (!scratch.empty()) {  // every thumbnail in a scratch file
+    s.read.thumbnail_memory_bytes = 0;
+    s.read.scratch_dir = scratch;
+  }
   s.split.seed = seed;
   AuditResult r = run_audit(s);
   std::ostringstream os;
@@ -43,6 +48,9 @@ TEST_CASE("same tree, same settings: byte-identical outputs for 1 and 4 threads"
   std::string one = manifest_of(t.path(), 1);
   CHECK(one == manifest_of(t.path(), 4));
   CHECK(one == manifest_of(t.path(), 2));
+  test::TempDir scratch;
+  CHECK(one == manifest_of(t.path(), 4, 1, scratch.path()));
+  CHECK(one == manifest_of(t.path(), 1, 1, scratch.path()));
   CHECK(one != manifest_of(t.path(), 2, 99));  // another seed places files differently
 }
 

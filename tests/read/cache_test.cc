@@ -231,6 +231,94 @@ TEST_CASE("the thumbnail table gives slots on demand, each record its own", "[ca
   CHECK(sizeof(FileRecord) < 256);  // the thumbnail is not in the record
 }
 
+TEST_CASE("a spilled thumbnail table reads back what was written, zeros elsewhere, and leaves no file", "[cache][thumbs]") {
+  // Truth constructed here: slot i holds bytes (i * 7 + k) mod 251.
+  test::TempDir scratch;
+  auto pattern = [](size_t i) {
+    Thumbnail t;
+    for (size_t k = 0; k < t.size(); ++k) t[k] = static_cast<uint8_t>((i * 7 + k) % 251);
+    return t;
+  };
+  ThumbnailTable s, m;
+  s.assign_spilled(40, scratch.path());
+  m.assign_all(40);
+  CHECK(s.spilled());
+  CHECK_FALSE(m.spilled());
+  CHECK(fs::is_empty(scratch.path()));  // an unnamed file
+  for (size_t i = 0; i < 40; ++i) CHECK(s.has(i));
+  CHECK_FALSE(s.has(40));
+  std::vector<Thumbnail> run;
+  for (size_t i = 10; i < 20; ++i) run.push_back(pattern(i));
+  s.put_range(10, run.size(), run.data());
+  m.put_range(10, run.size(), run.data());
+  for (size_t i : {3u, 25u, 39u}) {
+    s.put(i, pattern(i));
+    m.put(i, pattern(i));
+  }
+  Thumbnail got;
+  for (size_t i = 0; i < 40; ++i) {
+    s.get(i, got);
+    const bool written = (i >= 10 && i < 20) || i == 3 || i == 25 || i == 39;
+    CHECK(got == (written ? pattern(i) : Thumbnail{}));
+    CHECK(m.at(i) == got);
+  }
+  const std::vector<uint32_t> which = {3, 10, 11, 12, 19, 25, 30};  // runs and single records
+  std::vector<Thumbnail> a(which.size()), b(which.size());
+  s.get_many(which.data(), which.size(), a.data());
+  m.get_many(which.data(), which.size(), b.data());
+  CHECK(a == b);
+  ThumbnailTable copy = s;  // shares the file
+  copy.get(25, got);
+  CHECK(got == pattern(25));
+  s.keep_only({25, 12, 3, 3, 77});
+  CHECK_FALSE(s.spilled());
+  for (size_t i = 0; i < 40; ++i) CHECK(s.has(i) == (i == 3 || i == 12 || i == 25));
+  CHECK(s.at(12) == pattern(12));
+  CHECK(s.at(25) == pattern(25));
+  m.keep_only({});
+  for (size_t i = 0; i < 40; ++i) CHECK_FALSE(m.has(i));
+  // A scratch folder that does not exist: a clear error naming it.
+  ThumbnailTable bad;
+  CHECK_THROWS_WITH(bad.assign_spilled(4, scratch / "missing"), Catch::Contains("missing"));
+}
+
+TEST_CASE("thumbnails in a scratch file give the same outputs, and never go to a scratch folder inside ROOT",
+          "[cache][thumbs]") {
+  // Truth: the run with every thumbnail in memory (the same build).
+  test::TempDir t, c, scratch;
+  write_demo(t / "data");
+  auto run = [&](uint64_t memory, const fs::path& dir, const fs::path& cache) {
+    AuditSettings s;
+    s.root = t / "data";
+    s.cache_file = cache;
+    s.read.thumbnail_memory_bytes = memory;
+    s.read.scratch_dir = dir;
+    return outputs(run_audit(s));
+  };
+  const std::string in_memory = run(UINT64_MAX, scratch.path(), "");
+  CHECK(run(0, scratch.path(), "") == in_memory);
+  CHECK(run(0, scratch.path(), c / "records.sqlite") == in_memory);  // cold, with the cache
+  CHECK(run(0, scratch.path(), c / "records.sqlite") == in_memory);  // warm
+  CHECK(fs::is_empty(scratch.path()));
+  // Whether the read spilled: read_files with a thumbnail table.
+  std::vector<WalkEntry> files = walk_tree(t / "data").files;
+  auto spills = [&](const fs::path& dir) {
+    ReadOptions o;
+    o.thumbnail_memory_bytes = 0;
+    o.scratch_dir = dir;
+    ThumbnailTable thumbs;
+    ReadContext ctx;
+    ctx.thumbs = &thumbs;
+    read_files(t / "data", files, o, ctx);
+    return thumbs.spilled();
+  };
+  CHECK(spills(scratch.path()));
+  CHECK_FALSE(spills(t / "data"));             // ROOT itself
+  CHECK_FALSE(spills(t / "data" / "gingham"));  // inside ROOT
+  CHECK_FALSE(spills(""));
+  CHECK_FALSE(spills(scratch / "missing"));
+}
+
 TEST_CASE("cache: a few damaged bytes inside any row never change an output", "[cache][fault]") {
   // Small damage that SQLite's own structure does not notice: bytes changed inside
   // the stored records, thumbnails and groups. Each row ends with a checksum; a

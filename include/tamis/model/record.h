@@ -9,10 +9,13 @@
 
 #include <array>
 #include <cstdint>
+#include <filesystem>
 #include <memory>
 #include <string>
 #include <string_view>
 #include <vector>
+
+#include "tamis/base/spill_file.h"
 
 namespace tamis {
 
@@ -103,11 +106,16 @@ struct Lookalike : LookalikeCodes {
 // The thumbnails of records, kept apart from the records (a record is then about
 // 190 bytes instead of 1.2 KB): the look-alike stage needs every image's, the
 // reports only a few, and a run that reuses cached groups loads just those. Indexed
-// by record; a record may have no slot.
+// by record; a record may have no slot. The slots live in memory, or, for a tree
+// whose thumbnails would take more memory than the read allows
+// (ReadOptions::thumbnail_memory_bytes), in a scratch file (base/spill_file.h):
+// then get() and put() read and write the file and at() may not be used.
+// keep_only() brings the slots the outputs show back into memory and frees the
+// rest. Where the slots live never changes a value read from them.
 class ThumbnailTable {
  public:
   ThumbnailTable() = default;
-  ThumbnailTable(const ThumbnailTable& other);
+  ThumbnailTable(const ThumbnailTable& other);  // a spilled table's copy shares its file
   ThumbnailTable& operator=(const ThumbnailTable& other);
   ThumbnailTable(ThumbnailTable&&) noexcept = default;
   ThumbnailTable& operator=(ThumbnailTable&&) noexcept = default;
@@ -117,19 +125,36 @@ class ThumbnailTable {
   void assign_all(size_t records, bool zeroed = true);
   // A table for `records` records, none with a slot.
   void assign_none(size_t records);
+  // A table for `records` records, each with a slot (zeros until written) in a
+  // scratch file in `dir`. Throws std::runtime_error when the file cannot be made.
+  void assign_spilled(size_t records, const std::filesystem::path& dir);
   // Gives each record of `which` a slot (zeros) where it has none. Not
   // thread-safe; afterwards, threads may write the slots of distinct records.
   void make_room(const std::vector<uint32_t>& which);
+  // Keeps the slots of `which` (those that have one), in memory, and frees every other.
+  void keep_only(const std::vector<uint32_t>& which);
   bool has(size_t record) const { return all_ ? record < n_ : record < slot_.size() && slot_[record] != kNone; }
-  Thumbnail& at(size_t record) { return all_ ? dense_[record] : data_[slot_[record]]; }  // REQUIRES has(record)
+  bool spilled() const { return file_ != nullptr; }
+  // Copies a slot out or in. REQUIRES has(record). Threads may call get() at
+  // once, and put() at once for distinct records.
+  void get(size_t record, Thumbnail& out) const;
+  void put(size_t record, const Thumbnail& t);
+  // Writes the slots of records first .. first + count - 1 (each with a slot) from data[0..].
+  void put_range(size_t first, size_t count, const Thumbnail* data);
+  // Copies the slots of `which` (ascending, each with a slot) to out[0..], reading
+  // runs of neighbouring records at once from a scratch file.
+  void get_many(const uint32_t* which, size_t count, Thumbnail* out) const;
+  // REQUIRES has(record) && !spilled()
+  Thumbnail& at(size_t record) { return all_ ? dense_[record] : data_[slot_[record]]; }
   const Thumbnail& at(size_t record) const { return all_ ? dense_[record] : data_[slot_[record]]; }
   size_t records() const { return n_; }
 
  private:
   static constexpr uint32_t kNone = UINT32_MAX;
   size_t n_ = 0;
-  bool all_ = false;                     // record i in dense_[i]
+  bool all_ = false;                     // record i in dense_[i], or in the file at i * sizeof(Thumbnail)
   std::unique_ptr<Thumbnail[]> dense_;
+  std::shared_ptr<SpillFile> file_;      // set: the slots are in this file
   std::vector<uint32_t> slot_;           // otherwise: per record, its slot in data_ or kNone
   std::vector<Thumbnail> data_;
 };

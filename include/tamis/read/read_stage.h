@@ -43,6 +43,11 @@ struct ReadOptions {
   unsigned threads = 0;                      // 0 = all cores
   uint64_t max_bytes = 4ull << 30;           // files larger than this are not read
   DecodeLimits decode;
+  // Thumbnails (1,152 bytes an image) beyond this many bytes go to a scratch
+  // file in `scratch_dir` instead of memory (ThumbnailTable), unless that folder
+  // is empty, missing or inside ROOT. Changes memory and time, never a value.
+  uint64_t thumbnail_memory_bytes = 64ull << 20;
+  std::filesystem::path scratch_dir;
   std::function<void(size_t done, size_t total)> on_progress;
 };
 
