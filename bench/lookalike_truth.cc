@@ -140,6 +140,40 @@ int main(int argc, char** argv) {
     for (const auto& [name, ft] : per_family) std::printf("family %-19s %4d / %4d\n", name.c_str(), ft.first, ft.second);
     for (const auto& [how, n] : wrong) std::printf("joined distinct: %-40s %d\n", how.c_str(), n);
   };
+  if (std::getenv("TRUTH_CHROMA_LOCAL")) {  // the colour check's local share: joined copies per kind, joined distinct pairs
+    GroupSettings gs;
+    auto joined_match = [&](const Lookalike& a, const Lookalike& b, Match& out) {
+      for (int t = 0; t < kDihedralCount; ++t) {
+        if (hamming(a.phash[t], b.phash[0]) <= gs.radius && (out = match_thumbnails(a.thumb, t, b.thumb, gs.match)).joined) return true;
+        if (hamming(b.phash[t], a.phash[0]) <= gs.radius && (out = match_thumbnails(b.thumb, t, a.thumb, gs.match)).joined) return true;
+      }
+      return false;
+    };
+    const double cuts[] = {0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9, 1.0};
+    std::map<std::string, std::vector<float>> per_kind;
+    for (const auto& c : copies) {
+      Match m;
+      if (joined_match(c.look, sources[c.source].look, m) && m.chroma >= 0)
+        per_kind[kinds[c.kind].name + "/" + sources[c.source].family].push_back(m.chroma_local);
+    }
+    std::vector<int> lost(8, 0);
+    for (auto& [name, v] : per_kind) {
+      std::sort(v.begin(), v.end());
+      std::printf("copies %-36s n %4zu  median %.3f  p99 %.3f  max %.3f\n", name.c_str(), v.size(), v[v.size() / 2],
+                  v[std::min(v.size() - 1, v.size() * 99 / 100)], v.back());
+      for (int k = 0; k < 8; ++k) lost[k] += int(std::count_if(v.begin(), v.end(), [&](float x) { return x > cuts[k]; }));
+    }
+    for (int k = 0; k < 8; ++k) std::printf("limit %.1f: joined copies lost %d\n", cuts[k], lost[k]);
+    for (size_t sc = 0; sc < scenes.size(); ++sc)
+      for (size_t i = 0; i < scene_looks[sc].size(); ++i)
+        for (size_t j = i + 1; j < scene_looks[sc].size(); ++j) {
+          Match m;
+          if (joined_match(scene_looks[sc][i], scene_looks[sc][j], m))
+            std::printf("distinct joined: %-40s chroma %.3f local %.3f\n", (scenes[sc].how[i] + " / " + scenes[sc].how[j]).c_str(),
+                        m.chroma, m.chroma_local);
+        }
+    return 0;
+  }
   if (std::getenv("TRUTH_WHY")) {  // why copies of one family are missed: hash distance, then the match's measures
     const std::string fam = std::getenv("TRUTH_WHY");
     GroupSettings gs;

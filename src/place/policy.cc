@@ -63,8 +63,10 @@ Policy parse_policy(const std::string& text) {
         else if (name == "min_correlation") p.lookalike.match.min_correlation = number_at(v, "lookalike.min_correlation", 0.5, 1);
         else if (name == "max_local") p.lookalike.match.max_local = number_at(v, "lookalike.max_local", 0, 4);
         else if (name == "max_chroma") p.lookalike.match.max_chroma = number_at(v, "lookalike.max_chroma", 0, 100);
+        else if (name == "max_chroma_local")
+          p.lookalike.match.max_chroma_local = number_at(v, "lookalike.max_chroma_local", 0, 100);
         else if (name == "fit_floor") p.lookalike.match.fit_floor = number_at(v, "lookalike.fit_floor", 0.5, 1);
-        else throw PolicyError("policy: lookalike." + name + ": no such setting (radius, min_correlation, max_local, max_chroma, fit_floor)");
+        else throw PolicyError("policy: lookalike." + name + ": no such setting (radius, min_correlation, max_local, max_chroma, max_chroma_local, fit_floor)");
       }
     } else if (key == "fail_on") {
       if (value == "new") p.fail_on_new_only = true;

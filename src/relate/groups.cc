@@ -300,6 +300,7 @@ std::string group_settings_key(const GroupSettings& s) {
   add(s.match.min_correlation);
   add(s.match.max_local);
   add(s.match.max_chroma);
+  add(s.match.max_chroma_local);
   add(s.match.fit_floor);
   return key;
 }

@@ -170,6 +170,7 @@ struct ChromaFit {
   double share = -1;  // -1: neither side has colour
   double alpha_re = 0, alpha_im = 0;  // the fitted hue rotation and saturation scale
   bool a_src = true;  // a was the source (the more colourful side)
+  double local = 0;   // the largest share of a 2x2-cell window's chroma that the fit leaves unexplained
 };
 
 ChromaFit chroma_unexplained(const Thumbnail& a, const Thumbnail& b) {
@@ -230,6 +231,36 @@ ChromaFit chroma_unexplained(const Thumbnail& a, const Thumbnail& b) {
     fit.alpha_re = p_re / ss_re;
     fit.alpha_im = p_im / ss_re;
   }
+  // Local: per 2x2-cell window, the residual's energy against the chroma both
+  // sides have there (the target's and the fitted source's) and a floor. A
+  // global change spreads its residual; an object added, removed or repainted
+  // in one place concentrates it where the object is (0 to about 2: opposite
+  // colours).
+  std::array<double, kChromaPlane> res_k{}, both_k{};
+  for (size_t k = 0; k < kChromaPlane; ++k) {
+    const double fu = fit.alpha_re * src.u[k] - fit.alpha_im * src.v[k] + ga_re * y[k];
+    const double fv = fit.alpha_re * src.v[k] + fit.alpha_im * src.u[k] + ga_im * y[k];
+    const double ru = dst.u[k] - fu, rv = dst.v[k] - fv;
+    res_k[k] = ru * ru + rv * rv;
+    both_k[k] = dst.u[k] * dst.u[k] + dst.v[k] * dst.v[k] + fu * fu + fv * fv;
+  }
+  // The floor: the chroma an average window has on both sides, and the noise
+  // floor of four cells. (Without the average, a copy's small residual in a
+  // window of little colour, next to clipped highlights, reached 1.08.)
+  double mean_window = 0;
+  for (double v : both_k) mean_window += v;
+  mean_window *= 4.0 / double(kChromaPlane);
+  const double window_floor = mean_window + 4.0 * 2.0 * kChromaNoise * kChromaNoise;
+  for (int r = 0; r + 1 < kChromaSide; ++r)
+    for (int c = 0; c + 1 < kChromaSide; ++c) {
+      double rs = 0, bs = 0;
+      for (int dr = 0; dr < 2; ++dr)
+        for (int dc = 0; dc < 2; ++dc) {
+          rs += res_k[size_t((r + dr) * kChromaSide + c + dc)];
+          bs += both_k[size_t((r + dr) * kChromaSide + c + dc)];
+        }
+      fit.local = std::max(fit.local, rs / (bs + window_floor));
+    }
   return fit;
 }
 
@@ -311,13 +342,15 @@ bool hue_turn_consistent(const Thumbnail& src, const Thumbnail& dst, double alph
 }
 
 // The colour checks of a pair whose gray pictures match: the chroma fit's
-// unexplained share (recorded in m.chroma) within max_chroma, and a turn of the
+// unexplained share (recorded in m.chroma) within max_chroma, its largest share in
+// a 2x2-cell window (m.chroma_local) within max_chroma_local, and a turn of the
 // chroma only as a hue turn of the whole picture.
 bool colours_agree(const Thumbnail& ta, const Thumbnail& b, const MatchSettings& s, Match& m) {
   const ChromaFit cf = chroma_unexplained(ta, b);
   m.chroma = static_cast<float>(cf.share);
+  m.chroma_local = static_cast<float>(cf.local);
   if (cf.share < 0) return true;
-  if (cf.share > s.max_chroma) return false;
+  if (cf.share > s.max_chroma || cf.local > s.max_chroma_local) return false;
   return cf.a_src ? hue_turn_consistent(ta, b, cf.alpha_re, cf.alpha_im) : hue_turn_consistent(b, ta, cf.alpha_re, cf.alpha_im);
 }
 

@@ -91,6 +91,7 @@ void save_index(const std::filesystem::path& file, const AuditIndex& x, StagedFi
                           {"min_correlation", x.settings.groups.match.min_correlation},
                           {"max_local", x.settings.groups.match.max_local},
                           {"max_chroma", x.settings.groups.match.max_chroma},
+                          {"max_chroma_local", x.settings.groups.match.max_chroma_local},
                           {"fit_floor", x.settings.groups.match.fit_floor}};
   const auto& cs = x.placed.checks;
   j["checks"] = {{"min_side", cs.min_side}, {"input_side", cs.input_side}, {"min_class", cs.min_class},
@@ -259,6 +260,8 @@ AuditIndex load_index(const std::filesystem::path& file) {
     x.settings.groups.match.min_correlation = j.at("groups_settings").at("min_correlation").get<double>();
     x.settings.groups.match.max_local = j.at("groups_settings").at("max_local").get<double>();
     x.settings.groups.match.max_chroma = j.at("groups_settings").at("max_chroma").get<double>();
+    if (j.at("groups_settings").contains("max_chroma_local"))  // written since the colour check's local share
+      x.settings.groups.match.max_chroma_local = j.at("groups_settings").at("max_chroma_local").get<double>();
     if (j.at("groups_settings").contains("fit_floor"))  // written since the tone-and-colour fit
       x.settings.groups.match.fit_floor = j.at("groups_settings").at("fit_floor").get<double>();
     x.settings.masks.force = strs(j.at("mask_settings").at("force"));

@@ -29,6 +29,7 @@ json settings_json(const TreeSettings& s, const PlaceSettings& placed) {
       {"lookalike_min_correlation", s.groups.match.min_correlation},
       {"lookalike_max_local", s.groups.match.max_local},
       {"lookalike_max_chroma", s.groups.match.max_chroma},
+      {"lookalike_max_chroma_local", s.groups.match.max_chroma_local},
       {"lookalike_fit_floor", s.groups.match.fit_floor},
       {"min_side", placed.checks.min_side},
       {"input_side", placed.checks.input_side},

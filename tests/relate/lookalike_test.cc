@@ -304,7 +304,7 @@ TEST_CASE("the match profile's screen never rejects a pair whose blur-matched co
   for (double c : {0.9, 0.98, 0.99, 0.995}) {
     MatchSettings ms;
     ms.min_correlation = c;
-    ms.max_local = ms.max_chroma = 1e9;  // the correlation alone
+    ms.max_local = ms.max_chroma = ms.max_chroma_local = 1e9;  // the correlation alone
     size_t reached = 0, far_below = 0, rejected = 0, wrongly_rejected = 0, mismeasured = 0, rejected_seen = 0, fits_checked = 0,
            rejected_but_joined = 0, fits_joined = 0;
     for (const auto& k : cases) {

@@ -55,7 +55,8 @@
 //    coloured backdrop passes the chroma check (beta and gamma absorb the
 //    backdrop) but not this one.
 // Two thumbnails are joined when correlation (plain, blurred or fitted) >= min_correlation, local <=
-// max_local, (chroma < 0 or chroma <= max_chroma) and the hue turn holds. Flat
+// max_local, (chroma < 0 or chroma <= max_chroma and chroma_local <=
+// max_chroma_local) and the hue turn holds. Flat
 // thumbnails (standard deviation below 2 grey levels) follow thumb_correlation's
 // flat rule for the gray pictures, and then the colour checks.
 //
@@ -82,13 +83,15 @@ namespace tamis {
 // groups found by older rules are never reused (1: correlation, local and colour
 // checks; 2: the correlation blur-matched; 3: the tone-and-colour fit, and the
 // colour check's luma term; 4: a turn of the chroma only as a hue turn of the
-// whole picture, and the colour checks for pictures whose gray is flat).
-inline constexpr int kMatchRules = 4;
+// whole picture, and the colour checks for pictures whose gray is flat; 5: the
+// colour check's local share).
+inline constexpr int kMatchRules = 5;
 
 struct MatchSettings {
   double min_correlation = 0.995;
   double max_local = 0.06;
   double max_chroma = 0.35;
+  double max_chroma_local = 0.7;
   // The tone-and-colour fit is tried for pairs whose plain correlation reaches
   // fit_floor (at or above min_correlation: never) and whose profiles' bound on
   // the blur-matched correlation reaches fit_gate().
@@ -145,6 +148,7 @@ struct Match {
   float correlation = 0;  // blur-matched
   float local = 0;
   float chroma = -1;  // -1: not measured (no colour variation on either side)
+  float chroma_local = 0;  // the colour check's largest unexplained share in a 2x2-cell window
   int blur_step = 0;  // the step that gave the correlation (0: none)
   bool blurred_a = true;  // which side the blur went on (when blur_step > 0)
   bool fitted = false;    // the correlation is the tone-and-colour fit's
