@@ -276,7 +276,15 @@ int run_audit_command(const std::string& root, const std::string& out, const Spl
                       const JudgeOptions& jo, const CommonOptions& o) {
   namespace fs = std::filesystem;
   tamis::TreeSettings settings;
-  settings.root = root;
+  // Absolute (not resolved through links): report.json and the saved index record
+  // it, so that manifest paths can be joined onto it from anywhere.
+  {
+    std::error_code ec;
+    fs::path abs = fs::absolute(fs::path(root), ec).lexically_normal();
+    if (ec) abs = fs::path(root);
+    if (abs.has_parent_path() && !abs.has_filename()) abs = abs.parent_path();  // "/a/b/" -> "/a/b"
+    settings.root = abs;
+  }
   tamis::PlaceOptions place;
   tamis::KeepMap keep;
   bool have_keep = false;

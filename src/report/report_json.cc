@@ -6,6 +6,7 @@
 #include <set>
 #include <string_view>
 
+#include "tamis/base/text.h"
 #include "tamis/version.h"
 
 namespace tamis {
@@ -226,6 +227,12 @@ json build_report_impl(const AuditResult& r, bool with_paths) {
   json j;
   j["schema_version"] = kReportSchemaVersion;
   j["tool"] = {{"name", kToolName}, {"version", kToolVersion}};
+  // ROOT as the command was given it, made absolute (the CLI does): manifest
+  // paths are relative to it. A name that is not UTF-8 in the manifest's escape
+  // (docs/outputs.md: name_escape), and "escaped" says so.
+  const std::string root = r.settings.root.string();
+  const bool escaped = !is_utf8(root);
+  j["root"] = {{"path", escaped ? escape_name(root) : root}, {"escaped", escaped}};
   j["settings"] = settings_json(r.settings, r.placed);
   j["totals"] = {{"files_seen", r.totals.files_seen}, {"images", r.totals.images}, {"masks", r.totals.masks},
                  {"unreadable", r.totals.unreadable}, {"ignored", r.totals.ignored}};

@@ -524,6 +524,32 @@ class Outputs(unittest.TestCase):
             self.assertEqual(snapshot(root), before)
             self.assertEqual(run("audit", root, "--out", outs["memory"], "--thumbnail-memory-mb", "-1").returncode, 2)
 
+    def test_report_records_root_as_an_absolute_path(self):
+        # ROOT given relative (with a trailing slash, and through "..") is recorded
+        # absolute in report.json (schema: python3-jsonschema) and the manifest's
+        # paths joined onto it name the files; a ROOT whose name is not UTF-8 is
+        # recorded in the manifest's percent escape.
+        with tempfile.TemporaryDirectory() as t:
+            root = one_image_tree(t)
+            os.makedirs(os.path.join(t, "work"))
+            out = os.path.join(t, "out")
+            r = subprocess.run([TAMIS, "audit", "../data/", "--out", out, "--no-cache"], cwd=os.path.join(t, "work"),
+                               capture_output=True, text=True)
+            self.assertIn(r.returncode, (0, 1), r.stderr)
+            report = load_json(os.path.join(out, "report.json"))
+            # the working folder as the kernel gives it (links resolved), then "../data"
+            self.assertEqual(report["root"], {"path": os.path.realpath(root), "escaped": False})
+            validate_report(self, os.path.join(out, "report.json"))
+            with open(os.path.join(out, "manifest.csv"), encoding="utf-8", newline="") as f:
+                for row in csv.DictReader(f):
+                    self.assertTrue(os.path.isfile(os.path.join(report["root"]["path"], row["path"])))
+            odd = os.path.join(t.encode(), b"caf\xe9")
+            os.rename(root.encode(), odd)
+            r = subprocess.run([TAMIS.encode(), b"audit", odd, b"--out", out.encode(), b"--no-cache"], capture_output=True)
+            self.assertIn(r.returncode, (0, 1), r.stderr)
+            report = load_json(os.path.join(out, "report.json"))
+            self.assertEqual(report["root"], {"path": t + "/caf%E9", "escaped": True})  # as given: absolute already
+
     def test_output_sets_stay_whole_under_faults_and_kills(self):
         # Fault injection (TAMIS_FAULT, atomic_file.cc) at every step of writing
         # the outputs: each temporary's write, its fsync, the removal of the old
