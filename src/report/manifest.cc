@@ -64,8 +64,10 @@ RecordFlags record_flags(const AuditResult& result) {
 }
 
 void write_manifest(std::ostream& os, const AuditResult& r) {
-  static const char* kHeader[] = {"path", "label", "split", "group", "width", "height", "mode", "bit_depth",
-                                  "format", "mask_path", "flags", "reason", "bytes", "orientation", "frames",
+  // color_mode and finding_codes: not the names of pandas DataFrame attributes
+  // (df.mode and df.flags are methods, not these columns); docs/outputs.md.
+  static const char* kHeader[] = {"path", "label", "split", "group", "width", "height", "color_mode", "bit_depth",
+                                  "format", "mask_path", "finding_codes", "reason", "bytes", "orientation", "frames",
                                   "content_hash", "fold", "brightness", "contrast", "entropy", "sharpness",
                                   "name_escape"};
   std::string line;
@@ -73,7 +75,7 @@ void write_manifest(std::ostream& os, const AuditResult& r) {
     if (c) line.push_back(',');
     line.append(kHeader[c]);
   }
-  line.append("\r\n");
+  line.push_back('\n');  // LF line ends: no stray CR in the last column for shell tools
   os << line;
   const RecordFlags flags = record_flags(r);
   size_t next_flag = 0;  // flags.pairs are in record order
@@ -137,7 +139,7 @@ void write_manifest(std::ostream& os, const AuditResult& r) {
     } else {
       line.append(",,,,");
     }
-    line.append(escaped ? ",percent\r\n" : ",\r\n");
+    line.append(escaped ? ",percent\n" : ",\n");
     os << line;
   }
 }

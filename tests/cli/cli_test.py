@@ -198,9 +198,15 @@ class Outputs(unittest.TestCase):
             self.assertEqual(got, expect)
             paths = [row["path"] for row in rows]
             self.assertEqual(paths, sorted(paths, key=lambda p: p.encode("utf-8")))
-            header = read_text(os.path.join(out, "manifest.csv")).split("\r\n", 1)[0]
+            raw = read_bytes(os.path.join(out, "manifest.csv"))
+            header = raw.split(b"\n", 1)[0].decode()
+            # The interface's columns, with mode and flags under names that are not
+            # pandas DataFrame attributes (docs/outputs.md); LF line ends: the only
+            # CR in the file is the one inside a quoted name.
             self.assertTrue(header.startswith(
-                "path,label,split,group,width,height,mode,bit_depth,format,mask_path,flags"))
+                "path,label,split,group,width,height,color_mode,bit_depth,format,mask_path,finding_codes"))
+            self.assertEqual(raw.count(b"\r"), sum(n.count("\r") for n in self.NAMES))
+            self.assertFalse(any(c in ("mode", "flags") for c in header.split(",")))
             validate_report(self, os.path.join(out, "report.json"))
             report = load_json(os.path.join(out, "report.json"))
             tot = report["totals"]
