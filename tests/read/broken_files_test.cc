@@ -12,6 +12,7 @@
 
 #include "support/temp_tree.h"
 #include "tamis/pipeline/audit.h"
+#include "tamis/read/decode/decode.h"
 
 using namespace tamis;
 namespace fs = std::filesystem;
@@ -143,4 +144,27 @@ TEST_CASE("every kind of damaged file is unreadable with a reason, and the total
   CHECK(listed + variants == cases.size());
   CHECK(variants == 1);
   CHECK(policy_exit_status(r) == 1);
+}
+
+TEST_CASE("a GIF frame far larger than its screen is refused before its indices are allocated", "[decode][gif]") {
+  // Truth constructed here from the GIF89a layout (header, logical screen
+  // descriptor, image descriptor, LZW minimum code size, one data sub-block): a
+  // 4x4 screen whose first frame claims 65535x65535 pixels. Found by fuzz_decode
+  // (tests/fuzz/regressions/decode/gif-frame-larger-than-screen), which asked for 4 GB.
+  std::vector<uint8_t> gif = {'G', 'I', 'F', '8', '9', 'a', 4, 0, 4, 0, 0, 0, 0,
+                              0x2C, 0, 0, 0, 0, 0xFF, 0xFF, 0xFF, 0xFF, 0, 2, 2, 0x4C, 0x01, 0, 0x3B};
+  Defect d = Defect::none;
+  CHECK(decode_gif_first_frame(gif, d).empty());
+  CHECK(d == Defect::too_many_pixels);  // 4.3 billion pixels > the default 200 million
+  DecodeLimits roomy;
+  roomy.max_pixels = uint64_t{1} << 40;
+  roomy.max_image_bytes = uint64_t{256} << 20;
+  CHECK(decode_gif_first_frame(gif, d, roomy).empty());
+  CHECK(d == Defect::over_memory_budget);
+  // The same frame at the screen's size decodes.
+  gif[18] = 4, gif[19] = 0, gif[20] = 4, gif[21] = 0;
+  const cv::Mat m = decode_gif_first_frame(gif, d);
+  INFO("defect " << defect_code(d));
+  CHECK(d == Defect::none);  // a short LZW stream (clear, a few codes, end of information)
+  CHECK((m.cols == 4 && m.rows == 4));
 }

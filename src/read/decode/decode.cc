@@ -249,7 +249,7 @@ class GifCodeReader {
 
 }  // namespace
 
-cv::Mat decode_gif_first_frame(std::span<const uint8_t> b, Defect& defect) {
+cv::Mat decode_gif_first_frame(std::span<const uint8_t> b, Defect& defect, const DecodeLimits& limits) {
   defect = Defect::none;
   auto fail = [&](Defect d) {
     defect = d;
@@ -293,6 +293,12 @@ cv::Mat decode_gif_first_frame(std::span<const uint8_t> b, Defect& defect) {
   if (!has(b, off, 1)) return fail(Defect::truncated);
   int min_code = b[off++];
   if (min_code < 1 || min_code > 11 || fw <= 0 || fh <= 0) return fail(Defect::bad_header);
+  // The frame's own size is not the screen's (which the caller's budget was
+  // computed from): its indices are held whole, so they count against the
+  // limits too (a 65535x65535 frame on a tiny screen asked for 4 GB; fuzzing).
+  const uint64_t frame_pixels = uint64_t(fw) * uint64_t(fh);
+  if (frame_pixels > limits.max_pixels) return fail(Defect::too_many_pixels);
+  if (frame_pixels + uint64_t(sw) * uint64_t(sh) * 3 > limits.max_image_bytes) return fail(Defect::over_memory_budget);
 
   // LZW (GIF89a appendix F): dictionary of prefix/suffix pairs, 12-bit codes at most.
   std::vector<uint8_t> indices(static_cast<size_t>(fw) * fh, 0);
@@ -470,7 +476,7 @@ Decoded decode_image(std::span<const uint8_t> b, const ProbeInfo& probe, const D
   auto turn = large_decode_turn(need);
   cv::Mat m;
   if (probe.format == Format::gif) {
-    m = decode_gif_first_frame(b, out.defect);
+    m = decode_gif_first_frame(b, out.defect, limits);
     if (out.defect != Defect::none) return out;
   } else if (!decode_png_direct(b, probe, m)) {
     m = opencv_imdecode(b, cv::IMREAD_UNCHANGED | cv::IMREAD_IGNORE_ORIENTATION);

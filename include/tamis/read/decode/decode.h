@@ -81,7 +81,9 @@ Decoded decode_image(std::span<const uint8_t> bytes, const ProbeInfo& probe, con
 bool decode_png_direct(std::span<const uint8_t> bytes, const ProbeInfo& probe, cv::Mat& out);
 
 // Decodes the first frame of a GIF to BGR (transparent pixels take their palette
-// colour). Returns an empty Mat and sets `defect` when the data is damaged.
-cv::Mat decode_gif_first_frame(std::span<const uint8_t> bytes, Defect& defect);
+// colour). Returns an empty Mat and sets `defect` when the data is damaged, or
+// when the frame's own size (which may exceed the screen's) is over `limits`:
+// too_many_pixels, over_memory_budget (its indices and the screen's BGR image).
+cv::Mat decode_gif_first_frame(std::span<const uint8_t> bytes, Defect& defect, const DecodeLimits& limits = {});
 
 }  // namespace tamis
