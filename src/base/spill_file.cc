@@ -32,6 +32,16 @@ SpillFile::SpillFile(const std::filesystem::path& dir, uint64_t size) : size_(si
     fd_ = -1;
     fail(dir, "cannot size", err);
   }
+  // The space is reserved now, so that a full file system shows here, where the
+  // caller can still do without the file, and not in a later write.
+  if (size > 0) {
+    const int err = ::posix_fallocate(fd_, 0, static_cast<off_t>(size));
+    if (err != 0) {
+      ::close(fd_);
+      fd_ = -1;
+      fail(dir, "cannot reserve space", err);
+    }
+  }
 }
 
 SpillFile::~SpillFile() {

@@ -241,13 +241,23 @@ std::vector<FileRecord> read_files(const std::filesystem::path& root, const std:
     for (size_t i = 0; i < entries.size(); ++i)
       if (row_of[i] < 0) to_read.push_back(static_cast<uint32_t>(i));
     // Judged on every record (a later stage may load all the stored ones too).
-    if (spill_thumbnails(root, entries.size(), opt)) {
-      ctx.thumbs->assign_spilled(entries.size(), opt.scratch_dir);
-    } else if (to_read.size() == entries.size()) {
-      ctx.thumbs->assign_all(entries.size(), false);  // every slot is written below, by its thread
-    } else {
-      ctx.thumbs->assign_none(entries.size());
-      ctx.thumbs->make_room(to_read);
+    bool spill = spill_thumbnails(root, entries.size(), opt);
+    if (ctx.counts) ctx.counts->scratch_note.clear();
+    if (spill) {
+      try {
+        ctx.thumbs->assign_spilled(entries.size(), opt.scratch_dir);
+      } catch (const std::runtime_error& e) {  // no space, read-only: memory gives the same values
+        spill = false;
+        if (ctx.counts) ctx.counts->scratch_note = std::string("the thumbnails stayed in memory: ") + e.what();
+      }
+    }
+    if (!spill) {
+      if (to_read.size() == entries.size()) {
+        ctx.thumbs->assign_all(entries.size(), false);  // every slot is written below, by its thread
+      } else {
+        ctx.thumbs->assign_none(entries.size());
+        ctx.thumbs->make_room(to_read);
+      }
     }
   }
   std::vector<int64_t> copied_row(ctx.cache ? entries.size() : 0, -1);  // rows copied by content
@@ -263,8 +273,10 @@ std::vector<FileRecord> read_files(const std::filesystem::path& root, const std:
     const size_t count = std::min(window, entries.size() - first);
     parallel_for(count, opt.threads, [&](size_t d) {
       const size_t i = first + d;
-      if (spilled) staged[d].fill(0);  // a stored record's slot too: its thumbnail is loaded later
-      if (row_of[i] >= 0) return;
+      if (row_of[i] >= 0) {
+        if (spilled) staged[d].fill(0);  // a stored record's slot: its thumbnail is loaded later
+        return;
+      }
       Thumbnail* thumb = !ctx.thumbs ? nullptr : spilled ? &staged[d] : &ctx.thumbs->at(i);
       if (thumb) thumb->fill(0);  // stays zeros unless the file is an image
       thread_local std::vector<uint8_t> buf;
@@ -313,7 +325,12 @@ std::vector<FileRecord> read_files(const std::filesystem::path& root, const std:
       if (row >= 0 && records[i].features.has_lookalike) (*ctx.thumbnail_row)[i] = row;
     }
   }
-  if (ctx.counts) *ctx.counts = {n_read.load(), n_cached.load(), n_hash.load(), moved};
+  if (ctx.counts) {
+    ctx.counts->read = n_read.load();
+    ctx.counts->cached = n_cached.load();
+    ctx.counts->cached_by_hash = n_hash.load();
+    ctx.counts->moved = moved;
+  }
   return records;
 }
 

@@ -146,6 +146,7 @@ std::string TreeReader::note() const {
         " damaged cache rows were ignored (checksum); their files were read again";
   if (cache_ && cache_->set_aside_after_damage())
     n = "the cache file was damaged; it was moved aside, and the next run starts a new one";
+  if (counts_ && !counts_->scratch_note.empty()) n += (n.empty() ? "" : "; ") + counts_->scratch_note;
   return n;
 }
 

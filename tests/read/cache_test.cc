@@ -317,6 +317,24 @@ TEST_CASE("thumbnails in a scratch file give the same outputs, and never go to a
   CHECK_FALSE(spills(t / "data" / "gingham"));  // inside ROOT
   CHECK_FALSE(spills(""));
   CHECK_FALSE(spills(scratch / "missing"));
+  // A folder where no file can be made (procfs refuses files even to root, as a
+  // full or read-only file system would): the thumbnails stay in memory, the
+  // outputs are the same and the read says why.
+  if (fs::is_directory("/proc/self")) {
+    CHECK_FALSE(spills("/proc/self"));
+    ReadOptions o;
+    o.thumbnail_memory_bytes = 0;
+    o.scratch_dir = "/proc/self";
+    ThumbnailTable thumbs;
+    ReadCounts counts;
+    ReadContext ctx;
+    ctx.thumbs = &thumbs;
+    ctx.counts = &counts;
+    read_files(t / "data", files, o, ctx);
+    CHECK_THAT(counts.scratch_note, Catch::Contains("/proc/self") && Catch::Contains("stayed in memory"));
+    CHECK(run(0, "/proc/self", "") == in_memory);
+    CHECK(run(0, "/proc/self", c / "records2.sqlite") == in_memory);
+  }
 }
 
 TEST_CASE("cache: a few damaged bytes inside any row never change an output", "[cache][fault]") {

@@ -5,7 +5,9 @@
 // - The file has no name: opened with O_TMPFILE where the file system has it,
 //   otherwise created under a random name and unlinked at once. No run leaves
 //   it behind, whatever ends the process, and no other process can open it.
-// - It is sized at creation; bytes never written read as zeros (a sparse file).
+// - It is sized at creation and its space reserved then (posix_fallocate), so a
+//   full or read-only file system fails the constructor, not a later write;
+//   bytes never written read as zeros.
 // - write_at and read_at may be called from any thread at once (pwrite/pread);
 //   ranges written concurrently must not overlap.
 // - Every failure throws std::runtime_error naming the folder and the system's

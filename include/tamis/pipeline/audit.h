@@ -76,7 +76,7 @@ struct AuditIndex {
   GroupResult groups;               // groups.group_of: per record, index into groups.groups or -1
   Totals totals;
   ReadCounts counts;                // how the records were obtained (not saved, not reported)
-  std::string cache_note;           // why the cache was not used or was rebuilt, if it was
+  std::string cache_note;           // why the cache was not used or was rebuilt, or the thumbnails' scratch file was not, if so
   std::vector<StageTime> times;     // not saved, not reported
 };
 

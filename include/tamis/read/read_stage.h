@@ -20,6 +20,7 @@
 #include <cstdint>
 #include <filesystem>
 #include <functional>
+#include <string>
 #include <vector>
 
 #include "tamis/model/record.h"
@@ -36,6 +37,7 @@ struct ReadCounts {
   uint64_t cached = 0;          // records reused from the cache by path, size, time and inode
   uint64_t cached_by_hash = 0;  // records reused by content hash (touched, rewritten, copied, moved files)
   uint64_t moved = 0;           // of those, files whose stored path is no longer in the tree (moved or renamed)
+  std::string scratch_note;     // why the thumbnails stayed in memory although a scratch file was due (empty: they did not)
 };
 
 // The read's settings (each set once, by the command line).
@@ -45,7 +47,9 @@ struct ReadOptions {
   DecodeLimits decode;
   // Thumbnails (1,152 bytes an image) beyond this many bytes go to a scratch
   // file in `scratch_dir` instead of memory (ThumbnailTable), unless that folder
-  // is empty, missing or inside ROOT. Changes memory and time, never a value.
+  // is empty, missing or inside ROOT, or the file cannot be made there (no
+  // space, read-only: ReadCounts::scratch_note says why, and the thumbnails stay
+  // in memory). Changes memory and time, never a value.
   uint64_t thumbnail_memory_bytes = 64ull << 20;
   std::filesystem::path scratch_dir;
   std::function<void(size_t done, size_t total)> on_progress;
