@@ -47,13 +47,14 @@ int main(int argc, char** argv) {
   for (const auto& t : tiles) sources.push_back({"photos", t, {}});
   for (auto& s : sources) s.look = test::lookalike_of_bytes(test::encode_copy(s.pixels, 0));
   // Copies, made once.
-  struct Copy { size_t source; size_t kind; Lookalike look; };
+  struct Copy { size_t source; size_t kind; Lookalike look; cv::Size size; };
   std::vector<Copy> copies;
   const auto& kinds = test::planted_kinds();
   for (size_t si = 0; si < sources.size(); ++si)
     for (size_t ki = 0; ki < kinds.size(); ++ki) {
       if (kinds[ki].colour_only && sources[si].pixels.channels() != 3) continue;
-      copies.push_back({si, ki, test::lookalike_of_bytes(test::encode_copy(kinds[ki].make(sources[si].pixels), kinds[ki].jpeg_quality))});
+      const cv::Mat copy = kinds[ki].make(sources[si].pixels);
+      copies.push_back({si, ki, test::lookalike_of_bytes(test::encode_copy(copy, kinds[ki].jpeg_quality)), copy.size()});
     }
   const auto scenes = test::rendered_scenes(60, 10, 160, 120, 99);
   std::vector<std::vector<Lookalike>> scene_looks;
@@ -83,7 +84,7 @@ int main(int argc, char** argv) {
     std::map<std::string, std::pair<int, int>> per_family;
     std::map<std::pair<std::string, std::string>, std::pair<int, int>> per_kind_family;
     for (const auto& c : copies) {
-      const bool ok = test::pair_joined(c.look, sources[c.source].look, gs);
+      const bool ok = test::pair_joined(c.look, cv::Mat(c.size, CV_8U), sources[c.source].look, sources[c.source].pixels, gs);
       auto& k = per_kind[kinds[c.kind].name];
       k.first += ok;
       ++k.second;
@@ -178,7 +179,9 @@ int main(int argc, char** argv) {
     const std::string fam = std::getenv("TRUTH_WHY");
     GroupSettings gs;
     for (const auto& c : copies) {
-      if (sources[c.source].family != fam || test::pair_joined(c.look, sources[c.source].look, gs)) continue;
+      if (sources[c.source].family != fam ||
+          test::pair_joined(c.look, cv::Mat(c.size, CV_8U), sources[c.source].look, sources[c.source].pixels, gs))
+        continue;
       const Lookalike& a = sources[c.source].look;
       int best_t = 0, best_d = 65;
       for (int t = 0; t < kDihedralCount; ++t)

@@ -75,7 +75,7 @@ constexpr size_t kConfirmBatch = 16384;  // thumbnails a batch reads at most (pl
 
 void confirm_hits(const std::vector<std::pair<uint32_t, uint32_t>>& hits, const ThumbnailTable& thumbs,
                   const std::vector<uint32_t>& eligible, const std::vector<MatchProfile>& profile,
-                  const GroupSettings& settings, std::vector<GroupLink>& confirmed) {
+                  const std::vector<float>& allowance, const GroupSettings& settings, std::vector<GroupLink>& confirmed) {
   std::vector<size_t> starts;
   for (size_t h = 0; h < hits.size(); ++h)
     if (h == 0 || hits[h].first != hits[h - 1].first) starts.push_back(h);
@@ -91,7 +91,8 @@ void confirm_hits(const std::vector<std::pair<uint32_t, uint32_t>>& hits, const 
     std::vector<float> spectrum;  // the turned thumbnail's DCT, once needed
     for (size_t h = starts[g]; h < starts[g + 1]; ++h) {
       const uint32_t j = hits[h].second;
-      const Match m = match_thumbnails(turned, profile[i], t, thumb_of(j), profile[j], settings.match, &spectrum);
+      const Match m = match_thumbnails(turned, profile[i], t, thumb_of(j), profile[j],
+                                       pair_settings(settings.match, allowance[i], allowance[j]), &spectrum);
       if (!m.joined) continue;
       // Said of the pair (a, b), a < b: the flip/turn of a that matches b
       // (the inverse of t when the hit was b's), and which side was blurred.
@@ -166,6 +167,10 @@ void join_lookalikes(const std::vector<FileRecord>& records, const ThumbnailTabl
     thumbs.get_many(eligible.data() + first, count, block.data());
     for (size_t k = 0; k < count; ++k) profile[first + k] = match_profile(block[k]);
   }, 1);
+  // Per image: its share of the correlation's allowance (1 under small_side px).
+  std::vector<float> allowance(n);
+  for (size_t k = 0; k < n; ++k)
+    allowance[k] = size_allowance(records[eligible[k]].probe.width, records[eligible[k]].probe.height, settings.match);
   // A hit (8 * image + t, j) goes on to the confirmation unless it pairs an
   // image with itself or the profiles prove that the thumbnails cannot match
   // (neither as they are nor with any blur step the pair would try).
@@ -173,7 +178,7 @@ void join_lookalikes(const std::vector<FileRecord>& records, const ThumbnailTabl
     const uint32_t i = variant / kDihedralCount;
     if (i == j) return false;
     const int t = static_cast<int>(variant % kDihedralCount);
-    return match_may_join(profile[i], t, profile[j], settings.match);
+    return match_may_join(profile[i], t, profile[j], pair_settings(settings.match, allowance[i], allowance[j]));
   };
   // Hits of an image with itself are counted by the join but are no candidates.
   uint64_t self_hits = 0;
@@ -194,7 +199,7 @@ void join_lookalikes(const std::vector<FileRecord>& records, const ThumbnailTabl
     for (size_t k = 0; k < n; ++k)
       for (int t = 0; t < kDihedralCount; ++t) variants[k * kDihedralCount + t] = records[eligible[k]].features.look.phash[t];
     confirm_hits(join_within(variants, identity, settings.radius, settings.threads, keep, &found, settings.join_memory_bytes),
-                 thumbs, eligible, profile, settings, confirmed);
+                 thumbs, eligible, profile, allowance, settings, confirmed);
     out.candidate_hits += found;
   } else {
     std::vector<uint64_t> variant(n);
@@ -207,7 +212,7 @@ void join_lookalikes(const std::vector<FileRecord>& records, const ThumbnailTabl
                               settings.join_memory_bytes);
       out.candidate_hits += found;
       for (auto& h : hits) h.first = h.first * kDihedralCount + static_cast<uint32_t>(t);
-      confirm_hits(hits, thumbs, eligible, profile, settings, confirmed);
+      confirm_hits(hits, thumbs, eligible, profile, allowance, settings, confirmed);
     }
   }
   out.candidate_hits -= self_hits;
@@ -302,6 +307,7 @@ std::string group_settings_key(const GroupSettings& s) {
   add(s.match.max_chroma);
   add(s.match.max_chroma_local);
   add(s.match.fit_floor);
+  add(s.match.small_side);
   return key;
 }
 

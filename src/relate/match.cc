@@ -10,6 +10,20 @@ namespace tamis {
 
 double blur_sigma(int step) { return 0.25 * step; }
 
+float size_allowance(uint32_t width, uint32_t height, const MatchSettings& settings) {
+  const double side = settings.small_side;
+  if (width == 0 || height == 0 || side <= 0 || (width >= side && height >= side)) return 1.0f;
+  const double share = std::min<double>(width, side) * std::min<double>(height, side) / (side * side);
+  return static_cast<float>(share);
+}
+
+MatchSettings pair_settings(const MatchSettings& settings, float allowance_a, float allowance_b) {
+  MatchSettings s = settings;
+  const float share = std::max(allowance_a, allowance_b);
+  if (share < 1.0f) s.min_correlation = 1.0 - (1.0 - settings.min_correlation) * static_cast<double>(share);
+  return s;
+}
+
 namespace {
 
 constexpr double kChromaNoise = 1.5;  // levels a cell: the floor under the target's variation

@@ -178,6 +178,10 @@ TEST_CASE("find_groups equals the definition checked pair by pair", "[lookalike]
     records[i].features.has_content_hash = true;
     records[i].features.content_hash = {i, 0};
     records[i].features.look = looks[i];
+    // Sizes as recorded: every seventh picture under small_side (its pairs must
+    // come closer), the rest at 28 px (the thumbnails are the same either way).
+    records[i].probe.width = i % 7 == 3 ? 14 : i % 7 == 5 ? 20 : 28;
+    records[i].probe.height = i % 7 == 5 ? 60 : records[i].probe.width;
   }
   ThumbnailTable thumbs;
   thumbs.assign_all(looks.size());
@@ -185,6 +189,7 @@ TEST_CASE("find_groups equals the definition checked pair by pair", "[lookalike]
   for (double c : {0.9, 0.99, 0.995}) {
     GroupSettings gs;
     gs.match.min_correlation = c;
+    auto allowance = [&](uint32_t i) { return size_allowance(records[i].probe.width, records[i].probe.height, gs.match); };
     GroupResult got = find_groups(records, thumbs, gs);
     std::set<std::pair<uint32_t, uint32_t>> pairs;
     uint64_t hits = 0;
@@ -194,7 +199,7 @@ TEST_CASE("find_groups equals the definition checked pair by pair", "[lookalike]
         for (int t = 0; t < kDihedralCount; ++t) {
           if (hamming(looks[i].phash[t], looks[j].phash[0]) > gs.radius) continue;
           ++hits;
-          if (match_thumbnails(looks[i].thumb, t, looks[j].thumb, gs.match).joined)
+          if (match_thumbnails(looks[i].thumb, t, looks[j].thumb, pair_settings(gs.match, allowance(i), allowance(j))).joined)
             pairs.emplace(std::min(i, j), std::max(i, j));
         }
       }

@@ -169,12 +169,21 @@ Lookalike lookalike_of_bytes(const std::vector<uint8_t>& bytes) {
   return lookalike_features(d.reduced);
 }
 
-bool pair_joined(const Lookalike& a, const Lookalike& b, const GroupSettings& gs) {
+bool pair_joined(const Lookalike& a, const Lookalike& b, const GroupSettings& gs, float allowance_a, float allowance_b) {
+  const MatchSettings ms = pair_settings(gs.match, allowance_a, allowance_b);
   for (int t = 0; t < kDihedralCount; ++t) {
-    if (hamming(a.phash[t], b.phash[0]) <= gs.radius && match_thumbnails(a.thumb, t, b.thumb, gs.match).joined) return true;
-    if (hamming(b.phash[t], a.phash[0]) <= gs.radius && match_thumbnails(b.thumb, t, a.thumb, gs.match).joined) return true;
+    if (hamming(a.phash[t], b.phash[0]) <= gs.radius && match_thumbnails(a.thumb, t, b.thumb, ms).joined) return true;
+    if (hamming(b.phash[t], a.phash[0]) <= gs.radius && match_thumbnails(b.thumb, t, a.thumb, ms).joined) return true;
   }
   return false;
+}
+
+bool pair_joined(const Lookalike& a, const cv::Mat& pixels_a, const Lookalike& b, const cv::Mat& pixels_b,
+                 const GroupSettings& gs) {
+  auto allowance = [&](const cv::Mat& m) {
+    return size_allowance(static_cast<uint32_t>(m.cols), static_cast<uint32_t>(m.rows), gs.match);
+  };
+  return pair_joined(a, b, gs, allowance(pixels_a), allowance(pixels_b));
 }
 
 cv::Mat hue_turned(const cv::Mat& m, int degrees) { return hsv_change(m, degrees, 1.0); }

@@ -45,8 +45,14 @@ struct Scene {
 Lookalike lookalike_of_bytes(const std::vector<uint8_t>& bytes);
 
 // Whether find_groups would join a and b as a pair: some flip/turn of either has
-// a hash within the radius of the other's and the thumbnails match (match.h).
-bool pair_joined(const Lookalike& a, const Lookalike& b, const GroupSettings& gs);
+// a hash within the radius of the other's and the thumbnails match (match.h),
+// judged by pair_settings with the pictures' size_allowance (1: both at least
+// small_side pixels on a side).
+bool pair_joined(const Lookalike& a, const Lookalike& b, const GroupSettings& gs, float allowance_a = 1.0f,
+                 float allowance_b = 1.0f);
+// The same with the allowances of pictures of the given sizes (cols x rows).
+bool pair_joined(const Lookalike& a, const cv::Mat& pixels_a, const Lookalike& b, const cv::Mat& pixels_b,
+                 const GroupSettings& gs);
 
 // Colour photographs from Debian packages, each cut into non-overlapping tiles (at
 // most 384 px on the longer side): distinct pictures of many kinds (landscape,

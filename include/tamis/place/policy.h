@@ -32,7 +32,7 @@ struct Policy {
   CheckSettings thresholds;
   double max_unreadable_share = 1.0;  // above this share of unreadable image files: too-many-unreadable (error)
   bool fail_on_new_only = false;
-  GroupSettings lookalike;  // "lookalike": radius, min_correlation, max_local, max_chroma, max_chroma_local, fit_floor (groups.h, match.h)
+  GroupSettings lookalike;  // "lookalike": radius, min_correlation, max_local, max_chroma, max_chroma_local, fit_floor, small_side (groups.h, match.h)
 };
 
 // The documented default policy (docs/policy.md): the checks' own severities.

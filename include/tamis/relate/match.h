@@ -54,7 +54,8 @@
 //    neutral, no constant shift) unexplained. An object repainted on a weakly
 //    coloured backdrop passes the chroma check (beta and gamma absorb the
 //    backdrop) but not this one.
-// Two thumbnails are joined when correlation (plain, blurred or fitted) >= min_correlation, local <=
+// Two thumbnails are joined when correlation (plain, blurred or fitted) >= min_correlation (for
+// pictures under small_side pixels a closer one: pair_settings), local <=
 // max_local, (chroma < 0 or chroma <= max_chroma and chroma_local <=
 // max_chroma_local) and the hue turn holds. Flat
 // thumbnails (standard deviation below 2 grey levels) follow thumb_correlation's
@@ -84,8 +85,9 @@ namespace tamis {
 // checks; 2: the correlation blur-matched; 3: the tone-and-colour fit, and the
 // colour check's luma term; 4: a turn of the chroma only as a hue turn of the
 // whole picture, and the colour checks for pictures whose gray is flat; 5: the
-// colour check's local share).
-inline constexpr int kMatchRules = 5;
+// colour check's local share; 6: a closer correlation for pictures under
+// small_side).
+inline constexpr int kMatchRules = 6;
 
 struct MatchSettings {
   double min_correlation = 0.995;
@@ -96,7 +98,30 @@ struct MatchSettings {
   // fit_floor (at or above min_correlation: never) and whose profiles' bound on
   // the blur-matched correlation reaches fit_gate().
   double fit_floor = 0.98;
+  // Pictures under small_side pixels on a side (0: none) hold less than their
+  // enlarged 32x32 thumbnail shows, and distinct ones correlate more closely: a
+  // pair of two such pictures must come closer than min_correlation
+  // (size_allowance, pair_settings; docs/lookalikes.md).
+  double small_side = 28;
 };
+
+// The share of the correlation's allowance (1 - min_correlation) that a picture
+// of width x height pixels gets: 1 when both sides reach small_side, else
+// min(width, small_side) min(height, small_side) / small_side^2: the allowance
+// in proportion to the picture's own pixels. Measured on Fashion-MNIST reduced
+// to 12-24 px (bench/small_pictures): distinct pictures of those sizes are then
+// joined at most about twice as often, pair for pair, as at 28 px (without it,
+// 4-34 times); the power 1.5 would match 28 px at 24 px too but loses most
+// tone-changed and re-encoded copies at 12-14 px. Unknown sizes (0) get 1.
+float size_allowance(uint32_t width, uint32_t height, const MatchSettings& settings);
+
+// The settings a pair is judged by: min_correlation moved towards 1 by the
+// larger of the two pictures' allowances (1 - (1 - min_correlation) x share).
+// The larger: a small picture against one of small_side or more joined distinct
+// pictures no more often than two at small_side did (bench/small_pictures), and
+// a reduced copy of a larger picture is such a pair; two small pictures are what
+// joins too easily.
+MatchSettings pair_settings(const MatchSettings& settings, float allowance_a, float allowance_b);
 
 // The tone-and-colour fit's gate: the profiles' bound on the blur-matched
 // correlation (match_may_join's) must reach kFitGate, held within [fit_floor,
