@@ -19,7 +19,7 @@ float size_allowance(uint32_t width, uint32_t height, const MatchSettings& setti
 
 MatchSettings pair_settings(const MatchSettings& settings, float allowance_a, float allowance_b) {
   MatchSettings s = settings;
-  const float share = std::max(allowance_a, allowance_b);
+  const float share = std::sqrt(allowance_a * allowance_b);
   if (share < 1.0f) s.min_correlation = 1.0 - (1.0 - settings.min_correlation) * static_cast<double>(share);
   return s;
 }

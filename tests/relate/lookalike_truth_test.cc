@@ -307,9 +307,10 @@ TEST_CASE("a picture's allowance shrinks with its own pixels under small_side", 
   MatchSettings off = ms;
   off.small_side = 0;
   CHECK(size_allowance(14, 14, off) == 1.0f);
-  // A pair is judged by the larger allowance: two small pictures come closer.
-  CHECK(pair_settings(ms, 0.25f, 0.5f).min_correlation == Approx(1 - 0.005 * 0.5));
-  CHECK(pair_settings(ms, 0.25f, 1.0f).min_correlation == ms.min_correlation);
+  // A pair is judged by the geometric mean of the allowances.
+  CHECK(pair_settings(ms, 0.25f, 0.25f).min_correlation == Approx(1 - 0.005 * 0.25));
+  CHECK(pair_settings(ms, 0.25f, 1.0f).min_correlation == Approx(1 - 0.005 * 0.5));
+  CHECK(pair_settings(ms, 1.0f, 1.0f).min_correlation == ms.min_correlation);
   CHECK(pair_settings(ms, 1.0f, 1.0f).max_local == ms.max_local);
 }
 
