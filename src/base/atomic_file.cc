@@ -199,10 +199,6 @@ void write_file_atomically(const std::filesystem::path& target, const std::funct
   release_temporary(slot);
 }
 
-namespace {
-
-// A file's size and XXH3-64, read back (from the page cache: the file was just
-// written) on the thread that then fsyncs it. Returns an errno (0: fine).
 int hash_file(const std::filesystem::path& p, uint64_t& bytes, uint64_t& hash) {
   const int fd = open(p.c_str(), O_RDONLY | O_CLOEXEC);
   if (fd < 0) return errno;
@@ -227,6 +223,8 @@ int hash_file(const std::filesystem::path& p, uint64_t& bytes, uint64_t& hash) {
   close(fd);
   return err;
 }
+
+namespace {
 
 std::string hex64(uint64_t v) {
   std::string out(16, '0');

@@ -21,6 +21,7 @@
 #include "tamis/pipeline/audit.h"
 #include "tamis/place/manifest_reader.h"
 #include "tamis/read/cache.h"
+#include "tamis/report/export_tree.h"
 #include "tamis/report/index_file.h"
 #include "tamis/report/outputs.h"
 #include "tamis/version.h"
@@ -384,6 +385,42 @@ int run_split_command(const std::string& dir, const std::string& out, const Spli
   return finish(result, out, jo, quiet, false);
 }
 
+int run_export_command(const std::string& dir, const std::string& tree, const std::string& mode, bool replace,
+                       bool quiet) {
+  tamis::ExportSettings s;
+  s.outputs = dir;
+  s.tree = tree;
+  s.mode = mode == "copy" ? tamis::ExportMode::copy : mode == "hardlink" ? tamis::ExportMode::hardlink : tamis::ExportMode::symlink;
+  s.replace = replace;
+  tamis::ExportResult r;
+  try {
+    r = tamis::export_tree(s);
+  } catch (const tamis::ExportError& e) {
+    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
+    return e.exit_status;
+  } catch (const std::exception& e) {
+    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
+    return kExitCannotRun;
+  }
+  if (quiet) return 0;
+  const uint64_t images = r.images[0] + r.images[1] + r.images[2];
+  const char* how = s.mode == tamis::ExportMode::copy       ? "copies"
+                    : s.mode == tamis::ExportMode::hardlink ? "hard links"
+                                                            : "symbolic links";
+  std::printf("exported %llu image%s (train %llu, val %llu, test %llu) and %llu mask%s into %s as %s%s\n",
+              (unsigned long long)images, images == 1 ? "" : "s", (unsigned long long)r.images[0],
+              (unsigned long long)r.images[1], (unsigned long long)r.images[2], (unsigned long long)r.masks,
+              r.masks == 1 ? "" : "s", safe(r.tree.string()).c_str(), how, r.replaced ? ", replacing the earlier export" : "");
+  std::printf("lists: %s/train.txt, val.txt, test.txt\n", safe(r.tree.string()).c_str());
+  if (r.renamed > 0)
+    std::printf("%llu name%s made distinct within a class folder (name~hash.ext)\n", (unsigned long long)r.renamed,
+                r.renamed == 1 ? "" : "s");
+  if (r.unlisted > 0)
+    std::printf("%llu entr%s with a line break in the name left out of the lists (still in the tree)\n",
+                (unsigned long long)r.unlisted, r.unlisted == 1 ? "y" : "ies");
+  return 0;
+}
+
 }  // namespace
 
 int main(int argc, char** argv) {
@@ -414,6 +451,19 @@ int main(int argc, char** argv) {
   add_judge_options(split, split_judge);
   split->add_flag("--quiet", split_quiet, "print nothing but errors");
 
+  std::string export_dir, export_to, export_mode = "symlink";
+  bool export_replace = false, export_quiet = false;
+  CLI::App* exporter = app.add_subcommand(
+      "export", "lay an audit's split out as TREE/<split>/<label>/... (links or copies of ROOT's images, masks in "
+                "TREE/masks/...) with one list of paths per split");
+  exporter->add_option("DIR", export_dir, "the --out folder of an audit or a split")->required();
+  exporter->add_option("--to", export_to, "the folder to make (new, empty, or an earlier export with --replace); never inside ROOT")
+      ->required();
+  exporter->add_option("--mode", export_mode, "symlink (default), hardlink or copy")
+      ->check(CLI::IsMember({"symlink", "hardlink", "copy"}));
+  exporter->add_flag("--replace", export_replace, "replace an earlier export in --to (only one tamis made)");
+  exporter->add_flag("--quiet", export_quiet, "print nothing but errors");
+
   std::string demo_dir;
   CLI::App* demo = app.add_subcommand("demo", "write the demo data set (textile swatches) into DIR");
   demo->add_option("DIR", demo_dir, "folder to write into")->required();
@@ -433,6 +483,7 @@ int main(int argc, char** argv) {
 
   if (audit->parsed()) return run_audit_command(root, out, audit_split, audit_judge, audit_opts);
   if (split->parsed()) return run_split_command(split_dir, split_out, resplit_opts, split_judge, split_quiet);
+  if (exporter->parsed()) return run_export_command(export_dir, export_to, export_mode, export_replace, export_quiet);
   if (demo->parsed()) {
     try {
       size_t n = tamis::write_demo(demo_dir);

@@ -80,7 +80,8 @@ size_t escape_column(const std::vector<std::string>& header) {
   return it == header.end() ? std::string::npos : static_cast<size_t>(it - header.begin());
 }
 
-// Row k's path as bytes: unescaped when its name_escape column says "percent".
+// Row k's path (or another name column) as bytes: unescaped when its name_escape
+// column says "percent".
 std::string row_path(const std::vector<std::vector<std::string>>& rows, size_t k, size_t path_col, size_t escape_col) {
   const std::string& path = rows[k][path_col];
   if (escape_col >= rows[k].size() || rows[k][escape_col].empty()) return path;
@@ -101,6 +102,33 @@ std::vector<std::string> read_manifest_paths(std::istream& is) {
   std::vector<std::string> out;
   for (size_t k = 1; k < rows.size(); ++k)
     if (rows[k].size() > path_col) out.push_back(row_path(rows, k, path_col, escape_col));
+  return out;
+}
+
+std::vector<ManifestRow> read_manifest_rows(std::istream& is) {
+  auto rows = parse_csv(is);
+  const auto& header = rows.front();
+  const size_t path_col = column(header, "path"), label_col = column(header, "label");
+  const size_t split_col = column(header, "split"), mask_col = column(header, "mask_path");
+  const size_t escape_col = escape_column(header), width = header.size();
+  std::vector<ManifestRow> out;
+  for (size_t k = 1; k < rows.size(); ++k) {
+    const auto& r = rows[k];
+    if (r.size() == 1 && r[0].empty()) continue;  // a blank line
+    if (r.size() != width)
+      throw std::runtime_error("manifest: record " + std::to_string(k + 1) + " has " + std::to_string(r.size()) +
+                               " fields where the header has " + std::to_string(width) + " (cut off or malformed)");
+    ManifestRow row;
+    row.path = row_path(rows, k, path_col, escape_col);
+    row.label = row_path(rows, k, label_col, escape_col);
+    row.mask_path = r[mask_col].empty() ? std::string() : row_path(rows, k, mask_col, escape_col);
+    const std::string& v = r[split_col];
+    row.split = placement_from_string(v);
+    if (row.split == Placement::excluded && v != "excluded" && !v.empty())
+      throw std::runtime_error("manifest: record " + std::to_string(k + 1) + " has split '" + v +
+                               "' (train, val, test, excluded or empty expected)");
+    out.push_back(std::move(row));
+  }
   return out;
 }
 

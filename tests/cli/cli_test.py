@@ -284,7 +284,9 @@ class Outputs(unittest.TestCase):
                      ("audit", root, "--out", os.path.join(t, "b"), "--junit", os.path.join(root, "j.xml")),
                      ("split", audit_out, "--out", os.path.join(root, "o")),
                      ("split", audit_out, "--out", os.path.join(t, "s"), "--junit", os.path.join(root, "j.xml")),
-                     ("split", audit_out, "--out", os.path.join(t, "s"), "--junit", os.path.join(root, "c", "j.xml"))]
+                     ("split", audit_out, "--out", os.path.join(t, "s"), "--junit", os.path.join(root, "c", "j.xml")),
+                     ("export", audit_out, "--to", os.path.join(root, "tree")),
+                     ("export", audit_out, "--to", os.path.join(root, "c", "tree"), "--mode", "copy")]
             for args in cases:
                 r = run(*args)
                 self.assertEqual(r.returncode, 2, args)
@@ -893,6 +895,181 @@ class Policy(unittest.TestCase):
             self.assertEqual(summary["exit_status"], r.returncode)
             r = run("audit", root, "--out", os.path.join(t, "o"))
             self.assertNotIn("\033[", r.stdout)
+
+
+def mask_twin_tree(root):
+    """Photographs with mask twins (Pillow-drawn; the truth is constructed here):
+    oak/ and birch/ hold images/ beside masks/ (sibling folders); elm/ holds
+    NNNN.jpg beside NNNN_mask.png; pine/ holds the same names in five subfolders
+    (colliding names within one class); returns the number of images."""
+    import random
+    from PIL import Image, ImageDraw
+    rng = random.Random(7)
+    n = 0
+
+    def photo(path, fmt):
+        im = Image.new("RGB", (64, 48))
+        px = im.load()
+        base = [rng.randrange(256) for _ in range(3)]
+        for y in range(48):
+            for x in range(64):
+                px[x, y] = tuple((b + rng.randrange(-60, 61) + x + y) % 256 for b in base)
+        im.save(path, fmt, **({"quality": 92} if fmt == "JPEG" else {}))
+
+    def mask(path):
+        m = Image.new("L", (64, 48), 0)
+        x, y = rng.randrange(5, 40), rng.randrange(5, 25)
+        ImageDraw.Draw(m).ellipse([x, y, x + 20, y + 18], fill=255)
+        m.save(path, "PNG")
+
+    for cls in ("oak", "birch"):
+        os.makedirs(os.path.join(root, cls, "images"))
+        os.makedirs(os.path.join(root, cls, "masks"))
+        for k in range(10):
+            photo(os.path.join(root, cls, "images", f"{k:04d}.png"), "PNG")
+            mask(os.path.join(root, cls, "masks", f"{k:04d}.png"))
+            n += 1
+    os.makedirs(os.path.join(root, "elm"))
+    for k in range(10):
+        photo(os.path.join(root, "elm", f"{k:04d}.jpg"), "JPEG")
+        mask(os.path.join(root, "elm", f"{k:04d}_mask.png"))
+        n += 1
+    for sub in "abcde":
+        os.makedirs(os.path.join(root, "pine", sub))
+        for k in range(2):
+            photo(os.path.join(root, "pine", sub, f"{k:04d}.png"), "PNG")
+            n += 1
+    return n
+
+
+class Export(unittest.TestCase):
+    """tamis export: every placed manifest row under TREE/<split>/<label>/ with its
+    bytes (links followed), masks in TREE/masks/, lists per split. Names that
+    collide in one class folder get stem~XXH3-64(path)ext, recomputed here with
+    python3-xxhash (the reference implementation's binding); images opened with Pillow."""
+
+    def expected_entries(self, rows):
+        import collections
+        import xxhash
+        by_folder = collections.Counter((r["split"], r["label"], os.path.basename(r["path"])) for r in rows)
+        out = {}
+        for r in rows:
+            name = os.path.basename(r["path"])
+            stem, ext = os.path.splitext(name)
+            mask_ext = os.path.splitext(r["mask_path"])[1] if r["mask_path"] else ""
+            if by_folder[(r["split"], r["label"], name)] > 1:
+                stem = stem + "~" + xxhash.xxh3_64(r["path"].encode()).hexdigest()
+            out[r["path"]] = (os.path.join(r["split"], r["label"], stem + ext),
+                              os.path.join("masks", r["split"], r["label"], stem + mask_ext) if r["mask_path"] else None)
+        return out
+
+    def test_export_lays_out_the_split_in_three_modes(self):
+        with tempfile.TemporaryDirectory() as t:
+            root = os.path.join(t, "data")
+            n = mask_twin_tree(root)
+            out = os.path.join(t, "out")
+            r = run("audit", root, "--out", out, "--no-cache", "--quiet")
+            self.assertIn(r.returncode, (0, 1), r.stderr)
+            with open(os.path.join(out, "manifest.csv"), newline="", encoding="utf-8") as f:
+                all_rows = list(csv.DictReader(f))
+            self.assertEqual(len(all_rows), n)
+            rows = [row for row in all_rows if row["split"] in ("train", "val", "test")]
+            self.assertGreater(len(rows), n - 3)
+            self.assertEqual(sum(1 for row in rows if row["mask_path"]), 30)  # oak, birch, elm
+            expected = self.expected_entries(rows)
+            collided = sum(1 for p, (e, _) in expected.items() if "~" in e)
+            self.assertGreater(collided, 1)  # pine's names collide
+            before = snapshot(root)
+            for mode in ("symlink", "hardlink", "copy"):
+                tree = os.path.join(t, "tree-" + mode)
+                r = run("export", out, "--to", tree, "--mode", mode)
+                self.assertEqual(r.returncode, 0, r.stderr)
+                files = set()
+                for d, _, fs in os.walk(tree):
+                    files.update(os.path.relpath(os.path.join(d, f), tree) for f in fs)
+                want = {"train.txt", "val.txt", "test.txt", "tamis-export.json"}
+                for p, (entry, mask_entry) in expected.items():
+                    want.add(entry)
+                    src = os.path.join(root, p)
+                    dst = os.path.join(tree, entry)
+                    self.assertEqual(read_bytes(dst), read_bytes(src), (mode, p))
+                    if mode == "symlink":
+                        self.assertEqual(os.readlink(dst), src)
+                    else:
+                        self.assertFalse(os.path.islink(dst))
+                        self.assertEqual(os.stat(dst).st_ino == os.stat(src).st_ino, mode == "hardlink")
+                    if mask_entry:
+                        want.add(mask_entry)
+                        mask_src = os.path.join(root, [row for row in rows if row["path"] == p][0]["mask_path"])
+                        self.assertEqual(read_bytes(os.path.join(tree, mask_entry)), read_bytes(mask_src), (mode, p))
+                self.assertEqual(files, want, mode)  # nothing else, nothing excluded
+                for split in ("train", "val", "test"):
+                    listed = read_text(os.path.join(tree, split + ".txt")).splitlines()
+                    self.assertEqual(sorted(listed), sorted(os.path.join(tree, e) for p, (e, _) in expected.items()
+                                                            if e.startswith(split + "/")))
+                self.assertEqual(snapshot(root), before, mode)
+            # A second export into the same folder is refused; --replace replaces it.
+            tree = os.path.join(t, "tree-symlink")
+            r = run("export", out, "--to", tree)
+            self.assertEqual(r.returncode, 2)
+            self.assertIn("--replace", r.stderr)
+            r = run("export", out, "--to", tree, "--replace", "--mode", "copy")
+            self.assertEqual(r.returncode, 0, r.stderr)
+            self.assertFalse(any(os.path.islink(os.path.join(d, f)) for d, _, fs in os.walk(tree) for f in fs))
+            self.assertEqual(sorted(os.listdir(t)), ["data", "out", "tree-copy", "tree-hardlink", "tree-symlink"])
+            # A folder it did not make is never replaced.
+            foreign = os.path.join(t, "foreign")
+            os.makedirs(foreign)
+            with open(os.path.join(foreign, "notes.txt"), "w") as f:
+                f.write("mine")
+            for extra in ((), ("--replace",)):
+                r = run("export", out, "--to", foreign, *extra)
+                self.assertEqual(r.returncode, 2)
+                self.assertIn("not made by tamis export", r.stderr)
+            self.assertEqual(os.listdir(foreign), ["notes.txt"])
+            # A folder that holds ROOT or the outputs is refused.
+            self.assertEqual(run("export", out, "--to", t, "--replace").returncode, 2)
+            # Hard links across file systems: a clear error, no silent copy, nothing left.
+            if os.path.isdir("/dev/shm") and os.stat("/dev/shm").st_dev != os.stat(t).st_dev:
+                shm = tempfile.mkdtemp(dir="/dev/shm")
+                try:
+                    r = run("export", out, "--to", os.path.join(shm, "tree"), "--mode", "hardlink")
+                    self.assertEqual(r.returncode, 3)
+                    self.assertIn("cross file systems", r.stderr)
+                    self.assertEqual(os.listdir(shm), [])
+                finally:
+                    shutil.rmtree(shm)
+            # An outputs folder whose manifest changed after the audit is refused.
+            with open(os.path.join(out, "manifest.csv"), "a", encoding="utf-8") as f:
+                f.write("x\n")
+            r = run("export", out, "--to", os.path.join(t, "late"))
+            self.assertEqual(r.returncode, 3)
+            self.assertFalse(os.path.exists(os.path.join(t, "late")))
+
+    def test_pandas_reads_the_manifest_and_its_paths_open(self):
+        # The loader side: pandas.read_csv with default arguments (python3-pandas),
+        # ROOT from report.json, every placed row opened with Pillow.
+        import pandas
+        from PIL import Image
+        with tempfile.TemporaryDirectory() as t:
+            root = os.path.join(t, "data")
+            n = mask_twin_tree(root)
+            out = os.path.join(t, "out")
+            self.assertIn(run("audit", root, "--out", out, "--no-cache", "--quiet").returncode, (0, 1))
+            df = pandas.read_csv(os.path.join(out, "manifest.csv"))
+            self.assertEqual(len(df), n)
+            self.assertIn("color_mode", df.columns)
+            self.assertIn("finding_codes", df.columns)
+            report_root = load_json(os.path.join(out, "report.json"))["root"]["path"]
+            placed = df[df["split"] != "excluded"]
+            self.assertGreater(len(placed), n - 3)
+            for path, label in zip(placed["path"], placed["label"]):
+                with Image.open(os.path.join(report_root, path)) as im:
+                    im.load()
+                self.assertEqual(path.split("/")[0], label)
+            for split, part in placed.groupby("split"):
+                self.assertIn(split, ("train", "val", "test"))
+                self.assertGreater(len(part), 0)
 
 
 class Cache(unittest.TestCase):

@@ -24,6 +24,10 @@ void write_file_atomically(const std::filesystem::path& target, const std::funct
 // yet committed leaves the previous outputs as they were. Call once, from main.
 void install_interrupt_cleanup();
 
+// A file's size and XXH3-64 (the set file's hash), read whole. Returns an errno
+// (0: fine). (Output files are hashed as they are read back before their fsync.)
+int hash_file(const std::filesystem::path& p, uint64_t& bytes, uint64_t& hash);
+
 // Removes `dir`'s temporaries of the named files (NAME.tmp-PID) whose process no
 // longer runs: what a killed run (SIGKILL, power loss) left. Returns how many.
 size_t remove_stale_temporaries(const std::filesystem::path& dir, const std::vector<std::string>& names);

@@ -21,4 +21,16 @@ KeepMap read_manifest_splits(std::istream& is);
 // The path column of a manifest, in file order (same rules as above).
 std::vector<std::string> read_manifest_paths(std::istream& is);
 
+// A manifest row as `tamis export` needs it: names as bytes (unescaped where
+// name_escape says percent), the split (excluded for excluded or empty).
+struct ManifestRow {
+  std::string path, label, mask_path;
+  Placement split = Placement::excluded;
+};
+
+// Every row, in file order. Throws std::runtime_error naming the record when
+// the header lacks path, label, split or mask_path, a row has another field
+// count than the header (cut off or malformed), or a split or escape is unknown.
+std::vector<ManifestRow> read_manifest_rows(std::istream& is);
+
 }  // namespace tamis
