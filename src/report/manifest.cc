@@ -59,6 +59,18 @@ RecordFlags record_flags(const AuditResult& result) {
     }
   }
   std::sort(out.pairs.begin(), out.pairs.end());
+  // An image carries its mask's findings too (an empty mask, a mask of another
+  // size): the mask has no row of its own.
+  std::vector<std::pair<uint32_t, uint32_t>> carried;
+  for (size_t i = 0; i < records.size() && i < result.masks.mask_of.size(); ++i) {
+    const int64_t m = result.masks.mask_of[i];
+    if (m < 0) continue;
+    auto lo = std::lower_bound(out.pairs.begin(), out.pairs.end(), std::pair<uint32_t, uint32_t>(static_cast<uint32_t>(m), 0u));
+    for (; lo != out.pairs.end() && lo->first == static_cast<uint32_t>(m); ++lo)
+      carried.emplace_back(static_cast<uint32_t>(i), lo->second);
+  }
+  out.pairs.insert(out.pairs.end(), carried.begin(), carried.end());
+  std::sort(out.pairs.begin(), out.pairs.end());
   out.pairs.erase(std::unique(out.pairs.begin(), out.pairs.end()), out.pairs.end());
   return out;
 }

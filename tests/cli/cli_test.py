@@ -1054,9 +1054,14 @@ class Export(unittest.TestCase):
         with tempfile.TemporaryDirectory() as t:
             root = os.path.join(t, "data")
             n = mask_twin_tree(root)
+            # One empty mask: its image's row carries the mask's finding (the mask has no row).
+            Image.new("L", (64, 48), 0).save(os.path.join(root, "oak", "masks", "0003.png"))
             out = os.path.join(t, "out")
             self.assertIn(run("audit", root, "--out", out, "--no-cache", "--quiet").returncode, (0, 1))
             df = pandas.read_csv(os.path.join(out, "manifest.csv"))
+            codes = dict(zip(df["path"], df["finding_codes"].fillna("")))
+            self.assertIn("mask-empty", codes["oak/images/0003.png"].split(";"))
+            self.assertNotIn("mask-empty", codes["oak/images/0002.png"].split(";"))
             self.assertEqual(len(df), n)
             self.assertIn("color_mode", df.columns)
             self.assertIn("finding_codes", df.columns)
