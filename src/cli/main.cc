@@ -19,6 +19,7 @@
 #include "tamis/base/atomic_file.h"
 #include "tamis/demo/demo.h"
 #include "tamis/pipeline/audit.h"
+#include "tamis/place/leave_out.h"
 #include "tamis/place/manifest_reader.h"
 #include "tamis/read/cache.h"
 #include "tamis/report/export_tree.h"
@@ -128,6 +129,8 @@ struct SplitOptions {
   uint64_t per_class = 0;
   uint32_t folds = 0;
   bool resplit = false;
+  std::vector<std::string> exclude_flagged;
+  bool one_per_group = false;
 };
 
 void add_split_options(CLI::App* cmd, SplitOptions& o) {
@@ -150,6 +153,28 @@ void add_split_options(CLI::App* cmd, SplitOptions& o) {
   cmd->add_option("--folds", o.folds, "deal train+val into K folds (stratified, groups whole): a fold column")
       ->check(CLI::Range(2u, 1000u));
   cmd->add_flag("--resplit", o.resplit, "in a tree already split into train/val/test folders, draw a new split");
+  cmd->add_option("--exclude-flagged", o.exclude_flagged,
+                  "leave out of the split the images that findings of these codes name (comma-separated; "
+                  "e.g. label-conflict,mask-size-mismatch); the manifest's exclusion column says why")
+      ->delimiter(',');
+  cmd->add_flag("--one-per-group", o.one_per_group,
+                "keep one image of each look-alike group in the split (the most pixels, then the first path)");
+}
+
+// The split's leave-out settings: the command line's and the policy's together.
+bool resolve_leave_out(const SplitOptions& o, const tamis::Policy& policy, tamis::SplitSettings& s) {
+  for (const std::string& code : o.exclude_flagged)
+    if (!tamis::excludable_code(code)) {
+      std::fprintf(stderr, "tamis: --exclude-flagged '%s' is not a finding code that names images before the split (docs/findings.md)\n",
+                   safe(code).c_str());
+      return false;
+    }
+  s.exclude_flagged = policy.exclude_flagged;
+  s.exclude_flagged.insert(s.exclude_flagged.end(), o.exclude_flagged.begin(), o.exclude_flagged.end());
+  std::sort(s.exclude_flagged.begin(), s.exclude_flagged.end());
+  s.exclude_flagged.erase(std::unique(s.exclude_flagged.begin(), s.exclude_flagged.end()), s.exclude_flagged.end());
+  s.one_per_group = o.one_per_group || policy.one_per_group;
+  return true;
 }
 
 // Turns the options into settings and the keep map; prints and returns false when bad.
@@ -293,6 +318,7 @@ int run_audit_command(const std::string& root, const std::string& out, const Spl
   tamis::Baseline baseline;
   bool have_baseline = false;
   if (!resolve_judge(jo, place.policy, baseline, have_baseline)) return kExitBadUsage;
+  if (!resolve_leave_out(so, place.policy, place.split)) return kExitBadUsage;
   place.keep = have_keep ? &keep : nullptr;
   place.baseline = have_baseline ? &baseline : nullptr;
   settings.groups.radius = place.policy.lookalike.radius;
@@ -359,6 +385,7 @@ int run_split_command(const std::string& dir, const std::string& out, const Spli
   tamis::Baseline baseline;
   bool have_baseline = false;
   if (!resolve_judge(jo, place.policy, baseline, have_baseline)) return kExitBadUsage;
+  if (!resolve_leave_out(so, place.policy, place.split)) return kExitBadUsage;
   place.keep = have_keep ? &keep : nullptr;
   place.baseline = have_baseline ? &baseline : nullptr;
   tamis::AuditIndex index;

@@ -6,6 +6,7 @@
 #include <thread>
 
 #include "tamis/place/checks.h"
+#include "tamis/place/leave_out.h"
 #include "tamis/read/tree_reader.h"
 
 namespace tamis {
@@ -95,6 +96,23 @@ AuditResult place(AuditIndex index, const PlaceOptions& opt) {
       if (it != opt.keep->end()) items[i].previous = it->second;
     }
   }
+  auto run_checks = [&] {
+    check_inventory(r.records, r.labels, r.walk, r.findings);
+    check_masks(r.records, r.masks, r.findings);
+    check_groups(r.records, r.labels, r.groups, r.settings.groups, r.findings);
+    check_images(r.records, r.labels, r.placed.checks, r.findings);
+    check_labels(r.records, r.labels, r.walk, r.placed.checks, r.findings);
+  };
+  // Images left out by their findings or as extra members of a group: the
+  // checks first, then the split among what is left (place/leave_out.h).
+  const bool leaving_out = !split.exclude_flagged.empty() || split.one_per_group;
+  std::vector<Exclusion> left_out;
+  if (leaving_out) {
+    run_checks();
+    left_out = leave_out(r.records, r.labels, r.masks, r.groups, r.findings, split);
+    for (size_t i = 0; i < r.records.size(); ++i)
+      if (left_out[i] != Exclusion::none) items[i].eligible = false;
+  }
   if (keep_folders) {
     // The tree's own split is kept file by file (leaks are reported, not repaired).
     r.split.placement.assign(r.records.size(), Placement::excluded);
@@ -118,18 +136,22 @@ AuditResult place(AuditIndex index, const PlaceOptions& opt) {
       }
     });
   }
-  try {
-    check_inventory(r.records, r.labels, r.walk, r.findings);
-    check_masks(r.records, r.masks, r.findings);
-    check_groups(r.records, r.labels, r.groups, r.settings.groups, r.findings);
-    check_images(r.records, r.labels, r.placed.checks, r.findings);
-    check_labels(r.records, r.labels, r.walk, r.placed.checks, r.findings);
-  } catch (...) {
-    if (splitter.joinable()) splitter.join();
-    throw;
+  if (!leaving_out) {
+    try {
+      run_checks();  // while the split runs
+    } catch (...) {
+      if (splitter.joinable()) splitter.join();
+      throw;
+    }
   }
   if (splitter.joinable()) splitter.join();
   if (split_error) std::rethrow_exception(split_error);
+  for (size_t i = 0; i < left_out.size(); ++i)
+    if (left_out[i] != Exclusion::none) {
+      r.split.placement[i] = Placement::excluded;
+      r.split.fold[i] = -1;
+      r.split.why[i] = left_out[i];
+    }
   check_split(r.records, r.labels, r.split, split, keep_folders, r.findings);
   clock.lap("checks + split");
 

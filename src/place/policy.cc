@@ -1,9 +1,12 @@
 #include "tamis/place/policy.h"
 
+#include <algorithm>
 #include <fstream>
 #include <sstream>
 
 #include <nlohmann/json.hpp>
+
+#include "tamis/place/leave_out.h"
 
 namespace tamis {
 
@@ -69,12 +72,27 @@ Policy parse_policy(const std::string& text) {
         else if (name == "small_side") p.lookalike.match.small_side = number_at(v, "lookalike.small_side", 0, 4096);
         else throw PolicyError("policy: lookalike." + name + ": no such setting (radius, min_correlation, max_local, max_chroma, max_chroma_local, fit_floor, small_side)");
       }
+    } else if (key == "exclude_flagged") {
+      if (!value.is_array()) throw PolicyError("policy: exclude_flagged must be a list of finding codes");
+      for (const auto& c : value) {
+        if (!c.is_string()) throw PolicyError("policy: exclude_flagged must be a list of finding codes");
+        const std::string code = c.get<std::string>();
+        if (!excludable_code(code))
+          throw PolicyError("policy: exclude_flagged: '" + code +
+                            "' is not a finding code that names images before the split (docs/findings.md)");
+        p.exclude_flagged.push_back(code);
+      }
+      std::sort(p.exclude_flagged.begin(), p.exclude_flagged.end());
+      p.exclude_flagged.erase(std::unique(p.exclude_flagged.begin(), p.exclude_flagged.end()), p.exclude_flagged.end());
+    } else if (key == "one_per_group") {
+      if (!value.is_boolean()) throw PolicyError("policy: one_per_group must be true or false");
+      p.one_per_group = value.get<bool>();
     } else if (key == "fail_on") {
       if (value == "new") p.fail_on_new_only = true;
       else if (value == "all") p.fail_on_new_only = false;
       else throw PolicyError("policy: fail_on must be \"all\" or \"new\"");
     } else {
-      throw PolicyError("policy: " + key + ": no such key (severity, thresholds, lookalike, fail_on)");
+      throw PolicyError("policy: " + key + ": no such key (severity, thresholds, lookalike, exclude_flagged, one_per_group, fail_on)");
     }
   }
   return p;

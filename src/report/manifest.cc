@@ -75,13 +75,43 @@ RecordFlags record_flags(const AuditResult& result) {
   return out;
 }
 
+namespace {
+// Why a row is excluded (empty when it is placed): docs/outputs.md, `exclusion`.
+std::string exclusion_of(const AuditResult& r, size_t i, std::string_view codes) {
+  if (r.split.placement[i] != Placement::excluded) return {};
+  const Exclusion why = i < r.split.why.size() ? r.split.why[i] : Exclusion::none;
+  if (why == Exclusion::capped) return "per-class";
+  if (why == Exclusion::one_per_group) return "one-per-group";
+  if (why == Exclusion::flagged) {
+    std::string out = "flagged:";
+    const auto& chosen = r.placed.split.exclude_flagged;
+    size_t start = 0, kept = 0;
+    while (start <= codes.size()) {
+      size_t end = codes.find(';', start);
+      if (end == std::string_view::npos) end = codes.size();
+      const std::string_view code = codes.substr(start, end - start);
+      if (std::binary_search(chosen.begin(), chosen.end(), code)) {
+        if (kept++) out.push_back(';');
+        out.append(code);
+      }
+      start = end + 1;
+    }
+    return out;
+  }
+  if (r.records[i].kind != FileKind::image) return "unreadable";
+  if (r.labels.label_of[i] < 0) return "no-class";
+  if (r.labels.pre_split && !r.placed.split.resplit && r.labels.given_split[i] == SplitName::none) return "no-split-folder";
+  return "not-placed";
+}
+}  // namespace
+
 void write_manifest(std::ostream& os, const AuditResult& r) {
   // color_mode and finding_codes: not the names of pandas DataFrame attributes
   // (df.mode and df.flags are methods, not these columns); docs/outputs.md.
   static const char* kHeader[] = {"path", "label", "split", "group", "width", "height", "color_mode", "bit_depth",
                                   "format", "mask_path", "finding_codes", "reason", "bytes", "orientation", "frames",
                                   "content_hash", "fold", "brightness", "contrast", "entropy", "sharpness",
-                                  "name_escape"};
+                                  "name_escape", "exclusion"};
   std::string line;
   for (size_t c = 0; c < std::size(kHeader); ++c) {
     if (c) line.push_back(',');
@@ -151,7 +181,9 @@ void write_manifest(std::ostream& os, const AuditResult& r) {
     } else {
       line.append(",,,,");
     }
-    line.append(escaped ? ",percent\n" : ",\n");
+    line.append(escaped ? ",percent," : ",,");
+    append_csv_field(line, exclusion_of(r, i, record_codes));
+    line.push_back('\n');
     os << line;
   }
 }

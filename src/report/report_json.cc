@@ -22,6 +22,8 @@ json settings_json(const TreeSettings& s, const PlaceSettings& placed) {
       {"per_class", placed.split.per_class},
       {"folds", placed.split.folds},
       {"resplit", placed.split.resplit},
+      {"exclude_flagged", placed.split.exclude_flagged},
+      {"one_per_group", placed.split.one_per_group},
       {"max_pixels", s.read.decode.max_pixels},
       {"max_image_bytes", s.read.decode.max_image_bytes},
       {"max_bytes", s.read.max_bytes},

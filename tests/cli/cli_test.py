@@ -1077,6 +1077,89 @@ class Export(unittest.TestCase):
                 self.assertGreater(len(part), 0)
 
 
+def largest_remainder(n, percent):
+    """Hamilton's method (docs/splits.md): floor shares, then one each to the largest
+    fractional parts, ties to the earlier split."""
+    base = [n * p // 100 for p in percent]
+    order = sorted(range(3), key=lambda k: (-(n * percent[k] % 100), k))
+    for k in order[:n - sum(base)]:
+        base[k] += 1
+    return base
+
+
+class LeaveOut(unittest.TestCase):
+    """--exclude-flagged and --one-per-group (docs/splits.md, Leaving images out)."""
+
+    def read(self, out):
+        with open(os.path.join(out, "manifest.csv"), newline="", encoding="utf-8") as f:
+            return list(csv.DictReader(f))
+
+    def test_flagged_images_and_extra_group_members_stay_out_of_the_split(self):
+        with tempfile.TemporaryDirectory() as t:
+            root = os.path.join(t, "demo")
+            self.assertEqual(run("demo", root).returncode, 0)
+            out = os.path.join(t, "out")
+            r = run("audit", root, "--out", out, "--no-cache", "--exclude-flagged", "label-conflict", "--one-per-group")
+            self.assertEqual(r.returncode, 1, r.stderr)
+            validate_report(self, os.path.join(out, "report.json"))
+            report = load_json(os.path.join(out, "report.json"))
+            self.assertEqual(report["settings"]["exclude_flagged"], ["label-conflict"])
+            self.assertTrue(report["settings"]["one_per_group"])
+            rows = self.read(out)
+            by_path = {row["path"]: row for row in rows}
+            conflicted = {p for f in report["findings"] if f["code"] == "label-conflict" for p in f["paths"]}
+            self.assertGreater(len(conflicted), 1)
+            for p in conflicted:
+                self.assertEqual(by_path[p]["split"], "excluded")
+                self.assertEqual(by_path[p]["exclusion"], "flagged:label-conflict")
+            for row in rows:  # every excluded row says why; a placed one says nothing
+                self.assertEqual(row["split"] == "excluded", row["exclusion"] != "", row)
+            kept_one = 0
+            for g in report["groups"]:
+                members = [by_path[p] for p in g["paths"]]
+                placed = [m for m in members if m["split"] != "excluded"]
+                self.assertLessEqual(len(placed), 1, g["id"])
+                others = [m for m in members if m["exclusion"] == "one-per-group"]
+                if others:
+                    kept_one += 1
+                    self.assertEqual(len(placed), 1)
+                    # The one kept: the most pixels, then the first path.
+                    best = min(placed + others, key=lambda m: (-int(m["width"]) * int(m["height"]), m["path"].encode()))
+                    self.assertEqual(placed[0]["path"], best["path"])
+            self.assertGreater(kept_one, 0)
+            # Stratified among what is left: every placed unit is one image now, so
+            # each class meets its largest-remainder targets exactly.
+            per_class = {}
+            for row in rows:
+                if row["split"] != "excluded":
+                    per_class.setdefault(row["label"], [0, 0, 0])[("train", "val", "test").index(row["split"])] += 1
+            for label, counts in per_class.items():
+                self.assertEqual(counts, largest_remainder(sum(counts), (70, 15, 15)), label)
+            # The policy keys give the same; so does `tamis split` from the saved index.
+            policy = os.path.join(t, "policy.json")
+            with open(policy, "w") as f:
+                json.dump({"exclude_flagged": ["label-conflict"], "one_per_group": True}, f)
+            out2 = os.path.join(t, "out2")
+            self.assertEqual(run("audit", root, "--out", out2, "--no-cache", "--policy", policy).returncode, 1)
+            self.assertEqual(read_bytes(os.path.join(out2, "manifest.csv")), read_bytes(os.path.join(out, "manifest.csv")))
+            out3 = os.path.join(t, "out3")
+            self.assertEqual(run("split", out2, "--out", out3, "--exclude-flagged", "label-conflict", "--one-per-group").returncode, 1)
+            self.assertEqual(read_bytes(os.path.join(out3, "manifest.csv")), read_bytes(os.path.join(out, "manifest.csv")))
+            # Without the options nothing is left out for these reasons.
+            out4 = os.path.join(t, "out4")
+            run("audit", root, "--out", out4, "--no-cache")
+            self.assertFalse(any(row["exclusion"].startswith(("flagged", "one-per-group")) for row in self.read(out4)))
+            # A code the split makes itself, or none at all: exit 2, nothing read.
+            for code in ("class-capped", "no-such-code"):
+                r = run("audit", root, "--out", os.path.join(t, "bad"), "--exclude-flagged", code)
+                self.assertEqual(r.returncode, 2, code)
+                self.assertIn(code, r.stderr)
+                with open(policy, "w") as f:
+                    json.dump({"exclude_flagged": [code]}, f)
+                self.assertEqual(run("audit", root, "--out", os.path.join(t, "bad"), "--policy", policy).returncode, 2)
+            self.assertFalse(os.path.exists(os.path.join(t, "bad")))
+
+
 class Cache(unittest.TestCase):
     def test_a_killed_run_then_a_clean_rerun_gives_identical_outputs(self):
         import signal

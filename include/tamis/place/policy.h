@@ -32,6 +32,8 @@ struct Policy {
   CheckSettings thresholds;
   double max_unreadable_share = 1.0;  // above this share of unreadable image files: too-many-unreadable (error)
   bool fail_on_new_only = false;
+  std::vector<std::string> exclude_flagged;  // "exclude_flagged": codes whose images the split leaves out (leave_out.h)
+  bool one_per_group = false;                // "one_per_group": one member of each look-alike group in the split
   GroupSettings lookalike;  // "lookalike": radius, min_correlation, max_local, max_chroma, max_chroma_local, fit_floor, small_side (groups.h, match.h)
 };
 

@@ -50,6 +50,11 @@ struct SplitSettings {
   uint64_t per_class = 0;  // 0: no cap
   uint32_t folds = 0;      // 0: no folds; else >= 2
   bool resplit = false;    // pre-split trees: draw a new split instead of keeping the folders'
+  // Kept out of the split (docs/splits.md, Leaving images out): images named by a
+  // finding of one of these codes (or whose mask is), and, with one_per_group,
+  // every member of a look-alike group but one (the most pixels, then the first path).
+  std::vector<std::string> exclude_flagged;  // sorted, distinct
+  bool one_per_group = false;
 };
 
 // Parses "70/15/15" or "80/20" (train/test). Throws std::invalid_argument with a
@@ -72,8 +77,8 @@ struct SplitItem {
 // Earlier placements to keep (path -> split), e.g. read from a previous manifest.
 using KeepMap = std::unordered_map<std::string, Placement>;
 
-// Why an eligible item ended up excluded.
-enum class Exclusion : uint8_t { none, not_eligible, capped };
+// Why an item ended up excluded (the manifest's `exclusion` column).
+enum class Exclusion : uint8_t { none, not_eligible, capped, flagged, one_per_group };
 
 struct SplitOutcome {
   std::vector<Placement> placement;  // per item
