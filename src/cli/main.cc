@@ -131,6 +131,7 @@ struct SplitOptions {
   bool resplit = false;
   std::vector<std::string> exclude_flagged;
   bool one_per_group = false;
+  std::vector<std::string> class_aliases, exclude_classes;
 };
 
 void add_split_options(CLI::App* cmd, SplitOptions& o) {
@@ -159,6 +160,9 @@ void add_split_options(CLI::App* cmd, SplitOptions& o) {
       ->delimiter(',');
   cmd->add_flag("--one-per-group", o.one_per_group,
                 "keep one image of each look-alike group in the split (the most pixels, then the first path)");
+  cmd->add_option("--class-alias", o.class_aliases,
+                  "VARIANT=CLASS: count the images of class VARIANT as CLASS (repeatable; the data set is not touched)");
+  cmd->add_option("--exclude-class", o.exclude_classes, "leave the class NAME out of the checks and the split (repeatable)");
 }
 
 // The split's leave-out settings: the command line's and the policy's together.
@@ -174,6 +178,28 @@ bool resolve_leave_out(const SplitOptions& o, const tamis::Policy& policy, tamis
   std::sort(s.exclude_flagged.begin(), s.exclude_flagged.end());
   s.exclude_flagged.erase(std::unique(s.exclude_flagged.begin(), s.exclude_flagged.end()), s.exclude_flagged.end());
   s.one_per_group = o.one_per_group || policy.one_per_group;
+  return true;
+}
+
+// The class map: the policy's, then the command line's (which wins for a variant
+// both name); printed and false when it is not valid.
+bool resolve_classes(const SplitOptions& o, const tamis::Policy& policy, tamis::ClassMap& map) {
+  map = policy.classes;
+  for (const std::string& a : o.class_aliases) {
+    const size_t eq = a.find('=');
+    if (eq == std::string::npos) {
+      std::fprintf(stderr, "tamis: --class-alias '%s' must be VARIANT=CLASS\n", safe(a).c_str());
+      return false;
+    }
+    map.aliases[a.substr(0, eq)] = a.substr(eq + 1);
+  }
+  map.excluded.insert(o.exclude_classes.begin(), o.exclude_classes.end());
+  try {
+    tamis::validate_class_map(map);
+  } catch (const std::invalid_argument& e) {
+    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
+    return false;
+  }
   return true;
 }
 
@@ -319,6 +345,7 @@ int run_audit_command(const std::string& root, const std::string& out, const Spl
   bool have_baseline = false;
   if (!resolve_judge(jo, place.policy, baseline, have_baseline)) return kExitBadUsage;
   if (!resolve_leave_out(so, place.policy, place.split)) return kExitBadUsage;
+  if (!resolve_classes(so, place.policy, place.classes)) return kExitBadUsage;
   place.keep = have_keep ? &keep : nullptr;
   place.baseline = have_baseline ? &baseline : nullptr;
   settings.groups.radius = place.policy.lookalike.radius;
@@ -386,6 +413,7 @@ int run_split_command(const std::string& dir, const std::string& out, const Spli
   bool have_baseline = false;
   if (!resolve_judge(jo, place.policy, baseline, have_baseline)) return kExitBadUsage;
   if (!resolve_leave_out(so, place.policy, place.split)) return kExitBadUsage;
+  if (!resolve_classes(so, place.policy, place.classes)) return kExitBadUsage;
   place.keep = have_keep ? &keep : nullptr;
   place.baseline = have_baseline ? &baseline : nullptr;
   tamis::AuditIndex index;

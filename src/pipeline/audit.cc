@@ -78,6 +78,10 @@ AuditResult place(AuditIndex index, const PlaceOptions& opt) {
   static_cast<AuditIndex&>(r) = std::move(index);
   r.placed.split = opt.split;
   r.placed.checks = opt.policy.thresholds;
+  r.placed.classes = opt.classes;
+  // The classes this run trains on: aliases merged, left-out classes unlabelled
+  // (the saved index keeps the labels as read).
+  r.class_mapping = apply_class_map(r.labels, opt.classes);
   r.fail_on_new_only = opt.policy.fail_on_new_only;
   StageClock clock(&r.times);
 
@@ -97,7 +101,8 @@ AuditResult place(AuditIndex index, const PlaceOptions& opt) {
     }
   }
   auto run_checks = [&] {
-    check_inventory(r.records, r.labels, r.walk, r.findings);
+    // The inventory is of the files as read: a left-out class still has its folder.
+    check_inventory(r.records, r.class_mapping.applied ? r.class_mapping.as_read : r.labels, r.walk, r.findings);
     check_masks(r.records, r.masks, r.findings);
     check_groups(r.records, r.labels, r.groups, r.settings.groups, r.findings);
     check_images(r.records, r.labels, r.placed.checks, r.findings);
@@ -146,6 +151,8 @@ AuditResult place(AuditIndex index, const PlaceOptions& opt) {
   }
   if (splitter.joinable()) splitter.join();
   if (split_error) std::rethrow_exception(split_error);
+  for (size_t i = 0; i < r.class_mapping.class_excluded.size(); ++i)
+    if (r.class_mapping.class_excluded[i]) r.split.why[i] = Exclusion::class_excluded;
   for (size_t i = 0; i < left_out.size(); ++i)
     if (left_out[i] != Exclusion::none) {
       r.split.placement[i] = Placement::excluded;

@@ -84,6 +84,18 @@ Policy parse_policy(const std::string& text) {
       }
       std::sort(p.exclude_flagged.begin(), p.exclude_flagged.end());
       p.exclude_flagged.erase(std::unique(p.exclude_flagged.begin(), p.exclude_flagged.end()), p.exclude_flagged.end());
+    } else if (key == "class_aliases") {
+      if (!value.is_object()) throw PolicyError("policy: class_aliases must be an object {\"variant\": \"class\"}");
+      for (const auto& [from, to] : value.items()) {
+        if (!to.is_string()) throw PolicyError("policy: class_aliases." + from + " must be a class name");
+        p.classes.aliases[from] = to.get<std::string>();
+      }
+    } else if (key == "exclude_classes") {
+      if (!value.is_array()) throw PolicyError("policy: exclude_classes must be a list of class names");
+      for (const auto& c : value) {
+        if (!c.is_string()) throw PolicyError("policy: exclude_classes must be a list of class names");
+        p.classes.excluded.insert(c.get<std::string>());
+      }
     } else if (key == "one_per_group") {
       if (!value.is_boolean()) throw PolicyError("policy: one_per_group must be true or false");
       p.one_per_group = value.get<bool>();
@@ -92,8 +104,13 @@ Policy parse_policy(const std::string& text) {
       else if (value == "all") p.fail_on_new_only = false;
       else throw PolicyError("policy: fail_on must be \"all\" or \"new\"");
     } else {
-      throw PolicyError("policy: " + key + ": no such key (severity, thresholds, lookalike, exclude_flagged, one_per_group, fail_on)");
+      throw PolicyError("policy: " + key + ": no such key (severity, thresholds, lookalike, exclude_flagged, one_per_group, class_aliases, exclude_classes, fail_on)");
     }
+  }
+  try {
+    validate_class_map(p.classes);
+  } catch (const std::invalid_argument& e) {
+    throw PolicyError(std::string("policy: ") + e.what());
   }
   return p;
 }

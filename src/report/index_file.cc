@@ -77,7 +77,8 @@ std::vector<uint8_t> cbor_head(uint8_t major, uint64_t n) {
 }
 }  // namespace
 
-void save_index(const std::filesystem::path& file, const AuditIndex& x, StagedFiles* staged) {
+void save_index(const std::filesystem::path& file, const AuditIndex& x, StagedFiles* staged, const Labelling* as_read) {
+  const Labelling& labels = as_read ? *as_read : x.labels;
   json j;
   j["format"] = "tamis-index";
   j["version"] = kIndexVersion;
@@ -99,7 +100,7 @@ void save_index(const std::filesystem::path& file, const AuditIndex& x, StagedFi
                  {"max_imbalance", cs.max_imbalance}, {"outlier_z", cs.outlier_z}};
   // Arrays with an entry a record are written straight into the stream below;
   // here they are empty stand-ins that keep their place among the keys.
-  j["labels"] = {{"pre_split", x.labels.pre_split}, {"names", bins(x.labels.names)}, {"label_of", json::array()},
+  j["labels"] = {{"pre_split", labels.pre_split}, {"names", bins(labels.names)}, {"label_of", json::array()},
                  {"given_split", json::array()}};
   json groups = json::array();
   for (const auto& g : x.groups.groups) {
@@ -162,8 +163,8 @@ void save_index(const std::filesystem::path& file, const AuditIndex& x, StagedFi
              put(one);
            }
          }},
-        {"/labels/label_of", [&] { put_ints(x.labels.label_of); }},
-        {"/labels/given_split", [&] { put_ints(x.labels.given_split); }},  // -1 for none
+        {"/labels/label_of", [&] { put_ints(labels.label_of); }},
+        {"/labels/given_split", [&] { put_ints(labels.given_split); }},  // -1 for none
         {"/masks/mask_of", [&] { put_ints(x.masks.mask_of); }},
         {"/thumbs",
          [&] {

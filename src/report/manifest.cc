@@ -82,6 +82,7 @@ std::string exclusion_of(const AuditResult& r, size_t i, std::string_view codes)
   const Exclusion why = i < r.split.why.size() ? r.split.why[i] : Exclusion::none;
   if (why == Exclusion::capped) return "per-class";
   if (why == Exclusion::one_per_group) return "one-per-group";
+  if (why == Exclusion::class_excluded) return "class-excluded";
   if (why == Exclusion::flagged) {
     std::string out = "flagged:";
     const auto& chosen = r.placed.split.exclude_flagged;
@@ -139,7 +140,12 @@ void write_manifest(std::ostream& os, const AuditResult& r) {
     bool probed = rec.probe.format != Format::unknown;
     // Names are bytes; a row whose path, label or mask path is not UTF-8 writes
     // all three in the percent escape (text.h) and says so in name_escape.
-    const std::string_view label = r.labels.label_of[i] >= 0 ? std::string_view(r.labels.names[r.labels.label_of[i]]) : "";
+    // A row of a left-out class shows the class it was read with.
+    const bool left_class = r.class_mapping.applied && r.class_mapping.class_excluded[i];
+    const std::string_view label =
+        r.labels.label_of[i] >= 0 ? std::string_view(r.labels.names[r.labels.label_of[i]])
+        : left_class ? std::string_view(r.class_mapping.as_read.names[r.class_mapping.as_read.label_of[i]])
+                     : "";
     const std::string_view mask = r.masks.mask_of[i] >= 0 ? std::string_view(r.records[static_cast<size_t>(r.masks.mask_of[i])].path) : "";
     const bool escaped = !is_utf8(rec.path) || !is_utf8(label) || !is_utf8(mask);
     std::string escaped_path, escaped_label, escaped_mask;  // filled only for an escaped row

@@ -143,7 +143,8 @@ void write_outputs(const std::filesystem::path& out_dir, const AuditResult& resu
     StageClock c(&table_times);
     staged.write(out_dir / "manifest.csv", [&](std::ostream& os) { write_manifest(os, result); });
     c.lap("manifest.csv");
-    save_index(out_dir / kIndexFileName, result, &staged);
+    save_index(out_dir / kIndexFileName, result, &staged,
+               result.class_mapping.applied ? &result.class_mapping.as_read : nullptr);
     c.lap("index.cbor");
     if (!junit_file.empty()) {  // staged with the others: all land together or none
       staged.write(junit_file, [&](std::ostream& os) { write_junit(os, result); });

@@ -120,6 +120,20 @@ void classes(std::ostringstream& o, const json& report) {
   }
   o << "</table>";
   if (cl.size() > kMaxRows) o << "<p class=\"note\">First " << kMaxRows << " of " << cl.size() << " classes.</p>";
+  // The class map this run applied (--class-alias, --exclude-class, the policy).
+  const json& map = object_at(report, "class_mapping");
+  const json& aliases = array_at(map, "aliases");
+  const json& left = array_at(map, "excluded");
+  if (!aliases.empty() || !left.empty()) {
+    o << "<table><tr><th>class as read</th><th>counted as</th><th class=\"num\">images</th></tr>";
+    for (const auto& a : aliases)
+      o << "<tr><td class=\"path\">" << esc(a.value("from", json(""))) << "</td><td class=\"path\">"
+        << esc(a.value("to", json(""))) << "</td><td class=\"num\">" << a.value("images", uint64_t{0}) << "</td></tr>";
+    for (const auto& e : left)
+      o << "<tr><td class=\"path\">" << esc(e.value("label", json(""))) << "</td><td>left out</td><td class=\"num\">"
+        << e.value("images", uint64_t{0}) << "</td></tr>";
+    o << "</table>";
+  }
   o << "</section>\n";
 }
 

@@ -24,6 +24,8 @@ json settings_json(const TreeSettings& s, const PlaceSettings& placed) {
       {"resplit", placed.split.resplit},
       {"exclude_flagged", placed.split.exclude_flagged},
       {"one_per_group", placed.split.one_per_group},
+      {"class_aliases", placed.classes.aliases},
+      {"exclude_classes", placed.classes.excluded},
       {"max_pixels", s.read.decode.max_pixels},
       {"max_image_bytes", s.read.decode.max_image_bytes},
       {"max_bytes", s.read.max_bytes},
@@ -106,6 +108,11 @@ void add_classes(json& j, const AuditResult& r) {
     classes.push_back(std::move(entry));
   }
   j["classes"] = std::move(classes);
+  // The class map (aliases, left-out classes) with the images each entry moved.
+  json aliases = json::array(), left = json::array();
+  for (const auto& a : r.class_mapping.aliases) aliases.push_back({{"from", a.from}, {"to", a.to}, {"images", a.images}});
+  for (const auto& e : r.class_mapping.excluded) left.push_back({{"label", e.label}, {"images", e.images}});
+  j["class_mapping"] = {{"aliases", aliases}, {"excluded", left}};
   Balance bal = class_balance(r.records, r.labels);
   j["balance"] = {{"largest", bal.largest}, {"smallest", bal.smallest}, {"imbalance_ratio", bal.imbalance_ratio},
                   {"normalized_entropy", bal.normalized_entropy}};

@@ -1160,6 +1160,72 @@ class LeaveOut(unittest.TestCase):
             self.assertFalse(os.path.exists(os.path.join(t, "bad")))
 
 
+class ClassMapping(unittest.TestCase):
+    """--class-alias and --exclude-class (docs/labels.md): the run's classes change,
+    the data set and the saved index's labels do not."""
+
+    def test_aliases_and_left_out_classes_reach_every_output(self):
+        with tempfile.TemporaryDirectory() as t:
+            root = os.path.join(t, "demo")
+            self.assertEqual(run("demo", root).returncode, 0)
+            before = snapshot(root)
+            plain, out = os.path.join(t, "plain"), os.path.join(t, "out")
+            run("audit", root, "--out", plain, "--no-cache")
+            r = run("audit", root, "--out", out, "--no-cache", "--class-alias", "polka-dots=polka_dots",
+                    "--exclude-class", "herringbone", "--exclude-class", "no_such_class")
+            self.assertIn(r.returncode, (0, 1), r.stderr)
+            self.assertEqual(snapshot(root), before)
+            validate_report(self, os.path.join(out, "report.json"))
+            report, plain_report = load_json(os.path.join(out, "report.json")), load_json(os.path.join(plain, "report.json"))
+            with open(os.path.join(out, "manifest.csv"), newline="", encoding="utf-8") as f:
+                rows = list(csv.DictReader(f))
+            folder = lambda row: row["path"].split("/")[0]
+            moved = [row for row in rows if folder(row) == "polka-dots"]
+            left = [row for row in rows if folder(row) == "herringbone"]
+            self.assertTrue(moved and left)
+            for row in moved:
+                self.assertEqual(row["label"], "polka_dots")
+            for row in left:
+                self.assertEqual((row["label"], row["split"], row["exclusion"]), ("herringbone", "excluded", "class-excluded"))
+            self.assertEqual(report["class_mapping"], {
+                "aliases": [{"from": "polka-dots", "to": "polka_dots", "images": len(moved)}],
+                "excluded": [{"label": "herringbone", "images": len(left)}, {"label": "no_such_class", "images": 0}]})
+            self.assertEqual(report["settings"]["class_aliases"], {"polka-dots": "polka_dots"})
+            labels = [c["label"] for c in report["classes"]]
+            self.assertNotIn("herringbone", labels)
+            self.assertNotIn("polka-dots", labels)
+            codes = {f["code"] for f in report["findings"]}
+            plain_codes = {f["code"] for f in plain_report["findings"]}
+            self.assertIn("label-variants", plain_codes)  # the two spellings, before the alias
+            self.assertNotIn("label-variants", codes)
+            self.assertNotIn("no-label", codes)  # a left-out class still has its folder
+            with open(os.path.join(out, "report.html"), encoding="utf-8") as f:
+                self.assertIn("counted as", f.read())
+            # The saved index keeps the classes as read: a re-split without the map has them all.
+            resplit = os.path.join(t, "resplit")
+            run("split", out, "--out", resplit)
+            self.assertEqual(read_bytes(os.path.join(resplit, "manifest.csv")), read_bytes(os.path.join(plain, "manifest.csv")))
+            again = os.path.join(t, "again")
+            run("split", out, "--out", again, "--class-alias", "polka-dots=polka_dots", "--exclude-class", "herringbone",
+                "--exclude-class", "no_such_class")
+            self.assertEqual(read_bytes(os.path.join(again, "manifest.csv")), read_bytes(os.path.join(out, "manifest.csv")))
+            # The policy keys give the same.
+            policy = os.path.join(t, "policy.json")
+            with open(policy, "w") as f:
+                json.dump({"class_aliases": {"polka-dots": "polka_dots"}, "exclude_classes": ["herringbone", "no_such_class"]}, f)
+            by_policy = os.path.join(t, "by_policy")
+            run("audit", root, "--out", by_policy, "--no-cache", "--policy", policy)
+            self.assertEqual(read_bytes(os.path.join(by_policy, "manifest.csv")), read_bytes(os.path.join(out, "manifest.csv")))
+            # Maps that cannot mean one thing: exit 2 before anything is read.
+            for bad in (("--class-alias", "polka-dots"), ("--class-alias", "a=b", "--class-alias", "b=c"),
+                        ("--class-alias", "gingham=gingham")):
+                self.assertEqual(run("audit", root, "--out", os.path.join(t, "bad"), *bad).returncode, 2, bad)
+            with open(policy, "w") as f:
+                json.dump({"class_aliases": {"a": 3}}, f)
+            self.assertEqual(run("audit", root, "--out", os.path.join(t, "bad"), "--policy", policy).returncode, 2)
+            self.assertFalse(os.path.exists(os.path.join(t, "bad")))
+
+
 class Cache(unittest.TestCase):
     def test_a_killed_run_then_a_clean_rerun_gives_identical_outputs(self):
         import signal

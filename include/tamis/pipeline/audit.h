@@ -45,6 +45,7 @@ struct TreeSettings {
 struct PlaceSettings {
   SplitSettings split;
   CheckSettings checks;
+  ClassMap classes;  // aliases and left-out classes (reported, not saved in the index)
 };
 
 // Both at once, for run_audit (the tests and benchmarks); the command line
@@ -84,6 +85,7 @@ struct AuditIndex {
 // replace the check settings), earlier placements, a baseline.
 struct PlaceOptions {
   SplitSettings split;
+  ClassMap classes;                       // class aliases and left-out classes (class_map.h)
   Policy policy;
   const KeepMap* keep = nullptr;          // earlier placements to keep
   const Baseline* baseline = nullptr;     // an earlier report to compare with
@@ -95,6 +97,7 @@ struct AuditResult : AuditIndex {
   std::vector<Finding> findings;    // every finding, policy applied, sorted
   std::vector<bool> known;          // per finding: also in the baseline (same code and paths)
   BaselineDiff baseline;            // filled when a baseline was given
+  ClassMapping class_mapping;       // what the class map did (labels above are the mapped ones)
   bool fail_on_new_only = false;
 };
 

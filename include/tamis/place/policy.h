@@ -18,6 +18,7 @@
 
 #include "tamis/model/findings.h"
 #include "tamis/place/checks.h"
+#include "tamis/place/class_map.h"
 #include "tamis/relate/groups.h"
 
 namespace tamis {
@@ -34,6 +35,7 @@ struct Policy {
   bool fail_on_new_only = false;
   std::vector<std::string> exclude_flagged;  // "exclude_flagged": codes whose images the split leaves out (leave_out.h)
   bool one_per_group = false;                // "one_per_group": one member of each look-alike group in the split
+  ClassMap classes;                          // "class_aliases" {variant: class}, "exclude_classes" [names] (class_map.h)
   GroupSettings lookalike;  // "lookalike": radius, min_correlation, max_local, max_chroma, max_chroma_local, fit_floor, small_side (groups.h, match.h)
 };
 

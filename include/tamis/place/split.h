@@ -78,7 +78,7 @@ struct SplitItem {
 using KeepMap = std::unordered_map<std::string, Placement>;
 
 // Why an item ended up excluded (the manifest's `exclusion` column).
-enum class Exclusion : uint8_t { none, not_eligible, capped, flagged, one_per_group };
+enum class Exclusion : uint8_t { none, not_eligible, capped, flagged, one_per_group, class_excluded };
 
 struct SplitOutcome {
   std::vector<Placement> placement;  // per item

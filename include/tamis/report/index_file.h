@@ -23,8 +23,11 @@ inline constexpr size_t kMaskPairsShown = 12;  // image/mask pairs whose thumbna
 inline constexpr const char* kIndexFileName = "index.cbor";
 
 // With `staged`, the file is written under a temporary name and put in place by
-// staged->commit() (atomic_file.h); without, at once.
-void save_index(const std::filesystem::path& file, const AuditIndex& index, StagedFiles* staged = nullptr);
+// staged->commit() (atomic_file.h); without, at once. `labels`, when given, are
+// saved instead of index.labels: the labels as read, where a class map changed
+// the run's (class_map.h), so that a re-split chooses its classes again.
+void save_index(const std::filesystem::path& file, const AuditIndex& index, StagedFiles* staged = nullptr,
+                const Labelling* labels = nullptr);
 AuditIndex load_index(const std::filesystem::path& file);
 
 }  // namespace tamis
