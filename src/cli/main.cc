@@ -245,7 +245,7 @@ void print_summary(const tamis::AuditResult& r, const std::filesystem::path& out
     const auto& f = r.findings[k];
     if (f.severity == tamis::Severity::error) {
       ++errors;
-      if (tamis::breaks_policy(f.severity, r.known[k], r.fail_on_new_only)) ++failing;
+      if (tamis::breaks_policy(f.severity, r.known[k], r.fail_on_new_only, r.accepted_reason(k) != nullptr)) ++failing;
     }
     if (f.severity == tamis::Severity::warning) ++warnings;
     if (f.severity == tamis::Severity::info) ++infos;
@@ -281,7 +281,10 @@ void print_summary(const tamis::AuditResult& r, const std::filesystem::path& out
     ++shown;
     const tamis::FindingKind* kind = tamis::finding_kind(f.code);
     std::printf("  %s%s%s (%s) %s%s\n", red, f.code.c_str(), off, kind ? std::string(kind->title).c_str() : "",
-                safe(f.message).c_str(), r.baseline.present ? (r.known[k] ? " (known)" : " (new)") : "");
+                safe(f.message).c_str(),
+                r.accepted_reason(k) ? (" (accepted: " + safe(*r.accepted_reason(k)) + ")").c_str()
+                : r.baseline.present ? (r.known[k] ? " (known)" : " (new)")
+                                     : "");
   }
   if (r.baseline.present)
     std::printf("against the baseline: %zu new, %zu gone findings; %zu files added, %zu removed\n",

@@ -166,6 +166,8 @@ AuditResult place(AuditIndex index, const PlaceOptions& opt) {
   apply_policy(opt.policy, r.totals.unreadable, r.totals.images + r.totals.unreadable, r.findings);
   sort_findings(r.findings);
   r.known.assign(r.findings.size(), false);
+  r.accept = opt.policy.accept;
+  r.accepted = match_accepts(r.accept, r.findings);
   if (opt.baseline) {
     const Baseline& b = *opt.baseline;
     r.baseline.present = true;
@@ -207,7 +209,7 @@ AuditResult run_audit(const AuditSettings& settings) {
 
 int policy_exit_status(const AuditResult& result) {
   for (size_t k = 0; k < result.findings.size(); ++k)
-    if (breaks_policy(result.findings[k].severity, result.known[k], result.fail_on_new_only)) return 1;
+    if (breaks_policy(result.findings[k].severity, result.known[k], result.fail_on_new_only, result.accepted_reason(k) != nullptr)) return 1;
   return 0;
 }
 

@@ -96,6 +96,31 @@ Policy parse_policy(const std::string& text) {
         if (!c.is_string()) throw PolicyError("policy: exclude_classes must be a list of class names");
         p.classes.excluded.insert(c.get<std::string>());
       }
+    } else if (key == "accept") {
+      if (!value.is_array()) throw PolicyError("policy: accept must be a list of {code, paths or group, reason}");
+      for (const auto& e : value) {
+        if (!e.is_object()) throw PolicyError("policy: accept must be a list of {code, paths or group, reason}");
+        AcceptEntry a;
+        for (const auto& [name, v] : e.items()) {
+          if (name == "code" && v.is_string()) a.code = v.get<std::string>();
+          else if (name == "reason" && v.is_string()) a.reason = v.get<std::string>();
+          else if (name == "group" && v.is_string()) a.group = v.get<std::string>();
+          else if (name == "paths" && v.is_array()) {
+            for (const auto& p : v) {
+              if (!p.is_string()) throw PolicyError("policy: accept: paths must be strings");
+              a.paths.push_back(p.get<std::string>());
+            }
+          } else {
+            throw PolicyError("policy: accept: '" + name + "' is not a key of an entry (code, paths, group, reason) or has the wrong type");
+          }
+        }
+        if (!finding_kind(a.code)) throw PolicyError("policy: accept: '" + a.code + "' is not a finding code (docs/findings.md)");
+        if (a.reason.empty()) throw PolicyError("policy: accept: the entry for '" + a.code + "' needs a reason");
+        if (a.paths.empty() == a.group.empty())
+          throw PolicyError("policy: accept: the entry for '" + a.code + "' needs either paths or a group");
+        std::sort(a.paths.begin(), a.paths.end());
+        p.accept.push_back(std::move(a));
+      }
     } else if (key == "one_per_group") {
       if (!value.is_boolean()) throw PolicyError("policy: one_per_group must be true or false");
       p.one_per_group = value.get<bool>();
@@ -104,7 +129,7 @@ Policy parse_policy(const std::string& text) {
       else if (value == "all") p.fail_on_new_only = false;
       else throw PolicyError("policy: fail_on must be \"all\" or \"new\"");
     } else {
-      throw PolicyError("policy: " + key + ": no such key (severity, thresholds, lookalike, exclude_flagged, one_per_group, class_aliases, exclude_classes, fail_on)");
+      throw PolicyError("policy: " + key + ": no such key (severity, thresholds, lookalike, exclude_flagged, one_per_group, class_aliases, exclude_classes, accept, fail_on)");
     }
   }
   try {
@@ -142,6 +167,28 @@ void apply_policy(const Policy& policy, uint64_t unreadable, uint64_t image_file
     kept.push_back(std::move(f));
   }
   findings = std::move(kept);
+}
+
+std::vector<int> match_accepts(const std::vector<AcceptEntry>& accept, const std::vector<Finding>& findings) {
+  std::vector<int> out(findings.size(), -1);
+  for (size_t k = 0; k < findings.size(); ++k) {
+    const Finding& f = findings[k];
+    for (size_t e = 0; e < accept.size() && out[k] < 0; ++e) {
+      const AcceptEntry& a = accept[e];
+      if (a.code != f.code) continue;
+      bool ok;
+      if (!a.group.empty()) {
+        ok = f.details.is_object() && f.details.contains("group") && f.details["group"].is_string() &&
+             f.details["group"].get<std::string>() == a.group;
+      } else {
+        ok = !f.paths.empty() && std::all_of(f.paths.begin(), f.paths.end(), [&](const std::string& p) {
+          return std::binary_search(a.paths.begin(), a.paths.end(), p);
+        });
+      }
+      if (ok) out[k] = static_cast<int>(e);
+    }
+  }
+  return out;
 }
 
 }  // namespace tamis

@@ -52,7 +52,7 @@ void write_junit(std::ostream& os, const AuditResult& r) {
     const std::string code(kind.code);
     bool fail = false;
     for (size_t k : by_code[code])
-      if (breaks_policy(r.findings[k].severity, r.known[k], r.fail_on_new_only)) fail = true;
+      if (breaks_policy(r.findings[k].severity, r.known[k], r.fail_on_new_only, r.accepted_reason(k) != nullptr)) fail = true;
     failing[code] = fail;
     failures += fail;
   }
@@ -66,6 +66,7 @@ void write_junit(std::ostream& os, const AuditResult& r) {
     for (size_t k : by_code[code]) {
       const Finding& f = r.findings[k];
       body += "[" + std::string(to_string(f.severity)) + (r.baseline.present ? (r.known[k] ? ", known" : ", new") : "") +
+              (r.accepted_reason(k) ? ", accepted: " + *r.accepted_reason(k) : std::string()) +
               "] " + f.message + "\n";
       size_t shown = 0;
       for (const auto& p : f.paths) {

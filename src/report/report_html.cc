@@ -215,6 +215,7 @@ void findings(std::ostringstream& o, const json& report, const std::vector<Findi
       << html_escape(cls_attr + "\x1f") << "\" data-k0=\"" << rank << "\" data-k3=\"" << paths.size() << "\">"
       << "<td><span class=\"sev " << html_escape(sev) << "\">" << html_escape(sev) << "</span>";
     if (f.contains("baseline")) o << " <span class=\"note\">" << esc(f["baseline"]) << "</span>";
+    if (f.contains("accepted")) o << " <span class=\"note\">accepted: " << esc(f["accepted"]) << "</span>";
     o << "</td><td><code>" << esc(f.value("code", json(""))) << "</code></td><td>" << esc(f.value("message", json("")))
       << "</td><td>";
     size_t k = 0;

@@ -206,9 +206,24 @@ void add_findings(json& j, const AuditResult& r, bool with_paths) {
     json jf = {{"code", f.code}, {"severity", to_string(f.severity)}, {"message", f.message}, {"details", f.details}};
     if (with_paths) jf["paths"] = f.paths;
     if (r.baseline.present) jf["baseline"] = r.known[k] ? "known" : "new";
+    if (const std::string* why = r.accepted_reason(k)) jf["accepted"] = *why;
     findings.push_back(std::move(jf));
   }
   j["findings"] = std::move(findings);
+  // Accept entries that accepted nothing (fixed, or a typo): stale entries show.
+  json unused = json::array();
+  std::vector<bool> used(r.accept.size(), false);
+  for (int e : r.accepted)
+    if (e >= 0 && static_cast<size_t>(e) < used.size()) used[static_cast<size_t>(e)] = true;
+  for (size_t e = 0; e < r.accept.size(); ++e) {
+    if (used[e]) continue;
+    const AcceptEntry& a = r.accept[e];
+    json ju = {{"code", a.code}, {"reason", a.reason}};
+    if (!a.group.empty()) ju["group"] = a.group;
+    else ju["paths"] = a.paths;
+    unused.push_back(std::move(ju));
+  }
+  j["accept_unused"] = std::move(unused);
   j["policy"] = {{"fail_on", r.fail_on_new_only ? "new" : "all"}, {"exit_status", policy_exit_status(r)}};
   if (r.baseline.present) {
     j["baseline"] = {{"files_added", r.baseline.files_added},

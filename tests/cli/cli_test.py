@@ -1226,6 +1226,64 @@ class ClassMapping(unittest.TestCase):
             self.assertFalse(os.path.exists(os.path.join(t, "bad")))
 
 
+class Accept(unittest.TestCase):
+    """The policy's accept list: accepted findings stay in every report, marked,
+    and no longer break the policy; entries that accept nothing are listed."""
+
+    def test_accepted_findings_pass_the_gate_and_stay_visible(self):
+        import xml.etree.ElementTree as ET  # Python's XML parser reads the JUnit file
+        with tempfile.TemporaryDirectory() as t:
+            root = os.path.join(t, "demo")
+            self.assertEqual(run("demo", root).returncode, 0)
+            plain = os.path.join(t, "plain")
+            self.assertEqual(run("audit", root, "--out", plain, "--no-cache").returncode, 1)
+            report = load_json(os.path.join(plain, "report.json"))
+            errors = [f for f in report["findings"] if f["severity"] == "error"]
+            self.assertTrue(errors)
+            near = [f for f in report["findings"] if f["code"] == "look-alike"]
+            self.assertTrue(near)
+            accept = []
+            for f in errors:
+                accept.append({"code": f["code"], "paths": f["paths"], "reason": "reviewed: " + f["code"]})
+            accept.append({"code": "look-alike", "group": near[0]["details"]["group"], "reason": "two takes of one swatch"})
+            accept.append({"code": "unreadable", "paths": ["gone/file.png"], "reason": "stale"})
+            policy = os.path.join(t, "policy.json")
+            with open(policy, "w") as f:
+                json.dump({"accept": accept}, f)
+            out, junit = os.path.join(t, "out"), os.path.join(t, "junit.xml")
+            r = run("audit", root, "--out", out, "--no-cache", "--policy", policy, "--junit", junit)
+            self.assertEqual(r.returncode, 0, r.stdout + r.stderr)
+            validate_report(self, os.path.join(out, "report.json"))
+            got = load_json(os.path.join(out, "report.json"))
+            self.assertEqual(got["policy"]["exit_status"], 0)
+            by_code = {}
+            for f in got["findings"]:
+                by_code.setdefault(f["code"], []).append(f)
+            for f in errors:
+                self.assertEqual([g.get("accepted") for g in by_code[f["code"]] if g["paths"] == f["paths"]],
+                                 ["reviewed: " + f["code"]])
+            self.assertEqual(by_code["look-alike"][0].get("accepted"), "two takes of one swatch")
+            self.assertEqual(got["accept_unused"], [{"code": "unreadable", "paths": ["gone/file.png"], "reason": "stale"}])
+            suite = ET.parse(junit).getroot()
+            self.assertEqual(suite.get("failures"), "0")
+            bodies = "".join(tc.findtext("system-out") or "" for tc in suite.iter("testcase"))
+            self.assertIn("accepted: reviewed: label-conflict", bodies)
+            with open(os.path.join(out, "report.html"), encoding="utf-8") as f:
+                self.assertIn("accepted: reviewed", f.read())
+            # A new error that no entry accepts still fails the run.
+            with open(os.path.join(root, "gingham", "late.png"), "wb") as f:
+                f.write(b"\x89PNG\r\n\x1a\n broken")
+            self.assertEqual(run("audit", root, "--out", os.path.join(t, "o2"), "--no-cache", "--policy", policy).returncode, 1)
+            # Entries that cannot mean one thing: exit 2.
+            for bad in ([{"code": "label-conflict", "paths": ["a"]}],
+                        [{"code": "nope", "paths": ["a"], "reason": "x"}],
+                        [{"code": "look-alike", "reason": "x"}],
+                        [{"code": "look-alike", "group": "g1", "paths": ["a"], "reason": "x"}]):
+                with open(policy, "w") as f:
+                    json.dump({"accept": bad}, f)
+                self.assertEqual(run("audit", root, "--out", os.path.join(t, "bad"), "--policy", policy).returncode, 2, bad)
+
+
 class Cache(unittest.TestCase):
     def test_a_killed_run_then_a_clean_rerun_gives_identical_outputs(self):
         import signal

@@ -45,9 +45,10 @@ const FindingKind* finding_kind(std::string_view code);
 // the catalogue is a programming error: std::logic_error.
 Finding make_finding(std::string_view code);
 // Whether a finding fails the run: an error, unless the policy fails only on
-// new findings and the baseline knows this one.
-inline bool breaks_policy(Severity s, bool known, bool fail_on_new_only) {
-  return s == Severity::error && !(fail_on_new_only && known);
+// new findings and the baseline knows this one, or the policy's accept list
+// accepts it (policy.h AcceptEntry).
+inline bool breaks_policy(Severity s, bool known, bool fail_on_new_only, bool accepted = false) {
+  return s == Severity::error && !(fail_on_new_only && known) && !accepted;
 }
 
 // Sorts findings by (severity desc, code, first path) and each finding's paths

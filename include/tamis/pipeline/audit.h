@@ -96,6 +96,14 @@ struct AuditResult : AuditIndex {
   SplitOutcome split;               // per record (excluded for non-rows)
   std::vector<Finding> findings;    // every finding, policy applied, sorted
   std::vector<bool> known;          // per finding: also in the baseline (same code and paths)
+  std::vector<int> accepted;        // per finding: the policy's accept entry that accepts it, or -1
+  std::vector<AcceptEntry> accept;  // the policy's accept list
+  // The accept entry's reason for finding k, or nullptr when it is not accepted.
+  const std::string* accepted_reason(size_t k) const {
+    return k < accepted.size() && accepted[k] >= 0 && static_cast<size_t>(accepted[k]) < accept.size()
+               ? &accept[static_cast<size_t>(accepted[k])].reason
+               : nullptr;
+  }
   BaselineDiff baseline;            // filled when a baseline was given
   ClassMapping class_mapping;       // what the class map did (labels above are the mapped ones)
   bool fail_on_new_only = false;

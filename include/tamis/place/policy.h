@@ -28,6 +28,17 @@ class PolicyError : public std::runtime_error {
   using std::runtime_error::runtime_error;
 };
 
+// An accepted finding (the policy's "accept" list): a finding of `code` that
+// names only `paths` (every path it names is among them), or whose group is
+// `group` (details.group, "g3"), is accepted for `reason`: it stays in every
+// report, marked accepted, and no longer breaks the policy.
+struct AcceptEntry {
+  std::string code;
+  std::vector<std::string> paths;  // sorted
+  std::string group;
+  std::string reason;
+};
+
 struct Policy {
   std::map<std::string, std::optional<Severity>> severity;  // nullopt: "off" (finding dropped)
   CheckSettings thresholds;
@@ -36,6 +47,7 @@ struct Policy {
   std::vector<std::string> exclude_flagged;  // "exclude_flagged": codes whose images the split leaves out (leave_out.h)
   bool one_per_group = false;                // "one_per_group": one member of each look-alike group in the split
   ClassMap classes;                          // "class_aliases" {variant: class}, "exclude_classes" [names] (class_map.h)
+  std::vector<AcceptEntry> accept;           // "accept": accepted findings
   GroupSettings lookalike;  // "lookalike": radius, min_correlation, max_local, max_chroma, max_chroma_local, fit_floor, small_side (groups.h, match.h)
 };
 
@@ -45,6 +57,9 @@ Policy default_policy();
 // Reads and validates a policy file; throws PolicyError naming the bad key.
 Policy load_policy(const std::filesystem::path& file);
 Policy parse_policy(const std::string& text);
+
+// Per finding, the index of the first accept entry that accepts it, or -1.
+std::vector<int> match_accepts(const std::vector<AcceptEntry>& accept, const std::vector<Finding>& findings);
 
 // Applies severities (dropping "off" codes) and adds `too-many-unreadable`.
 void apply_policy(const Policy& policy, uint64_t unreadable, uint64_t image_files, std::vector<Finding>& findings);
