@@ -94,6 +94,23 @@ std::string row_path(const std::vector<std::vector<std::string>>& rows, size_t k
     throw std::runtime_error("manifest: record " + std::to_string(k + 1) + " has a path whose percent escape is broken");
   return *bytes;
 }
+// Row k checked: the header's field count (a row with another count is a file
+// cut off or mangled: refused, not half kept, since a cut row would otherwise
+// drop its images from a kept split) and a known split, which it returns.
+Placement checked_split(const std::vector<std::vector<std::string>>& rows, size_t k, size_t width, size_t split_col) {
+  const auto& r = rows[k];
+  if (r.size() != width)
+    throw std::runtime_error("manifest: record " + std::to_string(k + 1) + " has " + std::to_string(r.size()) +
+                             " fields where the header has " + std::to_string(width) + " (cut off or malformed)");
+  const std::string& v = r[split_col];
+  const Placement p = placement_from_string(v);
+  if (p == Placement::excluded && v != "excluded" && !v.empty())
+    throw std::runtime_error("manifest: record " + std::to_string(k + 1) + " has split '" + v +
+                             "' (train, val, test, excluded or empty expected)");
+  return p;
+}
+
+bool blank(const std::vector<std::string>& r) { return r.size() == 1 && r[0].empty(); }
 }  // namespace
 
 std::vector<std::string> read_manifest_paths(std::istream& is) {
@@ -113,20 +130,12 @@ std::vector<ManifestRow> read_manifest_rows(std::istream& is) {
   const size_t escape_col = escape_column(header), width = header.size();
   std::vector<ManifestRow> out;
   for (size_t k = 1; k < rows.size(); ++k) {
-    const auto& r = rows[k];
-    if (r.size() == 1 && r[0].empty()) continue;  // a blank line
-    if (r.size() != width)
-      throw std::runtime_error("manifest: record " + std::to_string(k + 1) + " has " + std::to_string(r.size()) +
-                               " fields where the header has " + std::to_string(width) + " (cut off or malformed)");
+    if (blank(rows[k])) continue;
     ManifestRow row;
+    row.split = checked_split(rows, k, width, split_col);
     row.path = row_path(rows, k, path_col, escape_col);
     row.label = row_path(rows, k, label_col, escape_col);
-    row.mask_path = r[mask_col].empty() ? std::string() : row_path(rows, k, mask_col, escape_col);
-    const std::string& v = r[split_col];
-    row.split = placement_from_string(v);
-    if (row.split == Placement::excluded && v != "excluded" && !v.empty())
-      throw std::runtime_error("manifest: record " + std::to_string(k + 1) + " has split '" + v +
-                               "' (train, val, test, excluded or empty expected)");
+    row.mask_path = rows[k][mask_col].empty() ? std::string() : row_path(rows, k, mask_col, escape_col);
     out.push_back(std::move(row));
   }
   return out;
@@ -139,18 +148,8 @@ KeepMap read_manifest_splits(std::istream& is) {
   const size_t width = rows.front().size();
   KeepMap out;
   for (size_t k = 1; k < rows.size(); ++k) {
-    const auto& r = rows[k];
-    if (r.size() == 1 && r[0].empty()) continue;  // a blank line
-    // A row with another field count is a file cut off or mangled: refused, not
-    // half kept (a cut row would otherwise drop its images from the kept split).
-    if (r.size() != width)
-      throw std::runtime_error("manifest: record " + std::to_string(k + 1) + " has " + std::to_string(r.size()) +
-                               " fields where the header has " + std::to_string(width) + " (cut off or malformed)");
-    const std::string& v = r[split_col];
-    const Placement p = placement_from_string(v);
-    if (p == Placement::excluded && v != "excluded" && !v.empty())
-      throw std::runtime_error("manifest: record " + std::to_string(k + 1) + " has split '" + v +
-                               "' (train, val, test, excluded or empty expected)");
+    if (blank(rows[k])) continue;  // a blank line
+    const Placement p = checked_split(rows, k, width, split_col);
     if (p != Placement::excluded) out[row_path(rows, k, path_col, escape_col)] = p;
   }
   return out;

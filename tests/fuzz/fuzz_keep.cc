@@ -1,5 +1,6 @@
-// libFuzzer target: the --keep manifest reader and the manifest's path column
-// (manifest.h): any bytes either give a map or throw std::runtime_error.
+// libFuzzer target: the --keep manifest reader, the manifest's path column and
+// the rows `tamis export` reads (manifest_reader.h): any bytes either give a
+// result or throw std::runtime_error.
 #include <cstdint>
 #include <sstream>
 #include <stdexcept>
@@ -17,6 +18,11 @@ extern "C" int LLVMFuzzerTestOneInput(const uint8_t* data, size_t size) {
   try {
     std::istringstream is(text);
     (void)tamis::read_manifest_paths(is);
+  } catch (const std::runtime_error&) {
+  }
+  try {  // `tamis export`'s reader
+    std::istringstream is(text);
+    (void)tamis::read_manifest_rows(is);
   } catch (const std::runtime_error&) {
   }
   return 0;
