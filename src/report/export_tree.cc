@@ -50,17 +50,20 @@ void check_whole_set(const fs::path& dir) {
   } catch (const std::exception&) {
     fail(set_file.string() + " is damaged (not JSON)");
   }
+  auto text_at = [](const nlohmann::json& f, const char* key) {
+    return f.contains(key) && f[key].is_string() ? f[key].get<std::string>() : std::string();
+  };
   for (const char* name : {"manifest.csv", "report.json"}) {
     bool listed = false;
     if (set.is_object() && set.contains("files") && set["files"].is_array())
       for (const auto& f : set["files"]) {
-        if (!f.is_object() || f.value("name", "") != name) continue;
+        if (!f.is_object() || text_at(f, "name") != name) continue;
         listed = true;
         uint64_t bytes = 0, hash = 0;
         const int err = hash_file(dir / name, bytes, hash);
         if (err != 0) fail(std::string("cannot read ") + (dir / name).string() + ": " + std::strerror(err));
         if (!f.contains("bytes") || !f["bytes"].is_number_unsigned() || f["bytes"].get<uint64_t>() != bytes ||
-            f.value("xxh3_64", "") != hex64(hash))
+            text_at(f, "xxh3_64") != hex64(hash))
           fail((dir / name).string() + " is not the file its set was written with (changed since, or from another run)");
       }
     if (!listed) fail(std::string(name) + " is not listed in " + set_file.string());

@@ -1075,6 +1075,13 @@ class Export(unittest.TestCase):
             for split, part in placed.groupby("split"):
                 self.assertIn(split, ("train", "val", "test"))
                 self.assertGreater(len(part), 0)
+            # docs/outputs.md's example, as written there.
+            root_doc = json.load(open(os.path.join(out, "report.json")))["root"]["path"]
+            df2 = pandas.read_csv(os.path.join(out, "manifest.csv"), keep_default_na=False, dtype={"group": str, "fold": str})
+            train = df2[df2.split == "train"].assign(file=lambda d: d.path.map(lambda p: os.path.join(root_doc, p)))
+            self.assertGreater(len(train), 0)
+            self.assertTrue(all(os.path.isfile(p) for p in train.file))
+            self.assertTrue((df2.mask_path == "").any())  # empty cells stay empty strings
 
 
 def largest_remainder(n, percent):
