@@ -963,6 +963,51 @@ class Export(unittest.TestCase):
                               os.path.join("masks", r["split"], r["label"], stem + mask_ext) if r["mask_path"] else None)
         return out
 
+    def check_export(self, t, root, out, rows):
+        """Exports `out` in all three modes into t/tree-MODE and checks every entry."""
+        expected = self.expected_entries(rows)
+        before = snapshot(root)
+        for mode in ("symlink", "hardlink", "copy"):
+            tree = os.path.join(t, "tree-" + mode)
+            r = run("export", out, "--to", tree, "--mode", mode)
+            self.assertEqual(r.returncode, 0, r.stderr)
+            files = set()
+            for d, _, fs in os.walk(tree):
+                files.update(os.path.relpath(os.path.join(d, f), tree) for f in fs)
+            want = {"train.txt", "val.txt", "test.txt", "tamis-export.json"}
+            for p, (entry, mask_entry) in expected.items():
+                want.add(entry)
+                src = os.path.join(root, p)
+                dst = os.path.join(tree, entry)
+                self.assertEqual(read_bytes(dst), read_bytes(src), (mode, p))
+                if mode == "symlink":
+                    self.assertEqual(os.readlink(dst), src)
+                else:
+                    self.assertFalse(os.path.islink(dst))
+                    self.assertEqual(os.stat(dst).st_ino == os.stat(src).st_ino, mode == "hardlink")
+                if mask_entry:
+                    want.add(mask_entry)
+                    mask_src = os.path.join(root, [row for row in rows if row["path"] == p][0]["mask_path"])
+                    self.assertEqual(read_bytes(os.path.join(tree, mask_entry)), read_bytes(mask_src), (mode, p))
+            self.assertEqual(files, want, mode)  # nothing else, nothing excluded
+            for split in ("train", "val", "test"):
+                listed = read_text(os.path.join(tree, split + ".txt")).splitlines()
+                self.assertEqual(sorted(listed), sorted(os.path.join(tree, e) for p, (e, _) in expected.items()
+                                                        if e.startswith(split + "/")))
+            self.assertEqual(snapshot(root), before, mode)
+        return expected
+
+    def test_the_demo_exports_in_three_modes(self):
+        with tempfile.TemporaryDirectory() as t:
+            root = os.path.join(t, "demo")
+            self.assertEqual(run("demo", root).returncode, 0)
+            out = os.path.join(t, "out")
+            self.assertEqual(run("audit", root, "--out", out, "--no-cache", "--quiet").returncode, 1)
+            with open(os.path.join(out, "manifest.csv"), newline="", encoding="utf-8") as f:
+                rows = [row for row in csv.DictReader(f) if row["split"] != "excluded"]
+            self.assertGreater(len(rows), 40)
+            self.check_export(t, root, out, rows)
+
     def test_export_lays_out_the_split_in_three_modes(self):
         with tempfile.TemporaryDirectory() as t:
             root = os.path.join(t, "data")
@@ -976,38 +1021,9 @@ class Export(unittest.TestCase):
             rows = [row for row in all_rows if row["split"] in ("train", "val", "test")]
             self.assertGreater(len(rows), n - 3)
             self.assertEqual(sum(1 for row in rows if row["mask_path"]), 30)  # oak, birch, elm
-            expected = self.expected_entries(rows)
+            expected = self.check_export(t, root, out, rows)
             collided = sum(1 for p, (e, _) in expected.items() if "~" in e)
             self.assertGreater(collided, 1)  # pine's names collide
-            before = snapshot(root)
-            for mode in ("symlink", "hardlink", "copy"):
-                tree = os.path.join(t, "tree-" + mode)
-                r = run("export", out, "--to", tree, "--mode", mode)
-                self.assertEqual(r.returncode, 0, r.stderr)
-                files = set()
-                for d, _, fs in os.walk(tree):
-                    files.update(os.path.relpath(os.path.join(d, f), tree) for f in fs)
-                want = {"train.txt", "val.txt", "test.txt", "tamis-export.json"}
-                for p, (entry, mask_entry) in expected.items():
-                    want.add(entry)
-                    src = os.path.join(root, p)
-                    dst = os.path.join(tree, entry)
-                    self.assertEqual(read_bytes(dst), read_bytes(src), (mode, p))
-                    if mode == "symlink":
-                        self.assertEqual(os.readlink(dst), src)
-                    else:
-                        self.assertFalse(os.path.islink(dst))
-                        self.assertEqual(os.stat(dst).st_ino == os.stat(src).st_ino, mode == "hardlink")
-                    if mask_entry:
-                        want.add(mask_entry)
-                        mask_src = os.path.join(root, [row for row in rows if row["path"] == p][0]["mask_path"])
-                        self.assertEqual(read_bytes(os.path.join(tree, mask_entry)), read_bytes(mask_src), (mode, p))
-                self.assertEqual(files, want, mode)  # nothing else, nothing excluded
-                for split in ("train", "val", "test"):
-                    listed = read_text(os.path.join(tree, split + ".txt")).splitlines()
-                    self.assertEqual(sorted(listed), sorted(os.path.join(tree, e) for p, (e, _) in expected.items()
-                                                            if e.startswith(split + "/")))
-                self.assertEqual(snapshot(root), before, mode)
             # A second export into the same folder is refused; --replace replaces it.
             tree = os.path.join(t, "tree-symlink")
             r = run("export", out, "--to", tree)
