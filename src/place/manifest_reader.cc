@@ -2,6 +2,7 @@
 
 #include <algorithm>
 #include <charconv>
+#include <functional>
 #include <istream>
 #include <stdexcept>
 #include <string_view>
@@ -11,20 +12,28 @@
 namespace tamis {
 
 namespace {
-// Parses RFC 4180 text into rows of fields.
-std::vector<std::vector<std::string>> parse_csv(std::istream& is) {
-  // RFC 4180 records: fields split on commas, quoted fields may hold commas,
-  // quotes (doubled) and line breaks; records end at CRLF or LF outside quotes.
-  std::vector<std::vector<std::string>> rows;
-  std::vector<std::string> row;
+using Row = std::vector<std::string>;
+
+// Reads RFC 4180 text record by record, calling on_row(row, k) for record k (0:
+// the header) as soon as it is complete, so that a reader keeps only what it
+// needs of each row (memory does not grow with the manifest's columns). Records:
+// fields split on commas, quoted fields may hold commas, quotes (doubled) and
+// line breaks; records end at CRLF or LF outside quotes. Throws when the text
+// ends inside a quoted field or holds no record.
+void each_csv_row(std::istream& is, const std::function<void(Row&, size_t)>& on_row) {
+  Row row;
   std::string field;
   bool quoted = false, at_start = true, any = false;
-  size_t line = 1;
+  size_t line = 1, records = 0;
   char c;
   auto end_field = [&] {
     row.push_back(std::move(field));
     field.clear();
     at_start = true;
+  };
+  auto end_row = [&] {
+    on_row(row, records++);
+    row.clear();
   };
   while (is.get(c)) {
     any = true;
@@ -51,8 +60,7 @@ std::vector<std::vector<std::string>> parse_csv(std::istream& is) {
       continue;
     } else if (c == '\n') {
       end_field();
-      rows.push_back(std::move(row));
-      row.clear();
+      end_row();
       ++line;
     } else {
       field.push_back(c);
@@ -62,30 +70,29 @@ std::vector<std::vector<std::string>> parse_csv(std::istream& is) {
   if (quoted) throw std::runtime_error("manifest: unterminated quoted field at line " + std::to_string(line));
   if (any && (!field.empty() || !row.empty())) {
     end_field();
-    rows.push_back(std::move(row));
+    end_row();
   }
-  if (rows.empty()) throw std::runtime_error("manifest: the file is empty");
-  return rows;
+  if (records == 0) throw std::runtime_error("manifest: the file is empty");
 }
 
-size_t column(const std::vector<std::string>& header, const char* name) {
+size_t column(const Row& header, const char* name) {
   auto it = std::find(header.begin(), header.end(), name);
   if (it == header.end()) throw std::runtime_error(std::string("manifest: no '") + name + "' column in the header");
   return static_cast<size_t>(it - header.begin());
 }
 
 // The name_escape column (a column that older manifests do not have), or npos.
-size_t escape_column(const std::vector<std::string>& header) {
+size_t escape_column(const Row& header) {
   const auto it = std::find(header.begin(), header.end(), "name_escape");
   return it == header.end() ? std::string::npos : static_cast<size_t>(it - header.begin());
 }
 
-// Row k's path (or another name column) as bytes: unescaped when its name_escape
-// column says "percent".
-std::string row_path(const std::vector<std::vector<std::string>>& rows, size_t k, size_t path_col, size_t escape_col) {
-  const std::string& path = rows[k][path_col];
-  if (escape_col >= rows[k].size() || rows[k][escape_col].empty()) return path;
-  const std::string& how = rows[k][escape_col];
+// Record k's path (or another name column) as bytes: unescaped when its
+// name_escape column says "percent".
+std::string row_path(const Row& r, size_t k, size_t path_col, size_t escape_col) {
+  const std::string& path = r[path_col];
+  if (escape_col >= r.size() || r[escape_col].empty()) return path;
+  const std::string& how = r[escape_col];
   if (how != "percent")
     throw std::runtime_error("manifest: record " + std::to_string(k + 1) + " has name_escape '" + how +
                              "' (empty or percent expected)");
@@ -94,11 +101,11 @@ std::string row_path(const std::vector<std::vector<std::string>>& rows, size_t k
     throw std::runtime_error("manifest: record " + std::to_string(k + 1) + " has a path whose percent escape is broken");
   return *bytes;
 }
-// Row k checked: the header's field count (a row with another count is a file
+
+// Record k checked: the header's field count (a row with another count is a file
 // cut off or mangled: refused, not half kept, since a cut row would otherwise
 // drop its images from a kept split) and a known split, which it returns.
-Placement checked_split(const std::vector<std::vector<std::string>>& rows, size_t k, size_t width, size_t split_col) {
-  const auto& r = rows[k];
+Placement checked_split(const Row& r, size_t k, size_t width, size_t split_col) {
   if (r.size() != width)
     throw std::runtime_error("manifest: record " + std::to_string(k + 1) + " has " + std::to_string(r.size()) +
                              " fields where the header has " + std::to_string(width) + " (cut off or malformed)");
@@ -110,48 +117,62 @@ Placement checked_split(const std::vector<std::vector<std::string>>& rows, size_
   return p;
 }
 
-bool blank(const std::vector<std::string>& r) { return r.size() == 1 && r[0].empty(); }
+bool blank(const Row& r) { return r.size() == 1 && r[0].empty(); }
 }  // namespace
 
 std::vector<std::string> read_manifest_paths(std::istream& is) {
-  auto rows = parse_csv(is);
-  const size_t path_col = column(rows.front(), "path"), escape_col = escape_column(rows.front());
+  size_t path_col = 0, escape_col = 0;
   std::vector<std::string> out;
-  for (size_t k = 1; k < rows.size(); ++k)
-    if (rows[k].size() > path_col) out.push_back(row_path(rows, k, path_col, escape_col));
+  each_csv_row(is, [&](Row& r, size_t k) {
+    if (k == 0) {
+      path_col = column(r, "path");
+      escape_col = escape_column(r);
+    } else if (r.size() > path_col) {
+      out.push_back(row_path(r, k, path_col, escape_col));
+    }
+  });
   return out;
 }
 
 std::vector<ManifestRow> read_manifest_rows(std::istream& is) {
-  auto rows = parse_csv(is);
-  const auto& header = rows.front();
-  const size_t path_col = column(header, "path"), label_col = column(header, "label");
-  const size_t split_col = column(header, "split"), mask_col = column(header, "mask_path");
-  const size_t escape_col = escape_column(header), width = header.size();
+  size_t path_col = 0, label_col = 0, split_col = 0, mask_col = 0, escape_col = 0, width = 0;
   std::vector<ManifestRow> out;
-  for (size_t k = 1; k < rows.size(); ++k) {
-    if (blank(rows[k])) continue;
+  each_csv_row(is, [&](Row& r, size_t k) {
+    if (k == 0) {
+      path_col = column(r, "path");
+      label_col = column(r, "label");
+      split_col = column(r, "split");
+      mask_col = column(r, "mask_path");
+      escape_col = escape_column(r);
+      width = r.size();
+      return;
+    }
+    if (blank(r)) return;
     ManifestRow row;
-    row.split = checked_split(rows, k, width, split_col);
-    row.path = row_path(rows, k, path_col, escape_col);
-    row.label = row_path(rows, k, label_col, escape_col);
-    row.mask_path = rows[k][mask_col].empty() ? std::string() : row_path(rows, k, mask_col, escape_col);
+    row.split = checked_split(r, k, width, split_col);
+    row.path = row_path(r, k, path_col, escape_col);
+    row.label = row_path(r, k, label_col, escape_col);
+    row.mask_path = r[mask_col].empty() ? std::string() : row_path(r, k, mask_col, escape_col);
     out.push_back(std::move(row));
-  }
+  });
   return out;
 }
 
 KeepMap read_manifest_splits(std::istream& is) {
-  auto rows = parse_csv(is);
-  const size_t path_col = column(rows.front(), "path"), split_col = column(rows.front(), "split");
-  const size_t escape_col = escape_column(rows.front());
-  const size_t width = rows.front().size();
+  size_t path_col = 0, split_col = 0, escape_col = 0, width = 0;
   KeepMap out;
-  for (size_t k = 1; k < rows.size(); ++k) {
-    if (blank(rows[k])) continue;  // a blank line
-    const Placement p = checked_split(rows, k, width, split_col);
-    if (p != Placement::excluded) out[row_path(rows, k, path_col, escape_col)] = p;
-  }
+  each_csv_row(is, [&](Row& r, size_t k) {
+    if (k == 0) {
+      path_col = column(r, "path");
+      split_col = column(r, "split");
+      escape_col = escape_column(r);
+      width = r.size();
+      return;
+    }
+    if (blank(r)) return;  // a blank line
+    const Placement p = checked_split(r, k, width, split_col);
+    if (p != Placement::excluded) out[row_path(r, k, path_col, escape_col)] = p;
+  });
   return out;
 }
 
