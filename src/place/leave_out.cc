@@ -1,7 +1,8 @@
 #include "tamis/place/leave_out.h"
 
 #include <algorithm>
-#include <unordered_map>
+
+#include "tamis/place/record_flags.h"
 
 namespace tamis {
 
@@ -15,22 +16,12 @@ std::vector<Exclusion> leave_out(const std::vector<FileRecord>& records, const L
                                  const SplitSettings& settings) {
   std::vector<Exclusion> why(records.size(), Exclusion::none);
   if (!settings.exclude_flagged.empty()) {
-    std::unordered_map<std::string_view, uint32_t> index;
-    index.reserve(records.size());
-    for (uint32_t i = 0; i < records.size(); ++i) index.emplace(records[i].path, i);
-    std::vector<bool> named(records.size(), false);
-    for (const auto& f : findings) {
-      if (!std::binary_search(settings.exclude_flagged.begin(), settings.exclude_flagged.end(), f.code)) continue;
-      for (const auto& p : f.paths) {
-        const auto it = index.find(p);
-        if (it != index.end()) named[it->second] = true;
-      }
-    }
-    for (size_t i = 0; i < records.size(); ++i) {
-      const int64_t m = i < masks.mask_of.size() ? masks.mask_of[i] : -1;
-      if (records[i].kind == FileKind::image && (named[i] || (m >= 0 && named[static_cast<size_t>(m)])))
+    // The codes each record's manifest row shows (its mask's included).
+    const RecordFlags flags = record_flags(records, masks, findings);
+    for (const auto& [i, code] : flags.pairs)
+      if (records[i].kind == FileKind::image &&
+          std::binary_search(settings.exclude_flagged.begin(), settings.exclude_flagged.end(), flags.codes[code]))
         why[i] = Exclusion::flagged;
-    }
   }
   if (settings.one_per_group) {
     auto eligible = [&](uint32_t i) {

@@ -4,9 +4,9 @@
 //
 // Contract:
 // - A readable image (never a mask or an unreadable file, which are out anyway)
-//   is left out as `flagged` when a finding whose code is in
-//   settings.exclude_flagged names it or names its mask (the mask has no row;
-//   a mask-empty or mask-size-mismatch keeps its image out).
+//   is left out as `flagged` when one of settings.exclude_flagged is among the
+//   codes record_flags gives it (record_flags.h: findings that name it or its
+//   mask), the codes its manifest row shows.
 // - With settings.one_per_group, in each group every eligible member but one is
 //   left out as `one_per_group`: the one kept has the most pixels (width x
 //   height as stored), then the first path (the smallest record index). Members
