@@ -21,6 +21,8 @@
 #include <thread>
 #include <vector>
 
+#include "tamis/base/text.h"
+
 namespace tamis {
 
 namespace {
@@ -224,15 +226,6 @@ int hash_file(const std::filesystem::path& p, uint64_t& bytes, uint64_t& hash) {
   return err;
 }
 
-namespace {
-
-std::string hex64(uint64_t v) {
-  std::string out(16, '0');
-  for (int k = 15; k >= 0; --k, v >>= 4) out[size_t(k)] = "0123456789abcdef"[v & 15];
-  return out;
-}
-
-}  // namespace
 
 StagedFiles::~StagedFiles() {
   for (auto& t : syncs_) t.join();

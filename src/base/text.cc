@@ -76,4 +76,10 @@ std::optional<std::string> unescape_name(std::string_view text) {
   return out;
 }
 
+std::string hex64(uint64_t v) {
+  std::string out(16, '0');
+  for (int k = 15; k >= 0; --k, v >>= 4) out[static_cast<size_t>(k)] = "0123456789abcdef"[v & 15];
+  return out;
+}
+
 }  // namespace tamis

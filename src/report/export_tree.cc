@@ -32,11 +32,6 @@ constexpr const char* kSplitNames[3] = {"train", "val", "test"};
 [[noreturn]] void refuse(const std::string& what) { throw ExportError(2, what); }
 [[noreturn]] void fail(const std::string& what) { throw ExportError(3, what); }
 
-std::string hex64(uint64_t v) {
-  std::string out(16, '0');
-  for (int k = 15; k >= 0; --k, v >>= 4) out[size_t(k)] = "0123456789abcdef"[v & 15];
-  return out;
-}
 
 // DIR's manifest.csv and report.json as one whole set (tamis-set.json lists them
 // with the sizes and XXH3-64 they have).

@@ -120,8 +120,7 @@ void write_manifest(std::ostream& os, const AuditResult& r) {
     field(probed && rec.probe.orientation ? std::to_string(rec.probe.orientation) : "");
     field(probed ? std::to_string(rec.probe.frames) : "");
     if (rec.features.has_content_hash) {
-      for (uint64_t h : rec.features.content_hash)
-        for (int shift = 60; shift >= 0; shift -= 4) line.push_back("0123456789abcdef"[(h >> shift) & 15]);
+      for (uint64_t h : rec.features.content_hash) line.append(hex64(h));
     }
     line.push_back(',');
     if (r.split.fold[i] >= 0) line.append(std::to_string(r.split.fold[i]));

@@ -12,6 +12,7 @@
 #include <cstddef>
 #include <optional>
 #include <string>
+#include <cstdint>
 #include <string_view>
 
 namespace tamis {
@@ -25,6 +26,10 @@ bool is_utf8(std::string_view s);
 
 // The percent escape of `name` (see above).
 std::string escape_name(std::string_view name);
+
+// 16 lower-case hex digits of v, most significant first (the set file's and
+// the manifest's hashes, export's distinct names).
+std::string hex64(uint64_t v);
 
 // The bytes escape_name() was given; nullopt when `text` holds a '%' that two
 // hex digits do not follow.
