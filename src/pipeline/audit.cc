@@ -151,14 +151,12 @@ AuditResult place(AuditIndex index, const PlaceOptions& opt) {
   }
   if (splitter.joinable()) splitter.join();
   if (split_error) std::rethrow_exception(split_error);
+  // Why the items left out before the split are out (the split saw them as
+  // ineligible, so they are already excluded, without a fold).
   for (size_t i = 0; i < r.class_mapping.class_excluded.size(); ++i)
     if (r.class_mapping.class_excluded[i]) r.split.why[i] = Exclusion::class_excluded;
   for (size_t i = 0; i < left_out.size(); ++i)
-    if (left_out[i] != Exclusion::none) {
-      r.split.placement[i] = Placement::excluded;
-      r.split.fold[i] = -1;
-      r.split.why[i] = left_out[i];
-    }
+    if (left_out[i] != Exclusion::none) r.split.why[i] = left_out[i];
   check_split(r.records, r.labels, r.split, split, keep_folders, r.findings);
   clock.lap("checks + split");
 

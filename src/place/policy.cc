@@ -80,10 +80,8 @@ Policy parse_policy(const std::string& text) {
         if (!excludable_code(code))
           throw PolicyError("policy: exclude_flagged: '" + code +
                             "' is not a finding code that names images before the split (docs/findings.md)");
-        p.exclude_flagged.push_back(code);
+        p.exclude_flagged.push_back(code);  // sorted with the command line's (resolve_leave_out)
       }
-      std::sort(p.exclude_flagged.begin(), p.exclude_flagged.end());
-      p.exclude_flagged.erase(std::unique(p.exclude_flagged.begin(), p.exclude_flagged.end()), p.exclude_flagged.end());
     } else if (key == "class_aliases") {
       if (!value.is_object()) throw PolicyError("policy: class_aliases must be an object {\"variant\": \"class\"}");
       for (const auto& [from, to] : value.items()) {

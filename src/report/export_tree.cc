@@ -204,30 +204,25 @@ ExportResult export_tree(const ExportSettings& s) {
   auto mask_name = [](const Entry& e) {
     return split_extension(e.name).first + split_extension(base_name(e.row->mask_path)).second;
   };
-  // Colliding image names become distinct; then colliding mask names make their
-  // images' names distinct too (a distinct name is unique, so this settles).
+  // Names that collide in one folder become distinct: first the images', then
+  // the masks' (which follow their images' stems; a distinct name is unique, so
+  // making a mask's image distinct settles its mask too).
   std::vector<bool> distinct(entries.size(), false);
-  for (int pass = 0; pass < 2; ++pass) {
+  auto make_distinct = [&](std::string Entry::*field) {
     std::map<std::pair<std::string, std::string>, int> seen;
+    for (const auto& e : entries)
+      if (!(e.*field).empty()) ++seen[{e.folder, e.*field}];
     for (size_t k = 0; k < entries.size(); ++k) {
       auto& e = entries[k];
-      if (distinct[k]) e.name = distinct_name(base_name(e.row->path), e.row->path);
-      e.mask = e.row->mask_path.empty() ? std::string() : mask_name(e);
-      ++seen[{e.folder, pass == 0 ? e.name : e.mask}];
-    }
-    for (size_t k = 0; k < entries.size(); ++k) {
-      const auto& e = entries[k];
-      if (pass == 1 && e.mask.empty()) continue;
-      if (seen[{e.folder, pass == 0 ? e.name : e.mask}] > 1) distinct[k] = true;
-    }
-  }
-  for (size_t k = 0; k < entries.size(); ++k) {
-    if (distinct[k]) {
-      entries[k].name = distinct_name(base_name(entries[k].row->path), entries[k].row->path);
-      if (!entries[k].row->mask_path.empty()) entries[k].mask = mask_name(entries[k]);
+      if (distinct[k] || (e.*field).empty() || seen[{e.folder, e.*field}] < 2) continue;
+      distinct[k] = true;
       ++out.renamed;
+      e.name = distinct_name(base_name(e.row->path), e.row->path);
     }
-  }
+    for (auto& e : entries) e.mask = e.row->mask_path.empty() ? std::string() : mask_name(e);
+  };
+  make_distinct(&Entry::name);
+  make_distinct(&Entry::mask);
   // Build beside TREE, hidden, then rename into place.
   const fs::path parent = tree.parent_path();
   fs::create_directories(parent, ec);
