@@ -84,7 +84,7 @@ int main(int argc, char** argv) {
     std::map<std::string, std::pair<int, int>> per_family;
     std::map<std::pair<std::string, std::string>, std::pair<int, int>> per_kind_family;
     for (const auto& c : copies) {
-      const bool ok = test::pair_joined(c.look, cv::Mat(c.size, CV_8U), sources[c.source].look, sources[c.source].pixels, gs);
+      const bool ok = test::pair_joined(c.look, c.size, sources[c.source].look, sources[c.source].pixels.size(), gs);
       auto& k = per_kind[kinds[c.kind].name];
       k.first += ok;
       ++k.second;
@@ -180,7 +180,7 @@ int main(int argc, char** argv) {
     GroupSettings gs;
     for (const auto& c : copies) {
       if (sources[c.source].family != fam ||
-          test::pair_joined(c.look, cv::Mat(c.size, CV_8U), sources[c.source].look, sources[c.source].pixels, gs))
+          test::pair_joined(c.look, c.size, sources[c.source].look, sources[c.source].pixels.size(), gs))
         continue;
       const Lookalike& a = sources[c.source].look;
       int best_t = 0, best_d = 65;

@@ -70,7 +70,7 @@ int main(int argc, char** argv) {
       hit = hamming(a.phash[t], b.phash[0]) <= at[0].radius || hamming(b.phash[t], a.phash[0]) <= at[0].radius;
     if (!hit) return bits;
     for (size_t c = 0; c < std::size(cuts); ++c) bits |= unsigned(test::pair_joined(a, b, at[c])) << c;
-    bits |= unsigned(test::pair_joined(a, cv::Mat(sa, CV_8U), b, cv::Mat(sb, CV_8U), defaults)) << kRule;
+    bits |= unsigned(test::pair_joined(a, sa, b, sb, defaults)) << kRule;
     return bits;
   };
   const auto& kinds = test::planted_kinds();

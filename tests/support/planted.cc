@@ -178,12 +178,11 @@ bool pair_joined(const Lookalike& a, const Lookalike& b, const GroupSettings& gs
   return false;
 }
 
-bool pair_joined(const Lookalike& a, const cv::Mat& pixels_a, const Lookalike& b, const cv::Mat& pixels_b,
-                 const GroupSettings& gs) {
-  auto allowance = [&](const cv::Mat& m) {
-    return size_allowance(static_cast<uint32_t>(m.cols), static_cast<uint32_t>(m.rows), gs.match);
+bool pair_joined(const Lookalike& a, cv::Size size_a, const Lookalike& b, cv::Size size_b, const GroupSettings& gs) {
+  auto allowance = [&](cv::Size s) {
+    return size_allowance(static_cast<uint32_t>(s.width), static_cast<uint32_t>(s.height), gs.match);
   };
-  return pair_joined(a, b, gs, allowance(pixels_a), allowance(pixels_b));
+  return pair_joined(a, b, gs, allowance(size_a), allowance(size_b));
 }
 
 cv::Mat hue_turned(const cv::Mat& m, int degrees) { return hsv_change(m, degrees, 1.0); }

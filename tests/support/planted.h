@@ -50,9 +50,8 @@ Lookalike lookalike_of_bytes(const std::vector<uint8_t>& bytes);
 // small_side pixels on a side).
 bool pair_joined(const Lookalike& a, const Lookalike& b, const GroupSettings& gs, float allowance_a = 1.0f,
                  float allowance_b = 1.0f);
-// The same with the allowances of pictures of the given sizes (cols x rows).
-bool pair_joined(const Lookalike& a, const cv::Mat& pixels_a, const Lookalike& b, const cv::Mat& pixels_b,
-                 const GroupSettings& gs);
+// The same with the allowances of pictures of the given sizes.
+bool pair_joined(const Lookalike& a, cv::Size size_a, const Lookalike& b, cv::Size size_b, const GroupSettings& gs);
 
 // Colour photographs from Debian packages, each cut into non-overlapping tiles (at
 // most 384 px on the longer side): distinct pictures of many kinds (landscape,
