@@ -11,8 +11,11 @@
 // Each joined pair's correlation and the smaller picture's detail share are
 // kept, so one run shows the joins that every threshold rule would keep.
 // Usage: small_pictures FASHION_MNIST_TREE [SOURCES_STEP [DISTINCT [SIDES...]]]
+// Environment: SMALL_PHOTOS=1 takes 28x28 colour crops of the photograph tiles
+// instead of Fashion-MNIST (a second family).
 #include <algorithm>
 #include <cstdio>
+#include <cstdlib>
 #include <filesystem>
 #include <map>
 #include <string>
@@ -54,6 +57,17 @@ int main(int argc, char** argv) {
   std::sort(files.begin(), files.end());
   std::vector<cv::Mat> pixels(files.size());
   for (size_t i = 0; i < files.size(); ++i) pixels[i] = cv::imread(files[i].string(), cv::IMREAD_UNCHANGED);
+  if (std::getenv("SMALL_PHOTOS")) {
+    // Another family: non-overlapping 28x28 colour crops of the photograph tiles
+    // (planted.h: Debian's python3-sklearn, libjxl-testdata, visp-images-data
+    // photographs). Crops of one photograph share textures and light.
+    pixels.clear();
+    for (const auto& t : test::photograph_tiles())
+      for (int y = 0; y + 28 <= t.rows; y += 28)
+        for (int x = 0; x + 28 <= t.cols; x += 28) pixels.push_back(t(cv::Rect(x, y, 28, 28)).clone());
+    std::printf("photograph crops: %zu\n", pixels.size());
+  }
+  const size_t count = pixels.size();
   // Each threshold with the other settings at their defaults (the fit's gate
   // follows the threshold, so a stricter one is not a filter on a looser one's joins).
   const double cuts[] = {0.995, 0.996, 0.997, 0.998, 0.999};
@@ -77,11 +91,11 @@ int main(int argc, char** argv) {
   // Distinct 28 px partners: images not among the reduced ones.
   std::vector<Lookalike> large;
   for (size_t k = 0; k < distinct; ++k)
-    large.push_back(test::lookalike_of_bytes(test::encode_copy(pixels[(k * 2 + 1) * files.size() / (2 * distinct)], 0)));
+    large.push_back(test::lookalike_of_bytes(test::encode_copy(pixels[(k * 2 + 1) * count / (2 * distinct)], 0)));
   for (int side : sides) {
     // Copies of reduced sources.
     std::map<std::string, std::vector<unsigned>> kind_corr;  // per copy, the thresholds it is joined at
-    for (size_t k = 0; k < files.size(); k += step) {
+    for (size_t k = 0; k < count; k += step) {
       const cv::Mat src = reduced(pixels[k], side);
       const Lookalike ls = test::lookalike_of_bytes(test::encode_copy(src, 0));
       for (const auto& kind : kinds) {
@@ -95,7 +109,7 @@ int main(int argc, char** argv) {
     // Distinct reductions.
     std::vector<Lookalike> small;
     for (size_t k = 0; k < distinct; ++k)
-      small.push_back(test::lookalike_of_bytes(test::encode_copy(reduced(pixels[k * files.size() / distinct], side), 0)));
+      small.push_back(test::lookalike_of_bytes(test::encode_copy(reduced(pixels[k * count / distinct], side), 0)));
     std::vector<unsigned> ss, sl;
     for (size_t i = 0; i < small.size(); ++i) {
       for (size_t j = i + 1; j < small.size(); ++j)
@@ -105,7 +119,7 @@ int main(int argc, char** argv) {
           if (const unsigned b = joins(small[i], cv::Size(side, side), l, cv::Size(28, 28))) sl.push_back(b);
     }
     std::printf("== side %d: %zu sources, %zu distinct (%zu pairs among them, %zu with 28 px)\n", side,
-                (files.size() + step - 1) / step, distinct, distinct * (distinct - 1) / 2, side < 28 ? distinct * distinct : 0);
+                (count + step - 1) / step, distinct, distinct * (distinct - 1) / 2, side < 28 ? distinct * distinct : 0);
     std::printf("%-28s", "threshold");
     for (double c : cuts) std::printf(" %7.3f", c);
     std::printf("    rule\n");
