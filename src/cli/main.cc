@@ -19,6 +19,7 @@
 #include "tamis/base/atomic_file.h"
 #include "tamis/demo/demo.h"
 #include "tamis/pipeline/audit.h"
+#include "tamis/pipeline/scale_out.h"
 #include "tamis/place/leave_out.h"
 #include "tamis/place/manifest_reader.h"
 #include "tamis/read/cache.h"
@@ -64,10 +65,14 @@ struct CommonOptions {
   uint64_t thumbnail_memory_mb = tamis::ReadOptions{}.thumbnail_memory_bytes >> 20;
 };
 
-void add_reading_options(CLI::App* cmd, CommonOptions& o) {
-  cmd->add_option("--threads", o.threads, "worker threads (default: all cores)")->check(CLI::Range(0u, 1024u));
+void add_mask_options(CLI::App* cmd, CommonOptions& o) {
   cmd->add_option("--mask-folder", o.mask_folders, "a folder (relative to ROOT) that holds masks, whatever its pixels say");
   cmd->add_option("--not-mask-folder", o.not_mask_folders, "a folder (relative to ROOT) that never holds masks");
+}
+
+void add_reading_options(CLI::App* cmd, CommonOptions& o, bool masks = true) {
+  cmd->add_option("--threads", o.threads, "worker threads (default: all cores)")->check(CLI::Range(0u, 1024u));
+  if (masks) add_mask_options(cmd, o);
   cmd->add_option("--cache", o.cache, "record cache file (default: $XDG_CACHE_HOME/tamis/records.sqlite; never inside ROOT)");
   cmd->add_flag("--no-cache", o.no_cache, "do not read or write a cache");
   cmd->add_flag("--quiet", o.quiet, "print nothing but errors");
@@ -327,19 +332,55 @@ int finish(tamis::AuditResult& result, const std::string& out, const JudgeOption
   return tamis::policy_exit_status(result);
 }
 
+// ROOT as the outputs record it: absolute (not resolved through links), so that
+// manifest paths can be joined onto it from anywhere.
+std::filesystem::path absolute_root(const std::string& root) {
+  namespace fs = std::filesystem;
+  std::error_code ec;
+  fs::path abs = fs::absolute(fs::path(root), ec).lexically_normal();
+  if (ec) abs = fs::path(root);
+  if (abs.has_parent_path() && !abs.has_filename()) abs = abs.parent_path();  // "/a/b/" -> "/a/b"
+  return abs;
+}
+
+// The mask folders and the reading options into `settings` (root, cache and
+// groups are the caller's); prints and returns false when they are bad.
+bool resolve_reading(const CommonOptions& o, tamis::TreeSettings& settings) {
+  namespace fs = std::filesystem;
+  // Mask folders name folders inside ROOT: relative, without "..".
+  for (const auto* list : {&o.mask_folders, &o.not_mask_folders})
+    for (const std::string& f : *list) {
+      const fs::path p(f);
+      const bool up = std::any_of(p.begin(), p.end(), [](const fs::path& part) { return part == ".."; });
+      if (f.empty() || p.is_absolute() || up) {
+        std::fprintf(stderr, "tamis: %s '%s' must name a folder inside ROOT, relative to it and without '..'\n",
+                     list == &o.mask_folders ? "--mask-folder" : "--not-mask-folder", f.c_str());
+        return false;
+      }
+    }
+  settings.masks.force = o.mask_folders;
+  settings.masks.forbid = o.not_mask_folders;
+  settings.read.threads = o.threads;
+  settings.read.decode.max_pixels = o.max_pixels;
+  settings.read.decode.max_image_bytes = o.image_memory_mb << 20;
+  settings.read.thumbnail_memory_bytes = o.thumbnail_memory_mb << 20;
+  const char* tmpdir = std::getenv("TMPDIR");
+  settings.read.scratch_dir = tmpdir && *tmpdir ? fs::path(tmpdir) : fs::path("/tmp");  // never used inside ROOT
+  return true;
+}
+
+// The record cache the options name (none with --no-cache; the default one unless it lies inside ROOT).
+void resolve_cache(const std::string& root, const CommonOptions& o, tamis::TreeSettings& settings) {
+  if (o.no_cache) return;
+  settings.cache_file = o.cache.empty() ? tamis::default_cache_file() : std::filesystem::path(o.cache);
+  if (o.cache.empty() && tamis::path_is_inside(root, settings.cache_file)) settings.cache_file.clear();
+}
+
 int run_audit_command(const std::string& root, const std::string& out, const SplitOptions& so,
                       const JudgeOptions& jo, const CommonOptions& o) {
   namespace fs = std::filesystem;
   tamis::TreeSettings settings;
-  // Absolute (not resolved through links): report.json and the saved index record
-  // it, so that manifest paths can be joined onto it from anywhere.
-  {
-    std::error_code ec;
-    fs::path abs = fs::absolute(fs::path(root), ec).lexically_normal();
-    if (ec) abs = fs::path(root);
-    if (abs.has_parent_path() && !abs.has_filename()) abs = abs.parent_path();  // "/a/b/" -> "/a/b"
-    settings.root = abs;
-  }
+  settings.root = absolute_root(root);
   tamis::PlaceOptions place;
   tamis::KeepMap keep;
   bool have_keep = false;
@@ -353,29 +394,8 @@ int run_audit_command(const std::string& root, const std::string& out, const Spl
   place.baseline = have_baseline ? &baseline : nullptr;
   settings.groups.radius = place.policy.lookalike.radius;
   settings.groups.match = place.policy.lookalike.match;
-  if (!o.no_cache) {
-    settings.cache_file = o.cache.empty() ? tamis::default_cache_file() : fs::path(o.cache);
-    if (o.cache.empty() && tamis::path_is_inside(root, settings.cache_file)) settings.cache_file.clear();
-  }
-  // Mask folders name folders inside ROOT: relative, without "..".
-  for (const auto* list : {&o.mask_folders, &o.not_mask_folders})
-    for (const std::string& f : *list) {
-      const fs::path p(f);
-      const bool up = std::any_of(p.begin(), p.end(), [](const fs::path& part) { return part == ".."; });
-      if (f.empty() || p.is_absolute() || up) {
-        std::fprintf(stderr, "tamis: %s '%s' must name a folder inside ROOT, relative to it and without '..'\n",
-                     list == &o.mask_folders ? "--mask-folder" : "--not-mask-folder", f.c_str());
-        return kExitBadUsage;
-      }
-    }
-  settings.masks.force = o.mask_folders;
-  settings.masks.forbid = o.not_mask_folders;
-  settings.read.threads = o.threads;
-  settings.read.decode.max_pixels = o.max_pixels;
-  settings.read.decode.max_image_bytes = o.image_memory_mb << 20;
-  settings.read.thumbnail_memory_bytes = o.thumbnail_memory_mb << 20;
-  const char* tmpdir = std::getenv("TMPDIR");
-  settings.read.scratch_dir = tmpdir && *tmpdir ? fs::path(tmpdir) : fs::path("/tmp");  // never used inside ROOT
+  resolve_cache(root, o, settings);
+  if (!resolve_reading(o, settings)) return kExitBadUsage;
   // Early, before a long read: the output layer checks again when it writes.
   try {
     tamis::refuse_inside_root(root, out, "--out");
@@ -479,6 +499,196 @@ int run_export_command(const std::string& dir, const std::string& tree, const st
   return 0;
 }
 
+// The shard (or slice) this task takes: `given` ("K/N") when set, else the
+// cluster engine's environment (shard.h), else the whole (0/1). Prints and
+// returns false when neither makes sense.
+bool resolve_shard(const std::string& given, uint32_t count_given, const char* flag, tamis::Shard& shard) {
+  try {
+    if (!given.empty()) {
+      shard = tamis::parse_shard(given);
+      return true;
+    }
+    auto env = tamis::shard_from_environment([](const char* name) { return std::getenv(name); }, count_given);
+    if (env) {
+      shard = *env;
+      return true;
+    }
+    if (count_given > 1) {
+      std::fprintf(stderr, "tamis: %s: %u given, but not which one: give %s K/%u, or run as a Slurm array task or a Kubernetes Indexed Job\n",
+                   flag[2] == 's' && flag[3] == 'h' ? "--shards" : "--slices", count_given, flag, count_given);
+      return false;
+    }
+    shard = {};
+    return true;
+  } catch (const std::invalid_argument& e) {
+    std::fprintf(stderr, "tamis: %s: %s\n", flag, safe(e.what()).c_str());
+    return false;
+  }
+}
+
+std::string megabytes(uint64_t bytes) {
+  char buf[32];
+  std::snprintf(buf, sizeof buf, "%.1f MB", double(bytes) / 1e6);
+  return buf;
+}
+
+int run_scan_command(const std::string& root, const std::string& out, const std::string& shard_text, uint32_t shards,
+                     const CommonOptions& o) {
+  namespace fs = std::filesystem;
+  tamis::TreeSettings settings;
+  settings.root = absolute_root(root);
+  resolve_cache(root, o, settings);
+  if (!resolve_reading(o, settings)) return kExitBadUsage;
+  tamis::Shard shard;
+  if (!resolve_shard(shard_text, shards, "--shard", shard)) return kExitBadUsage;
+  try {
+    tamis::refuse_inside_root(root, out, "--out");
+    if (!o.cache.empty()) tamis::refuse_inside_root(root, o.cache, "--cache");
+  } catch (const tamis::InsideRootError& e) {
+    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
+    return kExitBadUsage;
+  }
+  std::error_code ec;
+  if (!fs::is_directory(root, ec)) {
+    std::fprintf(stderr, "tamis: ROOT %s is not a readable folder\n", root.c_str());
+    return kExitCannotRun;
+  }
+  bool show = !o.quiet && !o.no_progress && (o.progress || tamis::cli::ProgressLine::stderr_is_terminal());
+  tamis::cli::ProgressLine progress(show);
+  settings.read.on_progress = [&progress](size_t done, size_t total) { progress.update(done, total); };
+  std::vector<tamis::StageTime> times;
+  tamis::ScanPart part;
+  try {
+    part = tamis::scan_tree(settings, shard, &times);
+    progress.finish();
+    if (!part.note.empty() && !o.quiet) std::fprintf(stderr, "tamis: %s\n", safe(part.note).c_str());
+    tamis::StageClock clock(&times);
+    tamis::write_part_file(out, part);
+    clock.lap("part");
+  } catch (const tamis::InsideRootError& e) {
+    progress.finish();
+    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
+    return kExitBadUsage;
+  } catch (const std::exception& e) {
+    progress.finish();
+    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
+    return kExitCannotRun;
+  }
+  if (o.timings)
+    for (const auto& t : times) std::fprintf(stderr, "tamis: %-16s %8.3f s\n", t.stage.c_str(), t.seconds);
+  if (o.quiet) return 0;
+  uint64_t images = 0, unreadable = 0;
+  for (const auto& r : part.records) {
+    images += r.kind == tamis::FileKind::image;
+    unreadable += r.kind == tamis::FileKind::unreadable;
+  }
+  const uint64_t files = part.records.size();
+  std::printf("shard %s of %s: %llu file%s (%llu image%s or mask%s, %llu unreadable); read %llu, %llu from the cache\n",
+              tamis::to_string(shard).c_str(), safe(settings.root.string()).c_str(), (unsigned long long)files,
+              files == 1 ? "" : "s", (unsigned long long)images, images == 1 ? "" : "s", images == 1 ? "" : "s",
+              (unsigned long long)unreadable, (unsigned long long)part.counts.read,
+              (unsigned long long)(part.counts.cached + part.counts.cached_by_hash));
+  std::printf("part: %s (%s)\n", safe(out).c_str(), megabytes(fs::file_size(out, ec)).c_str());
+  return 0;
+}
+
+// The look-alike settings of the policy file (or the defaults); prints and returns false when bad.
+bool resolve_lookalike(const std::string& policy_file, tamis::TreeSettings& settings) {
+  tamis::Policy policy;
+  try {
+    policy = policy_file.empty() ? tamis::default_policy() : tamis::load_policy(policy_file);
+  } catch (const tamis::PolicyError& e) {
+    std::fprintf(stderr, "tamis: %s (%s)\n", safe(e.what()).c_str(), policy_file.c_str());
+    return false;
+  }
+  settings.groups.radius = policy.lookalike.radius;
+  settings.groups.match = policy.lookalike.match;
+  return true;
+}
+
+int run_join_command(const std::vector<std::string>& inputs, const std::string& out, const std::string& slice_text,
+                     uint32_t slices, const std::string& policy_file, const CommonOptions& o) {
+  tamis::TreeSettings settings;
+  if (!resolve_lookalike(policy_file, settings)) return kExitBadUsage;
+  if (!resolve_reading(o, settings)) return kExitBadUsage;
+  tamis::Shard slice;
+  if (!resolve_shard(slice_text, slices, "--slice", slice)) return kExitBadUsage;
+  std::vector<std::filesystem::path> files(inputs.begin(), inputs.end());
+  tamis::JoinSlice js;
+  try {
+    tamis::PartSet parts(files);
+    settings.root = parts.root();
+    tamis::refuse_inside_root(parts.root(), out, "--out");
+    js = tamis::join_parts(parts, settings, slice);
+    tamis::write_join_file(out, js, parts.root());
+  } catch (const tamis::MergeError& e) {
+    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
+    return kExitBadUsage;
+  } catch (const tamis::InsideRootError& e) {
+    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
+    return kExitBadUsage;
+  } catch (const std::exception& e) {
+    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
+    return kExitCannotRun;
+  }
+  if (!o.quiet)
+    std::printf("join slice %s over %llu records: %zu look-alike pair%s confirmed of %llu candidate hits; output: %s\n",
+                tamis::to_string(slice).c_str(), (unsigned long long)js.records, js.links.links.size(),
+                js.links.links.size() == 1 ? "" : "s", (unsigned long long)js.links.candidate_hits, safe(out).c_str());
+  return 0;
+}
+
+int run_merge_command(const std::vector<std::string>& inputs, const std::string& out, const SplitOptions& so,
+                      const JudgeOptions& jo, const CommonOptions& o) {
+  tamis::TreeSettings settings;
+  tamis::PlaceOptions place;
+  tamis::KeepMap keep;
+  bool have_keep = false;
+  if (!resolve_split(so, place.split, keep, have_keep)) return kExitBadUsage;
+  tamis::Baseline baseline;
+  bool have_baseline = false;
+  if (!resolve_judge(jo, place.policy, baseline, have_baseline)) return kExitBadUsage;
+  if (!resolve_leave_out(so, place.policy, place.split)) return kExitBadUsage;
+  if (!resolve_classes(so, place.policy, place.classes)) return kExitBadUsage;
+  place.keep = have_keep ? &keep : nullptr;
+  place.baseline = have_baseline ? &baseline : nullptr;
+  settings.groups.radius = place.policy.lookalike.radius;
+  settings.groups.match = place.policy.lookalike.match;
+  if (!resolve_reading(o, settings)) return kExitBadUsage;
+  // Parts and join outputs come in one list: each is told by its signature.
+  std::vector<std::filesystem::path> part_files;
+  std::vector<tamis::JoinSlice> joins;
+  tamis::AuditResult result;
+  try {
+    for (const std::string& f : inputs) {
+      if (tamis::is_join_file(f))
+        joins.push_back(tamis::load_join(f));
+      else
+        part_files.push_back(f);
+    }
+    if (part_files.empty()) throw tamis::MergeError("no parts were given (only join outputs)");
+    tamis::PartSet parts(part_files);
+    tamis::refuse_inside_root(parts.root(), out, "--out");
+    if (!jo.junit.empty()) tamis::refuse_inside_root(parts.root(), jo.junit, "--junit");
+    tamis::AuditIndex index = tamis::merge_parts(std::move(parts), joins, settings);
+    if (!index.cache_note.empty() && !o.quiet) std::fprintf(stderr, "tamis: %s\n", safe(index.cache_note).c_str());
+    result = tamis::place(std::move(index), place);
+  } catch (const tamis::MergeError& e) {
+    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
+    return kExitBadUsage;
+  } catch (const tamis::JoinFileError& e) {
+    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
+    return kExitBadUsage;
+  } catch (const tamis::InsideRootError& e) {
+    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
+    return kExitBadUsage;
+  } catch (const std::exception& e) {
+    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
+    return kExitCannotRun;
+  }
+  return finish(result, out, jo, o.quiet, o.timings);
+}
+
 }  // namespace
 
 int main(int argc, char** argv) {
@@ -522,6 +732,66 @@ int main(int argc, char** argv) {
   exporter->add_flag("--replace", export_replace, "replace an earlier export in --to (only one tamis made)");
   exporter->add_flag("--quiet", export_quiet, "print nothing but errors");
 
+  CommonOptions scan_opts;
+  std::string scan_root, scan_out, scan_shard;
+  uint32_t scan_shards = 0;
+  CLI::App* scan = app.add_subcommand(
+      "scan", "read one shard of ROOT and save it as a part, for a merge (a task of a cluster job; docs/scale-out.md)");
+  scan->footer(
+      "Which shard: --shard K/N; else, in a Slurm job array (sbatch --array=0-3), the task's\n"
+      "SLURM_ARRAY_TASK_ID and SLURM_ARRAY_TASK_COUNT; else, in a Kubernetes Indexed Job,\n"
+      "JOB_COMPLETION_INDEX with --shards N (the Job's completions); else the whole tree (0/1).\n"
+      "A file's shard is a hash of its path relative to ROOT: it never depends on the other files.\n"
+      "Example: tamis scan /data/photos --shard 0/4 --out /shared/parts/0.part");
+  scan->add_option("ROOT", scan_root, "the data set: one folder per class")->required();
+  scan->add_option("--out", scan_out, "the part file to write (never inside ROOT)")->required();
+  scan->add_option("--shard", scan_shard, "K/N: read shard K (0-based) of N");
+  scan->add_option("--shards", scan_shards, "N, when K comes from JOB_COMPLETION_INDEX")->check(CLI::Range(1u, tamis::kMaxShards));
+  add_reading_options(scan, scan_opts, false);
+
+  CommonOptions join_opts;
+  std::vector<std::string> join_inputs;
+  std::string join_out, join_slice, join_policy;
+  uint32_t join_slices = 0;
+  CLI::App* joiner = app.add_subcommand(
+      "join", "find one slice of the look-alike pairs over all parts (a task of a cluster job; docs/scale-out.md)");
+  joiner->footer(
+      "Which slice: --slice K/N; else SLURM_ARRAY_TASK_ID and SLURM_ARRAY_TASK_COUNT of a Slurm job\n"
+      "array; else JOB_COMPLETION_INDEX with --slices N; else the whole join (0/1).\n"
+      "Give the merge the same --policy and mask folders.\n"
+      "Example: tamis join /shared/parts/*.part --slice 1/2 --out /shared/join/1.join");
+  joiner->add_option("PART", join_inputs, "every part of the scan")->required();
+  joiner->add_option("--out", join_out, "the join output file to write (never inside ROOT)")->required();
+  joiner->add_option("--slice", join_slice, "K/N: compute slice K (0-based) of N");
+  joiner->add_option("--slices", join_slices, "N, when K comes from JOB_COMPLETION_INDEX")->check(CLI::Range(1u, tamis::kMaxShards));
+  joiner->add_option("--policy", join_policy, "policy file (JSON): its look-alike settings");
+  joiner->add_option("--threads", join_opts.threads, "worker threads (default: all cores)")->check(CLI::Range(0u, 1024u));
+  add_mask_options(joiner, join_opts);
+  joiner->add_flag("--quiet", join_opts.quiet, "print nothing but errors");
+
+  CommonOptions merge_opts;
+  SplitOptions merge_split;
+  JudgeOptions merge_judge;
+  std::vector<std::string> merge_inputs;
+  std::string merge_out;
+  CLI::App* merger = app.add_subcommand(
+      "merge", "combine the parts of a scan (and the join's outputs) into the outputs one audit of ROOT would write");
+  merger->footer(
+      "Without join outputs the merge finds the look-alikes itself. Parts of other versions or\n"
+      "settings, a missing or repeated shard or slice, or a damaged part are refused (exit 2).\n"
+      "Example: tamis merge /shared/parts/*.part /shared/join/*.join --out /shared/audit");
+  merger->add_option("PART", merge_inputs, "every part of the scan, and every join output if the join ran as tasks")->required();
+  merger->add_option("--out", merge_out, "folder for manifest.csv, report.json, report.html and index.cbor")->required();
+  add_split_options(merger, merge_split);
+  add_judge_options(merger, merge_judge);
+  merger->add_option("--threads", merge_opts.threads, "worker threads (default: all cores)")->check(CLI::Range(0u, 1024u));
+  add_mask_options(merger, merge_opts);
+  merger->add_flag("--quiet", merge_opts.quiet, "print nothing but errors");
+  merger->add_flag("--timings", merge_opts.timings, "print each stage's wall time on stderr when done");
+  merger->add_option("--thumbnail-memory-mb", merge_opts.thumbnail_memory_mb,
+                     "memory the look-alike thumbnails may take, in MB (default 64); beyond it a scratch file in $TMPDIR")
+      ->check(CLI::Range(uint64_t{0}, uint64_t{1} << 24));
+
   std::string demo_dir;
   CLI::App* demo = app.add_subcommand("demo", "write the demo data set (textile swatches) into DIR");
   demo->add_option("DIR", demo_dir, "folder to write into")->required();
@@ -542,6 +812,9 @@ int main(int argc, char** argv) {
   if (audit->parsed()) return run_audit_command(root, out, audit_split, audit_judge, audit_opts);
   if (split->parsed()) return run_split_command(split_dir, split_out, resplit_opts, split_judge, split_quiet);
   if (exporter->parsed()) return run_export_command(export_dir, export_to, export_mode, export_replace, export_quiet);
+  if (scan->parsed()) return run_scan_command(scan_root, scan_out, scan_shard, scan_shards, scan_opts);
+  if (joiner->parsed()) return run_join_command(join_inputs, join_out, join_slice, join_slices, join_policy, join_opts);
+  if (merger->parsed()) return run_merge_command(merge_inputs, merge_out, merge_split, merge_judge, merge_opts);
   if (demo->parsed()) {
     try {
       size_t n = tamis::write_demo(demo_dir);

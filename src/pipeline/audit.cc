@@ -10,10 +10,6 @@
 #include "tamis/read/tree_reader.h"
 
 namespace tamis {
-namespace {
-
-// The records whose thumbnails the outputs may show: group members, and images
-// paired with masks and their masks.
 std::vector<uint32_t> shown_records(const AuditIndex& r) {
   std::vector<uint32_t> shown;
   for (const auto& g : r.groups.groups) shown.insert(shown.end(), g.members.begin(), g.members.end());
@@ -25,7 +21,25 @@ std::vector<uint32_t> shown_records(const AuditIndex& r) {
   return shown;
 }
 
-}  // namespace
+void pair_and_label(AuditIndex& r, StageClock& clock) {
+  r.masks = pair_masks(r.records, r.settings.masks);
+  clock.lap("masks");
+  r.labels = assign_labels(r.records, r.masks.layout_roots);
+  clock.lap("labels");
+}
+
+void count_totals(AuditIndex& r) {
+  r.totals = {};
+  for (const auto& rec : r.records) {
+    ++r.totals.files_seen;
+    switch (rec.kind) {
+      case FileKind::image: ++r.totals.images; break;
+      case FileKind::mask: ++r.totals.masks; break;
+      case FileKind::unreadable: ++r.totals.unreadable; break;
+      case FileKind::ignored: ++r.totals.ignored; break;
+    }
+  }
+}
 
 AuditIndex read_tree(const TreeSettings& settings) {
   AuditIndex r;
@@ -35,10 +49,7 @@ AuditIndex read_tree(const TreeSettings& settings) {
   TreeReader reader(settings.root, settings.read, settings.cache_file);
   r.walk = reader.walk(clock);
   r.records = reader.read(r.walk, r.thumbs, r.counts, clock);
-  r.masks = pair_masks(r.records, settings.masks);
-  clock.lap("masks");
-  r.labels = assign_labels(r.records, r.masks.layout_roots);
-  clock.lap("labels");
+  pair_and_label(r, clock);
   GroupSettings gs = settings.groups;
   gs.threads = settings.read.threads;
   std::optional<GroupResult> stored = reader.stored_groups(r.records, group_settings_key(gs));
@@ -61,15 +72,7 @@ AuditIndex read_tree(const TreeSettings& settings) {
   r.thumbs.keep_only(shown_records(r));
   r.walk.files.clear();  // (already, unless the groups came from the cache)
   r.walk.files.shrink_to_fit();
-  for (const auto& rec : r.records) {
-    ++r.totals.files_seen;
-    switch (rec.kind) {
-      case FileKind::image: ++r.totals.images; break;
-      case FileKind::mask: ++r.totals.masks; break;
-      case FileKind::unreadable: ++r.totals.unreadable; break;
-      case FileKind::ignored: ++r.totals.ignored; break;
-    }
-  }
+  count_totals(r);
   return r;
 }
 

@@ -10,16 +10,19 @@
 
 namespace tamis {
 
+std::string reading_key(const ReadOptions& options) {
+  const DecodeLimits& d = options.decode;
+  return std::string(kToolVersion) + "|" + std::to_string(d.max_pixels) + "|" + std::to_string(d.reduced_side) + "|" +
+         std::to_string(options.max_bytes) + "|" + std::to_string(d.max_image_bytes) + "|" +
+         std::to_string(d.block_above_pixels) + "|" + std::to_string(kDecodeRules);
+}
+
 TreeReader::TreeReader(std::filesystem::path root, ReadOptions options, std::filesystem::path cache_file)
     : root_(std::move(root)), options_(std::move(options)), cache_file_(std::move(cache_file)) {
   if (cache_file_.empty()) return;
   // The cache loads on a thread of its own while the tree is listed.
   loader_ = std::thread([this] {
-    const DecodeLimits& d = options_.decode;
-    const std::string key = std::string(kToolVersion) + "|" + std::to_string(d.max_pixels) + "|" +
-                            std::to_string(d.reduced_side) + "|" + std::to_string(options_.max_bytes) + "|" +
-                            std::to_string(d.max_image_bytes) + "|" + std::to_string(d.block_above_pixels) + "|" +
-                            std::to_string(kDecodeRules);
+    const std::string key = reading_key(options_);
     try {
       cache_ = std::make_unique<RecordCache>(cache_file_, root_, key);
       if (cache_->rebuilt()) note_ = "the cache file was damaged; it was moved aside and rebuilt";
@@ -33,7 +36,7 @@ TreeReader::~TreeReader() {
   if (loader_.joinable()) loader_.join();
 }
 
-WalkResult TreeReader::walk(StageClock& clock) {
+WalkResult TreeReader::walk(StageClock& clock, Shard shard) {
   WalkResult w;
   try {
     w = walk_tree(root_, options_.threads, false);
@@ -41,6 +44,7 @@ WalkResult TreeReader::walk(StageClock& clock) {
     if (loader_.joinable()) loader_.join();
     throw;
   }
+  keep_shard(w, shard);  // before any file is stat'ed: a shard's walk stats only its own
   if (loader_.joinable()) loader_.join();
   // Files are stat'ed only when stored records may match them (otherwise every
   // file is opened anyway, and stamped from its descriptor).

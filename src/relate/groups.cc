@@ -149,11 +149,11 @@ void confirm_hits(const std::vector<std::pair<uint32_t, uint32_t>>& hits, const 
 // codes with the identity codes, confirmed by the thumbnails (match.h); each
 // confirmed pair joined, with a link where it joined two parts. Fills the
 // candidate and confirmed counts of `out`.
-void join_lookalikes(const std::vector<FileRecord>& records, const ThumbnailTable& thumbs,
-                     const std::vector<uint32_t>& eligible, const GroupSettings& settings, UnionFind& uf,
-                     std::vector<GroupLink>& links, GroupResult& out) {
+std::vector<GroupLink> join_lookalikes(const std::vector<FileRecord>& records, const ThumbnailTable& thumbs,
+                                       const std::vector<uint32_t>& eligible, const GroupSettings& settings,
+                                       GroupResult& out) {
   const size_t n = eligible.size();
-  if (n < 2) return;
+  if (n < 2) return {};
   std::vector<uint64_t> identity(n);
   for (size_t k = 0; k < n; ++k) identity[k] = records[eligible[k]].features.look.phash[0];
   // Per image: the match profile (match.h, 128 bytes): the thumbnail's sums,
@@ -216,7 +216,11 @@ void join_lookalikes(const std::vector<FileRecord>& records, const ThumbnailTabl
     }
   }
   out.candidate_hits -= self_hits;
-  // One measurement a pair: its first in (a, b, turn, blur step) order.
+  return confirmed;
+}
+
+// One measurement a pair: its first in (a, b, turn, blur step) order.
+void one_link_a_pair(std::vector<GroupLink>& confirmed) {
   std::sort(confirmed.begin(), confirmed.end(), [](const GroupLink& x, const GroupLink& y) {
     return std::tie(x.a, x.b, x.turn, x.blur_step, x.blurred_a, x.fit_source) <
            std::tie(y.a, y.b, y.turn, y.blur_step, y.blurred_a, y.fit_source);
@@ -224,9 +228,14 @@ void join_lookalikes(const std::vector<FileRecord>& records, const ThumbnailTabl
   confirmed.erase(std::unique(confirmed.begin(), confirmed.end(),
                               [](const GroupLink& x, const GroupLink& y) { return x.a == y.a && x.b == y.b; }),
                   confirmed.end());
-  out.confirmed_pairs = confirmed.size();
-  for (const GroupLink& l : confirmed)
-    if (uf.unite(l.a, l.b)) links.push_back(l);
+}
+
+// Record indices of the readable images, the ones the join sees.
+std::vector<uint32_t> eligible_images(const std::vector<FileRecord>& records) {
+  std::vector<uint32_t> eligible;
+  for (uint32_t i = 0; i < records.size(); ++i)
+    if (records[i].kind == FileKind::image && records[i].features.has_lookalike) eligible.push_back(i);
+  return eligible;
 }
 
 // Phase 3, the groups: components of two or more members, numbered by first
@@ -317,22 +326,120 @@ int lookalike_distance(const LookalikeCodes& a, const LookalikeCodes& b) {
   return best;
 }
 
-GroupResult find_groups(const std::vector<FileRecord>& records, const ThumbnailTable& thumbs,
-                        const GroupSettings& settings) {
-  GroupResult out;
+namespace {
+
+// The groups from the look-alike pairs (eligible indices, one a pair, sorted):
+// byte-identical files joined first, then the pairs in order.
+void finish_groups(const std::vector<FileRecord>& records, const std::vector<uint32_t>& eligible,
+                   const std::vector<GroupLink>& confirmed, GroupResult& out) {
   out.group_of.assign(records.size(), -1);
-  std::vector<uint32_t> eligible;  // record indices of readable images
-  for (uint32_t i = 0; i < records.size(); ++i)
-    if (records[i].kind == FileKind::image && records[i].features.has_lookalike) {
-      if (!thumbs.has(i)) throw std::logic_error("find_groups: an image without its thumbnail");
-      eligible.push_back(i);
-    }
   UnionFind uf(eligible.size());
   std::vector<GroupLink> links;  // in eligible indices until the groups are made
   std::vector<uint32_t> exact_root;
   out.exact_pairs = join_byte_identical(records, eligible, uf, links, exact_root);
-  join_lookalikes(records, thumbs, eligible, settings, uf, links, out);
+  out.confirmed_pairs = confirmed.size();
+  for (const GroupLink& l : confirmed)
+    if (uf.unite(l.a, l.b)) links.push_back(l);
   make_groups(records, eligible, exact_root, links, uf, out);
+}
+
+}  // namespace
+
+GroupResult find_groups(const std::vector<FileRecord>& records, const ThumbnailTable& thumbs,
+                        const GroupSettings& settings) {
+  GroupResult out;
+  const std::vector<uint32_t> eligible = eligible_images(records);
+  for (uint32_t i : eligible)
+    if (!thumbs.has(i)) throw std::logic_error("find_groups: an image without its thumbnail");
+  std::vector<GroupLink> confirmed = join_lookalikes(records, thumbs, eligible, settings, out);
+  one_link_a_pair(confirmed);
+  finish_groups(records, eligible, confirmed, out);
+  return out;
+}
+
+LookalikeLinks join_lookalike_slice(const std::vector<FileRecord>& records, const GroupSettings& settings,
+                                    uint32_t slice, uint32_t slices, const ThumbnailSource& load) {
+  if (slices == 0 || slice >= slices) throw std::invalid_argument("join_lookalike_slice: no such slice");
+  LookalikeLinks result;
+  const std::vector<uint32_t> eligible = eligible_images(records);
+  const size_t n = eligible.size();
+  if (n < 2) return result;
+  std::vector<uint64_t> identity(n);
+  for (size_t k = 0; k < n; ++k) identity[k] = records[eligible[k]].features.look.phash[0];
+  // The slice's query images (eligible k with k mod slices == slice), their 8 codes each.
+  std::vector<uint32_t> query;
+  for (uint32_t k = slice; k < n; k += slices) query.push_back(k);
+  std::vector<uint64_t> variants(query.size() * kDihedralCount);
+  for (size_t q = 0; q < query.size(); ++q)
+    for (int t = 0; t < kDihedralCount; ++t) variants[q * kDihedralCount + t] = records[eligible[query[q]]].features.look.phash[t];
+  uint64_t found = 0, self_hits = 0;
+  const PairFilter not_self = [&](uint32_t v, uint32_t j) { return query[v / kDihedralCount] != j; };
+  auto hits = join_within(variants, identity, settings.radius, settings.threads, not_self, &found, settings.join_memory_bytes);
+  for (uint32_t k : query)
+    for (int t = 0; t < kDihedralCount; ++t) self_hits += hamming(records[eligible[k]].features.look.phash[t], identity[k]) <= settings.radius;
+  result.candidate_hits = found - self_hits;
+  // The images the hits name, in eligible order: their thumbnails are the only ones read.
+  std::vector<uint32_t> needed;
+  needed.reserve(hits.size() * 2);
+  for (const auto& [v, j] : hits) {
+    needed.push_back(query[v / kDihedralCount]);
+    needed.push_back(j);
+  }
+  std::sort(needed.begin(), needed.end());
+  needed.erase(std::unique(needed.begin(), needed.end()), needed.end());
+  std::vector<uint32_t> local_records(needed.size());
+  for (size_t q = 0; q < needed.size(); ++q) local_records[q] = eligible[needed[q]];
+  ThumbnailTable thumbs;
+  thumbs.assign_none(records.size());
+  thumbs.make_room(local_records);
+  load(local_records, thumbs);
+  std::vector<MatchProfile> profile(needed.size());
+  std::vector<float> allowance(needed.size());
+  parallel_for(needed.size(), settings.threads, [&](size_t q) {
+    profile[q] = match_profile(thumbs.at(local_records[q]));
+    const FileRecord& r = records[local_records[q]];
+    allowance[q] = size_allowance(r.probe.width, r.probe.height, settings.match);
+  }, 256);
+  auto local = [&](uint32_t k) {
+    return static_cast<uint32_t>(std::lower_bound(needed.begin(), needed.end(), k) - needed.begin());
+  };
+  // The hits in local indices, kept when the profiles allow a match (as the
+  // whole join's filter does), sorted by their first member.
+  std::vector<std::pair<uint32_t, uint32_t>> kept;
+  for (const auto& [v, j] : hits) {
+    const uint32_t i = local(query[v / kDihedralCount]), lj = local(j);
+    const int t = static_cast<int>(v % kDihedralCount);
+    if (match_may_join(profile[i], t, profile[lj], pair_settings(settings.match, allowance[i], allowance[lj])))
+      kept.push_back({i * kDihedralCount + static_cast<uint32_t>(t), lj});
+  }
+  hits.clear();
+  hits.shrink_to_fit();
+  std::sort(kept.begin(), kept.end());
+  std::vector<GroupLink> confirmed;
+  confirm_hits(kept, thumbs, local_records, profile, allowance, settings, confirmed);
+  for (GroupLink& l : confirmed) {  // local -> record indices (both ascend together)
+    l.a = local_records[l.a];
+    l.b = local_records[l.b];
+  }
+  one_link_a_pair(confirmed);
+  result.links = std::move(confirmed);
+  return result;
+}
+
+GroupResult groups_from_links(const std::vector<FileRecord>& records, LookalikeLinks links) {
+  GroupResult out;
+  const std::vector<uint32_t> eligible = eligible_images(records);
+  for (GroupLink& l : links.links) {  // record -> eligible indices (both ascend together)
+    const auto a = std::lower_bound(eligible.begin(), eligible.end(), l.a);
+    const auto b = std::lower_bound(eligible.begin(), eligible.end(), l.b);
+    if (l.a >= l.b || a == eligible.end() || *a != l.a || b == eligible.end() || *b != l.b)
+      throw std::invalid_argument("a look-alike pair names a record that is no readable image");
+    l.a = static_cast<uint32_t>(a - eligible.begin());
+    l.b = static_cast<uint32_t>(b - eligible.begin());
+  }
+  one_link_a_pair(links.links);
+  out.candidate_hits = links.candidate_hits;
+  finish_groups(records, eligible, links.links, out);
   return out;
 }
 

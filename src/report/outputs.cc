@@ -167,4 +167,16 @@ void write_outputs(const std::filesystem::path& out_dir, const AuditResult& resu
   }
 }
 
+void write_part_file(const std::filesystem::path& file, const ScanPart& part) {
+  refuse_inside_root(part.root, file, "--out");
+  if (file.has_parent_path()) std::filesystem::create_directories(file.parent_path());
+  write_file_atomically(file, [&](std::ostream& os) { write_part(os, part); });
+}
+
+void write_join_file(const std::filesystem::path& file, const JoinSlice& slice, const std::filesystem::path& root) {
+  refuse_inside_root(root, file, "--out");
+  if (file.has_parent_path()) std::filesystem::create_directories(file.parent_path());
+  write_file_atomically(file, [&](std::ostream& os) { write_join(os, slice); });
+}
+
 }  // namespace tamis

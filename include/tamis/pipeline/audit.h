@@ -112,6 +112,15 @@ struct AuditResult : AuditIndex {
 // walk -> read -> masks -> labels -> groups. Throws std::runtime_error when ROOT cannot be read.
 AuditIndex read_tree(const TreeSettings& settings);
 
+// The steps read_tree shares with the scale-out merge (scale_out.h):
+// masks then labels from r.records and r.settings.masks;
+void pair_and_label(AuditIndex& r, StageClock& clock);
+// the records whose thumbnails the outputs may show (group members, images
+// paired with masks and their masks; may repeat);
+std::vector<uint32_t> shown_records(const AuditIndex& r);
+// the totals from the records' kinds.
+void count_totals(AuditIndex& r);
+
 // checks -> split -> policy -> baseline, on an index (fresh, or loaded by `tamis
 // split`). A pre-split tree keeps its folders' splits unless split.resplit.
 AuditResult place(AuditIndex index, const PlaceOptions& options);

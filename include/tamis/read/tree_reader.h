@@ -29,11 +29,16 @@
 #include "tamis/model/group.h"
 #include "tamis/model/record.h"
 #include "tamis/read/read_stage.h"
+#include "tamis/read/shard.h"
 #include "tamis/read/walk.h"
 
 namespace tamis {
 
 class RecordCache;
+
+// Every reading setting and rule that changes a record, as one string: the
+// cache's settings key, and what scan parts must share to be merged.
+std::string reading_key(const ReadOptions& options);
 
 class TreeReader {
  public:
@@ -43,9 +48,10 @@ class TreeReader {
   TreeReader(const TreeReader&) = delete;
   TreeReader& operator=(const TreeReader&) = delete;
 
-  // 1. Lists ROOT while the cache loads; stamps the files when stored records may
-  // match them. Throws std::runtime_error when ROOT cannot be read.
-  WalkResult walk(StageClock& clock);
+  // 1. Lists ROOT while the cache loads, keeps `shard`'s share of it (shard.h;
+  // all of it by default); stamps the files when stored records may match them.
+  // Throws std::runtime_error when ROOT cannot be read.
+  WalkResult walk(StageClock& clock, Shard shard = {});
   // 2. Reads every listed file (record i for walk.files[i]) and stores the records
   // in the cache as read. `walk` must outlive the reader's use of thumbnails (4).
   std::vector<FileRecord> read(const WalkResult& walk, ThumbnailTable& thumbs, ReadCounts& counts, StageClock& clock);

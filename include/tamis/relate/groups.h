@@ -23,6 +23,7 @@
 #pragma once
 
 #include <cstdint>
+#include <functional>
 #include <string>
 #include <vector>
 
@@ -46,6 +47,27 @@ struct GroupSettings {
 // REQUIRES: thumbs.has(i) for every readable image i (the correlation needs them).
 GroupResult find_groups(const std::vector<FileRecord>& records, const ThumbnailTable& thumbs,
                         const GroupSettings& settings);
+
+// The look-alike join in slices, for a join that runs as tasks of a cluster
+// engine (docs/scale-out.md). Slice s of S finds the confirmed look-alike pairs
+// whose query image (the one whose 8 flips/turns are searched) is readable
+// image k (in path order) with k mod S == s: every pair find_groups confirms is
+// found by one or two slices, and the union of all S slices' pairs, given to
+// groups_from_links, gives exactly find_groups' result. A slice reads only the
+// thumbnails of the images its hits name, through `load` (which fills `into`'s
+// slots of `records`, ascending; the slots exist).
+struct LookalikeLinks {
+  std::vector<GroupLink> links;  // record indices, a < b, one a pair, sorted
+  uint64_t candidate_hits = 0;   // the slice's share of GroupResult::candidate_hits
+};
+using ThumbnailSource = std::function<void(const std::vector<uint32_t>& records, ThumbnailTable& into)>;
+LookalikeLinks join_lookalike_slice(const std::vector<FileRecord>& records, const GroupSettings& settings,
+                                    uint32_t slice, uint32_t slices, const ThumbnailSource& load);
+// The groups from the union of every slice's links (in any order; a pair found
+// by two slices counts once, measured as find_groups measures it) and the sum of
+// their candidate hits. Throws std::invalid_argument when a link names a record
+// that is not a readable image.
+GroupResult groups_from_links(const std::vector<FileRecord>& records, LookalikeLinks links);
 
 // A string naming every setting and rule that changes the groups (kMatchRules
 // and the settings' values, as bytes), for the cache's groups fingerprint.

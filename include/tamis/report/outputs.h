@@ -17,6 +17,8 @@
 #include <string>
 
 #include "tamis/pipeline/audit.h"
+#include "tamis/read/part_file.h"
+#include "tamis/relate/join_file.h"
 #include "tamis/report/index_file.h"
 
 namespace tamis {
@@ -44,5 +46,11 @@ void refuse_inside_root(const std::filesystem::path& root, const std::filesystem
 void write_outputs(const std::filesystem::path& out_dir, const AuditResult& result,
                    size_t thumbnail_budget = kThumbnailBudget, std::vector<StageTime>* times = nullptr,
                    const std::filesystem::path& junit_file = {});
+
+// A scan's part (read/part_file.h) and a join task's output (relate/join_file.h):
+// each one file, written atomically (its folder made when missing), refused
+// (InsideRootError) when it is ROOT or inside it.
+void write_part_file(const std::filesystem::path& file, const ScanPart& part);
+void write_join_file(const std::filesystem::path& file, const JoinSlice& slice, const std::filesystem::path& root);
 
 }  // namespace tamis

@@ -1,0 +1,317 @@
+#include "tamis/read/part_file.h"
+
+#include <fcntl.h>
+#include <sys/stat.h>
+#include <unistd.h>
+
+#include <algorithm>
+#include <cerrno>
+#include <cstring>
+#include <memory>
+#include <span>
+
+#include <nlohmann/json.hpp>
+#include <xxhash.h>
+
+#include "tamis/model/record_codec.h"
+#include "tamis/version.h"
+
+namespace tamis {
+
+using nlohmann::json;
+
+namespace {
+
+constexpr char kMagic[16] = {'\x89', 't', 'a', 'm', 'i', 's', '-', 'p', 'a', 'r', 't', '\r', '\n', '\x1a', '\n', '\0'};
+constexpr char kEnd[8] = {'t', 'a', 'm', 'i', 's', 'e', 'n', 'd'};
+constexpr size_t kHeader = 64, kTrailer = 24, kTableEntry = 16;
+constexpr uint64_t kMaxMeta = 1ull << 34;  // a meta block past 16 GB is no part this tool wrote
+
+void put_u64(uint8_t* p, uint64_t v) {
+  for (int k = 0; k < 8; ++k) p[k] = static_cast<uint8_t>(v >> (8 * k));
+}
+void put_u32(uint8_t* p, uint32_t v) {
+  for (int k = 0; k < 4; ++k) p[k] = static_cast<uint8_t>(v >> (8 * k));
+}
+uint64_t get_u64(const uint8_t* p) {
+  uint64_t v = 0;
+  for (int k = 7; k >= 0; --k) v = v << 8 | p[k];
+  return v;
+}
+uint32_t get_u32(const uint8_t* p) {
+  uint32_t v = 0;
+  for (int k = 3; k >= 0; --k) v = v << 8 | p[k];
+  return v;
+}
+
+json bin(const std::string& s) { return json::binary(std::vector<uint8_t>(s.begin(), s.end())); }
+json bins(const std::vector<std::string>& v) {
+  json a = json::array();
+  for (const auto& s : v) a.push_back(bin(s));
+  return a;
+}
+std::string str(const json& j) {
+  if (!j.is_binary()) throw std::runtime_error("expected a byte string");
+  const auto& b = j.get_binary();
+  return std::string(b.begin(), b.end());
+}
+std::vector<std::string> strs(const json& j) {
+  std::vector<std::string> out;
+  if (!j.is_array()) throw std::runtime_error("expected an array");
+  for (const auto& e : j) out.push_back(str(e));
+  if (!std::is_sorted(out.begin(), out.end())) throw std::runtime_error("a list out of order");
+  return out;
+}
+
+struct Hashes {
+  std::unique_ptr<XXH3_state_t, decltype(&XXH3_freeState)> head{XXH3_createState(), &XXH3_freeState};
+  std::unique_ptr<XXH3_state_t, decltype(&XXH3_freeState)> whole{XXH3_createState(), &XXH3_freeState};
+  Hashes() {
+    XXH3_64bits_reset(head.get());
+    XXH3_64bits_reset(whole.get());
+  }
+};
+
+}  // namespace
+
+void write_part(std::ostream& os, const ScanPart& p) {
+  json meta = {{"format", "tamis-part"},
+               {"tool", p.tool.empty() ? std::string(kToolVersion) : p.tool},
+               {"root", bin(p.root)},
+               {"read", {{"max_pixels", p.decode.max_pixels}, {"max_image_bytes", p.decode.max_image_bytes},
+                         {"reduced_side", p.decode.reduced_side}, {"block_above_pixels", p.decode.block_above_pixels},
+                         {"max_bytes", p.max_bytes}}},
+               {"read_key", bin(p.read_key)},
+               {"shard", {p.shard.index, p.shard.count}},
+               {"walk", {{"links", bins(p.walk.links)}, {"special", bins(p.walk.special)},
+                         {"unreadable_dirs", bins(p.walk.unreadable_dirs)}, {"dirs", bins(p.walk.dirs)}}},
+               {"counts", {p.counts.read, p.counts.cached, p.counts.cached_by_hash, p.counts.moved}},
+               {"note", bin(p.note)}};
+  std::vector<uint8_t> meta_bytes;
+  json::to_cbor(meta, meta_bytes);
+  // Records, coded once into memory (about 150 bytes each), and the thumbnails' table.
+  std::vector<uint8_t> recs, one;
+  std::vector<uint32_t> with_thumb;
+  for (uint32_t i = 0; i < p.records.size(); ++i) {
+    const FileRecord& r = p.records[i];
+    uint8_t fixed[28];
+    put_u32(fixed, static_cast<uint32_t>(r.path.size()));
+    recs.insert(recs.end(), fixed, fixed + 4);
+    recs.insert(recs.end(), r.path.begin(), r.path.end());
+    put_u64(fixed, r.size);
+    put_u64(fixed + 8, static_cast<uint64_t>(r.mtime_ns));
+    put_u64(fixed + 16, r.inode);
+    one.clear();
+    detail::record_to_bytes(r, one);
+    fixed[24] = static_cast<uint8_t>(one.size());
+    recs.insert(recs.end(), fixed, fixed + 25);
+    recs.insert(recs.end(), one.begin(), one.end());
+    if (r.features.has_lookalike) {
+      if (!p.thumbs.has(i)) throw std::logic_error("write_part: a look-alike record without its thumbnail");
+      with_thumb.push_back(i);
+    }
+  }
+  uint8_t head[kHeader] = {};
+  std::memcpy(head, kMagic, sizeof kMagic);
+  put_u32(head + 16, kPartVersion);
+  put_u64(head + 24, meta_bytes.size());
+  put_u64(head + 32, p.records.size());
+  put_u64(head + 40, recs.size());
+  put_u64(head + 48, with_thumb.size());
+  Hashes h;
+  auto put = [&](const void* data, size_t n, bool in_head) {
+    os.write(static_cast<const char*>(data), static_cast<std::streamsize>(n));
+    if (in_head) XXH3_64bits_update(h.head.get(), data, n);
+    XXH3_64bits_update(h.whole.get(), data, n);
+  };
+  put(head, kHeader, true);
+  put(meta_bytes.data(), meta_bytes.size(), true);
+  put(recs.data(), recs.size(), true);
+  recs.clear();
+  recs.shrink_to_fit();
+  // The table needs each thumbnail's checksum: thumbnails are read twice, in
+  // blocks (from memory, or in runs from a scratch file).
+  constexpr size_t kBlock = 4096;
+  std::vector<Thumbnail> block(std::min(kBlock, with_thumb.size()));
+  for (size_t first = 0; first < with_thumb.size(); first += kBlock) {
+    const size_t n = std::min(kBlock, with_thumb.size() - first);
+    p.thumbs.get_many(with_thumb.data() + first, n, block.data());
+    for (size_t k = 0; k < n; ++k) {
+      uint8_t entry[kTableEntry];
+      put_u64(entry, with_thumb[first + k]);
+      put_u64(entry + 8, XXH3_64bits(block[k].data(), block[k].size()));
+      put(entry, kTableEntry, true);
+    }
+  }
+  for (size_t first = 0; first < with_thumb.size(); first += kBlock) {
+    const size_t n = std::min(kBlock, with_thumb.size() - first);
+    p.thumbs.get_many(with_thumb.data() + first, n, block.data());
+    put(block.data(), n * sizeof(Thumbnail), false);
+  }
+  uint8_t trailer[kTrailer];
+  put_u64(trailer, XXH3_64bits_digest(h.head.get()));
+  put_u64(trailer + 8, XXH3_64bits_digest(h.whole.get()));
+  std::memcpy(trailer + 16, kEnd, sizeof kEnd);
+  os.write(reinterpret_cast<const char*>(trailer), kTrailer);
+  if (!os) throw std::runtime_error("the part could not be written");
+}
+
+void PartFile::fail(const std::string& why) const { throw PartError("part " + file_.string() + " " + why); }
+
+PartFile::~PartFile() {
+  if (fd_ >= 0) ::close(fd_);
+}
+
+PartFile::PartFile(const std::filesystem::path& file) : file_(file) {
+  fd_ = ::open(file.c_str(), O_RDONLY | O_CLOEXEC);
+  if (fd_ < 0) fail(std::string("cannot be read: ") + std::strerror(errno));
+  struct stat st{};
+  if (::fstat(fd_, &st) != 0 || !S_ISREG(st.st_mode)) fail("is not a regular file");
+  size_ = static_cast<uint64_t>(st.st_size);
+  auto read_at = [&](uint64_t at, void* out, size_t n) {
+    size_t done = 0;
+    while (done < n) {
+      const ssize_t got = ::pread(fd_, static_cast<char*>(out) + done, n - done, static_cast<off_t>(at + done));
+      if (got < 0 && errno == EINTR) continue;
+      if (got <= 0) fail("is cut short (truncated) or cannot be read");
+      done += static_cast<size_t>(got);
+    }
+  };
+  uint8_t head[kHeader];
+  if (size_ < kHeader + kTrailer) fail("is not a tamis part (too short: truncated or another file)");
+  read_at(0, head, kHeader);
+  if (std::memcmp(head, kMagic, sizeof kMagic) != 0) fail("is not a tamis part (no tamis-part signature)");
+  const uint32_t version = get_u32(head + 16);
+  if (version != kPartVersion)
+    fail("has part format version " + std::to_string(version) + "; this tamis reads version " +
+         std::to_string(kPartVersion) + " (scan again with this version)");
+  const uint64_t meta_n = get_u64(head + 24), count = get_u64(head + 32), recs_n = get_u64(head + 40),
+                 thumbs_n = get_u64(head + 48);
+  // The length the header implies, computed without overflow.
+  if (meta_n > kMaxMeta || recs_n > size_ || count > size_ || thumbs_n > size_ / sizeof(Thumbnail) || count > UINT32_MAX)
+    fail("is damaged (its header gives impossible sizes)");
+  thumbs_at_ = kHeader + meta_n + recs_n + thumbs_n * kTableEntry;
+  const uint64_t expect = thumbs_at_ + thumbs_n * sizeof(Thumbnail) + kTrailer;
+  if (expect != size_)
+    fail(size_ < expect ? "is cut short (truncated): " + std::to_string(size_) + " bytes of " + std::to_string(expect)
+                        : "is damaged (" + std::to_string(size_ - expect) + " bytes more than its header says)");
+  uint8_t trailer[kTrailer];
+  read_at(size_ - kTrailer, trailer, kTrailer);
+  if (std::memcmp(trailer + 16, kEnd, sizeof kEnd) != 0) fail("is damaged (no end mark)");
+  head_sum_ = get_u64(trailer);
+  file_sum_ = get_u64(trailer + 8);
+  // The head (header, meta, records, table): read whole, checked, then decoded.
+  std::vector<uint8_t> bytes(thumbs_at_);
+  read_at(0, bytes.data(), bytes.size());
+  if (XXH3_64bits(bytes.data(), bytes.size()) != head_sum_) fail("is damaged (checksum mismatch)");
+  try {
+    const json meta = json::from_cbor(bytes.begin() + kHeader, bytes.begin() + static_cast<std::ptrdiff_t>(kHeader + meta_n));
+    if (meta.at("format") != "tamis-part") fail("is not a tamis part");
+    ScanPart& p = info_;
+    p.tool = meta.at("tool").get<std::string>();
+    p.root = str(meta.at("root"));
+    const json& rd = meta.at("read");
+    p.decode.max_pixels = rd.at("max_pixels").get<uint64_t>();
+    p.decode.max_image_bytes = rd.at("max_image_bytes").get<uint64_t>();
+    p.decode.reduced_side = rd.at("reduced_side").get<uint32_t>();
+    p.decode.block_above_pixels = rd.at("block_above_pixels").get<uint64_t>();
+    p.max_bytes = rd.at("max_bytes").get<uint64_t>();
+    p.read_key = str(meta.at("read_key"));
+    const json& sh = meta.at("shard");
+    const uint64_t k = sh.at(0).get<uint64_t>(), n = sh.at(1).get<uint64_t>();
+    if (n < 1 || n > kMaxShards || k >= n) fail("is damaged (its shard is out of range)");
+    p.shard = {static_cast<uint32_t>(k), static_cast<uint32_t>(n)};
+    const json& w = meta.at("walk");
+    p.walk.links = strs(w.at("links"));
+    p.walk.special = strs(w.at("special"));
+    p.walk.unreadable_dirs = strs(w.at("unreadable_dirs"));
+    p.walk.dirs = strs(w.at("dirs"));
+    const auto c = meta.at("counts").get<std::vector<uint64_t>>();
+    if (c.size() != 4) fail("is damaged (counts)");
+    p.counts.read = c[0];
+    p.counts.cached = c[1];
+    p.counts.cached_by_hash = c[2];
+    p.counts.moved = c[3];
+    p.note = str(meta.at("note"));
+    for (const auto* list : {&p.walk.links, &p.walk.special, &p.walk.unreadable_dirs, &p.walk.dirs})
+      for (const auto& path : *list)
+        if (shard_of(path, p.shard.count) != p.shard.index) fail("is damaged (an entry outside its shard)");
+  } catch (const PartError&) {
+    throw;
+  } catch (const std::exception& e) {
+    fail(std::string("is damaged: ") + e.what());
+  }
+  // Records.
+  const uint8_t* at = bytes.data() + kHeader + meta_n;
+  const uint8_t* end = at + recs_n;
+  info_.records.resize(count);
+  for (uint64_t i = 0; i < count; ++i) {
+    FileRecord& r = info_.records[i];
+    if (end - at < 4) fail("is damaged (records)");
+    const uint32_t len = get_u32(at);
+    at += 4;
+    if (static_cast<uint64_t>(end - at) < uint64_t{len} + 25) fail("is damaged (records)");
+    std::string path(reinterpret_cast<const char*>(at), len);
+    at += len;
+    const uint64_t size = get_u64(at), mtime = get_u64(at + 8), inode = get_u64(at + 16);
+    const uint8_t nb = at[24];
+    at += 25;
+    if (static_cast<uint64_t>(end - at) < nb) fail("is damaged (records)");
+    if (!detail::record_from_bytes(std::span<const uint8_t>(at, nb), r)) fail("is damaged (a record)");
+    at += nb;
+    r.path = std::move(path);
+    r.size = size;
+    r.mtime_ns = static_cast<int64_t>(mtime);
+    r.inode = inode;
+    if (i > 0 && !(info_.records[i - 1].path < r.path)) fail("is damaged (records out of order)");
+    if (r.path.empty() || shard_of(r.path, info_.shard.count) != info_.shard.index)
+      fail("is damaged (a record outside its shard)");
+  }
+  if (at != end) fail("is damaged (records)");
+  // The thumbnails' table: ascending records, each with has_lookalike, and all of them.
+  thumb_record_.resize(thumbs_n);
+  thumb_sum_.resize(thumbs_n);
+  for (uint64_t k = 0; k < thumbs_n; ++k, at += kTableEntry) {
+    const uint64_t rec = get_u64(at);
+    if (rec >= count || (k > 0 && rec <= thumb_record_[k - 1]) || !info_.records[rec].features.has_lookalike)
+      fail("is damaged (thumbnail table)");
+    thumb_record_[k] = static_cast<uint32_t>(rec);
+    thumb_sum_[k] = get_u64(at + 8);
+  }
+  const uint64_t with_look = static_cast<uint64_t>(std::count_if(
+      info_.records.begin(), info_.records.end(), [](const FileRecord& r) { return r.features.has_lookalike; }));
+  if (with_look != thumbs_n) fail("is damaged (thumbnails missing)");
+}
+
+void PartFile::read_thumbnails(size_t first, size_t count, Thumbnail* out) const {
+  if (first > thumb_record_.size() || count > thumb_record_.size() - first) fail("thumbnail out of range");
+  size_t done = 0;
+  const size_t bytes = count * sizeof(Thumbnail);
+  const uint64_t at = thumbs_at_ + first * sizeof(Thumbnail);
+  while (done < bytes) {
+    const ssize_t got = ::pread(fd_, reinterpret_cast<char*>(out) + done, bytes - done, static_cast<off_t>(at + done));
+    if (got < 0 && errno == EINTR) continue;
+    if (got <= 0) fail("cannot be read (cut short while in use?)");
+    done += static_cast<size_t>(got);
+  }
+  for (size_t k = 0; k < count; ++k)
+    if (XXH3_64bits(out[k].data(), out[k].size()) != thumb_sum_[first + k]) fail("is damaged (a thumbnail's checksum)");
+}
+
+void PartFile::verify() const {
+  std::unique_ptr<XXH3_state_t, decltype(&XXH3_freeState)> st(XXH3_createState(), &XXH3_freeState);
+  XXH3_64bits_reset(st.get());
+  std::vector<char> buf(1 << 20);
+  const uint64_t stop = size_ - kTrailer;
+  for (uint64_t at = 0; at < stop;) {
+    const size_t want = static_cast<size_t>(std::min<uint64_t>(buf.size(), stop - at));
+    const ssize_t got = ::pread(fd_, buf.data(), want, static_cast<off_t>(at));
+    if (got < 0 && errno == EINTR) continue;
+    if (got <= 0) fail("cannot be read (cut short while in use?)");
+    XXH3_64bits_update(st.get(), buf.data(), static_cast<size_t>(got));
+    at += static_cast<uint64_t>(got);
+  }
+  if (XXH3_64bits_digest(st.get()) != file_sum_) fail("is damaged (checksum mismatch)");
+}
+
+}  // namespace tamis
