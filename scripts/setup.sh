@@ -14,6 +14,7 @@ build_pkgs=(cmake make g++ pkg-config libopencv-dev nlohmann-json3-dev libcli11-
             libspdlog-dev libturbojpeg0-dev libjpeg-dev libxxhash-dev libsqlite3-dev zlib1g-dev)
 test_pkgs=(libjxl-testdata dataset-fashion-mnist visp-images-data python3 python3-numpy python3-scipy
            python3-sklearn python3-jsonschema python3-pil python3-cbor2 python3-xxhash python3-pandas libjpeg-turbo-progs chromium fonts-dejavu-core
+           slurmctld slurmd slurm-client
            clang libclang-rt-14-dev llvm)
 
 as_root() {
