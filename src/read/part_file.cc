@@ -188,7 +188,8 @@ PartFile::PartFile(const std::filesystem::path& file) : file_(file) {
   const uint64_t meta_n = get_u64(head + 24), count = get_u64(head + 32), recs_n = get_u64(head + 40),
                  thumbs_n = get_u64(head + 48);
   // The length the header implies, computed without overflow.
-  if (meta_n > kMaxMeta || recs_n > size_ || count > size_ || thumbs_n > size_ / sizeof(Thumbnail) || count > UINT32_MAX)
+  // (Bounds far above any part, so that the sum below cannot overflow.)
+  if (meta_n > kMaxMeta || recs_n > (1ull << 50) || count > UINT32_MAX || thumbs_n > UINT32_MAX)
     fail("is damaged (its header gives impossible sizes)");
   thumbs_at_ = kHeader + meta_n + recs_n + thumbs_n * kTableEntry;
   const uint64_t expect = thumbs_at_ + thumbs_n * sizeof(Thumbnail) + kTrailer;
