@@ -499,6 +499,16 @@ int run_export_command(const std::string& dir, const std::string& tree, const st
   return 0;
 }
 
+// Prints a command's failure and gives its exit status: 2 for what the user can
+// mend in the command (an output inside ROOT, a set of parts or join outputs
+// the merge refuses), 3 for a run that could not be done.
+int failed(const std::exception& e) {
+  std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
+  const bool usage = dynamic_cast<const tamis::InsideRootError*>(&e) || dynamic_cast<const tamis::MergeError*>(&e) ||
+                     dynamic_cast<const tamis::JoinFileError*>(&e);
+  return usage ? kExitBadUsage : kExitCannotRun;
+}
+
 // The shard (or slice) this task takes: `given` ("K/N") when set, else the
 // cluster engine's environment (shard.h), else the whole (0/1). Prints and
 // returns false when neither makes sense.
@@ -545,8 +555,7 @@ int run_scan_command(const std::string& root, const std::string& out, const std:
     tamis::refuse_inside_root(root, out, "--out");
     if (!o.cache.empty()) tamis::refuse_inside_root(root, o.cache, "--cache");
   } catch (const tamis::InsideRootError& e) {
-    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
-    return kExitBadUsage;
+    return failed(e);
   }
   std::error_code ec;
   if (!fs::is_directory(root, ec)) {
@@ -565,14 +574,9 @@ int run_scan_command(const std::string& root, const std::string& out, const std:
     tamis::StageClock clock(&times);
     tamis::write_part_file(out, part);
     clock.lap("part");
-  } catch (const tamis::InsideRootError& e) {
-    progress.finish();
-    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
-    return kExitBadUsage;
   } catch (const std::exception& e) {
     progress.finish();
-    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
-    return kExitCannotRun;
+    return failed(e);
   }
   if (o.timings)
     for (const auto& t : times) std::fprintf(stderr, "tamis: %-16s %8.3f s\n", t.stage.c_str(), t.seconds);
@@ -621,15 +625,8 @@ int run_join_command(const std::vector<std::string>& inputs, const std::string& 
     tamis::refuse_inside_root(parts.root(), out, "--out");
     js = tamis::join_parts(parts, settings, slice);
     tamis::write_join_file(out, js, parts.root());
-  } catch (const tamis::MergeError& e) {
-    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
-    return kExitBadUsage;
-  } catch (const tamis::InsideRootError& e) {
-    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
-    return kExitBadUsage;
   } catch (const std::exception& e) {
-    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
-    return kExitCannotRun;
+    return failed(e);
   }
   if (!o.quiet)
     std::printf("join slice %s over %llu records: %zu look-alike pair%s confirmed of %llu candidate hits; output: %s\n",
@@ -673,18 +670,8 @@ int run_merge_command(const std::vector<std::string>& inputs, const std::string&
     tamis::AuditIndex index = tamis::merge_parts(std::move(parts), joins, settings);
     if (!index.cache_note.empty() && !o.quiet) std::fprintf(stderr, "tamis: %s\n", safe(index.cache_note).c_str());
     result = tamis::place(std::move(index), place);
-  } catch (const tamis::MergeError& e) {
-    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
-    return kExitBadUsage;
-  } catch (const tamis::JoinFileError& e) {
-    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
-    return kExitBadUsage;
-  } catch (const tamis::InsideRootError& e) {
-    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
-    return kExitBadUsage;
   } catch (const std::exception& e) {
-    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
-    return kExitCannotRun;
+    return failed(e);
   }
   return finish(result, out, jo, o.quiet, o.timings);
 }
