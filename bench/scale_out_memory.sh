@@ -5,12 +5,17 @@
 # join's SLICES tasks one after another, the merge with their outputs, and the
 # merge alone (the join inside it), each under /usr/bin/time (peak RSS), and
 # checks that both merges give the same four files (MERGE_ALONE=0 skips the merge
-# alone, which at 10M records takes long). WORKDIR is removed first.
+# alone, which at 10M records takes long). WORKDIR is removed first (REUSE_PARTS=1
+# keeps its parts).
 set -euo pipefail
 build="$1" n="$2" parts="$3" slices="$4" work="$5"
-rm -rf "$work"
-mkdir -p "$work"
-"$build/bench/synthetic_parts" "$n" "$parts" "$work/parts"
+if [ "${REUSE_PARTS:-0}" = 1 ] && [ -d "$work/parts" ]; then  # parts of an earlier run with the same N and PARTS
+  rm -rf "$work/joins" "$work/merged" "$work/alone"
+else
+  rm -rf "$work"
+  mkdir -p "$work"
+  "$build/bench/synthetic_parts" "$n" "$parts" "$work/parts"
+fi
 du -sh "$work/parts"
 t() { /usr/bin/time -f "$1: %e s, peak RSS %M KB" "${@:2}"; }
 for ((k = 0; k < slices; k++)); do

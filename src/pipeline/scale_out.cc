@@ -2,6 +2,7 @@
 
 #include <algorithm>
 #include <map>
+#include <queue>
 #include <set>
 
 #include <xxhash.h>
@@ -111,37 +112,35 @@ PartSet::PartSet(const std::vector<std::filesystem::path>& files) {
   std::vector<uint64_t> sums;
   for (const auto& p : parts_) sums.push_back(p->head_checksum());
   key_ = XXH3_64bits(sums.data(), sums.size() * sizeof(uint64_t));
-  // Records in path order, each with its part and thumbnail.
-  struct At {
-    uint32_t part, rec, thumb;
-  };
-  std::vector<At> order;
-  size_t total = 0;
-  for (const auto& p : parts_) total += p->info().records.size();
-  order.reserve(total);
-  for (uint32_t q = 0; q < parts_.size(); ++q) {
-    const PartFile& pf = *parts_[q];
-    size_t t = 0;
-    for (uint32_t i = 0; i < pf.info().records.size(); ++i) {
-      uint32_t thumb = UINT32_MAX;
-      if (t < pf.thumbnails() && pf.thumbnail_record(t) == i) thumb = static_cast<uint32_t>(t++);
-      order.push_back({q, i, thumb});
-    }
-  }
-  std::sort(order.begin(), order.end(), [&](const At& x, const At& y) {
-    return parts_[x.part]->info().records[x.rec].path < parts_[y.part]->info().records[y.rec].path;
-  });
+  // Records in path order, each with its part and thumbnail: a k-way merge of
+  // the parts' records, read one at a time (shards are disjoint, so no path
+  // comes twice), so that the records are held once.
+  uint64_t total = 0;
+  for (const auto& p : parts_) total += p->records();
   records_.reserve(total);
   part_of_.reserve(total);
   thumb_of_.reserve(total);
-  for (const At& at : order) {
-    records_.push_back(std::move(parts_[at.part]->info().records[at.rec]));
-    part_of_.push_back(at.part);
-    thumb_of_.push_back(at.thumb);
-  }
-  for (auto& p : parts_) {
-    p->info().records.clear();
-    p->info().records.shrink_to_fit();
+  try {
+    std::vector<std::unique_ptr<PartFile::RecordReader>> readers;
+    std::vector<FileRecord> head(parts_.size());
+    using Item = std::pair<const std::string*, uint32_t>;  // the part's next path, the part
+    auto later = [](const Item& x, const Item& y) { return *x.first > *y.first; };
+    std::priority_queue<Item, std::vector<Item>, decltype(later)> next(later);
+    for (uint32_t q = 0; q < parts_.size(); ++q) {
+      readers.push_back(std::make_unique<PartFile::RecordReader>(*parts_[q]));
+      if (readers[q]->next(head[q])) next.push({&head[q].path, q});
+    }
+    while (!next.empty()) {
+      const uint32_t q = next.top().second;
+      next.pop();
+      records_.push_back(std::move(head[q]));
+      part_of_.push_back(q);
+      const int64_t t = readers[q]->thumbnail();
+      thumb_of_.push_back(t < 0 ? UINT32_MAX : static_cast<uint32_t>(t));
+      if (readers[q]->next(head[q])) next.push({&head[q].path, q});
+    }
+  } catch (const PartError& e) {
+    throw MergeError(e.what());
   }
   // The walk's lists, merged (each part's is sorted; shards are disjoint).
   for (const auto& p : parts_) {

@@ -201,12 +201,35 @@ PartFile::PartFile(const std::filesystem::path& file) : file_(file) {
   if (std::memcmp(trailer + 16, kEnd, sizeof kEnd) != 0) fail("is damaged (no end mark)");
   head_sum_ = get_u64(trailer);
   file_sum_ = get_u64(trailer + 8);
-  // The head (header, meta, records, table): read whole, checked, then decoded.
-  std::vector<uint8_t> bytes(thumbs_at_);
-  read_at(0, bytes.data(), bytes.size());
-  if (XXH3_64bits(bytes.data(), bytes.size()) != head_sum_) fail("is damaged (checksum mismatch)");
+  // The head (header, meta, records, table) is checked as it streams by; the
+  // meta and the table are kept, the records are decoded later, one at a time
+  // (RecordReader), so that a set of parts is never held twice.
+  recs_at_ = kHeader + meta_n;
+  recs_bytes_ = recs_n;
+  count_ = count;
+  std::vector<uint8_t> meta_bytes(meta_n), table(thumbs_n * kTableEntry);
+  {
+    std::unique_ptr<XXH3_state_t, decltype(&XXH3_freeState)> st(XXH3_createState(), &XXH3_freeState);
+    XXH3_64bits_reset(st.get());
+    std::vector<uint8_t> buf(std::min<uint64_t>(thumbs_at_, 4u << 20));
+    const uint64_t table_at = recs_at_ + recs_n;
+    for (uint64_t at = 0; at < thumbs_at_;) {
+      const size_t n = static_cast<size_t>(std::min<uint64_t>(buf.size(), thumbs_at_ - at));
+      read_at(at, buf.data(), n);
+      XXH3_64bits_update(st.get(), buf.data(), n);
+      // Copy out the parts of this chunk that fall in the meta block and the table.
+      auto keep = [&](uint64_t from, std::vector<uint8_t>& into) {
+        const uint64_t lo = std::max(at, from), hi = std::min(at + n, from + into.size());
+        if (lo < hi) std::memcpy(into.data() + (lo - from), buf.data() + (lo - at), static_cast<size_t>(hi - lo));
+      };
+      keep(kHeader, meta_bytes);
+      keep(table_at, table);
+      at += n;
+    }
+    if (XXH3_64bits_digest(st.get()) != head_sum_) fail("is damaged (checksum mismatch)");
+  }
   try {
-    const json meta = json::from_cbor(bytes.begin() + kHeader, bytes.begin() + static_cast<std::ptrdiff_t>(kHeader + meta_n));
+    const json meta = json::from_cbor(meta_bytes);
     if (meta.at("format") != "tamis-part") fail("is not a tamis part");
     ScanPart& p = info_;
     p.tool = meta.at("tool").get<std::string>();
@@ -242,46 +265,79 @@ PartFile::PartFile(const std::filesystem::path& file) : file_(file) {
   } catch (const std::exception& e) {
     fail(std::string("is damaged: ") + e.what());
   }
-  // Records.
-  const uint8_t* at = bytes.data() + kHeader + meta_n;
-  const uint8_t* end = at + recs_n;
-  info_.records.resize(count);
-  for (uint64_t i = 0; i < count; ++i) {
-    FileRecord& r = info_.records[i];
-    if (end - at < 4) fail("is damaged (records)");
-    const uint32_t len = get_u32(at);
-    at += 4;
-    if (static_cast<uint64_t>(end - at) < uint64_t{len} + 25) fail("is damaged (records)");
-    std::string path(reinterpret_cast<const char*>(at), len);
-    at += len;
-    const uint64_t size = get_u64(at), mtime = get_u64(at + 8), inode = get_u64(at + 16);
-    const uint8_t nb = at[24];
-    at += 25;
-    if (static_cast<uint64_t>(end - at) < nb) fail("is damaged (records)");
-    if (!detail::record_from_bytes(std::span<const uint8_t>(at, nb), r)) fail("is damaged (a record)");
-    at += nb;
-    r.path = std::move(path);
-    r.size = size;
-    r.mtime_ns = static_cast<int64_t>(mtime);
-    r.inode = inode;
-    if (i > 0 && !(info_.records[i - 1].path < r.path)) fail("is damaged (records out of order)");
-    if (r.path.empty() || shard_of(r.path, info_.shard.count) != info_.shard.index)
-      fail("is damaged (a record outside its shard)");
-  }
-  if (at != end) fail("is damaged (records)");
-  // The thumbnails' table: ascending records, each with has_lookalike, and all of them.
+  // The thumbnails' table: ascending records in range (RecordReader checks that
+  // they are exactly the records with look-alike codes).
   thumb_record_.resize(thumbs_n);
   thumb_sum_.resize(thumbs_n);
-  for (uint64_t k = 0; k < thumbs_n; ++k, at += kTableEntry) {
-    const uint64_t rec = get_u64(at);
-    if (rec >= count || (k > 0 && rec <= thumb_record_[k - 1]) || !info_.records[rec].features.has_lookalike)
-      fail("is damaged (thumbnail table)");
+  for (uint64_t k = 0; k < thumbs_n; ++k) {
+    const uint64_t rec = get_u64(table.data() + k * kTableEntry);
+    if (rec >= count || (k > 0 && rec <= thumb_record_[k - 1])) fail("is damaged (thumbnail table)");
     thumb_record_[k] = static_cast<uint32_t>(rec);
-    thumb_sum_[k] = get_u64(at + 8);
+    thumb_sum_[k] = get_u64(table.data() + k * kTableEntry + 8);
   }
-  const uint64_t with_look = static_cast<uint64_t>(std::count_if(
-      info_.records.begin(), info_.records.end(), [](const FileRecord& r) { return r.features.has_lookalike; }));
-  if (with_look != thumbs_n) fail("is damaged (thumbnails missing)");
+}
+
+PartFile::RecordReader::RecordReader(const PartFile& part) : part_(part), buf_(1u << 20) {}
+
+void PartFile::RecordReader::fill(size_t need) {
+  // Keeps the unread bytes, then reads on until `need` are at hand (or the block ends).
+  if (have_ - at_ >= need) return;
+  std::memmove(buf_.data(), buf_.data() + at_, have_ - at_);
+  have_ -= at_;
+  at_ = 0;
+  if (buf_.size() < need) buf_.resize(need);
+  while (have_ < need && read_ < part_.recs_bytes_) {
+    const size_t want = static_cast<size_t>(std::min<uint64_t>(buf_.size() - have_, part_.recs_bytes_ - read_));
+    const ssize_t got = ::pread(part_.fd_, buf_.data() + have_, want, static_cast<off_t>(part_.recs_at_ + read_));
+    if (got < 0 && errno == EINTR) continue;
+    if (got <= 0) part_.fail("cannot be read (cut short while in use?)");
+    have_ += static_cast<size_t>(got);
+    read_ += static_cast<uint64_t>(got);
+  }
+  if (have_ < need) part_.fail("is damaged (records)");
+}
+
+bool PartFile::RecordReader::next(FileRecord& r) {
+  if (index_ == part_.count_) {
+    if (read_ != part_.recs_bytes_ || at_ != have_) part_.fail("is damaged (records)");
+    if (thumb_ != part_.thumb_record_.size()) part_.fail("is damaged (thumbnail table)");
+    return false;
+  }
+  fill(4);
+  const uint32_t len = get_u32(buf_.data() + at_);
+  if (len > part_.recs_bytes_) part_.fail("is damaged (records)");
+  fill(4 + size_t{len} + 25);
+  const uint8_t* at = buf_.data() + at_ + 4;
+  std::string path(reinterpret_cast<const char*>(at), len);
+  at += len;
+  const uint64_t size = get_u64(at), mtime = get_u64(at + 8), inode = get_u64(at + 16);
+  const uint8_t nb = at[24];
+  fill(4 + size_t{len} + 25 + nb);
+  at = buf_.data() + at_ + 4 + len + 25;
+  if (!detail::record_from_bytes(std::span<const uint8_t>(at, nb), r)) part_.fail("is damaged (a record)");
+  at_ += 4 + size_t{len} + 25 + nb;
+  if (path.empty() || (index_ > 0 && !(last_ < path)) || shard_of(path, part_.info_.shard.count) != part_.info_.shard.index)
+    part_.fail("is damaged (a record out of order or outside its shard)");
+  last_ = path;
+  r.path = std::move(path);
+  r.size = size;
+  r.mtime_ns = static_cast<int64_t>(mtime);
+  r.inode = inode;
+  // Exactly the records with look-alike codes have thumbnails, in order.
+  const bool listed = thumb_ < part_.thumb_record_.size() && part_.thumb_record_[thumb_] == index_;
+  if (listed != r.features.has_lookalike) part_.fail("is damaged (thumbnail table)");
+  thumbnail_ = listed ? static_cast<int64_t>(thumb_++) : -1;
+  ++index_;
+  return true;
+}
+
+std::vector<FileRecord> PartFile::read_records() const {
+  std::vector<FileRecord> out(count_);
+  RecordReader reader(*this);
+  for (auto& r : out) reader.next(r);
+  FileRecord end;
+  if (reader.next(end)) fail("is damaged (records)");
+  return out;
 }
 
 void PartFile::read_thumbnails(size_t first, size_t count, Thumbnail* out) const {

@@ -19,8 +19,8 @@
 //
 // Opening checks the magic, the version, the length the header implies, the
 // first checksum and every value it decodes (paths ascending and in the part's
-// shard, indices in range): a damaged, cut or foreign file throws PartError,
-// never yields half a part. A thumbnail read later is checked against its own
+// shard, indices in range; the records as they are read): a damaged, cut or
+// foreign file throws PartError, never yields half a part. A thumbnail read later is checked against its own
 // checksum; verify() checks the whole file. Reading needs no more memory than
 // the records: thumbnails are read on demand (pread; safe from many threads).
 #pragma once
@@ -54,7 +54,7 @@ struct ScanPart {
   std::string tool;              // the tool version that wrote the part
   Shard shard;
   WalkResult walk;               // the shard's links, special files, unreadable folders, folders; no files
-  std::vector<FileRecord> records;  // sorted by path, as read (before mask pairing)
+  std::vector<FileRecord> records;  // sorted by path, as read (before mask pairing); empty in PartFile::info()
   ThumbnailTable thumbs;         // writing: every record with features.has_lookalike has a slot
   ReadCounts counts;             // how the records were obtained (the summary's figures)
   std::string note;              // the cache's note, if any
@@ -66,13 +66,39 @@ void write_part(std::ostream& os, const ScanPart& part);
 
 class PartFile {
  public:
-  // Opens and checks `file`; fills info() (thumbs empty). Throws PartError.
+  // Opens `file` and checks its header, length and first checksum; fills info()
+  // but its records (read them with RecordReader or read_records) and thumbs.
+  // Throws PartError.
   explicit PartFile(const std::filesystem::path& file);
   ~PartFile();
   PartFile(const PartFile&) = delete;
   PartFile& operator=(const PartFile&) = delete;
 
   const std::filesystem::path& file() const { return file_; }
+  uint64_t records() const { return count_; }
+
+  // The records one at a time, in path order, each checked as it is decoded
+  // (lengths, order, shard, its thumbnail). Throws PartError.
+  class RecordReader {
+   public:
+    explicit RecordReader(const PartFile& part);
+    // The next record into `r`; false after the last (when the records' bytes and
+    // the thumbnail table have been used up exactly).
+    bool next(FileRecord& r);
+    // The thumbnail of the record last given, or -1.
+    int64_t thumbnail() const { return thumbnail_; }
+
+   private:
+    void fill(size_t need);
+    const PartFile& part_;
+    std::vector<uint8_t> buf_;
+    size_t at_ = 0, have_ = 0;
+    uint64_t read_ = 0, index_ = 0, thumb_ = 0;
+    int64_t thumbnail_ = -1;
+    std::string last_;
+  };
+  // Every record, in order (RecordReader). Throws PartError.
+  std::vector<FileRecord> read_records() const;
   ScanPart& info() { return info_; }
   const ScanPart& info() const { return info_; }
   uint64_t file_bytes() const { return size_; }
@@ -89,7 +115,7 @@ class PartFile {
  private:
   std::filesystem::path file_;
   int fd_ = -1;
-  uint64_t size_ = 0, thumbs_at_ = 0, head_sum_ = 0, file_sum_ = 0;
+  uint64_t size_ = 0, thumbs_at_ = 0, head_sum_ = 0, file_sum_ = 0, recs_at_ = 0, recs_bytes_ = 0, count_ = 0;
   ScanPart info_;
   std::vector<uint32_t> thumb_record_;
   std::vector<uint64_t> thumb_sum_;
