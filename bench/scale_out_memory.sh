@@ -6,7 +6,7 @@
 # merge alone (the join inside it), each under /usr/bin/time (peak RSS), and
 # checks that both merges give the same four files (MERGE_ALONE=0 skips the merge
 # alone, which at 10M records takes long). WORKDIR is removed first (REUSE_PARTS=1
-# keeps its parts).
+# keeps its parts; JOIN_MB sets the join tasks' --join-memory-mb, default 64).
 set -euo pipefail
 build="$1" n="$2" parts="$3" slices="$4" work="$5"
 if [ "${REUSE_PARTS:-0}" = 1 ] && [ -d "$work/parts" ]; then  # parts of an earlier run with the same N and PARTS
@@ -19,7 +19,8 @@ fi
 du -sh "$work/parts"
 t() { /usr/bin/time -f "$1: %e s, peak RSS %M KB" "${@:2}"; }
 for ((k = 0; k < slices; k++)); do
-  t "join $k/$slices" "$build/tamis" join "$work"/parts/*.part --slice "$k/$slices" --out "$work/joins/$k.join" --threads 2 --quiet
+  t "join $k/$slices" "$build/tamis" join "$work"/parts/*.part --slice "$k/$slices" --out "$work/joins/$k.join" --threads 2 --quiet \
+    --join-memory-mb "${JOIN_MB:-64}"
 done
 set +e
 t "merge with the join's outputs" "$build/tamis" merge "$work"/parts/*.part "$work"/joins/*.join --out "$work/merged" --quiet --timings --threads 2

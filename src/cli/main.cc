@@ -611,9 +611,10 @@ bool resolve_lookalike(const std::string& policy_file, tamis::TreeSettings& sett
 }
 
 int run_join_command(const std::vector<std::string>& inputs, const std::string& out, const std::string& slice_text,
-                     uint32_t slices, const std::string& policy_file, const CommonOptions& o) {
+                     uint32_t slices, const std::string& policy_file, uint64_t join_memory_mb, const CommonOptions& o) {
   tamis::TreeSettings settings;
   if (!resolve_lookalike(policy_file, settings)) return kExitBadUsage;
+  settings.groups.join_memory_bytes = join_memory_mb << 20;
   if (!resolve_reading(o, settings)) return kExitBadUsage;
   tamis::Shard slice;
   if (!resolve_shard(slice_text, slices, "--slice", slice)) return kExitBadUsage;
@@ -740,6 +741,7 @@ int main(int argc, char** argv) {
   std::vector<std::string> join_inputs;
   std::string join_out, join_slice, join_policy;
   uint32_t join_slices = 0;
+  uint64_t join_memory_mb = tamis::GroupSettings{}.join_memory_bytes >> 20;
   CLI::App* joiner = app.add_subcommand(
       "join", "find one slice of the look-alike pairs over all parts (a task of a cluster job; docs/scale-out.md)");
   joiner->footer(
@@ -753,6 +755,9 @@ int main(int argc, char** argv) {
   joiner->add_option("--slices", join_slices, "N, when K comes from JOB_COMPLETION_INDEX")->check(CLI::Range(1u, tamis::kMaxShards));
   joiner->add_option("--policy", join_policy, "policy file (JSON): its look-alike settings");
   joiner->add_option("--threads", join_opts.threads, "worker threads (default: all cores)")->check(CLI::Range(0u, 1024u));
+  joiner->add_option("--join-memory-mb", join_memory_mb,
+                     "memory the Hamming search may take, in MB (default 64); more is faster on large sets, the pairs are the same")
+      ->check(CLI::Range(uint64_t{1}, uint64_t{1} << 20));
   add_mask_options(joiner, join_opts);
   joiner->add_flag("--quiet", join_opts.quiet, "print nothing but errors");
 
@@ -800,7 +805,8 @@ int main(int argc, char** argv) {
   if (split->parsed()) return run_split_command(split_dir, split_out, resplit_opts, split_judge, split_quiet);
   if (exporter->parsed()) return run_export_command(export_dir, export_to, export_mode, export_replace, export_quiet);
   if (scan->parsed()) return run_scan_command(scan_root, scan_out, scan_shard, scan_shards, scan_opts);
-  if (joiner->parsed()) return run_join_command(join_inputs, join_out, join_slice, join_slices, join_policy, join_opts);
+  if (joiner->parsed())
+    return run_join_command(join_inputs, join_out, join_slice, join_slices, join_policy, join_memory_mb, join_opts);
   if (merger->parsed()) return run_merge_command(merge_inputs, merge_out, merge_split, merge_judge, merge_opts);
   if (demo->parsed()) {
     try {

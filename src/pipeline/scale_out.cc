@@ -170,12 +170,13 @@ void PartSet::verify() const {
   }
 }
 
-void PartSet::load_thumbnails(const std::vector<uint32_t>& which, ThumbnailTable& into) const {
+void PartSet::read_thumbnails(const uint32_t* which, size_t count, Thumbnail* out) const {
   // Per part, the thumbnails asked for (ascending, as `which` is), read in runs.
-  std::vector<std::vector<std::pair<uint32_t, uint32_t>>> asked(parts_.size());  // (thumbnail, record)
-  for (uint32_t i : which) {
+  std::vector<std::vector<std::pair<uint32_t, size_t>>> asked(parts_.size());  // (thumbnail, place in out)
+  for (size_t k = 0; k < count; ++k) {
+    const uint32_t i = which[k];
     if (i >= thumb_of_.size() || thumb_of_[i] == UINT32_MAX) throw std::logic_error("PartSet: a record without a thumbnail");
-    asked[part_of_[i]].push_back({thumb_of_[i], i});
+    asked[part_of_[i]].push_back({thumb_of_[i], k});
   }
   std::vector<Thumbnail> buf;
   for (size_t q = 0; q < parts_.size(); ++q) {
@@ -189,9 +190,20 @@ void PartSet::load_thumbnails(const std::vector<uint32_t>& which, ThumbnailTable
       } catch (const PartError& err) {
         throw MergeError(err.what());
       }
-      for (size_t k = s; k < e; ++k) into.put(a[k].second, buf[k - s]);
+      for (size_t k = s; k < e; ++k) out[a[k].second] = buf[k - s];
       s = e;
     }
+  }
+}
+
+void PartSet::load_thumbnails(const std::vector<uint32_t>& which, ThumbnailTable& into) const {
+  constexpr size_t kBlock = 16384;
+  std::vector<Thumbnail> block;
+  for (size_t first = 0; first < which.size(); first += kBlock) {
+    const size_t count = std::min(kBlock, which.size() - first);
+    block.resize(count);
+    read_thumbnails(which.data() + first, count, block.data());
+    for (size_t k = 0; k < count; ++k) into.put(which[first + k], block[k]);
   }
 }
 
@@ -207,8 +219,8 @@ JoinSlice join_parts(PartSet& parts, const TreeSettings& settings, Shard slice) 
   // The join sees what the merge's join sees: the images left after mask pairing.
   pair_masks(parts.records(), settings.masks);
   s.links = join_lookalike_slice(parts.records(), gs, slice.index, slice.count,
-                                 [&](const std::vector<uint32_t>& which, ThumbnailTable& into) {
-                                   parts.load_thumbnails(which, into);
+                                 [&](const uint32_t* which, size_t count, Thumbnail* out) {
+                                   parts.read_thumbnails(which, count, out);
                                  });
   return s;
 }

@@ -146,9 +146,9 @@ void confirm_hits(const std::vector<std::pair<uint32_t, uint32_t>>& hits, const 
 }
 
 // Phase 2, look-alikes: candidates from an exact Hamming join of each flip/turn's
-// codes with the identity codes, confirmed by the thumbnails (match.h); each
-// confirmed pair joined, with a link where it joined two parts. Fills the
-// candidate and confirmed counts of `out`.
+// codes with the identity codes, confirmed by the thumbnails (match.h). Returns
+// the confirmed pairs (eligible indices, in no order: one_link_a_pair sorts them
+// and keeps one a pair). Fills the candidate count of `out`.
 std::vector<GroupLink> join_lookalikes(const std::vector<FileRecord>& records, const ThumbnailTable& thumbs,
                                        const std::vector<uint32_t>& eligible, const GroupSettings& settings,
                                        GroupResult& out) {
@@ -366,60 +366,121 @@ LookalikeLinks join_lookalike_slice(const std::vector<FileRecord>& records, cons
   if (n < 2) return result;
   std::vector<uint64_t> identity(n);
   for (size_t k = 0; k < n; ++k) identity[k] = records[eligible[k]].features.look.phash[0];
-  // The slice's query images (eligible k with k mod slices == slice), their 8 codes each.
+  // The slice's query images: eligible k with k mod slices == slice.
   std::vector<uint32_t> query;
   for (uint32_t k = slice; k < n; k += slices) query.push_back(k);
-  std::vector<uint64_t> variants(query.size() * kDihedralCount);
-  for (size_t q = 0; q < query.size(); ++q)
-    for (int t = 0; t < kDihedralCount; ++t) variants[q * kDihedralCount + t] = records[eligible[query[q]]].features.look.phash[t];
-  uint64_t found = 0, self_hits = 0;
-  const PairFilter not_self = [&](uint32_t v, uint32_t j) { return query[v / kDihedralCount] != j; };
-  auto hits = join_within(variants, identity, settings.radius, settings.threads, not_self, &found, settings.join_memory_bytes);
-  for (uint32_t k : query)
-    for (int t = 0; t < kDihedralCount; ++t) self_hits += hamming(records[eligible[k]].features.look.phash[t], identity[k]) <= settings.radius;
-  result.candidate_hits = found - self_hits;
-  // The images the hits name, in eligible order: their thumbnails are the only ones read.
-  std::vector<uint32_t> needed;
-  needed.reserve(hits.size() * 2);
-  for (const auto& [v, j] : hits) {
-    needed.push_back(query[v / kDihedralCount]);
-    needed.push_back(j);
-  }
-  std::sort(needed.begin(), needed.end());
-  needed.erase(std::unique(needed.begin(), needed.end()), needed.end());
-  std::vector<uint32_t> local_records(needed.size());
-  for (size_t q = 0; q < needed.size(); ++q) local_records[q] = eligible[needed[q]];
-  ThumbnailTable thumbs;
-  thumbs.assign_none(records.size());
-  thumbs.make_room(local_records);
-  load(local_records, thumbs);
-  std::vector<MatchProfile> profile(needed.size());
-  std::vector<float> allowance(needed.size());
-  parallel_for(needed.size(), settings.threads, [&](size_t q) {
-    profile[q] = match_profile(thumbs.at(local_records[q]));
-    const FileRecord& r = records[local_records[q]];
-    allowance[q] = size_allowance(r.probe.width, r.probe.height, settings.match);
-  }, 256);
-  auto local = [&](uint32_t k) {
-    return static_cast<uint32_t>(std::lower_bound(needed.begin(), needed.end(), k) - needed.begin());
+  // Images whose profiles or thumbnails a batch needs (eligible indices,
+  // ascending) and the records they are: read through `load`, kBlock at a time.
+  constexpr size_t kBlock = 4096;
+  auto read = [&](const std::vector<uint32_t>& which, const auto& each) {
+    std::vector<uint32_t> recs;
+    std::vector<Thumbnail> block;
+    for (size_t first = 0; first < which.size(); first += kBlock) {
+      const size_t count = std::min(kBlock, which.size() - first);
+      recs.resize(count);
+      for (size_t q = 0; q < count; ++q) recs[q] = eligible[which[first + q]];
+      block.resize(count);
+      load(recs.data(), count, block.data());
+      parallel_for(count, settings.threads, [&](size_t q) { each(first + q, block[q]); }, 64);
+    }
   };
-  // The hits in local indices, kept when the profiles allow a match (as the
-  // whole join's filter does), sorted by their first member.
-  std::vector<std::pair<uint32_t, uint32_t>> kept;
-  for (const auto& [v, j] : hits) {
-    const uint32_t i = local(query[v / kDihedralCount]), lj = local(j);
-    const int t = static_cast<int>(v % kDihedralCount);
-    if (match_may_join(profile[i], t, profile[lj], pair_settings(settings.match, allowance[i], allowance[lj])))
-      kept.push_back({i * kDihedralCount + static_cast<uint32_t>(t), lj});
-  }
-  hits.clear();
-  hits.shrink_to_fit();
-  std::sort(kept.begin(), kept.end());
+  auto allowance_of = [&](uint32_t k) {
+    const FileRecord& r = records[eligible[k]];
+    return size_allowance(r.probe.width, r.probe.height, settings.match);
+  };
+  // The queries go in batches whose hits (before the profiles' filter) stay
+  // near a budget taken from the join's memory budget; the next batch's size
+  // follows from the last one's hits per query. Batching never changes a pair.
+  const size_t hit_budget = std::max<size_t>(size_t{1} << 20, settings.join_memory_bytes / 16);
+  size_t batch = std::min(query.size(), std::clamp<size_t>(hit_budget / 64, 256, size_t{1} << 16));
   std::vector<GroupLink> confirmed;
-  confirm_hits(kept, thumbs, local_records, profile, allowance, settings, confirmed);
-  for (GroupLink& l : confirmed) {  // local -> record indices (both ascend together)
-    l.a = local_records[l.a];
-    l.b = local_records[l.b];
+  std::vector<uint64_t> variants;
+  for (size_t first = 0; first < query.size();) {
+    const size_t count = std::min(batch, query.size() - first);
+    variants.resize(count * kDihedralCount);
+    for (size_t q = 0; q < count; ++q)
+      for (int t = 0; t < kDihedralCount; ++t)
+        variants[q * kDihedralCount + t] = records[eligible[query[first + q]]].features.look.phash[t];
+    uint64_t found = 0;
+    const PairFilter not_self = [&](uint32_t v, uint32_t j) { return query[first + v / kDihedralCount] != j; };
+    auto hits = join_within(variants, identity, settings.radius, settings.threads, not_self, &found,
+                            settings.join_memory_bytes);
+    uint64_t self_hits = 0;
+    for (size_t q = 0; q < count; ++q) {
+      const uint32_t k = query[first + q];
+      for (int t = 0; t < kDihedralCount; ++t)
+        self_hits += hamming(records[eligible[k]].features.look.phash[t], identity[k]) <= settings.radius;
+    }
+    result.candidate_hits += found - self_hits;
+    // The profiles of the images the hits name (128 bytes each; each thumbnail
+    // read once and let go), then the hits they allow, as the whole join's filter.
+    std::vector<uint32_t> named;
+    named.reserve(hits.size() + count);
+    for (const auto& [v, j] : hits) {
+      named.push_back(query[first + v / kDihedralCount]);
+      named.push_back(j);
+    }
+    std::sort(named.begin(), named.end());
+    named.erase(std::unique(named.begin(), named.end()), named.end());
+    auto pos = [&](uint32_t k) {
+      return static_cast<uint32_t>(std::lower_bound(named.begin(), named.end(), k) - named.begin());
+    };
+    std::vector<MatchProfile> profile(named.size());
+    std::vector<float> allowance(named.size());
+    read(named, [&](size_t q, const Thumbnail& th) {
+      profile[q] = match_profile(th);
+      allowance[q] = allowance_of(named[q]);
+    });
+    std::vector<std::pair<uint32_t, uint32_t>> kept;  // (8 * eligible i + t, eligible j)
+    for (const auto& [v, j] : hits) {
+      const uint32_t i = query[first + v / kDihedralCount];
+      const uint32_t pi = pos(i), pj = pos(j);
+      const int t = static_cast<int>(v % kDihedralCount);
+      if (match_may_join(profile[pi], t, profile[pj], pair_settings(settings.match, allowance[pi], allowance[pj])))
+        kept.push_back({i * kDihedralCount + static_cast<uint32_t>(t), j});
+    }
+    const size_t batch_hits = hits.size();
+    std::vector<std::pair<uint32_t, uint32_t>>().swap(hits);
+    std::vector<MatchProfile>().swap(profile);
+    // The kept hits' images, with their thumbnails, in local order (ascending
+    // with the eligible order, so a < b is kept), confirmed as the whole join does.
+    std::vector<uint32_t> local;
+    for (const auto& [v, j] : kept) {
+      local.push_back(v / kDihedralCount);
+      local.push_back(j);
+    }
+    std::sort(local.begin(), local.end());
+    local.erase(std::unique(local.begin(), local.end()), local.end());
+    auto at = [&](uint32_t k) {
+      return static_cast<uint32_t>(std::lower_bound(local.begin(), local.end(), k) - local.begin());
+    };
+    for (auto& [v, j] : kept) {
+      v = at(v / kDihedralCount) * kDihedralCount + v % kDihedralCount;
+      j = at(j);
+    }
+    std::sort(kept.begin(), kept.end());
+    ThumbnailTable thumbs;
+    thumbs.assign_all(local.size());
+    std::vector<MatchProfile> local_profile(local.size());
+    std::vector<float> local_allowance(local.size());
+    read(local, [&](size_t q, const Thumbnail& th) {
+      thumbs.at(q) = th;
+      local_profile[q] = match_profile(th);
+      local_allowance[q] = allowance_of(local[q]);
+    });
+    std::vector<uint32_t> slots(local.size());
+    std::iota(slots.begin(), slots.end(), 0u);
+    std::vector<GroupLink> found_links;
+    confirm_hits(kept, thumbs, slots, local_profile, local_allowance, settings, found_links);
+    for (GroupLink& l : found_links) {  // local -> record indices (both ascend together)
+      l.a = eligible[local[l.a]];
+      l.b = eligible[local[l.b]];
+      confirmed.push_back(l);
+    }
+    first += count;
+    // The next batch: as many queries as the budget allows at this batch's rate.
+    const double per_query = double(batch_hits) / double(count);
+    batch = per_query <= 0 ? count * 2 : std::clamp<size_t>(static_cast<size_t>(double(hit_budget) / per_query), 256, size_t{1} << 20);
   }
   one_link_a_pair(confirmed);
   result.links = std::move(confirmed);

@@ -46,9 +46,11 @@ class PartSet {
   explicit PartSet(const std::vector<std::filesystem::path>& files);  // throws MergeError
   // Reads every part whole and checks its second checksum. Throws MergeError.
   void verify() const;
-  // Fills `into`'s slots (which exist) of `records` (indices of records(),
-  // ascending), reading runs of neighbours at once (records() may have been
+  // Copies the thumbnails of `count` records (indices of records(), ascending)
+  // to out[0..], reading runs of neighbours at once (records() may have been
   // moved out by then). Throws MergeError.
+  void read_thumbnails(const uint32_t* records, size_t count, Thumbnail* out) const;
+  // The same into `into`'s slots of `records` (which exist), in blocks.
   void load_thumbnails(const std::vector<uint32_t>& records, ThumbnailTable& into) const;
 
   const std::string& root() const { return parts_.front()->info().root; }

@@ -54,13 +54,16 @@ GroupResult find_groups(const std::vector<FileRecord>& records, const ThumbnailT
 // image k (in path order) with k mod S == s: every pair find_groups confirms is
 // found by one or two slices, and the union of all S slices' pairs, given to
 // groups_from_links, gives exactly find_groups' result. A slice reads only the
-// thumbnails of the images its hits name, through `load` (which fills `into`'s
-// slots of `records`, ascending; the slots exist).
+// thumbnails of the images its hits name, through `load` (which copies the
+// thumbnails of `count` records, ascending, to out[0..]); it goes through its
+// queries in batches whose hits stay within a budget taken from
+// settings.join_memory_bytes, holds 128 bytes of profile for each image a
+// batch's hits name, and thumbnails only for the hits the profiles let through.
 struct LookalikeLinks {
   std::vector<GroupLink> links;  // record indices, a < b, one a pair, sorted
   uint64_t candidate_hits = 0;   // the slice's share of GroupResult::candidate_hits
 };
-using ThumbnailSource = std::function<void(const std::vector<uint32_t>& records, ThumbnailTable& into)>;
+using ThumbnailSource = std::function<void(const uint32_t* records, size_t count, Thumbnail* out)>;
 LookalikeLinks join_lookalike_slice(const std::vector<FileRecord>& records, const GroupSettings& settings,
                                     uint32_t slice, uint32_t slices, const ThumbnailSource& load);
 // The groups from the union of every slice's links (in any order; a pair found
