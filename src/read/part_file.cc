@@ -26,6 +26,7 @@ constexpr char kMagic[16] = {'\x89', 't', 'a', 'm', 'i', 's', '-', 'p', 'a', 'r'
 constexpr char kEnd[8] = {'t', 'a', 'm', 'i', 's', 'e', 'n', 'd'};
 constexpr size_t kHeader = 64, kTrailer = 24, kTableEntry = 16;
 constexpr uint64_t kMaxMeta = 1ull << 34;  // a meta block past 16 GB is no part this tool wrote
+constexpr uint64_t kMinRecordBytes = 4 + 1 + 25 + detail::kRecordBytesHead;
 
 void put_u64(uint8_t* p, uint64_t v) {
   for (int k = 0; k < 8; ++k) p[k] = static_cast<uint8_t>(v >> (8 * k));
@@ -191,6 +192,9 @@ PartFile::PartFile(const std::filesystem::path& file) : file_(file) {
   // (Bounds far above any part, so that the sum below cannot overflow.)
   if (meta_n > kMaxMeta || recs_n > (1ull << 50) || count > UINT32_MAX || thumbs_n > UINT32_MAX)
     fail("is damaged (its header gives impossible sizes)");
+  // A record takes at least 84 bytes (a one-byte path and the record's 54), and
+  // no record has two thumbnails: counts beyond that are no part's.
+  if (count > recs_n / kMinRecordBytes || thumbs_n > count) fail("is damaged (its header gives impossible counts)");
   thumbs_at_ = kHeader + meta_n + recs_n + thumbs_n * kTableEntry;
   const uint64_t expect = thumbs_at_ + thumbs_n * sizeof(Thumbnail) + kTrailer;
   if (expect != size_)

@@ -50,7 +50,7 @@ bool refused(const std::filesystem::path& file) {
 
 }  // namespace
 
-TEST_CASE("shards: K/N parsed strictly; the environment of Slurm arrays and Indexed Jobs", "[scale-out]") {
+TEST_CASE("shards: K/N parsed strictly, and the environment of Slurm arrays and Indexed Jobs", "[scale-out]") {
   CHECK(parse_shard("0/4").index == 0);
   CHECK(parse_shard("3/4").count == 4);
   for (const char* bad : {"4/4", "1/0", "-1/4", "1/", "/4", "a/b", "1/4x", "", "2", "1/2/3"})
@@ -123,7 +123,7 @@ TEST_CASE("shards: every entry of a walk falls in exactly one shard, whatever N"
   }
 }
 
-TEST_CASE("a part read back equals the scan that wrote it; damaged, cut or foreign parts are refused", "[scale-out]") {
+TEST_CASE("a part read back equals the scan that wrote it, and damaged, cut or foreign parts are refused", "[scale-out]") {
   TempDir t;
   write_demo(t / "demo");
   std::set<std::string> paths;
