@@ -12,9 +12,9 @@ here="$(cd "$(dirname "${BASH_SOURCE[0]}")/.." && pwd)"
 cd "$here"
 seconds="${1:-30}"
 CC=clang CXX=clang++ cmake -S . -B build-fuzz -DCMAKE_BUILD_TYPE=None -DCMAKE_CXX_FLAGS="-O1" -DTAMIS_FUZZ=ON >/dev/null
-cmake --build build-fuzz -j "$(nproc)" --target tamis $(printf "fuzz_%s " probe decode exif inflate policy keep baseline index record)
+cmake --build build-fuzz -j "$(nproc)" --target tamis $(printf "fuzz_%s " probe decode exif inflate policy keep baseline index record part)
 python3 tests/fuzz/make_corpus.py build-fuzz/corpus build-fuzz/tamis build/test-data
-targets=(probe decode exif inflate policy keep baseline index record)
+targets=(probe decode exif inflate policy keep baseline index record part)
 mkdir -p build-fuzz/logs
 run_one() {
   local t="$1"

@@ -14,7 +14,7 @@ here="$(cd "$(dirname "${BASH_SOURCE[0]}")/.." && pwd)"
 cd "$here"
 jobs="$(nproc)"
 data="$here/build/test-data"
-targets=(probe decode exif inflate policy keep baseline index record)
+targets=(probe decode exif inflate policy keep baseline index record part)
 CC=clang CXX=clang++ cmake -S . -B build-fuzz -DCMAKE_BUILD_TYPE=None -DCMAKE_CXX_FLAGS="-O1" -DTAMIS_FUZZ=ON \
   -DTAMIS_BUILD_TESTS=ON -DTAMIS_TEST_DATA="$data" >/dev/null
 cmake --build build-fuzz -j "$jobs" --target tamis tamis_tests dct_export $(printf "fuzz_%s " "${targets[@]}")

@@ -1,3 +1,4 @@
+#include "tamis/model/cbor_reader.h"
 #include "tamis/read/cache.h"
 
 #include <sqlite3.h>
@@ -360,7 +361,7 @@ std::optional<GroupResult> RecordCache::load_groups(uint64_t fingerprint, size_t
       ++damaged_rows_;
       return std::nullopt;
     }
-    json j = json::from_cbor(data.begin(), data.end());
+    json j = parse_cbor(data.data(), data.data() + data.size());
     GroupResult g;
     g.group_of.assign(n, -1);
     for (const auto& e : j.at("groups")) {

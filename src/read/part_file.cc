@@ -13,6 +13,7 @@
 #include <nlohmann/json.hpp>
 #include <xxhash.h>
 
+#include "tamis/model/cbor_reader.h"
 #include "tamis/model/record_codec.h"
 #include "tamis/version.h"
 
@@ -233,7 +234,7 @@ PartFile::PartFile(const std::filesystem::path& file) : file_(file) {
     if (XXH3_64bits_digest(st.get()) != head_sum_) fail("is damaged (checksum mismatch)");
   }
   try {
-    const json meta = json::from_cbor(meta_bytes);
+    const json meta = parse_cbor(meta_bytes.data(), meta_bytes.data() + meta_bytes.size());
     if (meta.at("format") != "tamis-part") fail("is not a tamis part");
     ScanPart& p = info_;
     p.tool = meta.at("tool").get<std::string>();

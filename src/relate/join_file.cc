@@ -7,6 +7,7 @@
 #include <nlohmann/json.hpp>
 #include <xxhash.h>
 
+#include "tamis/model/cbor_reader.h"
 #include "tamis/version.h"
 
 namespace tamis {
@@ -53,7 +54,7 @@ JoinSlice load_join(const std::filesystem::path& file) {
   if (XXH3_64bits(bytes.data() + kBody, bytes.size() - kBody) != sum) fail("is damaged or cut short (checksum mismatch)");
   JoinSlice s;
   try {
-    const json j = json::from_cbor(bytes.begin() + kBody, bytes.end());
+    const json j = parse_cbor(bytes.data() + kBody, bytes.data() + bytes.size());
     if (j.at("format") != "tamis-join") fail("is not a tamis join output");
     s.tool = j.at("tool").get<std::string>();
     const uint64_t k = j.at("slice").at(0).get<uint64_t>(), n = j.at("slice").at(1).get<uint64_t>();

@@ -13,6 +13,7 @@
 #include <xxhash.h>
 
 #include "tamis/base/atomic_file.h"
+#include "tamis/model/cbor_reader.h"
 #include "tamis/model/record_codec.h"
 
 namespace tamis {
@@ -246,7 +247,7 @@ AuditIndex load_index(const std::filesystem::path& file) {
   if (XXH3_64bits_withSeed(bytes.data() + kSumEnd, bytes.size() - kSumEnd, bytes[0]) != stored)
     throw std::runtime_error("index " + file.string() + " is damaged (checksum mismatch)");
   try {
-    json j = json::from_cbor(bytes);
+    json j = parse_cbor(bytes.data(), bytes.data() + bytes.size());
     if (j.value("format", "") != "tamis-index") throw std::runtime_error("not a tamis index");
     if (j.value("version", 0) != kIndexVersion)
       throw std::runtime_error("index version " + std::to_string(j.value("version", 0)) + ", this tamis reads " +

@@ -11,10 +11,11 @@ Usage: make_corpus.py OUT_DIR TAMIS_BINARY TEST_DATA_DIR
   inflate        the zlib streams of those PNGs' IDAT chunks, prefixed with their
                  decoded size (2 bytes, big-endian; streams up to 65,535 bytes out)
   policy         the policy example of docs/policy.md, and variants
-  keep, baseline, index, record
+  keep, baseline, index, record, part
                  a manifest.csv, report.json and index.cbor of an audit of the demo
                  data, and the record rows of its cache (read with Python's sqlite3,
-                 the 8-byte checksum taken off)
+                 the 8-byte checksum taken off); parts of the demo data in 3 shards
+                 (tamis scan) and a join output over them (tamis join)
 """
 import os
 import re
@@ -113,6 +114,20 @@ with tempfile.TemporaryDirectory() as t:
     for k, (data,) in enumerate(db.execute("SELECT data FROM records ORDER BY path LIMIT 60")):
         put("record", "%03d" % k, bytes(data)[:-8])
     db.close()
+    # Parts of the demo in 3 shards and a join output over them (scan, join).
+    for k in range(3):
+        part = os.path.join(t, "%d.part" % k)
+        r = subprocess.run([tamis, "scan", os.path.join(repo, "demo_data"), "--shard", "%d/3" % k, "--out", part,
+                            "--no-cache", "--quiet"], capture_output=True)
+        if r.returncode != 0:
+            sys.exit("make_corpus: the demo scan failed: " + r.stderr.decode(errors="replace"))
+        put("part", "%d.part" % k, read(part))
+    j = os.path.join(t, "0.join")
+    r = subprocess.run([tamis, "join"] + [os.path.join(t, "%d.part" % k) for k in range(3)] + ["--out", j, "--quiet"],
+                       capture_output=True)
+    if r.returncode != 0:
+        sys.exit("make_corpus: the demo join failed: " + r.stderr.decode(errors="replace"))
+    put("part", "0.join", read(j))
 
 for t in sorted(os.listdir(out)):
     print("make_corpus: %-9s %4d seeds" % (t, len(os.listdir(os.path.join(out, t)))))

@@ -10,9 +10,12 @@
 #include <set>
 #include <sstream>
 
+#include <xxhash.h>
+
 #include "support/fashion_mnist.h"
 #include "support/temp_tree.h"
 #include "tamis/demo/demo.h"
+#include "tamis/model/cbor_reader.h"
 #include "tamis/model/record_codec.h"
 #include "tamis/pipeline/scale_out.h"
 #include "tamis/report/outputs.h"
@@ -247,4 +250,21 @@ TEST_CASE("Fashion-MNIST: the join's slices together give find_groups' groups ex
       }
     }
   }
+}
+
+TEST_CASE("CBOR nested past the limit is an error, not a stack overflow (the index, parts, join outputs)", "[scale-out][cbor]") {
+  // 200,000 nested one-element arrays (0x81, RFC 8949 major type 4, length 1) around a 0.
+  std::vector<uint8_t> deep(200000, 0x81);
+  deep.push_back(0x00);
+  CHECK_THROWS_AS(parse_cbor(deep.data(), deep.data() + deep.size()), std::runtime_error);
+  std::vector<uint8_t> fine = {0x82, 0x81, 0x01, 0x02};  // [[1], 2]
+  CHECK(parse_cbor(fine.data(), fine.data() + fine.size()) == nlohmann::json::parse("[[1], 2]"));
+  // A join output forged with a valid checksum over such a body is refused.
+  TempDir t;
+  std::vector<uint8_t> file = {0x89, 't', 'a', 'm', 'i', 's', '-', 'j', 'o', 'i', 'n', '\r', '\n', 0x1a, '\n', 0};
+  const uint64_t sum = XXH3_64bits(deep.data(), deep.size());
+  for (int k = 0; k < 8; ++k) file.push_back(static_cast<uint8_t>(sum >> (8 * k)));
+  file.insert(file.end(), deep.begin(), deep.end());
+  test::write_bytes(t / "deep.join", file);
+  CHECK_THROWS_AS(load_join(t / "deep.join"), JoinFileError);
 }
