@@ -238,6 +238,30 @@ bool resolve_split(const SplitOptions& o, tamis::SplitSettings& s, tamis::KeepMa
   return true;
 }
 
+// What a judging command (audit, split, merge) places with: the split, the
+// policy, the keep map and the baseline (place.keep and place.baseline point
+// into this object, which therefore stays where it was made).
+struct Judging {
+  tamis::PlaceOptions place;
+  tamis::KeepMap keep;
+  tamis::Baseline baseline;
+  Judging() = default;
+  Judging(const Judging&) = delete;
+  Judging& operator=(const Judging&) = delete;
+};
+
+// The split, policy, leave-out and class options into `j`; prints and returns false when bad.
+bool resolve_judging(const SplitOptions& so, const JudgeOptions& jo, Judging& j) {
+  bool have_keep = false, have_baseline = false;
+  if (!resolve_split(so, j.place.split, j.keep, have_keep)) return false;
+  if (!resolve_judge(jo, j.place.policy, j.baseline, have_baseline)) return false;
+  if (!resolve_leave_out(so, j.place.policy, j.place.split)) return false;
+  if (!resolve_classes(so, j.place.policy, j.place.classes)) return false;
+  j.place.keep = have_keep ? &j.keep : nullptr;
+  j.place.baseline = have_baseline ? &j.baseline : nullptr;
+  return true;
+}
+
 bool use_colour() {
   const char* no = std::getenv("NO_COLOR");
   return isatty(STDOUT_FILENO) == 1 && !(no && *no);
@@ -381,17 +405,9 @@ int run_audit_command(const std::string& root, const std::string& out, const Spl
   namespace fs = std::filesystem;
   tamis::TreeSettings settings;
   settings.root = absolute_root(root);
-  tamis::PlaceOptions place;
-  tamis::KeepMap keep;
-  bool have_keep = false;
-  if (!resolve_split(so, place.split, keep, have_keep)) return kExitBadUsage;
-  tamis::Baseline baseline;
-  bool have_baseline = false;
-  if (!resolve_judge(jo, place.policy, baseline, have_baseline)) return kExitBadUsage;
-  if (!resolve_leave_out(so, place.policy, place.split)) return kExitBadUsage;
-  if (!resolve_classes(so, place.policy, place.classes)) return kExitBadUsage;
-  place.keep = have_keep ? &keep : nullptr;
-  place.baseline = have_baseline ? &baseline : nullptr;
+  Judging judging;
+  if (!resolve_judging(so, jo, judging)) return kExitBadUsage;
+  tamis::PlaceOptions& place = judging.place;
   settings.groups.radius = place.policy.lookalike.radius;
   settings.groups.match = place.policy.lookalike.match;
   resolve_cache(root, o, settings);
@@ -428,17 +444,9 @@ int run_audit_command(const std::string& root, const std::string& out, const Spl
 
 int run_split_command(const std::string& dir, const std::string& out, const SplitOptions& so, const JudgeOptions& jo,
                       bool quiet) {
-  tamis::PlaceOptions place;
-  tamis::KeepMap keep;
-  bool have_keep = false;
-  if (!resolve_split(so, place.split, keep, have_keep)) return kExitBadUsage;
-  tamis::Baseline baseline;
-  bool have_baseline = false;
-  if (!resolve_judge(jo, place.policy, baseline, have_baseline)) return kExitBadUsage;
-  if (!resolve_leave_out(so, place.policy, place.split)) return kExitBadUsage;
-  if (!resolve_classes(so, place.policy, place.classes)) return kExitBadUsage;
-  place.keep = have_keep ? &keep : nullptr;
-  place.baseline = have_baseline ? &baseline : nullptr;
+  Judging judging;
+  if (!resolve_judging(so, jo, judging)) return kExitBadUsage;
+  tamis::PlaceOptions& place = judging.place;
   tamis::AuditIndex index;
   try {
     index = tamis::load_index(std::filesystem::path(dir) / tamis::kIndexFileName);
@@ -639,17 +647,9 @@ int run_join_command(const std::vector<std::string>& inputs, const std::string& 
 int run_merge_command(const std::vector<std::string>& inputs, const std::string& out, const SplitOptions& so,
                       const JudgeOptions& jo, const CommonOptions& o) {
   tamis::TreeSettings settings;
-  tamis::PlaceOptions place;
-  tamis::KeepMap keep;
-  bool have_keep = false;
-  if (!resolve_split(so, place.split, keep, have_keep)) return kExitBadUsage;
-  tamis::Baseline baseline;
-  bool have_baseline = false;
-  if (!resolve_judge(jo, place.policy, baseline, have_baseline)) return kExitBadUsage;
-  if (!resolve_leave_out(so, place.policy, place.split)) return kExitBadUsage;
-  if (!resolve_classes(so, place.policy, place.classes)) return kExitBadUsage;
-  place.keep = have_keep ? &keep : nullptr;
-  place.baseline = have_baseline ? &baseline : nullptr;
+  Judging judging;
+  if (!resolve_judging(so, jo, judging)) return kExitBadUsage;
+  tamis::PlaceOptions& place = judging.place;
   settings.groups.radius = place.policy.lookalike.radius;
   settings.groups.match = place.policy.lookalike.match;
   if (!resolve_reading(o, settings)) return kExitBadUsage;
