@@ -17,7 +17,7 @@ data="$here/build/test-data"
 targets=(probe decode exif inflate policy keep baseline index record part)
 CC=clang CXX=clang++ cmake -S . -B build-fuzz -DCMAKE_BUILD_TYPE=None -DCMAKE_CXX_FLAGS="-O1" -DTAMIS_FUZZ=ON \
   -DTAMIS_BUILD_TESTS=ON -DTAMIS_TEST_DATA="$data" >/dev/null
-cmake --build build-fuzz -j "$jobs" --target tamis tamis_tests dct_export $(printf "fuzz_%s " "${targets[@]}")
+cmake --build build-fuzz -j "$jobs" --target tamis tamis_tests dct_export fashion_mnist_export $(printf "fuzz_%s " "${targets[@]}")
 # The brute-force comparisons of the look-alike join (index vs all pairs, the
 # screen vs every pair) are left to the main build: they are arithmetic on arrays
 # the other tests also drive, and take three quarters of the time under ASan.
