@@ -27,6 +27,8 @@ constexpr char kMagic[16] = {'\x89', 't', 'a', 'm', 'i', 's', '-', 'p', 'a', 'r'
 constexpr char kEnd[8] = {'t', 'a', 'm', 'i', 's', 'e', 'n', 'd'};
 constexpr size_t kHeader = 64, kTrailer = 24, kTableEntry = 16;
 constexpr uint64_t kMaxMeta = 1ull << 34;  // a meta block past 16 GB is no part this tool wrote
+// Why a read of a part that opened whole fails: it changed since.
+constexpr const char* kReadAgain = "cannot be read (cut short while in use?)";
 constexpr uint64_t kMinRecordBytes = 4 + 1 + 25 + detail::kRecordBytesHead;
 
 void put_u64(uint8_t* p, uint64_t v) {
@@ -160,6 +162,15 @@ void write_part(std::ostream& os, const ScanPart& p) {
 
 void PartFile::fail(const std::string& why) const { throw PartError("part " + file_.string() + " " + why); }
 
+void PartFile::read_at(uint64_t at, void* out, size_t n, const char* why) const {
+  for (size_t done = 0; done < n;) {
+    const ssize_t got = ::pread(fd_, static_cast<char*>(out) + done, n - done, static_cast<off_t>(at + done));
+    if (got < 0 && errno == EINTR) continue;
+    if (got <= 0) fail(why);
+    done += static_cast<size_t>(got);
+  }
+}
+
 PartFile::~PartFile() {
   if (fd_ >= 0) ::close(fd_);
 }
@@ -170,18 +181,10 @@ PartFile::PartFile(const std::filesystem::path& file) : file_(file) {
   struct stat st{};
   if (::fstat(fd_, &st) != 0 || !S_ISREG(st.st_mode)) fail("is not a regular file");
   size_ = static_cast<uint64_t>(st.st_size);
-  auto read_at = [&](uint64_t at, void* out, size_t n) {
-    size_t done = 0;
-    while (done < n) {
-      const ssize_t got = ::pread(fd_, static_cast<char*>(out) + done, n - done, static_cast<off_t>(at + done));
-      if (got < 0 && errno == EINTR) continue;
-      if (got <= 0) fail("is cut short (truncated) or cannot be read");
-      done += static_cast<size_t>(got);
-    }
-  };
+  const char* cut = "is cut short (truncated) or cannot be read";
   uint8_t head[kHeader];
   if (size_ < kHeader + kTrailer) fail("is not a tamis part (too short: truncated or another file)");
-  read_at(0, head, kHeader);
+  read_at(0, head, kHeader, cut);
   if (std::memcmp(head, kMagic, sizeof kMagic) != 0) fail("is not a tamis part (no tamis-part signature)");
   const uint32_t version = get_u32(head + 16);
   if (version != kPartVersion)
@@ -202,7 +205,7 @@ PartFile::PartFile(const std::filesystem::path& file) : file_(file) {
     fail(size_ < expect ? "is cut short (truncated): " + std::to_string(size_) + " bytes of " + std::to_string(expect)
                         : "is damaged (" + std::to_string(size_ - expect) + " bytes more than its header says)");
   uint8_t trailer[kTrailer];
-  read_at(size_ - kTrailer, trailer, kTrailer);
+  read_at(size_ - kTrailer, trailer, kTrailer, cut);
   if (std::memcmp(trailer + 16, kEnd, sizeof kEnd) != 0) fail("is damaged (no end mark)");
   head_sum_ = get_u64(trailer);
   file_sum_ = get_u64(trailer + 8);
@@ -220,7 +223,7 @@ PartFile::PartFile(const std::filesystem::path& file) : file_(file) {
     const uint64_t table_at = recs_at_ + recs_n;
     for (uint64_t at = 0; at < thumbs_at_;) {
       const size_t n = static_cast<size_t>(std::min<uint64_t>(buf.size(), thumbs_at_ - at));
-      read_at(at, buf.data(), n);
+      read_at(at, buf.data(), n, cut);
       XXH3_64bits_update(st.get(), buf.data(), n);
       // Copy out the parts of this chunk that fall in the meta block and the table.
       auto keep = [&](uint64_t from, std::vector<uint8_t>& into) {
@@ -291,14 +294,10 @@ void PartFile::RecordReader::fill(size_t need) {
   have_ -= at_;
   at_ = 0;
   if (buf_.size() < need) buf_.resize(need);
-  while (have_ < need && read_ < part_.recs_bytes_) {
-    const size_t want = static_cast<size_t>(std::min<uint64_t>(buf_.size() - have_, part_.recs_bytes_ - read_));
-    const ssize_t got = ::pread(part_.fd_, buf_.data() + have_, want, static_cast<off_t>(part_.recs_at_ + read_));
-    if (got < 0 && errno == EINTR) continue;
-    if (got <= 0) part_.fail("cannot be read (cut short while in use?)");
-    have_ += static_cast<size_t>(got);
-    read_ += static_cast<uint64_t>(got);
-  }
+  const size_t want = static_cast<size_t>(std::min<uint64_t>(buf_.size() - have_, part_.recs_bytes_ - read_));
+  part_.read_at(part_.recs_at_ + read_, buf_.data() + have_, want, kReadAgain);
+  have_ += want;
+  read_ += want;
   if (have_ < need) part_.fail("is damaged (records)");
 }
 
@@ -347,15 +346,7 @@ std::vector<FileRecord> PartFile::read_records() const {
 
 void PartFile::read_thumbnails(size_t first, size_t count, Thumbnail* out) const {
   if (first > thumb_record_.size() || count > thumb_record_.size() - first) fail("thumbnail out of range");
-  size_t done = 0;
-  const size_t bytes = count * sizeof(Thumbnail);
-  const uint64_t at = thumbs_at_ + first * sizeof(Thumbnail);
-  while (done < bytes) {
-    const ssize_t got = ::pread(fd_, reinterpret_cast<char*>(out) + done, bytes - done, static_cast<off_t>(at + done));
-    if (got < 0 && errno == EINTR) continue;
-    if (got <= 0) fail("cannot be read (cut short while in use?)");
-    done += static_cast<size_t>(got);
-  }
+  read_at(thumbs_at_ + first * sizeof(Thumbnail), out, count * sizeof(Thumbnail), kReadAgain);
   for (size_t k = 0; k < count; ++k)
     if (XXH3_64bits(out[k].data(), out[k].size()) != thumb_sum_[first + k]) fail("is damaged (a thumbnail's checksum)");
 }
@@ -367,11 +358,9 @@ void PartFile::verify() const {
   const uint64_t stop = size_ - kTrailer;
   for (uint64_t at = 0; at < stop;) {
     const size_t want = static_cast<size_t>(std::min<uint64_t>(buf.size(), stop - at));
-    const ssize_t got = ::pread(fd_, buf.data(), want, static_cast<off_t>(at));
-    if (got < 0 && errno == EINTR) continue;
-    if (got <= 0) fail("cannot be read (cut short while in use?)");
-    XXH3_64bits_update(st.get(), buf.data(), static_cast<size_t>(got));
-    at += static_cast<uint64_t>(got);
+    read_at(at, buf.data(), want, kReadAgain);
+    XXH3_64bits_update(st.get(), buf.data(), want);
+    at += want;
   }
   if (XXH3_64bits_digest(st.get()) != file_sum_) fail("is damaged (checksum mismatch)");
 }

@@ -120,6 +120,8 @@ class PartFile {
   std::vector<uint32_t> thumb_record_;
   std::vector<uint64_t> thumb_sum_;
   [[noreturn]] void fail(const std::string& why) const;
+  // Reads n bytes at `at` whole (pread, retried); fail(why) when it cannot.
+  void read_at(uint64_t at, void* out, size_t n, const char* why) const;
 };
 
 }  // namespace tamis
