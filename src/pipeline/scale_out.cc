@@ -271,20 +271,9 @@ AuditIndex merge_parts(PartSet parts, const std::vector<JoinSlice>& joins, const
     if (r.records[i].features.has_lookalike) with_thumb.push_back(i);
   if (joins.empty()) {
     // Every thumbnail, in memory or (beyond the budget) in a scratch file, as the read stage keeps them.
-    std::error_code ec;
-    bool spill = !settings.read.scratch_dir.empty() &&
-                 static_cast<uint64_t>(n) * sizeof(Thumbnail) > settings.read.thumbnail_memory_bytes &&
-                 std::filesystem::is_directory(settings.read.scratch_dir, ec) &&
-                 !path_is_inside(r.settings.root, settings.read.scratch_dir);
-    if (spill) {
-      try {
-        r.thumbs.assign_spilled(n, settings.read.scratch_dir);
-      } catch (const std::runtime_error& e) {
-        spill = false;
-        r.cache_note += (r.cache_note.empty() ? "" : "; ") + std::string("the thumbnails stayed in memory: ") + e.what();
-      }
-    }
-    if (!spill) r.thumbs.assign_all(n);
+    std::string note;
+    if (!assign_scratch_thumbnails(r.thumbs, n, r.settings.root, settings.read, note)) r.thumbs.assign_all(n);
+    if (!note.empty()) r.cache_note += (r.cache_note.empty() ? "" : "; ") + note;
     parts.load_thumbnails(with_thumb, r.thumbs);
     clock.lap("thumbnails");
     r.groups = find_groups(r.records, r.thumbs, gs);

@@ -164,18 +164,24 @@ Source read_one(int rootfd, const WalkEntry& e, const ReadOptions& opt, const Re
 
 constexpr size_t kSpillWindow = 16384;  // records whose thumbnails are staged at once (19 MB)
 
-// Whether a read of `records` files keeps their thumbnails in a scratch file:
-// when they would take more than the options allow and the scratch folder is
-// usable (it exists and is not ROOT or inside it: nothing is written in the data set).
-bool spill_thumbnails(const std::filesystem::path& root, size_t records, const ReadOptions& opt) {
+}  // namespace
+
+bool assign_scratch_thumbnails(ThumbnailTable& thumbs, size_t records, const std::filesystem::path& root,
+                               const ReadOptions& opt, std::string& note) {
+  note.clear();
   if (opt.scratch_dir.empty() || static_cast<uint64_t>(records) * sizeof(Thumbnail) <= opt.thumbnail_memory_bytes)
     return false;
+  // The scratch folder must exist and not be ROOT or inside it: nothing is written in the data set.
   std::error_code ec;
-  if (!std::filesystem::is_directory(opt.scratch_dir, ec)) return false;
-  return !path_is_inside(root, opt.scratch_dir);
+  if (!std::filesystem::is_directory(opt.scratch_dir, ec) || path_is_inside(root, opt.scratch_dir)) return false;
+  try {
+    thumbs.assign_spilled(records, opt.scratch_dir);
+    return true;
+  } catch (const std::runtime_error& e) {  // no space, read-only: memory gives the same values
+    note = std::string("the thumbnails stayed in memory: ") + e.what();
+    return false;
+  }
 }
-
-}  // namespace
 
 bool is_hidden_path(std::string_view p) {
   size_t start = 0;
@@ -241,16 +247,9 @@ std::vector<FileRecord> read_files(const std::filesystem::path& root, const std:
     for (size_t i = 0; i < entries.size(); ++i)
       if (row_of[i] < 0) to_read.push_back(static_cast<uint32_t>(i));
     // Judged on every record (a later stage may load all the stored ones too).
-    bool spill = spill_thumbnails(root, entries.size(), opt);
-    if (ctx.counts) ctx.counts->scratch_note.clear();
-    if (spill) {
-      try {
-        ctx.thumbs->assign_spilled(entries.size(), opt.scratch_dir);
-      } catch (const std::runtime_error& e) {  // no space, read-only: memory gives the same values
-        spill = false;
-        if (ctx.counts) ctx.counts->scratch_note = std::string("the thumbnails stayed in memory: ") + e.what();
-      }
-    }
+    std::string note;
+    const bool spill = assign_scratch_thumbnails(*ctx.thumbs, entries.size(), root, opt, note);
+    if (ctx.counts) ctx.counts->scratch_note = note;
     if (!spill) {
       if (to_read.size() == entries.size()) {
         ctx.thumbs->assign_all(entries.size(), false);  // every slot is written below, by its thread

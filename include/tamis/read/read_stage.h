@@ -78,6 +78,15 @@ struct ReadContext {
 std::vector<FileRecord> read_files(const std::filesystem::path& root, const std::vector<WalkEntry>& entries,
                                    const ReadOptions& options, const ReadContext& context = {});
 
+// Gives `thumbs` a slot for each of `records` records in a scratch file when
+// they would take more than options.thumbnail_memory_bytes and
+// options.scratch_dir is a folder outside ROOT; true when it did. A scratch file
+// that cannot be made (no space, read-only) leaves `thumbs` as it was and says
+// why in `note` (cleared otherwise): the caller keeps them in memory, which gives
+// the same values. (The read stage, and the merge of a scan's parts.)
+bool assign_scratch_thumbnails(ThumbnailTable& thumbs, size_t records, const std::filesystem::path& root,
+                               const ReadOptions& options, std::string& note);
+
 // True when some component of the relative path starts with '.'.
 bool is_hidden_path(std::string_view rel_path);
 
