@@ -520,7 +520,8 @@ int failed(const std::exception& e) {
 // The shard (or slice) this task takes: `given` ("K/N") when set, else the
 // cluster engine's environment (shard.h), else the whole (0/1). Prints and
 // returns false when neither makes sense.
-bool resolve_shard(const std::string& given, uint32_t count_given, const char* flag, tamis::Shard& shard) {
+bool resolve_shard(const std::string& given, uint32_t count_given, const char* flag, const char* count_flag,
+                   tamis::Shard& shard) {
   try {
     if (!given.empty()) {
       shard = tamis::parse_shard(given);
@@ -533,7 +534,7 @@ bool resolve_shard(const std::string& given, uint32_t count_given, const char* f
     }
     if (count_given > 1) {
       std::fprintf(stderr, "tamis: %s: %u given, but not which one: give %s K/%u, or run as a Slurm array task or a Kubernetes Indexed Job\n",
-                   flag[2] == 's' && flag[3] == 'h' ? "--shards" : "--slices", count_given, flag, count_given);
+                   count_flag, count_given, flag, count_given);
       return false;
     }
     shard = {};
@@ -558,7 +559,7 @@ int run_scan_command(const std::string& root, const std::string& out, const std:
   resolve_cache(root, o, settings);
   if (!resolve_reading(o, settings)) return kExitBadUsage;
   tamis::Shard shard;
-  if (!resolve_shard(shard_text, shards, "--shard", shard)) return kExitBadUsage;
+  if (!resolve_shard(shard_text, shards, "--shard", "--shards", shard)) return kExitBadUsage;
   try {
     tamis::refuse_inside_root(root, out, "--out");
     if (!o.cache.empty()) tamis::refuse_inside_root(root, o.cache, "--cache");
@@ -625,7 +626,7 @@ int run_join_command(const std::vector<std::string>& inputs, const std::string& 
   settings.groups.join_memory_bytes = join_memory_mb << 20;
   if (!resolve_reading(o, settings)) return kExitBadUsage;
   tamis::Shard slice;
-  if (!resolve_shard(slice_text, slices, "--slice", slice)) return kExitBadUsage;
+  if (!resolve_shard(slice_text, slices, "--slice", "--slices", slice)) return kExitBadUsage;
   std::vector<std::filesystem::path> files(inputs.begin(), inputs.end());
   tamis::JoinSlice js;
   try {
