@@ -13,7 +13,7 @@ mode="${1:-demo}"
 build_pkgs=(cmake make g++ pkg-config libopencv-dev nlohmann-json3-dev libcli11-dev catch2
             libspdlog-dev libturbojpeg0-dev libjpeg-dev libxxhash-dev libsqlite3-dev zlib1g-dev)
 test_pkgs=(libjxl-testdata dataset-fashion-mnist visp-images-data python3 python3-numpy python3-scipy
-           python3-sklearn python3-jsonschema python3-pil python3-cbor2 python3-xxhash python3-pandas libjpeg-turbo-progs chromium fonts-dejavu-core
+           python3-sklearn python3-jsonschema python3-pil python3-cbor2 python3-xxhash python3-pandas libjpeg-turbo-progs chromium fonts-dejavu-core adwaita-icon-theme
            slurmctld slurmd slurm-client
            clang libclang-rt-14-dev llvm)
 

@@ -8,9 +8,11 @@
 
 #include <nlohmann/json.hpp>
 #include <opencv2/imgcodecs.hpp>
+#include <opencv2/imgproc.hpp>
 
 #include "support/temp_tree.h"
 #include "tamis/read/decode/decode.h"
+#include "tamis/read/features.h"
 #include "tamis/read/probe.h"
 
 using namespace tamis;
@@ -76,6 +78,61 @@ TEST_CASE("tamis's GIF decoder gives Pillow's pixels exactly", "[decode][gif][pi
     REQUIRE(ours.size() == ref.size());
     CHECK(cv::norm(ours, ref, cv::NORM_INF) == 0);
   }
+}
+
+// Pillow's Image.alpha_composite over white (over black for the white drawing,
+// which white would hide) is the reference for how an image with alpha is seen.
+// The files are small, so the reduced image is the whole picture. Rounding may
+// differ by one level (premultiplied colour rounded first here).
+TEST_CASE("images with alpha are judged as Pillow lays them over a plain ground", "[decode][alpha][pillow]") {
+  fs::path dir = pillow_dir();
+  nlohmann::json expect;
+  std::ifstream(dir / "expectations.json") >> expect;
+  int checked = 0;
+  for (const auto& [name, e] : expect.items()) {
+    if (!e.contains("flat")) continue;
+    INFO(name);
+    auto bytes = test::read_bytes(dir / name);
+    ProbeOutcome p = probe_bytes(bytes);
+    REQUIRE(p.defect == Defect::none);
+    Decoded d = decode_image(bytes, p.info, DecodeLimits{});
+    REQUIRE(d.defect == Defect::none);
+    CHECK(d.alpha_min < 255);
+    cv::Mat ref = cv::imread((dir / e["flat"].get<std::string>()).string(), cv::IMREAD_COLOR);
+    REQUIRE(!ref.empty());
+    REQUIRE(d.reduced.size() == ref.size());
+    cv::Mat ours = d.reduced;
+    if (ours.channels() == 1) cv::cvtColor(ours, ours, cv::COLOR_GRAY2BGR);
+    REQUIRE(ours.channels() == 3);
+    CHECK(cv::norm(ours, ref, cv::NORM_INF) <= 1);
+    ++checked;
+  }
+  CHECK(checked == 7);
+}
+
+TEST_CASE("a drawing seen only through its alpha is not a blank picture", "[decode][alpha]") {
+  // Two different shapes, both stored as black pixels whose alpha draws them (as
+  // icon themes store their symbolic icons): laid over white they are a black
+  // disc and a black bar, whose thumbnails differ; before, both were flat black.
+  auto shape = [](bool disc) {
+    cv::Mat m(48, 48, CV_8UC4, cv::Scalar(0, 0, 0, 0));
+    if (disc) cv::circle(m, {24, 24}, 15, cv::Scalar(0, 0, 0, 255), cv::FILLED, cv::LINE_AA);
+    else cv::rectangle(m, cv::Rect(8, 20, 32, 8), cv::Scalar(0, 0, 0, 255), cv::FILLED);
+    std::vector<uint8_t> png;
+    cv::imencode(".png", m, png);
+    return png;
+  };
+  auto features = [](const std::vector<uint8_t>& png) {
+    ProbeOutcome p = probe_bytes(png);
+    REQUIRE(p.defect == Defect::none);
+    Decoded d = decode_image(png, p.info, DecodeLimits{});
+    REQUIRE(d.defect == Defect::none);
+    return lookalike_features(d.reduced);
+  };
+  const Lookalike disc = features(shape(true)), bar = features(shape(false));
+  CHECK(thumb_sd(thumb_stats(disc.thumb)) > 40);
+  CHECK(thumb_sd(thumb_stats(bar.thumb)) > 40);
+  CHECK(thumb_correlation(disc.thumb, 0, bar.thumb) < 0.9);
 }
 
 TEST_CASE("GIF decoder reports damaged LZW data instead of inventing pixels", "[decode][gif][fault]") {

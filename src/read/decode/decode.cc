@@ -1,6 +1,7 @@
 #include "tamis/read/decode/decode.h"
 
 #include <climits>
+#include <cmath>
 #include <csetjmp>
 #include <cstdio>
 
@@ -31,6 +32,36 @@ cv::Mat detail::area_reduce(const cv::Mat& m, uint32_t side) {
   cv::Mat out;
   cv::resize(m, out, cv::Size(std::max(1, int(m.cols * f + 0.5)), std::max(1, int(m.rows * f + 0.5))), 0, 0,
              cv::INTER_AREA);
+  return out;
+}
+
+cv::Mat detail::flatten_alpha(const cv::Mat& m) {
+  const int ch = m.channels();
+  if (ch != 2 && ch != 4) return m;
+  // The spread of the grey levels over each ground: over black the premultiplied
+  // luma p, over white p + 255 - a (BT.601 weights; only to choose the ground).
+  double sw = 0, sww = 0, sb = 0, sbb = 0;
+  for (int y = 0; y < m.rows; ++y) {
+    const uint8_t* s = m.ptr<uint8_t>(y);
+    for (int x = 0; x < m.cols; ++x, s += ch) {
+      const double p = ch == 2 ? s[0] : 0.114 * s[0] + 0.587 * s[1] + 0.299 * s[2];
+      const double w = p + 255.0 - s[ch - 1];
+      sb += p, sbb += p * p, sw += w, sww += w * w;
+    }
+  }
+  const double n = std::max<double>(1.0, double(m.total()));
+  const double sd_white = std::sqrt(std::max(0.0, sww / n - (sw / n) * (sw / n)));
+  const double sd_black = std::sqrt(std::max(0.0, sbb / n - (sb / n) * (sb / n)));
+  const bool black = sd_white < kHiddenOnWhite && sd_black >= kShownOnBlack;
+  cv::Mat out(m.rows, m.cols, CV_8UC(ch - 1));
+  for (int y = 0; y < m.rows; ++y) {
+    const uint8_t* s = m.ptr<uint8_t>(y);
+    uint8_t* d = out.ptr<uint8_t>(y);
+    for (int x = 0; x < m.cols; ++x, s += ch, d += ch - 1) {
+      const int ground = black ? 0 : 255 - s[ch - 1];
+      for (int c = 0; c < ch - 1; ++c) d[c] = static_cast<uint8_t>(std::min(255, s[c] + ground));
+    }
+  }
   return out;
 }
 
@@ -266,11 +297,14 @@ cv::Mat decode_gif_first_frame(std::span<const uint8_t> b, Defect& defect, const
     palette = b.subspan(off, n);
     off += n;
   }
-  // Skip extensions up to the first image descriptor.
+  // Skip extensions up to the first image descriptor, keeping the transparent
+  // colour index of the last graphic control extension before it (GIF89a section 23).
+  int transparent = -1;
   while (true) {
     if (!has(b, off, 1)) return fail(Defect::truncated);
     if (b[off] == 0x2C) break;
     if (b[off] != 0x21) return fail(Defect::bad_header);
+    if (has(b, off, 8) && b[off + 1] == 0xF9 && b[off + 2] == 4) transparent = (b[off + 3] & 1) ? b[off + 6] : -1;
     off += 2;
     while (true) {
       if (!has(b, off, 1)) return fail(Defect::truncated);
@@ -298,7 +332,8 @@ cv::Mat decode_gif_first_frame(std::span<const uint8_t> b, Defect& defect, const
   // limits too (a 65535x65535 frame on a tiny screen asked for 4 GB; fuzzing).
   const uint64_t frame_pixels = uint64_t(fw) * uint64_t(fh);
   if (frame_pixels > limits.max_pixels) return fail(Defect::too_many_pixels);
-  if (frame_pixels + uint64_t(sw) * uint64_t(sh) * 3 > limits.max_image_bytes) return fail(Defect::over_memory_budget);
+  const int ch = transparent >= 0 ? 4 : 3;  // BGR, or BGRA with the transparent index (and the screen the frame leaves) clear
+  if (frame_pixels + uint64_t(sw) * uint64_t(sh) * ch > limits.max_image_bytes) return fail(Defect::over_memory_budget);
 
   // LZW (GIF89a appendix F): dictionary of prefix/suffix pairs, 12-bit codes at most.
   std::vector<uint8_t> indices(static_cast<size_t>(fw) * fh, 0);
@@ -355,9 +390,12 @@ cv::Mat decode_gif_first_frame(std::span<const uint8_t> b, Defect& defect, const
   }
   if (produced < indices.size() && !ended) return fail(Defect::decode_warning);
 
-  cv::Mat img(sh, sw, CV_8UC3, cv::Scalar(0, 0, 0));
+  cv::Mat img(sh, sw, CV_8UC(ch), cv::Scalar(0, 0, 0, 0));
   auto colour = [&](uint8_t i, uint8_t* d) {
-    if (size_t{i} * 3 + 2 < palette.size()) {
+    if (ch == 4) d[3] = i == transparent ? 0 : 255;
+    if (ch == 4 && i == transparent) {
+      d[0] = d[1] = d[2] = 0;
+    } else if (size_t{i} * 3 + 2 < palette.size()) {
       d[0] = palette[i * 3 + 2];
       d[1] = palette[i * 3 + 1];
       d[2] = palette[i * 3];
@@ -382,7 +420,7 @@ cv::Mat decode_gif_first_frame(std::span<const uint8_t> b, Defect& defect, const
     for (int x = 0; x < fw; ++x) {
       int cx = left + x;
       if (cx >= sw) break;
-      colour(indices[static_cast<size_t>(r) * fw + x], d + cx * 3);
+      colour(indices[static_cast<size_t>(r) * fw + x], d + cx * ch);
     }
   }
   return img;
@@ -411,7 +449,7 @@ std::unique_lock<std::mutex> large_decode_turn(uint64_t bytes) {
 // conversion, or the direct PNG path's inflated rows) and the block reduction.
 uint64_t full_decode_bytes(const ProbeInfo& p, const DecodeLimits& limits) {
   const uint64_t px = uint64_t{p.width} * p.height;
-  const uint64_t ch = p.format == Format::gif ? 3 : output_channels(p);
+  const uint64_t ch = p.format == Format::gif ? 4 : output_channels(p);  // GIF: BGRA when it has a transparent index
   uint64_t bytes = px * ch * sample_bytes(p) + px * ch;
   if (px > limits.block_above_pixels) {
     const uint32_t k = box_factor(p.width, p.height, limits.reduced_side);
@@ -500,10 +538,15 @@ Decoded decode_image(std::span<const uint8_t> b, const ProbeInfo& probe, const D
     }
     out.alpha_min = lo;
   }
-  if (m.channels() == 2) {  // gray + alpha: keep the gray plane
-    cv::Mat g;
-    cv::extractChannel(m, g, 0);
-    m = g;
+  if (m.channels() == 2 || m.channels() == 4) {  // judged as it looks over a plain ground
+    const int ch = m.channels();
+    // libtiff's RGBA reader, which OpenCV uses for 8-bit TIFFs, gives colour
+    // already premultiplied (associated alpha), whatever the file stores.
+    const bool premultiplied = probe.format == Format::tiff && probe.bit_depth <= 8;
+    if (!premultiplied)
+      for (int y = 0; y < m.rows; ++y) premultiply_row(m.ptr<uint8_t>(y), size_t(m.cols), ch);
+    out.reduced = flatten_alpha(reduce(m, limits));
+    return out;
   }
   out.reduced = reduce(m, limits);
   return out;

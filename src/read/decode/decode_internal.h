@@ -115,6 +115,26 @@ class BoxReducer {
   cv::Mat out_;
 };
 
+// Transparency (docs/decoding.md): an image with alpha is judged as it looks
+// laid over a plain ground, never by the colours its transparent pixels happen
+// to store. Its colour is premultiplied by alpha at full resolution, row by row
+// (an opaque pixel is left as it is), so that every reduction averages what is
+// seen and the streamed and whole-image paths agree; the reduced image is then
+// laid over the ground by flatten_alpha.
+inline void premultiply_row(uint8_t* row, size_t pixels, int ch) {
+  for (size_t x = 0; x < pixels; ++x, row += ch) {
+    const unsigned a = row[ch - 1];
+    if (a == 255) continue;
+    for (int c = 0; c < ch - 1; ++c) row[c] = static_cast<uint8_t>((row[c] * a + 127) / 255);
+  }
+}
+// A premultiplied 2- or 4-channel image (grey+alpha, BGRA) laid over white, or
+// over black when white would hide what it shows: when its grey levels over
+// white spread less than kHiddenOnWhite while over black they spread at least
+// kShownOnBlack (a white drawing on a transparent ground). 1 or 3 channels.
+inline constexpr double kHiddenOnWhite = 4.0, kShownOnBlack = 8.0;
+cv::Mat flatten_alpha(const cv::Mat& premultiplied);
+
 // The area resize every decode ends with: to a shorter side of `side`, unless
 // the image is already at most twice that (then unchanged).
 cv::Mat area_reduce(const cv::Mat& m, uint32_t side);

@@ -215,8 +215,10 @@ bool detail::decode_png_streamed(std::span<const uint8_t> b, const ProbeInfo& pr
       }
     }
     if (!distinct.full()) distinct.add(row8.data(), w, out_ch);
-    if (out_ch == 4)
+    if (out_ch == 4) {
       for (size_t x = 0; x < w; ++x) alpha_min = std::min(alpha_min, row8[x * 4 + 3]);
+      premultiply_row(row8.data(), w, 4);
+    }
     box.add_row(row8.data());
     std::memcpy(prev.data(), cur.data() + 1, stride);
   }
@@ -228,7 +230,7 @@ bool detail::decode_png_streamed(std::span<const uint8_t> b, const ProbeInfo& pr
   }
   if (zs.z.avail_in != 0 || part != idat.size()) return false;
   out.defect = Defect::none;
-  out.reduced = area_reduce(box.take(), side);
+  out.reduced = flatten_alpha(area_reduce(box.take(), side));
   out.alpha_min = alpha_min;
   out.distinct = static_cast<uint8_t>(distinct.count());
   return true;

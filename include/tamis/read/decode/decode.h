@@ -42,8 +42,9 @@ namespace tamis {
 
 // Bumped whenever decoding gives other pixels for some file (the reduction
 // rule, a decoder path); the cache's settings key carries it, so records decoded
-// by older rules are never reused. 2: block reduction above 2^24 pixels.
-inline constexpr int kDecodeRules = 2;
+// by older rules are never reused. 2: block reduction above 2^24 pixels; 3:
+// images with alpha judged as laid over a plain ground, GIF transparency read.
+inline constexpr int kDecodeRules = 3;
 
 struct DecodeLimits {
   uint64_t max_pixels = 200'000'000;        // width * height claimed by the header (--max-pixels)
@@ -65,7 +66,11 @@ uint64_t decode_memory_estimate(const ProbeInfo& probe, const DecodeLimits& limi
 
 struct Decoded {
   Defect defect = Defect::none;
-  cv::Mat reduced;  // 8-bit; shorter side >= reduced_side unless the image is smaller
+  // 8-bit, 1 or 3 channels; shorter side >= reduced_side unless the image is
+  // smaller. An image with alpha is given as it looks laid over white (over
+  // black when white would hide it: decode_internal.h flatten_alpha), so its
+  // look-alike features and quality statistics see what a viewer sees.
+  cv::Mat reduced;
   uint8_t alpha_min = 255;  // smallest alpha value at full resolution (255 without alpha)
   uint8_t distinct = 65;    // distinct pixel values (colours) at full resolution, up to 65; JPEG: 65
 };
@@ -80,10 +85,11 @@ Decoded decode_image(std::span<const uint8_t> bytes, const ProbeInfo& probe, con
 // found no defect (chunk CRCs checked).
 bool decode_png_direct(std::span<const uint8_t> bytes, const ProbeInfo& probe, cv::Mat& out);
 
-// Decodes the first frame of a GIF to BGR (transparent pixels take their palette
-// colour). Returns an empty Mat and sets `defect` when the data is damaged, or
+// Decodes the first frame of a GIF to BGR, or to BGRA when a graphic control
+// extension before it names a transparent colour index: those pixels, and the
+// screen the frame leaves uncovered, are then clear (alpha 0). Returns an empty Mat and sets `defect` when the data is damaged, or
 // when the frame's own size (which may exceed the screen's) is over `limits`:
-// too_many_pixels, over_memory_budget (its indices and the screen's BGR image).
+// too_many_pixels, over_memory_budget (its indices and the screen's image).
 cv::Mat decode_gif_first_frame(std::span<const uint8_t> bytes, Defect& defect, const DecodeLimits& limits = {});
 
 }  // namespace tamis
