@@ -110,6 +110,33 @@ TEST_CASE("images with alpha are judged as Pillow lays them over a plain ground"
   CHECK(checked == 7);
 }
 
+// 16-bit samples that use fewer bits are taken to 8 bits against the top of
+// the bits they use (decode_internal.h deep_top); the fixture computes the
+// reference with numpy. Before, 8-bit values in a 16-bit TIFF became a flat
+// black picture (scikit-image's chessboard_GRAY_U16.tif was near-uniform).
+TEST_CASE("16-bit samples of fewer bits are read against their own top", "[decode][deep][pillow]") {
+  fs::path dir = pillow_dir();
+  nlohmann::json expect;
+  std::ifstream(dir / "expectations.json") >> expect;
+  int checked = 0;
+  for (const auto& [name, e] : expect.items()) {
+    if (!e.contains("deep")) continue;
+    INFO(name);
+    auto bytes = test::read_bytes(dir / name);
+    ProbeOutcome p = probe_bytes(bytes);
+    REQUIRE(p.defect == Defect::none);
+    Decoded d = decode_image(bytes, p.info, DecodeLimits{});
+    REQUIRE(d.defect == Defect::none);
+    cv::Mat ref = cv::imread((dir / e["deep"].get<std::string>()).string(), cv::IMREAD_GRAYSCALE);
+    REQUIRE(!ref.empty());
+    REQUIRE(d.reduced.size() == ref.size());
+    REQUIRE(d.reduced.channels() == 1);
+    CHECK(cv::norm(d.reduced, ref, cv::NORM_INF) <= 1);
+    ++checked;
+  }
+  CHECK(checked == 2);
+}
+
 TEST_CASE("a drawing seen only through its alpha is not a blank picture", "[decode][alpha]") {
   // Two different shapes, both stored as black pixels whose alpha draws them (as
   // icon themes store their symbolic icons): laid over white they are a black

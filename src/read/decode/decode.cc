@@ -69,6 +69,25 @@ namespace {
 
 cv::Mat to_8bit(const cv::Mat& m) {
   if (m.depth() == CV_8U) return m;
+  if (m.depth() == CV_16U) {  // against the top of the bits the colour uses (deep_top)
+    const int ch = m.channels();
+    const bool alpha = ch == 2 || ch == 4;
+    uint32_t colour_max = 0;
+    for (int y = 0; y < m.rows; ++y) {
+      const uint16_t* s = m.ptr<uint16_t>(y);
+      for (int x = 0; x < m.cols; ++x, s += ch)
+        for (int c = 0; c < ch - (alpha ? 1 : 0); ++c) colour_max = std::max<uint32_t>(colour_max, s[c]);
+    }
+    const uint32_t top = deep_top(colour_max);
+    cv::Mat out(m.rows, m.cols, CV_8UC(ch));
+    for (int y = 0; y < m.rows; ++y) {
+      const uint16_t* s = m.ptr<uint16_t>(y);
+      uint8_t* d = out.ptr<uint8_t>(y);
+      for (int x = 0; x < m.cols; ++x, s += ch, d += ch)
+        for (int c = 0; c < ch; ++c) d[c] = deep_to_8(s[c], alpha && c == ch - 1 ? 65535 : top);
+    }
+    return out;
+  }
   cv::Mat out;
   double scale = m.depth() == CV_16U ? 1.0 / 257.0 : m.depth() == CV_16S ? 1.0 / 128.0 : 255.0;
   m.convertTo(out, CV_8U, scale);
@@ -520,7 +539,11 @@ Decoded decode_image(std::span<const uint8_t> b, const ProbeInfo& probe, const D
     m = opencv_imdecode(b, cv::IMREAD_UNCHANGED | cv::IMREAD_IGNORE_ORIENTATION);
   }
   if (m.empty()) {
-    out.defect = Defect::decode_failed;
+    // A TIFF whose header and strips the probe found whole, with samples of more
+    // than 16 bits (32- or 64-bit integers or floats), is a variant OpenCV does not
+    // read in every layout (a planar float64 RGB, scikit-image's multipage_rgb.tif),
+    // not a damaged file.
+    out.defect = probe.format == Format::tiff && probe.bit_depth > 16 ? Defect::unsupported_variant : Defect::decode_failed;
     return out;
   }
   if (static_cast<uint32_t>(m.cols) != probe.width || static_cast<uint32_t>(m.rows) != probe.height) {

@@ -188,52 +188,67 @@ bool detail::decode_png_streamed(std::span<const uint8_t> b, const ProbeInfo& pr
   const int out_ch = in_ch == 1 ? 1 : in_ch == 3 ? 3 : 4;
   const size_t bps = probe.bit_depth / 8, w = probe.width, h = probe.height;
   const size_t stride = w * size_t(in_ch) * bps;
-  ZStream zs;
-  if (!zs.ok) return false;
-  std::vector<uint8_t> cur(stride + 1), prev(stride, 0), row8(w * size_t(out_ch));
-  DistinctCounter distinct(65);
-  uint8_t alpha_min = 255;
-  BoxReducer box(probe.width, probe.height, out_ch, box_factor(w, h, side));
-  size_t part = 0;
-  bool ended = false;
-  for (size_t y = 0; y < h; ++y) {
-    if (!pull(zs, idat, part, cur.data(), stride + 1, ended)) return false;
-    if (!unfilter(cur[0], cur.data() + 1, y > 0 ? prev.data() : nullptr, stride, size_t(in_ch) * bps)) return false;
-    const uint8_t* s = cur.data() + 1;
-    uint8_t* d = row8.data();
-    // A sample at 8 bits: 16-bit samples (big-endian) as OpenCV's convertTo(1/257) rounds them.
-    auto at = [&](size_t i) -> uint8_t {
-      return bps == 1 ? s[i] : static_cast<uint8_t>((((unsigned{s[2 * i]} << 8) | s[2 * i + 1]) + 128) / 257);
-    };
-    for (size_t x = 0; x < w; ++x, d += out_ch) {
-      const size_t i = x * size_t(in_ch);
-      switch (in_ch) {
-        case 1: d[0] = at(i); break;
-        case 2: d[0] = d[1] = d[2] = at(i), d[3] = at(i + 1); break;
-        case 3: d[0] = at(i + 2), d[1] = at(i + 1), d[2] = at(i); break;
-        default: d[0] = at(i + 2), d[1] = at(i + 1), d[2] = at(i), d[3] = at(i + 3); break;
+  const bool has_alpha = in_ch == 2 || in_ch == 4;
+  // One pass over the rows, 16-bit colour samples taken to 8 bits against `top`
+  // (deep_to_8; alpha always against 65535); the largest colour sample is kept.
+  auto pass = [&](uint32_t top, uint32_t& colour_max) -> bool {
+    ZStream zs;
+    if (!zs.ok) return false;
+    std::vector<uint8_t> cur(stride + 1), prev(stride, 0), row8(w * size_t(out_ch));
+    DistinctCounter distinct(65);
+    uint8_t alpha_min = 255;
+    colour_max = 0;
+    BoxReducer box(probe.width, probe.height, out_ch, box_factor(w, h, side));
+    size_t part = 0;
+    bool ended = false;
+    for (size_t y = 0; y < h; ++y) {
+      if (!pull(zs, idat, part, cur.data(), stride + 1, ended)) return false;
+      if (!unfilter(cur[0], cur.data() + 1, y > 0 ? prev.data() : nullptr, stride, size_t(in_ch) * bps)) return false;
+      const uint8_t* s = cur.data() + 1;
+      uint8_t* d = row8.data();
+      auto colour = [&](size_t i) -> uint8_t {
+        if (bps == 1) return s[i];
+        const uint32_t v = (unsigned{s[2 * i]} << 8) | s[2 * i + 1];  // big-endian
+        colour_max = std::max(colour_max, v);
+        return deep_to_8(v, top);
+      };
+      auto alpha = [&](size_t i) -> uint8_t { return bps == 1 ? s[i] : deep_to_8((unsigned{s[2 * i]} << 8) | s[2 * i + 1], 65535); };
+      for (size_t x = 0; x < w; ++x, d += out_ch) {
+        const size_t i = x * size_t(in_ch);
+        switch (in_ch) {
+          case 1: d[0] = colour(i); break;
+          case 2: d[0] = d[1] = d[2] = colour(i), d[3] = alpha(i + 1); break;
+          case 3: d[0] = colour(i + 2), d[1] = colour(i + 1), d[2] = colour(i); break;
+          default: d[0] = colour(i + 2), d[1] = colour(i + 1), d[2] = colour(i), d[3] = alpha(i + 3); break;
+        }
       }
+      if (!distinct.full()) distinct.add(row8.data(), w, out_ch);
+      if (has_alpha) {
+        for (size_t x = 0; x < w; ++x) alpha_min = std::min(alpha_min, row8[x * 4 + 3]);
+        premultiply_row(row8.data(), w, 4);
+      }
+      box.add_row(row8.data());
+      std::memcpy(prev.data(), cur.data() + 1, stride);
     }
-    if (!distinct.full()) distinct.add(row8.data(), w, out_ch);
-    if (out_ch == 4) {
-      for (size_t x = 0; x < w; ++x) alpha_min = std::min(alpha_min, row8[x * 4 + 3]);
-      premultiply_row(row8.data(), w, 4);
+    // The stream must end here, with its checksum right, and hold nothing more.
+    uint8_t extra = 0;
+    if (!ended) {
+      if (pull(zs, idat, part, &extra, 1, ended) || !ended) return false;
+      if (zs.z.avail_out != 1) return false;
     }
-    box.add_row(row8.data());
-    std::memcpy(prev.data(), cur.data() + 1, stride);
-  }
-  // The stream must end here, with its checksum right, and hold nothing more.
-  uint8_t extra = 0;
-  if (!ended) {
-    if (pull(zs, idat, part, &extra, 1, ended) || !ended) return false;
-    if (zs.z.avail_out != 1) return false;
-  }
-  if (zs.z.avail_in != 0 || part != idat.size()) return false;
-  out.defect = Defect::none;
-  out.reduced = flatten_alpha(area_reduce(box.take(), side));
-  out.alpha_min = alpha_min;
-  out.distinct = static_cast<uint8_t>(distinct.count());
-  return true;
+    if (zs.z.avail_in != 0 || part != idat.size()) return false;
+    out.defect = Defect::none;
+    out.reduced = flatten_alpha(area_reduce(box.take(), side));
+    out.alpha_min = alpha_min;
+    out.distinct = static_cast<uint8_t>(distinct.count());
+    return true;
+  };
+  uint32_t colour_max = 0;
+  if (!pass(65535, colour_max)) return false;
+  const uint32_t top = deep_top(colour_max);
+  if (bps == 1 || top == 65535) return true;
+  // 16-bit samples that use fewer bits: a second pass, against their own top.
+  return pass(top, colour_max);
 }
 
 bool decode_png_direct(std::span<const uint8_t> b, const ProbeInfo& probe, cv::Mat& out) {

@@ -83,7 +83,9 @@ std::vector<uint8_t> write_png(uint32_t w, uint32_t h, int colour_type, int dept
 }
 
 // Smooth shapes plus noise, so both the block means and the filters see varied data.
-std::vector<uint8_t> picture(uint32_t w, uint32_t h, int samples, int depth, uint64_t seed, int levels = 0) {
+// colour_bits (16-bit pictures): the colour samples use only that many bits.
+std::vector<uint8_t> picture(uint32_t w, uint32_t h, int samples, int depth, uint64_t seed, int levels = 0,
+                             int colour_bits = 16) {
   SplitMix64 rng(seed);
   const int bytes = depth / 8;
   std::vector<uint8_t> raw(size_t{w} * h * samples * bytes);
@@ -96,6 +98,7 @@ std::vector<uint8_t> picture(uint32_t w, uint32_t h, int samples, int depth, uin
           v = ((x / 500 + y / 300 + c) % levels) * 60;
         } else {
           v = depth == 8 ? (v + rng.below(24)) & 0xff : (v * 251 + rng.below(4000)) & 0xffff;
+          if (depth == 16) v &= (1u << colour_bits) - 1;
           if (c == samples - 1 && (samples == 2 || samples == 4)) v = depth == 8 ? 128 + (x + y) % 128 : 30000 + y;
         }
         if (bytes == 2) raw[i++] = static_cast<uint8_t>(v >> 8);
@@ -132,6 +135,7 @@ TEST_CASE("a large PNG decoded row by row equals libpng's decode, reduced by the
     const char* name;
     int colour_type, depth, samples, levels, parts;
     uint32_t w, h;
+    int colour_bits = 16;
   };
   // The threshold lowered to 100,000 pixels (the paths are the same at 2^24;
   // the libpng-written case below is at full size), in shapes whose sides are
@@ -142,10 +146,13 @@ TEST_CASE("a large PNG decoded row by row equals libpng's decode, reduced by the
       {"RGB 16", 2, 16, 3, 0, 1, 1101, 1100},       {"grey+alpha 16", 4, 16, 2, 0, 1, 700, 703},
       {"RGBA 16", 6, 16, 4, 0, 2, 640, 777},        {"grey 16", 0, 16, 1, 0, 4, 3000, 300},
       {"few grey levels (a mask)", 0, 8, 1, 3, 1, 1500, 1200},
+      // 16-bit colour of fewer bits (a 12-bit camera, 8-bit values kept in 16 bits):
+      // the streamed path's second pass against the colour's own top.
+      {"grey 16 of 12 bits", 0, 16, 1, 0, 2, 1100, 900, 12}, {"RGBA 16 of 8 bits", 6, 16, 4, 0, 1, 700, 640, 8},
   };
   for (const Case& c : cases) {
     INFO(c.name);
-    const auto raw = picture(c.w, c.h, c.samples, c.depth, c.w * 31 + c.h, c.levels);
+    const auto raw = picture(c.w, c.h, c.samples, c.depth, c.w * 31 + c.h, c.levels, c.colour_bits);
     const auto png = write_png(c.w, c.h, c.colour_type, c.depth, raw, c.parts);
     const Decoded streamed = decode(png, true, uint64_t{1} << 30, 100'000);
     const Decoded full = decode(png, false, uint64_t{1} << 30, 100'000);

@@ -43,7 +43,8 @@ namespace tamis {
 // Bumped whenever decoding gives other pixels for some file (the reduction
 // rule, a decoder path); the cache's settings key carries it, so records decoded
 // by older rules are never reused. 2: block reduction above 2^24 pixels; 3:
-// images with alpha judged as laid over a plain ground, GIF transparency read.
+// images with alpha judged as laid over a plain ground, GIF transparency read,
+// 16-bit colour taken to 8 bits against the top of the bits it uses.
 inline constexpr int kDecodeRules = 3;
 
 struct DecodeLimits {
