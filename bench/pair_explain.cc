@@ -31,6 +31,14 @@ int main(int argc, char** argv) {
                                            size_allowance(pb.info.width, pb.info.height, gs.match));
     std::printf("a %ux%u  b %ux%u  pair threshold %.5f  radius %d\n", pa.info.width, pa.info.height, pb.info.width,
                 pb.info.height, ms.min_correlation, gs.radius);
+    {
+      const MatchProfile qa = match_profile(a.thumb), qb = match_profile(b.thumb);
+      const BlurCandidates bc = blur_candidates(qa, qb);
+      std::printf("spectral mean a %.4f b %.4f, variance a %.4f b %.4f; blur steps tried on %s:", qa.lambda_mean, qb.lambda_mean,
+                  qa.lambda_var, qb.lambda_var, bc.blur_a ? "a" : "b");
+      for (int k = 0; k < bc.count; ++k) std::printf(" %d", bc.steps[k]);
+      std::printf("\n");
+    }
     for (int t = 0; t < kDihedralCount; ++t) {
       const int d = hamming(a.phash[t], b.phash[0]);
       const Match m = match_thumbnails(a.thumb, t, b.thumb, ms);

@@ -9,6 +9,7 @@
 #include <cstdlib>
 #include <fstream>
 #include <iostream>
+#include <map>
 #include <string>
 #include <string_view>
 
@@ -267,23 +268,50 @@ bool use_colour() {
   return isatty(STDOUT_FILENO) == 1 && !(no && *no);
 }
 
+// "1 file", "2 files": a count with its noun, singular or plural.
+std::string count_of(uint64_t n, const char* one, const char* many) {
+  return std::to_string(n) + " " + (n == 1 ? one : many);
+}
+
 void print_summary(const tamis::AuditResult& r, const std::filesystem::path& out, const std::string& format) {
   const auto& t = r.totals;
   size_t errors = 0, warnings = 0, infos = 0, failing = 0;
+  // Findings by code, errors first, then warnings and infos, each by code name:
+  // (severity, code) -> findings, those breaking the policy, files they name.
+  struct CodeCount {
+    size_t findings = 0, breaking = 0, files = 0;
+  };
+  std::map<std::pair<int, std::string>, CodeCount> by_code;
+  auto rank = [](tamis::Severity s) { return s == tamis::Severity::error ? 0 : s == tamis::Severity::warning ? 1 : 2; };
   for (size_t k = 0; k < r.findings.size(); ++k) {
     const auto& f = r.findings[k];
-    if (f.severity == tamis::Severity::error) {
-      ++errors;
-      if (tamis::breaks_policy(f.severity, r.known[k], r.fail_on_new_only, r.accepted_reason(k) != nullptr)) ++failing;
-    }
+    const bool breaks = f.severity == tamis::Severity::error &&
+                        tamis::breaks_policy(f.severity, r.known[k], r.fail_on_new_only, r.accepted_reason(k) != nullptr);
+    if (f.severity == tamis::Severity::error) ++errors;
+    if (breaks) ++failing;
     if (f.severity == tamis::Severity::warning) ++warnings;
     if (f.severity == tamis::Severity::info) ++infos;
+    if (f.severity == tamis::Severity::error || f.severity == tamis::Severity::warning ||
+        f.severity == tamis::Severity::info) {
+      auto& c = by_code[{rank(f.severity), f.code}];
+      ++c.findings;
+      c.breaking += breaks;
+      c.files += f.paths.size();
+    }
   }
+  static const char* const kSeverityName[3] = {"error", "warning", "info"};
   if (format == "json") {
+    nlohmann::json codes = nlohmann::json::array(), failing_codes = nlohmann::json::array();
+    for (const auto& [key, n] : by_code) {
+      codes.push_back({{"code", key.second}, {"severity", kSeverityName[key.first]}, {"findings", n.findings},
+                       {"files", n.files}});
+      if (n.breaking > 0) failing_codes.push_back(key.second);
+    }
     nlohmann::json j = {{"files_seen", t.files_seen}, {"images", t.images}, {"masks", t.masks},
                         {"unreadable", t.unreadable}, {"ignored", t.ignored}, {"classes", r.labels.names.size()},
                         {"groups", r.groups.groups.size()}, {"errors", errors}, {"warnings", warnings}, {"infos", infos},
-                        {"failing", failing}, {"exit_status", tamis::policy_exit_status(r)},
+                        {"failing", failing}, {"failing_codes", failing_codes}, {"codes", codes},
+                        {"exit_status", tamis::policy_exit_status(r)},
                         {"reports", (out / "report.html").string()},
                         {"read", r.counts.read}, {"cached", r.counts.cached}, {"cached_by_hash", r.counts.cached_by_hash},
                         {"moved_or_renamed", r.counts.moved}};
@@ -298,33 +326,48 @@ void print_summary(const tamis::AuditResult& r, const std::filesystem::path& out
   const char* amber = c ? "\033[33m" : "";
   const char* green = c ? "\033[32m" : "";
   const char* off = c ? "\033[0m" : "";
-  std::printf("files seen %llu: %llu images, %llu masks, %llu unreadable, %llu ignored; %zu classes, %zu groups\n",
-              (unsigned long long)t.files_seen, (unsigned long long)t.images, (unsigned long long)t.masks,
-              (unsigned long long)t.unreadable, (unsigned long long)t.ignored, r.labels.names.size(),
-              r.groups.groups.size());
-  std::printf("findings: %s%zu errors%s, %s%zu warnings%s, %zu infos\n", errors ? red : green, errors, off,
-              warnings ? amber : "", warnings, warnings ? off : "", infos);
-  for (size_t k = 0, shown = 0; k < r.findings.size() && shown < 8; ++k) {
+  std::printf("files seen %llu: %s, %s, %llu unreadable, %llu ignored; %s, %s\n", (unsigned long long)t.files_seen,
+              count_of(t.images, "image", "images").c_str(), count_of(t.masks, "mask", "masks").c_str(),
+              (unsigned long long)t.unreadable, (unsigned long long)t.ignored,
+              count_of(r.labels.names.size(), "class", "classes").c_str(),
+              count_of(r.groups.groups.size(), "group", "groups").c_str());
+  std::printf("findings: %s%s%s, %s%s%s, %s\n", errors ? red : green, count_of(errors, "error", "errors").c_str(), off,
+              warnings ? amber : "", count_of(warnings, "warning", "warnings").c_str(), warnings ? off : "",
+              count_of(infos, "info", "infos").c_str());
+  // Every code with its count, errors first; then the first error findings in full.
+  for (const auto& [key, n] : by_code) {
+    const tamis::FindingKind* kind = tamis::finding_kind(key.second);
+    const char* colour = key.first == 0 ? red : key.first == 1 ? amber : "";
+    const std::string counts = count_of(n.findings, "finding", "findings") +
+                               (n.files > 0 ? ", " + count_of(n.files, "file", "files") : std::string());
+    std::printf("  %s%-7s %-22s%s %-24s %s\n", colour, kSeverityName[key.first], key.second.c_str(), *colour ? off : "",
+                counts.c_str(), kind ? std::string(kind->title).c_str() : "");
+  }
+  size_t shown = 0;
+  for (size_t k = 0; k < r.findings.size() && shown < 8; ++k) {
     const auto& f = r.findings[k];
     if (f.severity != tamis::Severity::error) continue;
-    ++shown;
-    const tamis::FindingKind* kind = tamis::finding_kind(f.code);
-    std::printf("  %s%s%s (%s) %s%s\n", red, f.code.c_str(), off, kind ? std::string(kind->title).c_str() : "",
-                safe(f.message).c_str(),
+    if (shown++ == 0) {
+      if (errors > 8) std::printf("the first 8 of %zu errors (all in report.json):\n", errors);
+      else std::printf("%s:\n", errors == 1 ? "the error" : "the errors");
+    }
+    std::printf("  %s%s%s %s%s\n", red, f.code.c_str(), off, safe(f.message).c_str(),
                 r.accepted_reason(k) ? (" (accepted: " + safe(*r.accepted_reason(k)) + ")").c_str()
                 : r.baseline.present ? (r.known[k] ? " (known)" : " (new)")
                                      : "");
   }
   if (r.baseline.present)
-    std::printf("against the baseline: %zu new, %zu gone findings; %zu files added, %zu removed\n",
-                r.baseline.findings_new, r.baseline.findings_gone, r.baseline.files_added.size(),
-                r.baseline.files_removed.size());
+    std::printf("against the baseline: %zu new, %zu gone findings; %s added, %zu removed\n",
+                r.baseline.findings_new, r.baseline.findings_gone,
+                count_of(r.baseline.files_added.size(), "file", "files").c_str(), r.baseline.files_removed.size());
   if (r.counts.read + r.counts.cached + r.counts.cached_by_hash > 0)
-    std::printf("read %llu files, %llu from the cache (%llu of them by content), %llu moved or renamed\n",
-                (unsigned long long)r.counts.read, (unsigned long long)(r.counts.cached + r.counts.cached_by_hash),
+    std::printf("read %s, %llu from the cache (%llu of them by content), %llu moved or renamed\n",
+                count_of(r.counts.read, "file", "files").c_str(),
+                (unsigned long long)(r.counts.cached + r.counts.cached_by_hash),
                 (unsigned long long)r.counts.cached_by_hash, (unsigned long long)r.counts.moved);
   std::printf("policy: %s%s%s\n", failing ? red : green,
-              failing ? (std::to_string(failing) + " error findings break it").c_str() : "passes", off);
+              failing ? (count_of(failing, "error finding breaks", "error findings break") + " it").c_str() : "passes",
+              off);
   std::printf("reports: %s\n", safe((out / "report.html").string()).c_str());
 }
 

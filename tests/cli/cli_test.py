@@ -332,7 +332,7 @@ class Outputs(unittest.TestCase):
             r = run("audit", root, "--out", os.path.join(t, "o"), "--no-cache")
             self.assertEqual(r.returncode, 1, r.stderr)
             self.assertNotIn("\x1b", r.stdout)
-            line = [l for l in r.stdout.splitlines() if "label-conflict" in l]
+            line = [l for l in r.stdout.splitlines() if "label-conflict" in l and "labels" in l]
             self.assertEqual(len(line), 1)
             self.assertIn("bad\\x1b[31mred\\x0aline", line[0])
 
@@ -893,8 +893,30 @@ class Policy(unittest.TestCase):
             summary = json.loads(r.stdout)
             self.assertEqual(summary["images"], 6)
             self.assertEqual(summary["exit_status"], r.returncode)
+            # Every code with its counts, checked against report.json (read with Python's json).
+            with open(os.path.join(t, "o", "report.json")) as f:
+                report = json.load(f)
+            want = {}
+            for f in report["findings"]:
+                if f["severity"] in ("error", "warning", "info"):
+                    n = want.setdefault(f["code"], [f["severity"], 0, 0])
+                    n[1] += 1
+                    n[2] += len(f.get("paths", []))
+            self.assertEqual({c["code"]: [c["severity"], c["findings"], c["files"]] for c in summary["codes"]}, want)
+            self.assertEqual(summary["failing_codes"], [])
             r = run("audit", root, "--out", os.path.join(t, "o"))
             self.assertNotIn("\033[", r.stdout)
+            # The text summary lists warnings and infos by code too, in singular or plural.
+            for code, (severity, findings, files) in want.items():
+                line = [l for l in r.stdout.splitlines() if l.split()[:2] == [severity, code]]
+                self.assertEqual(len(line), 1, (code, r.stdout))
+                self.assertIn(f"{findings} finding" + ("" if findings == 1 else "s"), line[0])
+            # A copy under another class breaks the policy: its code is named.
+            shutil.copy(os.path.join(root, "alder", "0.png"), os.path.join(root, "birch", "copied.png"))
+            r = run("audit", root, "--out", os.path.join(t, "o2"), "--format", "json")
+            summary = json.loads(r.stdout)
+            self.assertEqual(r.returncode, 1)
+            self.assertIn("label-conflict", summary["failing_codes"])
 
 
 def mask_twin_tree(root):
