@@ -212,7 +212,9 @@ bool detail::decode_png_streamed(std::span<const uint8_t> b, const ProbeInfo& pr
         colour_max = std::max(colour_max, v);
         return deep_to_8(v, top);
       };
-      auto alpha = [&](size_t i) -> uint8_t { return bps == 1 ? s[i] : deep_to_8((unsigned{s[2 * i]} << 8) | s[2 * i + 1], 65535); };
+      auto alpha = [&](size_t i) -> uint8_t {
+        return bps == 1 ? s[i] : deep_to_8((unsigned{s[2 * i]} << 8) | s[2 * i + 1], 65535);
+      };
       for (size_t x = 0; x < w; ++x, d += out_ch) {
         const size_t i = x * size_t(in_ch);
         switch (in_ch) {

@@ -88,9 +88,10 @@ bool decode_png_direct(std::span<const uint8_t> bytes, const ProbeInfo& probe, c
 
 // Decodes the first frame of a GIF to BGR, or to BGRA when a graphic control
 // extension before it names a transparent colour index: those pixels, and the
-// screen the frame leaves uncovered, are then clear (alpha 0). Returns an empty Mat and sets `defect` when the data is damaged, or
-// when the frame's own size (which may exceed the screen's) is over `limits`:
-// too_many_pixels, over_memory_budget (its indices and the screen's image).
+// screen the frame leaves uncovered, are then clear (alpha 0). Returns an empty
+// Mat and sets `defect` when the data is damaged, or when the frame's own size
+// (which may exceed the screen's) is over `limits`: too_many_pixels,
+// over_memory_budget (its indices and the screen's image).
 cv::Mat decode_gif_first_frame(std::span<const uint8_t> bytes, Defect& defect, const DecodeLimits& limits = {});
 
 }  // namespace tamis
