@@ -5,6 +5,7 @@
 
 #include <filesystem>
 #include <fstream>
+#include <functional>
 
 #include <nlohmann/json.hpp>
 #include <opencv2/imgcodecs.hpp>
@@ -80,33 +81,42 @@ TEST_CASE("tamis's GIF decoder gives Pillow's pixels exactly", "[decode][gif][pi
   }
 }
 
-// Pillow's Image.alpha_composite over white (over black for the white drawing,
-// which white would hide) is the reference for how an image with alpha is seen.
-// The files are small, so the reduced image is the whole picture. Rounding may
-// differ by one level (premultiplied colour rounded first here).
-TEST_CASE("images with alpha are judged as Pillow lays them over a plain ground", "[decode][alpha][pillow]") {
+// Decodes each Pillow fixture whose expectation names a reference file under
+// `key`, and hands it with the reference's path to `check`; returns how many.
+int for_each_reference(const char* key, const std::function<void(const Decoded&, const std::string&)>& check) {
   fs::path dir = pillow_dir();
   nlohmann::json expect;
   std::ifstream(dir / "expectations.json") >> expect;
   int checked = 0;
   for (const auto& [name, e] : expect.items()) {
-    if (!e.contains("flat")) continue;
+    if (!e.contains(key)) continue;
     INFO(name);
     auto bytes = test::read_bytes(dir / name);
     ProbeOutcome p = probe_bytes(bytes);
     REQUIRE(p.defect == Defect::none);
     Decoded d = decode_image(bytes, p.info, DecodeLimits{});
     REQUIRE(d.defect == Defect::none);
+    check(d, (dir / e[key].get<std::string>()).string());
+    ++checked;
+  }
+  return checked;
+}
+
+// Pillow's Image.alpha_composite over white (over black for the white drawing,
+// which white would hide) is the reference for how an image with alpha is seen.
+// The files are small, so the reduced image is the whole picture. Rounding may
+// differ by one level (premultiplied colour rounded first here).
+TEST_CASE("images with alpha are judged as Pillow lays them over a plain ground", "[decode][alpha][pillow]") {
+  const int checked = for_each_reference("flat", [](const Decoded& d, const std::string& reference) {
     CHECK(d.alpha_min < 255);
-    cv::Mat ref = cv::imread((dir / e["flat"].get<std::string>()).string(), cv::IMREAD_COLOR);
+    cv::Mat ref = cv::imread(reference, cv::IMREAD_COLOR);
     REQUIRE(!ref.empty());
     REQUIRE(d.reduced.size() == ref.size());
     cv::Mat ours = d.reduced;
     if (ours.channels() == 1) cv::cvtColor(ours, ours, cv::COLOR_GRAY2BGR);
     REQUIRE(ours.channels() == 3);
     CHECK(cv::norm(ours, ref, cv::NORM_INF) <= 1);
-    ++checked;
-  }
+  });
   CHECK(checked == 7);
 }
 
@@ -115,25 +125,13 @@ TEST_CASE("images with alpha are judged as Pillow lays them over a plain ground"
 // reference with numpy. Before, 8-bit values in a 16-bit TIFF became a flat
 // black picture (scikit-image's chessboard_GRAY_U16.tif was near-uniform).
 TEST_CASE("16-bit samples of fewer bits are read against their own top", "[decode][deep][pillow]") {
-  fs::path dir = pillow_dir();
-  nlohmann::json expect;
-  std::ifstream(dir / "expectations.json") >> expect;
-  int checked = 0;
-  for (const auto& [name, e] : expect.items()) {
-    if (!e.contains("deep")) continue;
-    INFO(name);
-    auto bytes = test::read_bytes(dir / name);
-    ProbeOutcome p = probe_bytes(bytes);
-    REQUIRE(p.defect == Defect::none);
-    Decoded d = decode_image(bytes, p.info, DecodeLimits{});
-    REQUIRE(d.defect == Defect::none);
-    cv::Mat ref = cv::imread((dir / e["deep"].get<std::string>()).string(), cv::IMREAD_GRAYSCALE);
+  const int checked = for_each_reference("deep", [](const Decoded& d, const std::string& reference) {
+    cv::Mat ref = cv::imread(reference, cv::IMREAD_GRAYSCALE);
     REQUIRE(!ref.empty());
     REQUIRE(d.reduced.size() == ref.size());
     REQUIRE(d.reduced.channels() == 1);
     CHECK(cv::norm(d.reduced, ref, cv::NORM_INF) <= 1);
-    ++checked;
-  }
+  });
   CHECK(checked == 2);
 }
 
