@@ -275,30 +275,26 @@ std::string count_of(uint64_t n, const char* one, const char* many) {
 
 void print_summary(const tamis::AuditResult& r, const std::filesystem::path& out, const std::string& format) {
   const auto& t = r.totals;
-  size_t errors = 0, warnings = 0, infos = 0, failing = 0;
   // Findings by code, errors first, then warnings and infos, each by code name:
-  // (severity, code) -> findings, those breaking the policy, files they name.
+  // (severity rank, code) -> findings, those breaking the policy, files they name.
   struct CodeCount {
     size_t findings = 0, breaking = 0, files = 0;
   };
   std::map<std::pair<int, std::string>, CodeCount> by_code;
-  auto rank = [](tamis::Severity s) { return s == tamis::Severity::error ? 0 : s == tamis::Severity::warning ? 1 : 2; };
+  size_t by_severity[3] = {0, 0, 0}, failing = 0;
   for (size_t k = 0; k < r.findings.size(); ++k) {
     const auto& f = r.findings[k];
-    const bool breaks = f.severity == tamis::Severity::error &&
-                        tamis::breaks_policy(f.severity, r.known[k], r.fail_on_new_only, r.accepted_reason(k) != nullptr);
-    if (f.severity == tamis::Severity::error) ++errors;
-    if (breaks) ++failing;
-    if (f.severity == tamis::Severity::warning) ++warnings;
-    if (f.severity == tamis::Severity::info) ++infos;
-    if (f.severity == tamis::Severity::error || f.severity == tamis::Severity::warning ||
-        f.severity == tamis::Severity::info) {
-      auto& c = by_code[{rank(f.severity), f.code}];
-      ++c.findings;
-      c.breaking += breaks;
-      c.files += f.paths.size();
-    }
+    const int rank = f.severity == tamis::Severity::error ? 0 : f.severity == tamis::Severity::warning ? 1 : 2;
+    const bool breaks =
+        rank == 0 && tamis::breaks_policy(f.severity, r.known[k], r.fail_on_new_only, r.accepted_reason(k) != nullptr);
+    auto& c = by_code[{rank, f.code}];
+    ++c.findings;
+    c.breaking += breaks;
+    c.files += f.paths.size();
+    ++by_severity[rank];
+    failing += breaks;
   }
+  const size_t errors = by_severity[0], warnings = by_severity[1], infos = by_severity[2];
   static const char* const kSeverityName[3] = {"error", "warning", "info"};
   if (format == "json") {
     nlohmann::json codes = nlohmann::json::array(), failing_codes = nlohmann::json::array();

@@ -89,7 +89,7 @@ cv::Mat to_8bit(const cv::Mat& m) {
     return out;
   }
   cv::Mat out;
-  double scale = m.depth() == CV_16U ? 1.0 / 257.0 : m.depth() == CV_16S ? 1.0 / 128.0 : 255.0;
+  double scale = m.depth() == CV_16S ? 1.0 / 128.0 : 255.0;
   m.convertTo(out, CV_8U, scale);
   return out;
 }
@@ -412,9 +412,7 @@ cv::Mat decode_gif_first_frame(std::span<const uint8_t> b, Defect& defect, const
   cv::Mat img(sh, sw, CV_8UC(ch), cv::Scalar(0, 0, 0, 0));
   auto colour = [&](uint8_t i, uint8_t* d) {
     if (ch == 4) d[3] = i == transparent ? 0 : 255;
-    if (ch == 4 && i == transparent) {
-      d[0] = d[1] = d[2] = 0;
-    } else if (size_t{i} * 3 + 2 < palette.size()) {
+    if (size_t{i} * 3 + 2 < palette.size()) {
       d[0] = palette[i * 3 + 2];
       d[1] = palette[i * 3 + 1];
       d[2] = palette[i * 3];
@@ -552,22 +550,13 @@ Decoded decode_image(std::span<const uint8_t> b, const ProbeInfo& probe, const D
   }
   m = to_8bit(m);
   out.distinct = count_distinct(m, 65);
-  if (m.channels() == 2 || m.channels() == 4) {  // alpha at full resolution
-    const int ch = m.channels();
-    uint8_t lo = 255;
-    for (int y = 0; y < m.rows; ++y) {
-      const uint8_t* p = m.ptr<uint8_t>(y) + ch - 1;
-      for (int x = 0; x < m.cols; ++x, p += ch) lo = std::min(lo, *p);
-    }
-    out.alpha_min = lo;
-  }
   if (m.channels() == 2 || m.channels() == 4) {  // judged as it looks over a plain ground
     const int ch = m.channels();
     // libtiff's RGBA reader, which OpenCV uses for 8-bit TIFFs, gives colour
     // already premultiplied (associated alpha), whatever the file stores.
     const bool premultiplied = probe.format == Format::tiff && probe.bit_depth <= 8;
-    if (!premultiplied)
-      for (int y = 0; y < m.rows; ++y) premultiply_row(m.ptr<uint8_t>(y), size_t(m.cols), ch);
+    for (int y = 0; y < m.rows; ++y)  // the least alpha at full resolution, in the same pass
+      out.alpha_min = std::min(out.alpha_min, premultiply_row(m.ptr<uint8_t>(y), size_t(m.cols), ch, !premultiplied));
     out.reduced = flatten_alpha(reduce(m, limits));
     return out;
   }

@@ -139,13 +139,19 @@ inline uint8_t deep_to_8(uint32_t v, uint32_t top) {
 // to store. Its colour is premultiplied by alpha at full resolution, row by row
 // (an opaque pixel is left as it is), so that every reduction averages what is
 // seen and the streamed and whole-image paths agree; the reduced image is then
-// laid over the ground by flatten_alpha.
-inline void premultiply_row(uint8_t* row, size_t pixels, int ch) {
+// laid over the ground by flatten_alpha. Returns the row's least alpha (the
+// `alpha_min` of Decoded), found in the same pass; `premultiply` false (colour
+// that the decoder already premultiplied) only finds it.
+inline uint8_t premultiply_row(uint8_t* row, size_t pixels, int ch, bool premultiply = true) {
+  uint8_t least = 255;
   for (size_t x = 0; x < pixels; ++x, row += ch) {
     const unsigned a = row[ch - 1];
     if (a == 255) continue;
-    for (int c = 0; c < ch - 1; ++c) row[c] = static_cast<uint8_t>((row[c] * a + 127) / 255);
+    least = std::min<uint8_t>(least, static_cast<uint8_t>(a));
+    if (premultiply)
+      for (int c = 0; c < ch - 1; ++c) row[c] = static_cast<uint8_t>((row[c] * a + 127) / 255);
   }
+  return least;
 }
 // A premultiplied 2- or 4-channel image (grey+alpha, BGRA) laid over white, or
 // over black when white would hide what it shows: when its grey levels over

@@ -225,10 +225,7 @@ bool detail::decode_png_streamed(std::span<const uint8_t> b, const ProbeInfo& pr
         }
       }
       if (!distinct.full()) distinct.add(row8.data(), w, out_ch);
-      if (has_alpha) {
-        for (size_t x = 0; x < w; ++x) alpha_min = std::min(alpha_min, row8[x * 4 + 3]);
-        premultiply_row(row8.data(), w, 4);
-      }
+      if (has_alpha) alpha_min = std::min(alpha_min, premultiply_row(row8.data(), w, 4));
       box.add_row(row8.data());
       std::memcpy(prev.data(), cur.data() + 1, stride);
     }
