@@ -5,6 +5,7 @@
 
 #include <zlib.h>
 
+#include <cstring>
 #include <filesystem>
 
 #include <opencv2/imgcodecs.hpp>
@@ -13,6 +14,7 @@
 #include "support/temp_tree.h"
 #include "tamis/pipeline/audit.h"
 #include "tamis/read/decode/decode.h"
+#include "tamis/read/probe.h"
 
 using namespace tamis;
 namespace fs = std::filesystem;
@@ -167,4 +169,52 @@ TEST_CASE("a GIF frame far larger than its screen is refused before its indices 
   INFO("defect " << defect_code(d));
   CHECK(d == Defect::none);  // a short LZW stream (clear, a few codes, end of information)
   CHECK((m.cols == 4 && m.rows == 4));
+}
+
+// A valid TIFF (TIFF 6.0 fields, built byte by byte here) of planar float64 RGB,
+// as scikit-image's multipage_rgb.tif: OpenCV does not decode it (nor does
+// Pillow), and the probe finds its header and strips whole, so it is a variant
+// this build cannot read, a warning, not a damaged file.
+TEST_CASE("a whole TIFF of 64-bit float samples that OpenCV cannot read is an unsupported variant", "[decode][tiff]") {
+  const uint32_t w = 4, h = 3, planes = 3;
+  const uint32_t plane_bytes = w * h * 8;
+  std::vector<uint8_t> b;
+  auto u16 = [&](uint32_t v) { b.push_back(uint8_t(v)), b.push_back(uint8_t(v >> 8)); };
+  auto u32 = [&](uint32_t v) { for (int i = 0; i < 4; ++i) b.push_back(uint8_t(v >> (8 * i))); };
+  const uint16_t entries = 11;
+  const uint32_t ifd = 8, extra = ifd + 2 + entries * 12 + 4;  // out-of-line values after the IFD
+  const uint32_t bps_at = extra, off_at = extra + 6, cnt_at = extra + 18, fmt_at = extra + 30, data = extra + 36;
+  b.insert(b.end(), {'I', 'I', 42, 0});
+  u32(ifd);
+  u16(entries);
+  auto entry = [&](uint16_t tag, uint16_t type, uint32_t count, uint32_t value) { u16(tag), u16(type), u32(count), u32(value); };
+  entry(256, 4, 1, w);            // ImageWidth
+  entry(257, 4, 1, h);            // ImageLength
+  entry(258, 3, 3, bps_at);       // BitsPerSample 64, 64, 64
+  entry(259, 3, 1, 1);            // no compression
+  entry(262, 3, 1, 2);            // RGB
+  entry(273, 4, 3, off_at);       // StripOffsets, one strip a plane
+  entry(277, 3, 1, planes);       // SamplesPerPixel
+  entry(278, 4, 1, h);            // RowsPerStrip
+  entry(279, 4, 3, cnt_at);       // StripByteCounts
+  entry(284, 3, 1, 2);            // PlanarConfiguration: planar
+  entry(339, 3, 3, fmt_at);       // SampleFormat: IEEE float
+  u32(0);
+  for (int i = 0; i < 3; ++i) u16(64);
+  for (uint32_t i = 0; i < planes; ++i) u32(data + i * plane_bytes);
+  for (uint32_t i = 0; i < planes; ++i) u32(plane_bytes);
+  for (int i = 0; i < 3; ++i) u16(3);
+  REQUIRE(b.size() == data);
+  for (uint32_t i = 0; i < planes * w * h; ++i) {
+    const double v = (i % 7) / 7.0;
+    uint8_t raw[8];
+    std::memcpy(raw, &v, 8);
+    b.insert(b.end(), raw, raw + 8);
+  }
+  const ProbeOutcome p = probe_bytes(b);
+  REQUIRE(p.defect == Defect::none);
+  CHECK(p.info.bit_depth == 64);
+  const Decoded d = decode_image(b, p.info, DecodeLimits{});
+  CHECK(d.defect == Defect::unsupported_variant);
+  CHECK(is_undecodable_variant(d.defect));
 }
