@@ -18,6 +18,7 @@
 
 #include "progress.h"
 #include "tamis/base/atomic_file.h"
+#include "tamis/base/errors.h"
 #include "tamis/demo/demo.h"
 #include "tamis/pipeline/audit.h"
 #include "tamis/pipeline/scale_out.h"
@@ -47,6 +48,49 @@ std::string safe(std::string_view text) {
     }
   }
   return out;
+}
+
+// Help that a person can act on: each option's value is named by what it is
+// (DIR, FILE, N, K/N, a list of choices), never by the parser's type and range
+// ("UINT:UINT in [0 - 1024]"); a required option says so in words.
+class HelpFormatter : public CLI::Formatter {
+ public:
+  std::string make_option_opts(const CLI::Option* opt) const override {
+    if (opt->get_positional() || opt->get_items_expected_max() == 0) return {};
+    std::string text = " " + value_name(opt);
+    if (opt->get_expected_max() == CLI::detail::expected_max_vector_size) text += " ...";
+    if (opt->get_required()) text += " (required)";
+    return text;
+  }
+
+ private:
+  static std::string value_name(const CLI::Option* opt) {
+    if (!opt->get_option_text().empty()) return opt->get_option_text();
+    static const std::map<std::string, std::string> kNames = {
+        {"--seed", "N"}, {"--split", "TRAIN/VAL/TEST"}, {"--keep", "MANIFEST"}, {"--per-class", "N"},
+        {"--folds", "K"}, {"--exclude-flagged", "CODES"}, {"--class-alias", "VARIANT=CLASS"},
+        {"--exclude-class", "NAME"}, {"--policy", "FILE"}, {"--baseline", "REPORT"}, {"--junit", "FILE"},
+        {"--format", "text|json"}, {"--thumbnails-kb", "KB"}, {"--threads", "N"}, {"--mask-folder", "FOLDER"},
+        {"--not-mask-folder", "FOLDER"}, {"--cache", "FILE"}, {"--max-pixels", "N"}, {"--image-memory-mb", "MB"},
+        {"--thumbnail-memory-mb", "MB"}, {"--join-memory-mb", "MB"}, {"--shard", "K/N"}, {"--shards", "N"},
+        {"--slice", "K/N"}, {"--slices", "N"}, {"--to", "TREE"}, {"--mode", "symlink|hardlink|copy"},
+        {"--out", "DIR"}};
+    const auto it = kNames.find(opt->get_name());
+    return it != kNames.end() ? it->second : "VALUE";
+  }
+};
+
+// A command-line mistake as a plain sentence ("tamis: ..."), without CLI11's
+// "Run with --help" (the caller names the help to read).
+std::string usage_message(const CLI::ParseError& e) {
+  std::string text = e.what();
+  if (text == "A subcommand is required") return "a command is required: audit, split, export, scan, join, merge or demo";
+  if (!text.empty() && text[0] >= 'A' && text[0] <= 'Z' && text.size() > 1 && text[1] >= 'a' && text[1] <= 'z')
+    text[0] = static_cast<char>(text[0] - 'A' + 'a');
+  // A check's failure: "--threads: Value 5000 not in range 0 to 1024".
+  if (const size_t v = text.find(": Value "); v != std::string::npos) text.replace(v, 8, ": ");
+  if (const size_t v = text.find(" not in range "); v != std::string::npos) text.replace(v, 14, " is not within ");
+  return text;
 }
 
 constexpr int kExitBadUsage = 2;
@@ -111,7 +155,7 @@ bool resolve_judge(const JudgeOptions& o, tamis::Policy& policy, tamis::Baseline
   try {
     policy = o.policy.empty() ? tamis::default_policy() : tamis::load_policy(o.policy);
   } catch (const tamis::PolicyError& e) {
-    std::fprintf(stderr, "tamis: %s (%s)\n", safe(e.what()).c_str(), o.policy.c_str());
+    std::fprintf(stderr, "tamis: %s (%s)\n", safe(tamis::plain_message(e)).c_str(), o.policy.c_str());
     return false;
   }
   have_baseline = !o.baseline.empty();
@@ -119,7 +163,7 @@ bool resolve_judge(const JudgeOptions& o, tamis::Policy& policy, tamis::Baseline
     try {
       baseline = tamis::load_baseline(o.baseline);
     } catch (const std::exception& e) {
-      std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
+      std::fprintf(stderr, "tamis: %s\n", safe(tamis::plain_message(e)).c_str());
       return false;
     }
   }
@@ -148,7 +192,7 @@ void add_split_options(CLI::App* cmd, SplitOptions& o) {
         uint64_t v = 0;
         const auto [end, ec] = std::from_chars(text.data(), text.data() + text.size(), v);
         if (text.empty() || text[0] == '+' || ec != std::errc() || end != text.data() + text.size())
-          return "--seed takes a whole number from 0 to 18446744073709551615, not '" + text + "'";
+          return "takes a whole number from 0 to 18446744073709551615, not '" + text + "'";
         return {};
       },
       "0..2^64-1");
@@ -203,7 +247,7 @@ bool resolve_classes(const SplitOptions& o, const tamis::Policy& policy, tamis::
   try {
     tamis::validate_class_map(map);
   } catch (const std::invalid_argument& e) {
-    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
+    std::fprintf(stderr, "tamis: %s\n", safe(tamis::plain_message(e)).c_str());
     return false;
   }
   return true;
@@ -214,7 +258,7 @@ bool resolve_split(const SplitOptions& o, tamis::SplitSettings& s, tamis::KeepMa
   try {
     s.percent = tamis::parse_split_spec(o.spec);
   } catch (const std::invalid_argument& e) {
-    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
+    std::fprintf(stderr, "tamis: %s\n", safe(tamis::plain_message(e)).c_str());
     return false;
   }
   s.seed = o.seed;
@@ -232,7 +276,7 @@ bool resolve_split(const SplitOptions& o, tamis::SplitSettings& s, tamis::KeepMa
     try {
       keep = tamis::read_manifest_splits(is);
     } catch (const std::exception& e) {
-      std::fprintf(stderr, "tamis: --keep %s: %s\n", o.keep.c_str(), safe(e.what()).c_str());
+      std::fprintf(stderr, "tamis: --keep %s: %s\n", o.keep.c_str(), safe(tamis::plain_message(e)).c_str());
       return false;
     }
   }
@@ -374,10 +418,10 @@ int finish(tamis::AuditResult& result, const std::string& out, const JudgeOption
   try {
     tamis::write_outputs(out, result, jo.thumbnails_kb * 1024, timings ? &result.times : nullptr, jo.junit);
   } catch (const tamis::InsideRootError& e) {
-    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
+    std::fprintf(stderr, "tamis: %s\n", safe(tamis::plain_message(e)).c_str());
     return kExitBadUsage;
   } catch (const std::exception& e) {
-    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
+    std::fprintf(stderr, "tamis: %s\n", safe(tamis::plain_message(e)).c_str());
     return kExitCannotRun;
   }
   if (!quiet) print_summary(result, out, jo.format);
@@ -457,7 +501,7 @@ int run_audit_command(const std::string& root, const std::string& out, const Spl
     if (!jo.junit.empty()) tamis::refuse_inside_root(root, jo.junit, "--junit");
     if (!o.cache.empty()) tamis::refuse_inside_root(root, o.cache, "--cache");
   } catch (const tamis::InsideRootError& e) {
-    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
+    std::fprintf(stderr, "tamis: %s\n", safe(tamis::plain_message(e)).c_str());
     return kExitBadUsage;
   }
   std::error_code ec;
@@ -465,8 +509,8 @@ int run_audit_command(const std::string& root, const std::string& out, const Spl
     std::fprintf(stderr, "tamis: ROOT %s is not a readable folder\n", root.c_str());
     return kExitCannotRun;
   }
-  bool show = !o.quiet && !o.no_progress && (o.progress || tamis::cli::ProgressLine::stderr_is_terminal());
-  tamis::cli::ProgressLine progress(show);
+  const bool terminal = tamis::cli::ProgressLine::stderr_is_terminal();
+  tamis::cli::ProgressLine progress(!o.quiet && !o.no_progress && (o.progress || terminal), terminal);
   settings.read.on_progress = [&progress](size_t done, size_t total) { progress.update(done, total); };
   tamis::AuditResult result;
   try {
@@ -475,7 +519,7 @@ int run_audit_command(const std::string& root, const std::string& out, const Spl
     if (!result.cache_note.empty() && !o.quiet) std::fprintf(stderr, "tamis: %s\n", safe(result.cache_note).c_str());
   } catch (const std::exception& e) {
     progress.finish();
-    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
+    std::fprintf(stderr, "tamis: %s\n", safe(tamis::plain_message(e)).c_str());
     return kExitCannotRun;
   }
   return finish(result, out, jo, o.quiet, o.timings);
@@ -487,24 +531,34 @@ int run_split_command(const std::string& dir, const std::string& out, const Spli
   if (!resolve_judging(so, jo, judging)) return kExitBadUsage;
   tamis::PlaceOptions& place = judging.place;
   tamis::AuditIndex index;
+  std::error_code ec;
+  if (!std::filesystem::is_directory(dir, ec)) {
+    std::fprintf(stderr, "tamis: %s is not a folder: give split the --out folder of an earlier audit\n", safe(dir).c_str());
+    return kExitCannotRun;
+  }
+  if (!std::filesystem::exists(std::filesystem::path(dir) / tamis::kIndexFileName, ec)) {
+    std::fprintf(stderr, "tamis: %s holds no %s: it is not the --out folder of a finished audit\n", safe(dir).c_str(),
+                 tamis::kIndexFileName);
+    return kExitCannotRun;
+  }
   try {
     index = tamis::load_index(std::filesystem::path(dir) / tamis::kIndexFileName);
   } catch (const std::exception& e) {
-    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
+    std::fprintf(stderr, "tamis: %s\n", safe(tamis::plain_message(e)).c_str());
     return kExitCannotRun;
   }
   try {  // early, before the split: the output layer checks again when it writes
     tamis::refuse_inside_root(index.settings.root, out, "--out");
     if (!jo.junit.empty()) tamis::refuse_inside_root(index.settings.root, jo.junit, "--junit");
   } catch (const tamis::InsideRootError& e) {
-    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
+    std::fprintf(stderr, "tamis: %s\n", safe(tamis::plain_message(e)).c_str());
     return kExitBadUsage;
   }
   tamis::AuditResult result;
   try {
     result = tamis::place(std::move(index), place);
   } catch (const std::exception& e) {
-    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
+    std::fprintf(stderr, "tamis: %s\n", safe(tamis::plain_message(e)).c_str());
     return kExitCannotRun;
   }
   return finish(result, out, jo, quiet, false);
@@ -521,10 +575,10 @@ int run_export_command(const std::string& dir, const std::string& tree, const st
   try {
     r = tamis::export_tree(s);
   } catch (const tamis::ExportError& e) {
-    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
+    std::fprintf(stderr, "tamis: %s\n", safe(tamis::plain_message(e)).c_str());
     return e.exit_status;
   } catch (const std::exception& e) {
-    std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
+    std::fprintf(stderr, "tamis: %s\n", safe(tamis::plain_message(e)).c_str());
     return kExitCannotRun;
   }
   if (quiet) return 0;
@@ -550,7 +604,7 @@ int run_export_command(const std::string& dir, const std::string& tree, const st
 // mend in the command (an output inside ROOT, a set of parts or join outputs
 // the merge refuses), 3 for a run that could not be done.
 int failed(const std::exception& e) {
-  std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
+  std::fprintf(stderr, "tamis: %s\n", safe(tamis::plain_message(e)).c_str());
   const bool usage = dynamic_cast<const tamis::InsideRootError*>(&e) || dynamic_cast<const tamis::MergeError*>(&e) ||
                      dynamic_cast<const tamis::JoinFileError*>(&e);
   return usage ? kExitBadUsage : kExitCannotRun;
@@ -579,7 +633,7 @@ bool resolve_shard(const std::string& given, uint32_t count_given, const char* f
     shard = {};
     return true;
   } catch (const std::invalid_argument& e) {
-    std::fprintf(stderr, "tamis: %s: %s\n", flag, safe(e.what()).c_str());
+    std::fprintf(stderr, "tamis: %s: %s\n", flag, safe(tamis::plain_message(e)).c_str());
     return false;
   }
 }
@@ -610,8 +664,8 @@ int run_scan_command(const std::string& root, const std::string& out, const std:
     std::fprintf(stderr, "tamis: ROOT %s is not a readable folder\n", root.c_str());
     return kExitCannotRun;
   }
-  bool show = !o.quiet && !o.no_progress && (o.progress || tamis::cli::ProgressLine::stderr_is_terminal());
-  tamis::cli::ProgressLine progress(show);
+  const bool terminal = tamis::cli::ProgressLine::stderr_is_terminal();
+  tamis::cli::ProgressLine progress(!o.quiet && !o.no_progress && (o.progress || terminal), terminal);
   settings.read.on_progress = [&progress](size_t done, size_t total) { progress.update(done, total); };
   std::vector<tamis::StageTime> times;
   tamis::ScanPart part;
@@ -650,7 +704,7 @@ bool resolve_lookalike(const std::string& policy_file, tamis::TreeSettings& sett
   try {
     policy = policy_file.empty() ? tamis::default_policy() : tamis::load_policy(policy_file);
   } catch (const tamis::PolicyError& e) {
-    std::fprintf(stderr, "tamis: %s (%s)\n", safe(e.what()).c_str(), policy_file.c_str());
+    std::fprintf(stderr, "tamis: %s (%s)\n", safe(tamis::plain_message(e)).c_str(), policy_file.c_str());
     return false;
   }
   settings.groups.radius = policy.lookalike.radius;
@@ -724,11 +778,19 @@ int main(int argc, char** argv) {
   CLI::App app{"tamis: audit a folder-per-class image collection before training"};
   app.set_version_flag("--version", std::string(tamis::kToolName) + " " + tamis::kToolVersion);
   app.require_subcommand(1);
+  app.formatter(std::make_shared<HelpFormatter>());  // before the commands: they take it on
+  app.footer(
+      "'tamis COMMAND --help' describes a command. Exit status: 0 nothing breaks the policy,\n"
+      "1 a finding breaks it, 2 a mistake in the command line, 3 the run could not be done.\n"
+      "Example: tamis demo swatches && tamis audit swatches --out swatches-audit");
 
   CommonOptions audit_opts;
   SplitOptions audit_split;
   std::string root, out;
   CLI::App* audit = app.add_subcommand("audit", "read ROOT, check it, split it and write the reports into --out");
+  audit->footer(
+      "Writes manifest.csv, report.json, report.html and index.cbor into --out (never inside ROOT).\n"
+      "Example: tamis audit /data/photos --out /data/photos-audit --split 80/10/10 --seed 7");
   audit->add_option("ROOT", root, "the data set: one folder per class")->required();
   audit->add_option("--out", out, "folder for manifest.csv, report.json, report.html and index.cbor")->required();
   JudgeOptions audit_judge;
@@ -740,6 +802,7 @@ int main(int argc, char** argv) {
   std::string split_dir, split_out;
   bool split_quiet = false;
   CLI::App* split = app.add_subcommand("split", "re-split from an audit's saved index (DIR/index.cbor), reading no image");
+  split->footer("Example: tamis split /data/photos-audit --out /data/photos-split-2 --seed 2 --split 80/20");
   split->add_option("DIR", split_dir, "the --out folder of an earlier audit")->required();
   split->add_option("--out", split_out, "folder for the new manifest and reports")->required();
   JudgeOptions split_judge;
@@ -752,6 +815,7 @@ int main(int argc, char** argv) {
   CLI::App* exporter = app.add_subcommand(
       "export", "lay an audit's split out as TREE/<split>/<label>/... (links or copies of ROOT's images, masks in "
                 "TREE/masks/...) with one list of paths per split");
+  exporter->footer("Example: tamis export /data/photos-audit --to /data/photos-by-split --mode hardlink");
   exporter->add_option("DIR", export_dir, "the --out folder of an audit or a split")->required();
   exporter->add_option("--to", export_to, "the folder to make (new, empty, or an earlier export with --replace); never inside ROOT")
       ->required();
@@ -772,7 +836,7 @@ int main(int argc, char** argv) {
       "A file's shard is a hash of its path relative to ROOT: it never depends on the other files.\n"
       "Example: tamis scan /data/photos --shard 0/4 --out /shared/parts/0.part");
   scan->add_option("ROOT", scan_root, "the data set: one folder per class")->required();
-  scan->add_option("--out", scan_out, "the part file to write (never inside ROOT)")->required();
+  scan->add_option("--out", scan_out, "the part file to write (never inside ROOT)")->required()->option_text("FILE");
   scan->add_option("--shard", scan_shard, "K/N: read shard K (0-based) of N");
   scan->add_option("--shards", scan_shards, "N, when K comes from JOB_COMPLETION_INDEX")->check(CLI::Range(1u, tamis::kMaxShards));
   add_reading_options(scan, scan_opts, false);
@@ -790,7 +854,7 @@ int main(int argc, char** argv) {
       "Give the merge the same --policy and mask folders.\n"
       "Example: tamis join /shared/parts/*.part --slice 1/2 --out /shared/join/1.join");
   joiner->add_option("PART", join_inputs, "every part of the scan")->required();
-  joiner->add_option("--out", join_out, "the join output file to write (never inside ROOT)")->required();
+  joiner->add_option("--out", join_out, "the join output file to write (never inside ROOT)")->required()->option_text("FILE");
   joiner->add_option("--slice", join_slice, "K/N: compute slice K (0-based) of N");
   joiner->add_option("--slices", join_slices, "N, when K comes from JOB_COMPLETION_INDEX")->check(CLI::Range(1u, tamis::kMaxShards));
   joiner->add_option("--policy", join_policy, "policy file (JSON): its look-alike settings");
@@ -826,6 +890,7 @@ int main(int argc, char** argv) {
 
   std::string demo_dir;
   CLI::App* demo = app.add_subcommand("demo", "write the demo data set (textile swatches) into DIR");
+  demo->footer("Example: tamis demo swatches && tamis audit swatches --out swatches-audit");
   demo->add_option("DIR", demo_dir, "folder to write into")->required();
 
   try {
@@ -837,7 +902,10 @@ int main(int argc, char** argv) {
   } catch (const CLI::CallForVersion& e) {
     return app.exit(e);
   } catch (const CLI::ParseError& e) {
-    app.exit(e);
+    std::string help = "tamis";
+    for (const CLI::App* sub : app.get_subcommands()) help += " " + sub->get_name();
+    std::fprintf(stderr, "tamis: %s\n'%s --help' lists the options, with an example.\n", safe(usage_message(e)).c_str(),
+                 help.c_str());
     return kExitBadUsage;
   }
 
@@ -851,10 +919,14 @@ int main(int argc, char** argv) {
   if (demo->parsed()) {
     try {
       size_t n = tamis::write_demo(demo_dir);
-      std::printf("wrote %zu files into %s\n", n, demo_dir.c_str());
+      std::printf("wrote %zu files into %s\nnext: tamis audit %s --out %s-audit\n", n, safe(demo_dir).c_str(),
+                  safe(demo_dir).c_str(), safe(demo_dir).c_str());
       return 0;
-    } catch (const std::exception& e) {
+    } catch (const tamis::DemoTargetError& e) {
       std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
+      return kExitBadUsage;
+    } catch (const std::exception& e) {
+      std::fprintf(stderr, "tamis: %s\n", safe(tamis::plain_message(e)).c_str());
       return kExitCannotRun;
     }
   }

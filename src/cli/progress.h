@@ -1,7 +1,10 @@
-// Progress on stderr: one line rewritten in place ("read 1200/70000 files, 5400/s,
-// 12 s left"), only when stderr is a terminal or --progress asks for it.
-// Thread-safe: update() may be called from any worker; it prints at most every
-// 100 ms. finish() clears the line.
+// Progress on stderr, shown when stderr is a terminal or --progress asks for it.
+// On a terminal: one line rewritten in place ("read 1200/70000 files, 5400/s,
+// 12 s left"), at most every 100 ms, cleared by finish(). Elsewhere (a pipe, a
+// CI log): plain lines without escape codes ("tamis: read 7000/70000 files
+// (10%), 5400/s, 12 s left"), one each time another tenth is read or a minute
+// has passed, and one when all are read; finish() prints nothing.
+// Thread-safe: update() may be called from any worker.
 #pragma once
 
 #include <unistd.h>
@@ -15,7 +18,8 @@ namespace tamis::cli {
 
 class ProgressLine {
  public:
-  explicit ProgressLine(bool enabled) : enabled_(enabled), start_(Clock::now()) {}
+  // `terminal`: rewrite one line in place; else plain lines.
+  ProgressLine(bool enabled, bool terminal) : enabled_(enabled), terminal_(terminal), start_(Clock::now()) {}
 
   static bool stderr_is_terminal() { return isatty(STDERR_FILENO) == 1; }
 
@@ -24,19 +28,28 @@ class ProgressLine {
     auto now = Clock::now();
     int64_t ms = std::chrono::duration_cast<std::chrono::milliseconds>(now - start_).count();
     int64_t last = last_ms_.load(std::memory_order_relaxed);
-    if (done != total && ms - last < 100) return;
+    const int tenth = total > 0 ? static_cast<int>(done * 10 / total) : 10;
+    if (terminal_ ? (done != total && ms - last < 100)
+                  : (tenth <= last_tenth_.load(std::memory_order_relaxed) && ms - last < 60000))
+      return;
     std::unique_lock<std::mutex> lock(mutex_, std::try_to_lock);
     if (!lock.owns_lock()) return;
+    if (!terminal_ && tenth <= last_tenth_ && ms - last_ms_ < 60000) return;  // another thread printed it
     last_ms_ = ms;
+    last_tenth_ = tenth;
     double rate = ms > 0 ? done * 1000.0 / ms : 0.0;
     double left = rate > 0 ? (total - done) / rate : 0.0;
-    std::fprintf(stderr, "\r\033[Kread %zu/%zu files, %.0f/s, %.0f s left", done, total, rate, left);
+    if (terminal_)
+      std::fprintf(stderr, "\r\033[Kread %zu/%zu files, %.0f/s, %.0f s left", done, total, rate, left);
+    else
+      std::fprintf(stderr, "tamis: read %zu/%zu files (%d%%), %.0f/s, %.0f s left\n", done, total,
+                   total > 0 ? static_cast<int>(done * 100 / total) : 100, rate, left);
     std::fflush(stderr);
     shown_ = true;
   }
 
   void finish() {
-    if (enabled_ && shown_) {
+    if (enabled_ && terminal_ && shown_) {
       std::fprintf(stderr, "\r\033[K");
       std::fflush(stderr);
     }
@@ -44,10 +57,11 @@ class ProgressLine {
 
  private:
   using Clock = std::chrono::steady_clock;
-  bool enabled_;
+  bool enabled_, terminal_;
   bool shown_ = false;
   Clock::time_point start_;
   std::atomic<int64_t> last_ms_{-1000};
+  std::atomic<int> last_tenth_{-1};
   std::mutex mutex_;
 };
 

@@ -1,6 +1,8 @@
 #include "tamis/demo/demo.h"
 
+#include <algorithm>
 #include <fstream>
+#include <set>
 #include <stdexcept>
 #include <string>
 #include <vector>
@@ -82,29 +84,53 @@ cv::Mat herringbone(SplitMix64& rng, cv::Size size) {
   return img;
 }
 
-void save(const std::filesystem::path& p, const cv::Mat& img, const std::vector<int>& params, size_t& n) {
-  std::filesystem::create_directories(p.parent_path());
+// One file of the demo: its path below the demo's folder and its bytes.
+struct DemoFile {
+  std::filesystem::path rel;
+  std::string bytes;
+};
+
+void save(std::vector<DemoFile>& files, const std::filesystem::path& rel, const cv::Mat& img, const std::vector<int>& params) {
   std::vector<uint8_t> bytes;
-  if (!opencv_imencode(p.extension().string(), img, bytes, params)) throw std::runtime_error("cannot write " + p.string());
-  std::ofstream os(p, std::ios::binary);
-  os.write(reinterpret_cast<const char*>(bytes.data()), static_cast<std::streamsize>(bytes.size()));
-  if (!os) throw std::runtime_error("cannot write " + p.string());
-  ++n;
+  if (!opencv_imencode(rel.extension().string(), img, bytes, params)) throw std::runtime_error("cannot encode " + rel.string());
+  files.push_back({rel, std::string(bytes.begin(), bytes.end())});
 }
 
-void save_text(const std::filesystem::path& p, const std::string& text, size_t& n) {
-  std::filesystem::create_directories(p.parent_path());
-  std::ofstream os(p, std::ios::binary);
-  os << text;
-  if (!os) throw std::runtime_error("cannot write " + p.string());
-  ++n;
+void save_text(std::vector<DemoFile>& files, const std::filesystem::path& rel, std::string text) {
+  files.push_back({rel, std::move(text)});
+}
+
+// Refuses (DemoTargetError) a `dir` that is not a folder, or that holds anything
+// but files of the demo: a demo tamis wrote may be written again, nothing else
+// is overwritten or mixed in.
+void check_target(const std::filesystem::path& dir, const std::vector<DemoFile>& files) {
+  namespace fs = std::filesystem;
+  std::error_code ec;
+  const fs::file_status st = fs::symlink_status(dir, ec);
+  if (ec || !fs::exists(st)) return;  // a new folder
+  if (!fs::is_directory(st)) throw DemoTargetError(dir.string() + " exists and is not a folder");
+  std::set<fs::path> ours;
+  for (const DemoFile& f : files)
+    for (fs::path p = f.rel; !p.empty(); p = p.parent_path()) ours.insert(p);
+  for (fs::recursive_directory_iterator it(dir, ec), end; !ec && it != end; it.increment(ec)) {
+    const fs::path rel = it->path().lexically_relative(dir);
+    const bool folder = it->is_directory(ec) && !it->is_symlink(ec);
+    const bool known = ours.count(rel) > 0 &&
+                       (folder ? std::none_of(files.begin(), files.end(), [&](const DemoFile& f) { return f.rel == rel; })
+                               : it->is_regular_file(ec) && !it->is_symlink(ec));
+    if (!known)
+      throw DemoTargetError(dir.string() + " is not empty and is not a demo tamis wrote (it holds " + rel.string() +
+                            "); choose a new or empty folder");
+  }
+  if (ec) throw DemoTargetError("cannot look into " + dir.string() + ": " + ec.message());
 }
 
 }  // namespace
 
 size_t write_demo(const std::filesystem::path& dir) {
+  namespace fs = std::filesystem;
   SplitMix64 rng(20261202);
-  size_t n = 0;
+  std::vector<DemoFile> files;
   const std::vector<int> jpeg{cv::IMWRITE_JPEG_QUALITY, 88};
   const std::vector<int> png{cv::IMWRITE_PNG_COMPRESSION, 9};
   auto name = [](int i, const char* ext) {
@@ -118,48 +144,53 @@ size_t write_demo(const std::filesystem::path& dir) {
     cv::Mat img = gingham(rng, size);
     weave_texture(img, rng);
     if (i == 1) first_gingham = img;
-    save(dir / "gingham" / name(i, "jpg"), img, jpeg, n);
+    save(files, fs::path("gingham") / name(i, "jpg"), img, jpeg);
   }
   for (int i = 1; i <= 12; ++i) {
     cv::Mat img = pinstripe(rng, size);
     weave_texture(img, rng);
-    save(dir / "pinstripe" / name(i, "png"), img, png, n);
+    save(files, fs::path("pinstripe") / name(i, "png"), img, png);
   }
   for (int i = 1; i <= 12; ++i) {
     cv::Mat img = polka(rng, size);
     weave_texture(img, rng);
     if (i == 1) first_polka = img;
-    save(dir / "polka_dots" / name(i, "jpg"), img, jpeg, n);
+    save(files, fs::path("polka_dots") / name(i, "jpg"), img, jpeg);
   }
   for (int i = 1; i <= 3; ++i) {  // a second spelling of the same class
     cv::Mat img = polka(rng, size);
     weave_texture(img, rng);
-    save(dir / "polka-dots" / name(i, "jpg"), img, jpeg, n);
+    save(files, fs::path("polka-dots") / name(i, "jpg"), img, jpeg);
   }
   for (int i = 1; i <= 3; ++i) {  // a class far smaller than the others
     cv::Mat img = herringbone(rng, cv::Size(96, 96));
     weave_texture(img, rng);
-    save(dir / "herringbone" / name(i, "png"), img, png, n);
+    save(files, fs::path("herringbone") / name(i, "png"), img, png);
   }
   // A byte-identical copy of a gingham swatch filed under pinstripe.
-  std::filesystem::copy_file(dir / "gingham" / name(1, "jpg"), dir / "pinstripe" / "swatch_099.jpg",
-                             std::filesystem::copy_options::overwrite_existing);
-  ++n;
+  save_text(files, fs::path("pinstripe") / "swatch_099.jpg", files.front().bytes);
   // A mirrored, re-encoded copy of a polka swatch in the same class.
   cv::Mat mirrored;
   cv::flip(first_polka, mirrored, 1);
-  save(dir / "polka_dots" / name(98, "jpg"), mirrored, std::vector<int>{cv::IMWRITE_JPEG_QUALITY, 70}, n);
+  save(files, fs::path("polka_dots") / name(98, "jpg"), mirrored, std::vector<int>{cv::IMWRITE_JPEG_QUALITY, 70});
   // A truncated JPEG: the upload stopped halfway.
   {
     std::vector<uint8_t> bytes;
     opencv_imencode(".jpg", first_gingham, bytes, jpeg);
     bytes.resize(bytes.size() / 2);
-    save_text(dir / "gingham" / name(97, "jpg"), std::string(bytes.begin(), bytes.end()), n);
+    save_text(files, fs::path("gingham") / name(97, "jpg"), std::string(bytes.begin(), bytes.end()));
   }
-  save_text(dir / "README.txt",
-            "Fabric swatches photographed at the weaving studio, one folder per pattern.\n", n);
-  save_text(dir / "gingham" / ".thumbs.db", "cache of a file browser\n", n);
-  return n;
+  save_text(files, "README.txt", "Fabric swatches photographed at the weaving studio, one folder per pattern.\n");
+  save_text(files, fs::path("gingham") / ".thumbs.db", "cache of a file browser\n");
+  check_target(dir, files);
+  for (const DemoFile& f : files) {
+    const fs::path p = dir / f.rel;
+    fs::create_directories(p.parent_path());
+    std::ofstream os(p, std::ios::binary | std::ios::trunc);
+    os.write(f.bytes.data(), static_cast<std::streamsize>(f.bytes.size()));
+    if (!os) throw std::runtime_error("cannot write " + p.string());
+  }
+  return files.size();
 }
 
 }  // namespace tamis

@@ -3,6 +3,8 @@
 #include <stdexcept>
 #include <string>
 
+#include "tamis/base/errors.h"
+
 namespace tamis {
 
 namespace {
@@ -56,7 +58,7 @@ json parse_cbor(const uint8_t* begin, const uint8_t* end, size_t max_depth) {
   try {
     ok = json::sax_parse(begin, end, &sax, json::input_format_t::cbor);
   } catch (const json::exception& e) {
-    throw std::runtime_error(std::string("malformed CBOR: ") + e.what());
+    throw std::runtime_error("malformed CBOR: " + json_error_text(e.what()));
   }
   if (sax.too_deep()) throw std::runtime_error("CBOR nested more than " + std::to_string(max_depth) + " levels deep");
   if (!ok) throw std::runtime_error("malformed CBOR");

@@ -5,6 +5,7 @@
 
 #include <nlohmann/json.hpp>
 
+#include "tamis/base/errors.h"
 #include "tamis/place/manifest_reader.h"
 
 namespace tamis {
@@ -17,13 +18,16 @@ std::vector<std::string> finding_identities(const Finding& f) {
 }
 
 Baseline load_baseline(const std::filesystem::path& report_json) {
+  std::error_code ec;
+  if (std::filesystem::is_directory(report_json, ec))
+    throw std::runtime_error("baseline: " + report_json.string() + " is a folder; give the report.json of an earlier audit");
   std::ifstream is(report_json, std::ios::binary);
   if (!is) throw std::runtime_error("baseline: cannot read " + report_json.string());
   nlohmann::json j;
   try {
     j = nlohmann::json::parse(is);
   } catch (const nlohmann::json::exception& e) {
-    throw std::runtime_error("baseline: " + report_json.string() + " is not JSON: " + e.what());
+    throw std::runtime_error("baseline: " + report_json.string() + " is " + json_error_text(e.what()));
   }
   if (!j.is_object() || !j.contains("tool") || j["tool"].value("name", "") != "tamis" || !j.contains("findings"))
     throw std::runtime_error("baseline: " + report_json.string() + " is not a tamis report");
@@ -43,7 +47,7 @@ Baseline load_baseline(const std::filesystem::path& report_json) {
       ++b.findings;
     }
   } catch (const nlohmann::json::exception& e) {
-    throw std::runtime_error("baseline: malformed findings in " + report_json.string() + ": " + e.what());
+    throw std::runtime_error("baseline: malformed findings in " + report_json.string() + ": " + json_error_text(e.what()));
   }
   auto manifest = report_json.parent_path() / "manifest.csv";
   std::ifstream ms(manifest, std::ios::binary);

@@ -6,6 +6,7 @@
 
 #include <nlohmann/json.hpp>
 
+#include "tamis/base/errors.h"
 #include "tamis/place/leave_out.h"
 
 namespace tamis {
@@ -31,7 +32,7 @@ Policy parse_policy(const std::string& text) {
   try {
     j = json::parse(text);
   } catch (const json::exception& e) {  // parse_error, or out_of_range for a number like 1E400
-    throw PolicyError(std::string("policy: not valid JSON: ") + e.what());
+    throw PolicyError("policy: " + json_error_text(e.what()));
   }
   if (!j.is_object()) throw PolicyError("policy: the file must hold a JSON object");
   Policy p = default_policy();
@@ -139,6 +140,8 @@ Policy parse_policy(const std::string& text) {
 }
 
 Policy load_policy(const std::filesystem::path& file) {
+  std::error_code ec;
+  if (std::filesystem::is_directory(file, ec)) throw PolicyError("policy: this is a folder, not a policy file");
   std::ifstream is(file, std::ios::binary);
   if (!is) throw PolicyError("policy: cannot read " + file.string());
   std::stringstream ss;

@@ -13,6 +13,7 @@
 #include <xxhash.h>
 
 #include "tamis/base/atomic_file.h"
+#include "tamis/base/errors.h"
 #include "tamis/model/cbor_reader.h"
 #include "tamis/model/record_codec.h"
 
@@ -366,7 +367,7 @@ AuditIndex load_index(const std::filesystem::path& file) {
     x.walk.unreadable_dirs = strs(j.at("walk").at("unreadable_dirs"));
     x.walk.dirs = strs(j.at("walk").at("dirs"));
   } catch (const json::exception& e) {
-    throw std::runtime_error("index " + file.string() + " is damaged: " + e.what());
+    throw std::runtime_error("index " + file.string() + " is damaged: " + json_error_text(e.what()));
   } catch (const std::runtime_error& e) {
     throw std::runtime_error("index " + file.string() + ": " + e.what());
   }

@@ -156,6 +156,95 @@ class ExitStatus(unittest.TestCase):
                 self.assertEqual(read_text(os.path.join(plain, name)), read_text(os.path.join(timed, name)), name)
 
 
+class Messages(unittest.TestCase):
+    """What a person reads: plain sentences behind 'tamis:', never a library's
+    exception text; help without parser type annotations; progress in a pipe as
+    plain lines. The fixtures are built by the test (its own truth)."""
+
+    LIBRARY_TEXT = ("json.exception", "filesystem error", "Run with --help", "terminate called", "what():",
+                    "basic_string", "std::")
+
+    def assert_plain(self, r, status):
+        self.assertEqual(r.returncode, status, r.stderr)
+        self.assertTrue(r.stderr.startswith("tamis: "), r.stderr)
+        for text in self.LIBRARY_TEXT:
+            self.assertNotIn(text, r.stderr)
+
+    def test_mistakes_are_told_in_plain_sentences(self):
+        with tempfile.TemporaryDirectory() as t:
+            root = os.path.join(t, "data")
+            run("demo", root)
+            not_json = os.path.join(t, "notes.txt")
+            with open(not_json, "w") as f:
+                f.write("plain words, not JSON\n")
+            huge = os.path.join(t, "huge.json")
+            with open(huge, "w") as f:
+                f.write('{"fail_on": 1E400}')
+            out = os.path.join(t, "o")
+            self.assert_plain(run(), 2)
+            self.assert_plain(run("frobnicate"), 2)
+            self.assert_plain(run("audit", root), 2)
+            self.assert_plain(run("audit", root, "--out", out, "--bogus"), 2)
+            self.assert_plain(run("audit", root, "--out", out, "--threads", "5000"), 2)
+            self.assert_plain(run("audit", root, "--out", out, "--format", "xml"), 2)
+            for flag, value in (("--policy", not_json), ("--policy", huge), ("--policy", t), ("--baseline", not_json),
+                                ("--baseline", t), ("--keep", t)):
+                r = run("audit", root, "--out", out, flag, value)
+                self.assert_plain(r, 2)
+            self.assertIn("not valid JSON (line 1, column 1", run("audit", root, "--out", out, "--policy", not_json).stderr)
+            self.assert_plain(run("split", not_json, "--out", out), 3)  # no index there: cannot run
+            self.assert_plain(run("split", t, "--out", out), 3)
+            self.assert_plain(run("demo", os.path.join(not_json, "below")), 3)
+            self.assert_plain(run("demo", not_json), 2)
+            self.assert_plain(run("audit", root, "--out", os.path.join(not_json, "o")), 3)
+            self.assertFalse(os.path.exists(out))
+
+    def test_help_names_values_for_people_and_gives_an_example(self):
+        for command in ("audit", "split", "export", "scan", "join", "merge", "demo", None):
+            r = run(command, "--help") if command else run("--help")
+            self.assertEqual(r.returncode, 0)
+            self.assertIn("Example: tamis", r.stdout, command)
+            for parser_text in ("UINT", "TEXT", "REQUIRED", " in [", ":{", "VALUE"):
+                self.assertNotIn(parser_text, r.stdout, (command, parser_text))
+        self.assertIn("--out DIR (required)", run("audit", "--help").stdout)
+        self.assertIn("--threads N", run("audit", "--help").stdout)
+
+    def test_demo_refuses_a_folder_it_did_not_write(self):
+        with tempfile.TemporaryDirectory() as t:
+            mine = os.path.join(t, "mine")
+            os.makedirs(os.path.join(mine, "gingham"))
+            with open(os.path.join(mine, "gingham", "keep.jpg"), "wb") as f:
+                f.write(b"someone's file")
+            before = snapshot(mine)
+            r = run("demo", mine)
+            self.assert_plain(r, 2)
+            self.assertIn("not a demo tamis wrote", r.stderr)
+            self.assertEqual(snapshot(mine), before)
+            # An empty folder, and a demo written before, are written (again).
+            empty = os.path.join(t, "empty")
+            os.makedirs(empty)
+            self.assertEqual(run("demo", empty).returncode, 0)
+            first = {p: read_bytes(p) for p in snapshot(empty) if os.path.isfile(p)}
+            self.assertEqual(run("demo", empty).returncode, 0)
+            self.assertEqual({p: read_bytes(p) for p in snapshot(empty) if os.path.isfile(p)}, first)
+
+    def test_progress_in_a_pipe_is_plain_lines(self):
+        with tempfile.TemporaryDirectory() as t:
+            root = os.path.join(t, "data")
+            run("demo", root)
+            r = run("audit", root, "--out", os.path.join(t, "o"), "--no-cache", "--progress")
+            self.assertLessEqual(r.returncode, 1)
+            lines = [l for l in r.stderr.splitlines() if l.startswith("tamis: read ")]
+            self.assertGreaterEqual(len(lines), 2, r.stderr)
+            self.assertLessEqual(len(lines), 12)
+            self.assertIn("(100%)", lines[-1])
+            self.assertNotIn("\033", r.stderr)
+            self.assertNotIn("\r", r.stderr)
+            # Without --progress a pipe gets none.
+            r = run("audit", root, "--out", os.path.join(t, "o2"), "--no-cache")
+            self.assertNotIn("tamis: read ", r.stderr)
+
+
 REPO = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
 SCHEMA = os.path.join(REPO, "docs", "report.schema.json")
 
