@@ -209,6 +209,29 @@ class Messages(unittest.TestCase):
         self.assertIn("--out DIR (required)", run("audit", "--help").stdout)
         self.assertIn("--threads N", run("audit", "--help").stdout)
 
+    def test_the_manual_page_names_every_option_and_installs(self):
+        import re
+        page = read_text(os.path.join(REPO, "docs", "tamis.1"))
+        text = page.replace("\\-", "-")  # troff's escaped hyphens
+        for command in ("audit", "split", "export", "scan", "join", "merge", "demo"):
+            self.assertTrue(".B tamis " + command in page, command)
+            for option in re.findall(r"^\s+(--[a-z-]+)", run(command, "--help").stdout, re.M):
+                if option != "--help":
+                    self.assertTrue(option in text, (command, option))
+        # cmake --install (the build tree TAMIS was built in) places it in share/man/man1.
+        build = os.path.dirname(TAMIS)
+        with tempfile.TemporaryDirectory() as t:
+            r = subprocess.run(["cmake", "--install", build, "--prefix", t], capture_output=True, text=True)
+            self.assertEqual(r.returncode, 0, r.stderr)
+            self.assertEqual(read_bytes(os.path.join(t, "share", "man", "man1", "tamis.1")),
+                             read_bytes(os.path.join(REPO, "docs", "tamis.1")))
+            self.assertTrue(os.access(os.path.join(t, "bin", "tamis"), os.X_OK))
+        # groff (when the machine has it) formats it without a warning.
+        if shutil.which("groff"):
+            r = subprocess.run(["groff", "-man", "-Tutf8", "-ww", "-z", os.path.join(REPO, "docs", "tamis.1")],
+                               capture_output=True, text=True)
+            self.assertEqual((r.returncode, r.stderr), (0, ""))
+
     def test_demo_refuses_a_folder_it_did_not_write(self):
         with tempfile.TemporaryDirectory() as t:
             mine = os.path.join(t, "mine")
