@@ -188,8 +188,8 @@ void emit_image_findings(Collector& col, uint64_t upscaled, const CheckSettings&
     const char* what;
   };
   static const Rule rules[] = {
-      {"tiny-image", "the shorter side is below the minimum side"},
-      {"below-input-size", "smaller than the model input side: they will be upscaled"},
+      {"tiny-image", ""},        // the message names the threshold (below)
+      {"below-input-size", ""},  // the same
       {"aspect-outlier", "an aspect ratio more than twice or under half the set's median"},
       {"near-uniform", "nearly uniform frames (luminance spread under 3 grey levels)"},
       {"underexposed", "very dark (mean luminance under 30, unusual for the class)"},
@@ -211,7 +211,11 @@ void emit_image_findings(Collector& col, uint64_t upscaled, const CheckSettings&
     auto it = col.paths.find(rule.code);
     if (it == col.paths.end()) continue;
     Finding f = make_finding(rule.code);
-    f.message = std::to_string(it->second.size()) + (it->second.size() == 1 ? " image: " : " images: ") + rule.what;
+    std::string what = rule.what;
+    if (f.code == "tiny-image") what = "the shorter side is under " + std::to_string(cs.min_side) + " px";
+    if (f.code == "below-input-size")
+      what = "the shorter side is under the model input side, " + std::to_string(cs.input_side) + " px: it will be upscaled";
+    f.message = std::to_string(it->second.size()) + (it->second.size() == 1 ? " image: " : " images: ") + what;
     f.details = {{"count", it->second.size()}};
     if (f.code == "tiny-image") f.details["min_side"] = cs.min_side;
     if (f.code == "below-input-size") {
@@ -378,8 +382,8 @@ void check_labels(const std::vector<FileRecord>& records, const Labelling& label
     if (r.kind == FileKind::ignored) stray.push_back(r.path);
   if (!stray.empty()) {
     Finding f = make_finding("stray-file");
-    f.message = std::to_string(stray.size()) + (stray.size() == 1 ? " file is" : " files are") +
-                " not images (or hidden) and were left aside";
+    f.message = std::to_string(stray.size()) + (stray.size() == 1 ? " file is not an image (or is hidden) and was left aside"
+                                                                  : " files are not images (or are hidden) and were left aside");
     f.details = {{"count", stray.size()}};
     f.paths = std::move(stray);
     out.push_back(std::move(f));

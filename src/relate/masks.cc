@@ -310,18 +310,25 @@ void check_masks(const std::vector<FileRecord>& records, const MaskPairing& m, s
   }
   for (uint32_t i : m.orphan_images) orphans.push_back(records[i].path);
   for (uint32_t i : m.misfiled) misfiled.push_back(records[i].path);
-  auto add = [&](const char* code, std::vector<std::string> paths, const std::string& what) {
+  // `units` of the paths (2 for pairs) make the count; the message takes the
+  // singular or the plural.
+  auto add = [&](const char* code, std::vector<std::string> paths, size_t units, const char* one, const char* many) {
     if (paths.empty()) return;
     Finding f = make_finding(code);
-    f.message = std::to_string(paths.size()) + " " + what;
+    const size_t n = paths.size() / units;
+    f.message = std::to_string(n) + " " + (n == 1 ? one : many);
     f.details = {{"count", paths.size()}};
     f.paths = std::move(paths);
     out.push_back(std::move(f));
   };
-  add("mask-orphan", orphans, "files without a partner: masks with no image, or images in a paired folder with no mask");
-  add("mask-size-mismatch", mismatch, "files in mask/image pairs whose sizes differ (each mask is listed before its image)");
-  add("mask-empty", empty, "masks with a single value: no foreground (or nothing but foreground)");
-  add("mask-misfiled", misfiled, "files filed on the wrong side: photographs in a mask folder, or masks among the photographs");
+  add("mask-orphan", orphans, 1, "file without a partner: a mask with no image, or an image in a paired folder with no mask",
+      "files without a partner: masks with no image, or images in a paired folder with no mask");
+  add("mask-size-mismatch", mismatch, 2, "mask/image pair whose sizes differ (the mask is listed before its image)",
+      "mask/image pairs whose sizes differ (each mask is listed before its image)");
+  add("mask-empty", empty, 1, "mask with a single value: no foreground (or nothing but foreground)",
+      "masks with a single value: no foreground (or nothing but foreground)");
+  add("mask-misfiled", misfiled, 1, "file filed on the wrong side: a photograph in a mask folder, or a mask among the photographs",
+      "files filed on the wrong side: photographs in a mask folder, or masks among the photographs");
 }
 
 }  // namespace tamis

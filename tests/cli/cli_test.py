@@ -821,22 +821,106 @@ class Outputs(unittest.TestCase):
             self.assertTrue(manifest <= paths)
             self.assertEqual([r[0] for r in index["records"]], sorted(r[0] for r in index["records"]))
 
-    def test_demo_audit_finds_the_planted_defects(self):
+    # Every problem the demo plants (src/demo/demo.cc; README.md's tour), as
+    # (code, paths): the audit must report each of them and nothing else. The
+    # truth is the demo writer's own (it planted them); the facts that do not
+    # rest on tamis's judgement are checked against Pillow below.
+    DEMO_FINDINGS = [
+        ("unreadable", ("gingham/swatch_091.jpg",)),                   # a JPEG cut off halfway
+        ("unreadable", ("pinstripe/swatch_092.png",)),                 # a text file named like an image
+        ("byte-identical", ("houndstooth/swatch_001.jpg", "houndstooth/swatch_090.jpg")),
+        ("byte-identical", ("gingham/swatch_001.jpg", "pinstripe/swatch_090.jpg")),
+        ("label-conflict", ("gingham/swatch_001.jpg", "pinstripe/swatch_090.jpg")),  # the copy under another class
+        ("look-alike", ("polka_dots/swatch_001.jpg", "polka_dots/swatch_090.jpg")),  # mirrored, JPEG 70
+        ("look-alike", ("houndstooth/swatch_002.jpg", "houndstooth/swatch_094.png")),  # re-encoded as PNG
+        ("look-alike", ("gingham/swatch_002.jpg", "gingham/swatch_090.jpg")),  # Gaussian blur, sigma 1 px
+        ("mask-size-mismatch", ("tartan/images/swatch_005.jpg", "tartan/masks/swatch_005.png")),
+        ("mask-empty", ("tartan/masks/swatch_006.png",)),
+        ("mask-orphan", ("tartan/masks/swatch_031.png",)),
+        ("gray-as-rgb", ("gingham/swatch_092.jpg",)),
+        ("alpha-unused", ("pinstripe/swatch_093.png",)),
+        ("deep-bit-depth", ("houndstooth/swatch_092.png",)),
+        ("tiny-image", ("polka_dots/swatch_091.jpg",)),
+        ("below-input-size", ("polka_dots/swatch_091.jpg",)),          # 24x21: under 224 px as well
+        ("near-uniform", ("gingham/swatch_093.jpg",)),                 # a blank frame
+        ("underexposed", ("polka_dots/swatch_093.jpg",)),              # a dark frame...
+        ("unsharp", ("houndstooth/swatch_095.jpg", "polka_dots/swatch_093.jpg")),  # ...is flat too; a blurred frame
+        ("exif-rotated", ("polka_dots/swatch_092.jpg",)),
+        ("gps-location", ("gingham/swatch_094.jpg",)),
+        ("label-variants", None),                                      # polka_dots and polka-dots
+        ("small-class", None),                                         # herringbone (4)
+        ("small-class", None),                                         # polka-dots (4)
+        ("class-imbalance", ()),                                       # gingham 60+ against 4
+        ("split-without-class", ()),                                   # 4 images cannot fill 70/15/15...
+        ("split-without-class", ()),                                   # ...in both small classes
+        ("stray-file", ("README.txt", "gingham/.thumbs.db")),
+    ]
+
+    def test_demo_audit_reports_every_planted_problem_and_nothing_else(self):
         with tempfile.TemporaryDirectory() as t:
             root = os.path.join(t, "demo")
             self.assertEqual(run("demo", root).returncode, 0)
             out = os.path.join(t, "out")
-            r = run("audit", root, "--out", out, "--threads", "2")
+            r = run("audit", root, "--out", out, "--threads", "2", "--no-cache")
             self.assertEqual(r.returncode, 1, r.stderr)
             validate_report(self, os.path.join(out, "report.json"))
             report = load_json(os.path.join(out, "report.json"))
-            self.assertEqual(report["totals"]["unreadable"], 1)
-            self.assertEqual(report["totals"]["ignored"], 2)
-            codes = {f["code"] for f in report["findings"]}
-            self.assertIn("unreadable", codes)
+            found = [(f["code"], None if f["code"] in ("label-variants", "small-class") else tuple(sorted(f["paths"])))
+                     for f in report["findings"]]
+            from collections import Counter
+            self.assertEqual(Counter(found), Counter(self.DEMO_FINDINGS))
+            small = sorted(tuple(sorted(f["paths"])) for f in report["findings"] if f["code"] == "small-class")
+            self.assertEqual([p[0].split("/")[0] for p in small], ["herringbone", "polka-dots"])
+            self.assertEqual([len(p) for p in small], [4, 4])
+            variants = [f for f in report["findings"] if f["code"] == "label-variants"]
+            self.assertEqual({p.split("/")[0] for p in variants[0]["paths"]}, {"polka_dots", "polka-dots"})
+            # Masks: the sibling-folder layout found, every photograph of tartan paired.
+            self.assertEqual(report["totals"]["masks"], 31)
+            self.assertEqual(len(report["masks"]["pairs"]), 30)
+            self.assertEqual(report["totals"]["unreadable"], 2)
             ignored = {e["path"]: e["reason"] for e in report["ignored"]}
             self.assertEqual(ignored, {"README.txt": "not-an-image", "gingham/.thumbs.db": "hidden"})
-
+            # The 4:1:1 JPEG is read, with no finding (a rare layout is not an error).
+            rows = {row["path"]: row for row in csv.DictReader(io.StringIO(read_text(os.path.join(out, "manifest.csv"))))}
+            self.assertEqual((rows["houndstooth/swatch_091.jpg"]["finding_codes"], rows["houndstooth/swatch_091.jpg"]["width"]),
+                             ("", "256"))
+            # The planted facts, as Pillow (the reference decoder) sees them.
+            from PIL import Image
+            def sampling(path):
+                with Image.open(path) as im:
+                    return [(c[1], c[2]) for c in im.layer]  # (h, v) per component
+            with Image.open(os.path.join(root, "houndstooth/swatch_091.jpg")) as im:
+                im.load()
+                self.assertEqual((im.size, im.mode), ((256, 224), "RGB"))
+            self.assertEqual(sampling(os.path.join(root, "houndstooth/swatch_091.jpg")), [(4, 1), (1, 1), (1, 1)])
+            with Image.open(os.path.join(root, "polka_dots/swatch_092.jpg")) as im:
+                self.assertEqual(im.getexif().get(0x0112), 6)
+            with Image.open(os.path.join(root, "gingham/swatch_094.jpg")) as im:
+                gps = im.getexif().get_ifd(0x8825)
+                self.assertEqual((gps.get(1), gps.get(3)), ("N", "W"))
+                self.assertEqual(len(gps.get(2)), 3)
+            with open(os.path.join(root, "houndstooth/swatch_092.png"), "rb") as f:
+                self.assertEqual(f.read(26)[24], 16)  # IHDR bit depth (ISO/IEC 15948): 16 bits a sample
+            with Image.open(os.path.join(root, "pinstripe/swatch_093.png")) as im:
+                self.assertEqual(im.mode, "RGBA")
+                self.assertEqual(im.getchannel("A").getextrema(), (255, 255))
+            with Image.open(os.path.join(root, "tartan/masks/swatch_005.png")) as mask, \
+                    Image.open(os.path.join(root, "tartan/images/swatch_005.jpg")) as photo:
+                self.assertNotEqual(mask.size, photo.size)
+            with Image.open(os.path.join(root, "tartan/masks/swatch_006.png")) as mask:
+                self.assertEqual(mask.getextrema(), (0, 0))
+            with Image.open(os.path.join(root, "polka_dots/swatch_091.jpg")) as im:
+                self.assertLess(min(im.size), 32)
+            with self.assertRaises(OSError):
+                with Image.open(os.path.join(root, "gingham/swatch_091.jpg")) as im:
+                    im.load()
+            with self.assertRaises(OSError):
+                Image.open(os.path.join(root, "pinstripe/swatch_092.png"))
+            self.assertFalse(os.path.exists(os.path.join(root, "tartan/images/swatch_031.jpg")))
+            # A few hundred images, and small enough to commit.
+            self.assertGreaterEqual(report["totals"]["images"], 200)
+            size = sum(os.path.getsize(os.path.join(d, n)) for d, _, ns in os.walk(root) for n in ns)
+            self.assertLess(size, 3_000_000)
 
     def test_demo_writes_exactly_the_committed_demo_data(self):
         # tamis demo regenerates demo_data/ byte for byte, whatever the compiler
@@ -911,9 +995,10 @@ class Policy(unittest.TestCase):
             validate_report(self, os.path.join(out, "report.json"))
 
     def test_the_lookalike_section_reaches_the_groups_and_the_cache_key(self):
-        # The demo holds one byte-identical pair and one look-alike pair (a re-encoded
-        # copy). A policy that asks for a perfect match keeps the first only, with the
-        # cache as without it (the groups' cache key holds the look-alike settings).
+        # The demo holds two byte-identical pairs and three look-alike pairs (mirrored,
+        # re-encoded, blurred copies). A policy that asks for a perfect match keeps the
+        # first two only, with the cache as without it (the groups' cache key holds the
+        # look-alike settings).
         with tempfile.TemporaryDirectory() as t:
             root = os.path.join(t, "demo")
             self.assertEqual(run("demo", root).returncode, 0)
@@ -928,9 +1013,9 @@ class Policy(unittest.TestCase):
                 if name == "strict":
                     self.assertEqual(report["settings"]["lookalike_max_local"], 0)
                     self.assertEqual(report["settings"]["lookalike_min_correlation"], 1.0)
-            self.assertEqual(kinds["default"], ["exact", "near"])
-            self.assertEqual(kinds["strict"], ["exact"])
-            self.assertEqual(kinds["default-again"], ["exact", "near"])
+            self.assertEqual(kinds["default"], ["exact", "exact", "near", "near", "near"])
+            self.assertEqual(kinds["strict"], ["exact", "exact"])
+            self.assertEqual(kinds["default-again"], ["exact", "exact", "near", "near", "near"])
 
     def test_a_bad_policy_exits_2_naming_the_key(self):
         with tempfile.TemporaryDirectory() as t:

@@ -77,7 +77,7 @@ TEST_CASE("cache: a touched file is read again, a renamed file reuses its record
   CHECK(changed.counts.read == 2);             // the emptied file and the hidden one
   CHECK(changed.counts.cached_by_hash == 1);   // swatch_002 now holds swatch_003's old bytes
   // rename: same bytes under a new name
-  fs::rename(t / "data" / "pinstripe" / "swatch_003.png", t / "data" / "pinstripe" / "renamed.png");
+  fs::rename(t / "data" / "pinstripe" / "swatch_003.jpg", t / "data" / "pinstripe" / "renamed.jpg");
   Run renamed = audit(t / "data", cache);
   CHECK(renamed.counts.cached_by_hash == 1);
   CHECK(renamed.out == audit(t / "data", "").out);

@@ -1,8 +1,15 @@
-// The demo data set: a small textile-swatch collection of the project's own,
-// drawn procedurally (a weaving studio sorting fabric photos by pattern), with
-// the defects tamis exists to find planted on purpose: a byte copy filed under
-// another class, a mirrored copy, a truncated JPEG, a second spelling of a class,
-// a tiny class, a stray text file and a hidden file. README.md lists them.
+// The demo data set: a textile-swatch collection of the project's own, drawn
+// procedurally (a weaving studio sorting fabric photos by pattern; tartan holds
+// inspection photographs of pulled threads with their masks), 256 files, with
+// one of each problem tamis reports planted on purpose: a sibling mask folder,
+// an orphan, an empty and a wrongly sized mask; byte copies (one under another
+// class), mirrored, re-encoded and lightly blurred copies; a truncated JPEG and
+// a text file named like an image; a valid 4:1:1 JPEG (no finding); gray stored
+// as RGB, an unused alpha channel, 16 bits a sample; tiny, blank, dark and
+// blurred frames; an EXIF-rotated JPEG and one with a GPS position; two
+// spellings of one class, two small classes and an unbalanced one; a stray text
+// file and a hidden file. tests/cli/cli_test.py (DEMO_FINDINGS) lists what the
+// audit must report, and nothing else.
 //
 // Deterministic: the same pixels on every run (SplitMix64-driven drawing).
 // Writes only below `dir`, creating it when missing. A `dir` that exists must be
