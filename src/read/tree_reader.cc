@@ -128,15 +128,19 @@ void TreeReader::load_thumbnails(std::vector<FileRecord>& records, ThumbnailTabl
   ctx.thumbs = &fresh_thumbs;
   std::vector<FileRecord> fresh = read_files(root_, again, plain, ctx);
   thumbs.make_room(missing);
+  Thumbnail thumb;
   for (size_t k = 0; k < missing.size(); ++k) {
     // Only the thumbnail is taken: the record stays as it is, with its kind, label
     // and mask pairing (decided after it was read: replacing it made a mask an
     // image again). A file that cannot be read any more (changed during the run)
     // is taken as read now, so that no readable image is left without a thumbnail.
-    if (fresh_thumbs.has(k) && fresh[k].kind == FileKind::image)
-      thumbs.put(missing[k], fresh_thumbs.at(k));
-    else
+    // (The fresh table may itself be in a scratch file, where at() may not be used.)
+    if (fresh_thumbs.has(k) && fresh[k].kind == FileKind::image) {
+      fresh_thumbs.get(k, thumb);
+      thumbs.put(missing[k], thumb);
+    } else {
       records[missing[k]] = std::move(fresh[k]);
+    }
   }
   if (counts_) counts_->read += missing.size();
 }

@@ -4,7 +4,9 @@
 A tree with mask twins, byte copies and look-alike copies (drawn with Pillow, Debian
 python3-pil) is edited by seeded random sequences of the edits a data set sees: touch,
 same-bytes rewrite, rename, copy into another class, delete, new pixels in a photo, new
-pixels in a mask, a new or a removed mask twin. After every step the tree is audited
+pixels in a mask, a new or a removed mask twin, and the cache's own loss of stored
+thumbnails (rows another run replaced, or damaged ones: the files are read again, after the
+masks were paired). After every step the tree is audited
 with the cache (kept across the steps) and without it; all four output files must be
 byte-identical (one of the two keeps its thumbnails in a scratch file, alternately),
 and the summary's "moved or renamed" count must be the number of files
@@ -16,6 +18,7 @@ import json
 import os
 import random
 import shutil
+import sqlite3
 import subprocess
 import sys
 import tempfile
@@ -75,10 +78,25 @@ def listed(root, sub):
     return out
 
 
-def edit(root, rng):
+def drop_thumbnails(cache, rng):
+    """The cache loses about half its stored thumbnails (masks' among them) and its
+    stored groups, so that the next run reads those files again for the groups."""
+    db = sqlite3.connect(cache)
+    rows = [r[0] for r in db.execute("SELECT rowid FROM thumbs ORDER BY rowid")]
+    gone = [r for r in rows if rng.random() < 0.5]
+    db.executemany("DELETE FROM thumbs WHERE rowid = ?", [(r,) for r in gone])
+    db.execute("DELETE FROM groups")
+    db.commit()
+    db.close()
+    return len(gone)
+
+
+def edit(root, rng, cache):
     """One random edit; returns (description, files moved by it)."""
     kind = rng.choice(["touch", "rewrite", "rename", "copy", "delete", "pixels", "mask_pixels", "new_mask",
-                       "remove_mask"])
+                       "remove_mask", "cache_loss"])
+    if kind == "cache_loss":
+        return f"the cache lost {drop_thumbnails(cache, rng)} thumbnails", 0
     imgs = listed(root, "images")
     # Half the edits hit members of the look-alike group (whose thumbnails the report shows).
     family = [q for q in imgs if any(k in os.path.basename(q) for k in ("lichen_0", "mirror", "reencoded", "soft"))]
@@ -158,7 +176,7 @@ def main():
             spill = seq % 2 == 1  # odd sequences: the cached runs spill, the runs without a cache do not
             audit(root, os.path.join(t, "warm"), cache, spill, scratch)
             for step in range(STEPS):
-                what, moved = edit(root, rng)
+                what, moved = edit(root, rng, cache)
                 steps += 1
                 summary = audit(root, os.path.join(t, "warm"), cache, spill, scratch)
                 audit(root, os.path.join(t, "cold"), None, not spill, scratch)
