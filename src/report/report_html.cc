@@ -68,6 +68,8 @@ code,.path{font-family:ui-monospace,Menlo,Consolas,monospace;font-size:12.5px;wo
 .note{color:#5d6b70;font-size:12.5px}.filters{display:flex;gap:14px;align-items:center;margin:0 0 8px;font-size:13px}
 .group{border-top:1px solid #ece4d6;padding:8px 0}.gh{font-size:13px;margin-bottom:4px}.strip{display:flex;gap:8px;flex-wrap:wrap}
 figure{margin:0;width:96px}figure img,.nothumb{width:64px;height:64px;image-rendering:pixelated;border:1px solid var(--rule);background:#eee6d8}
+code.code{word-break:normal;white-space:nowrap}details summary{cursor:pointer;color:#5d6b70;font-size:12.5px}
+.bycode{display:flex;flex-wrap:wrap;gap:6px 14px;margin:0 0 10px;font-size:13px}.bycode a{cursor:pointer;color:var(--ink);text-decoration:none;border-bottom:1px dotted var(--rule)}
 figcaption{font-size:10.5px}table.narrow{width:auto;margin-top:8px}.legend span{display:inline-block;width:10px;height:10px;margin:0 4px 0 10px;border-radius:2px}
 )CSS";
 
@@ -98,8 +100,8 @@ void classes(std::ostringstream& o, const json& report) {
     smallest = std::min(smallest, n);
   }
   o << "<p class=\"note\">" << cl.size() << " classes; largest " << largest << ", smallest " << smallest;
-  if (smallest > 0) o << ", imbalance ratio " << (largest * 100 / smallest) / 100.0;
-  o << ".<span class=\"legend\"><span class=\"tr\"></span>train<span class=\"va\"></span>val"
+  if (smallest > 0) o << "; imbalance " << (largest * 100 / smallest) / 100.0 << ":1";
+  o << "<span class=\"legend\"><span class=\"tr\"></span>train<span class=\"va\"></span>val"
        "<span class=\"te\"></span>test<span class=\"ex\"></span>excluded</span></p>";
   o << "<table><tr><th>class</th><th class=\"num\">images</th><th class=\"num\">train</th><th class=\"num\">val</th>"
        "<th class=\"num\">test</th><th style=\"width:40%\">share of the largest class</th></tr>";
@@ -182,6 +184,33 @@ void findings(std::ostringstream& o, const json& report, const std::vector<Findi
   o << "</select></label><label>class <select id=\"f-class\"><option value=\"\">all</option>";
   for (const auto& c : classes) o << "<option>" << html_escape(c) << "</option>";
   o << "</select></label><span class=\"note\" id=\"f-count\"></span></div>";
+  // Each code once, errors first: how many findings and files; a click shows all of that code.
+  struct Tally {
+    int rank = 2;
+    std::string severity;
+    size_t findings = 0, files = 0;
+  };
+  std::map<std::string, Tally> tally;
+  for (size_t row = 0; row < fs.size(); ++row) {
+    const json& f = fs[row];
+    Tally& t = tally[str(f.value("code", json("")))];
+    t.severity = str(f.value("severity", json("info")));
+    t.rank = std::min(t.rank, t.severity == "error" ? 0 : t.severity == "warning" ? 1 : 2);
+    ++t.findings;
+    // The files the findings name (given apart from the JSON when it holds none, as below).
+    t.files += !f.contains("paths") && finding_list && row < finding_list->size() ? (*finding_list)[row].paths.size()
+                                                                                 : array_at(f, "paths").size();
+  }
+  std::vector<std::pair<std::string, Tally>> by_code(tally.begin(), tally.end());
+  std::stable_sort(by_code.begin(), by_code.end(), [](const auto& a, const auto& b) { return a.second.rank < b.second.rank; });
+  o << "<div class=\"bycode\">";
+  for (const auto& [code, t] : by_code) {
+    o << "<a data-code=\"" << html_escape(code) << "\"><span class=\"sev " << html_escape(t.severity)
+      << "\">" << t.findings << "</span> <code class=\"code\">" << html_escape(code) << "</code>";
+    if (t.files) o << " <span class=\"note\">" << t.files << (t.files == 1 ? " file" : " files") << "</span>";
+    o << "</a>";
+  }
+  o << "</div>";
   o << "<table id=\"findings-table\"><thead><tr><th data-sort=\"0\">severity</th><th data-sort=\"1\">code</th>"
        "<th>what</th><th data-sort=\"3\" style=\"width:38%\">files</th></tr></thead><tbody>";
   size_t shown = 0;
@@ -216,16 +245,18 @@ void findings(std::ostringstream& o, const json& report, const std::vector<Findi
       << "<td><span class=\"sev " << html_escape(sev) << "\">" << html_escape(sev) << "</span>";
     if (f.contains("baseline")) o << " <span class=\"note\">" << esc(f["baseline"]) << "</span>";
     if (f.contains("accepted")) o << " <span class=\"note\">accepted: " << esc(f["accepted"]) << "</span>";
-    o << "</td><td><code>" << esc(f.value("code", json(""))) << "</code></td><td>" << esc(f.value("message", json("")))
-      << "</td><td>";
-    size_t k = 0;
-    for (const auto& p : paths) {
-      if (k++ == 8) {
-        o << "<div class=\"note\">… and " << paths.size() - 8 << " more (see report.json)</div>";
-        break;
-      }
-      o << "<div class=\"path\">" << html_escape(p) << "</div>";
+    o << "</td><td><code class=\"code\">" << esc(f.value("code", json(""))) << "</code></td><td>"
+      << esc(f.value("message", json(""))) << "</td><td>";
+    // Four paths shown, up to 100 more folded, the rest in report.json / manifest.csv.
+    constexpr size_t kOpen = 4, kFolded = 100;
+    for (size_t k = 0; k < paths.size() && k < kOpen + kFolded; ++k) {
+      if (k == kOpen)
+        o << "<details><summary>" << paths.size() - kOpen << " more</summary>";
+      o << "<div class=\"path\">" << html_escape(paths[k]) << "</div>";
     }
+    if (paths.size() > kOpen + kFolded)
+      o << "<div class=\"note\">… and " << paths.size() - kOpen - kFolded << " more (report.json)</div>";
+    if (paths.size() > kOpen) o << "</details>";
     o << "</td></tr>";
   }
   o << "</tbody></table>";
@@ -236,6 +267,11 @@ void findings(std::ostringstream& o, const json& report, const std::vector<Findi
 void sizes(std::ostringstream& o, const json& report) {
   const json& sz = array_at(report, "sizes");
   if (sz.empty()) return;
+  if (sz.size() == 1) {  // no chart for a set of one size
+    o << "<section id=\"sizes\"><h2>Image sizes</h2><p>All " << esc(sz[0].value("count", json(0))) << " images are "
+      << esc(sz[0].value("width", json(0))) << " x " << esc(sz[0].value("height", json(0))) << " px.</p></section>\n";
+    return;
+  }
   // Log-log scatter of stored width x height; circle area grows with the count.
   double max_side = 16;
   uint64_t max_count = 1;
@@ -363,15 +399,18 @@ void ignored(std::ostringstream& o, const json& report) {
 // The filter and sort script. Its SHA-256 is in the page's Content-Security-Policy,
 // so it is the only script the browser will run (tests/report/report_html_test.py checks
 // the hash with hashlib). Edit both together.
-const char* kScriptHash = "sha256-Td//Re0L+8B9VfJd0a1kgglMrGyFXWxt54xy8WSTyvo=";
+const char* kScriptHash = "sha256-Z6ZuixG88IWIjNjmg0rL/sMkbfPhWNEHPyQbD5C5wOA=";
 const char* kScript = R"JS(
 (function(){var t=document.getElementById('findings-table');document.body.setAttribute('data-ready','1');if(!t)return;
 var rows=[].slice.call(t.tBodies[0].rows),s=document.getElementById('f-sev'),c=document.getElementById('f-code'),
 k=document.getElementById('f-class'),n=document.getElementById('f-count');
-function apply(){var v=0;rows.forEach(function(r){var ok=(!s.value||r.dataset.sev===s.value)&&(!c.value||r.dataset.code===c.value)
-&&(!k.value||r.dataset.classes.indexOf(''+k.value+'')>=0);r.style.display=ok?'':'none';if(ok)v++;});
-n.textContent=v+' of '+rows.length+' shown';}
+function apply(){var v=0,per={},cut=0;rows.forEach(function(r){var ok=(!s.value||r.dataset.sev===s.value)&&(!c.value||r.dataset.code===c.value)
+&&(!k.value||r.dataset.classes.indexOf('\x1f'+k.value+'\x1f')>=0);if(ok&&!c.value){per[r.dataset.code]=(per[r.dataset.code]||0)+1;
+if(per[r.dataset.code]>5){ok=false;cut++;}}r.style.display=ok?'':'none';if(ok)v++;});
+n.textContent=v+' of '+rows.length+' shown'+(cut?' (five a code; choose a code to see all of its findings)':'');}
 [s,c,k].forEach(function(e){e.addEventListener('change',apply);});
+[].slice.call(document.querySelectorAll('.bycode a')).forEach(function(a){a.addEventListener('click',function(){
+c.value=a.dataset.code;apply();});});
 [].slice.call(t.tHead.rows[0].cells).forEach(function(h){var col=h.dataset.sort;if(col===undefined)return;var up=true;
 h.style.cursor='pointer';h.addEventListener('click',function(){rows.sort(function(a,b){var x=a.dataset['k'+col],y=b.dataset['k'+col];
 if(x===undefined){x=a.cells[col].textContent;y=b.cells[col].textContent;return up?x.localeCompare(y):y.localeCompare(x);}
@@ -385,9 +424,17 @@ std::string render_html(const json& report, const Thumbnails& thumbs, const std:
        "<meta http-equiv=\"Content-Security-Policy\" content=\"default-src 'none'; style-src 'unsafe-inline'; img-src data:; script-src '"
     << kScriptHash << "'\">"
        "<meta name=\"viewport\" content=\"width=device-width,initial-scale=1\"><title>tamis audit</title><style>"
-    << kStyle << "</style></head><body>\n<header><h1>tamis audit</h1><p>" << esc(tool.value("name", json("tamis")))
-    << " " << esc(tool.value("version", json(""))) << " · seed "
-    << esc(object_at(report, "settings").value("seed", json(1))) << "</p></header><main>\n";
+    << kStyle << "</style></head><body>\n<header><h1>tamis audit of <span class=\"path\">"
+    << esc(object_at(report, "root").value("path", json(""))) << "</span></h1><p>";
+  const json& st = object_at(report, "settings");
+  const json& sp = object_at(st, "split");
+  o << esc(tool.value("name", json("tamis"))) << " " << esc(tool.value("version", json(""))) << " · split "
+    << esc(sp.value("train", json(0))) << "/" << esc(sp.value("val", json(0))) << "/" << esc(sp.value("test", json(0)))
+    << " (" << esc(st.value("split_method", json(""))) << ", seed " << esc(st.value("seed", json(1))) << ")"
+    << " · look-alikes within " << esc(st.value("lookalike_radius", json(0))) << " bits, correlation "
+    << esc(st.value("lookalike_min_correlation", json(0))) << " · smallest side " << esc(st.value("min_side", json(0)))
+    << " px, smallest class " << esc(st.value("min_class", json(0))) << ", imbalance limit "
+    << esc(st.value("max_imbalance", json(0))) << "</p></header><main>\n";
   tiles(o, object_at(report, "totals"));
   findings(o, report, finding_paths);
   classes(o, report);

@@ -108,6 +108,60 @@ class ReportInBrowser(unittest.TestCase):
         self.assertGreater(teal, 1200 * 30)
 
 
+class ReportLayout(unittest.TestCase):
+    """The page names ROOT and the settings, tallies each code once, folds long
+    path lists, shows five findings a code until a code is chosen, and gives a
+    sentence instead of a chart when every image has one size. The fixture is
+    built here: 7 byte-identical pairs of 8x8 PNGs in one class (its truth)."""
+
+    @classmethod
+    def setUpClass(cls):
+        cls.tmp = tempfile.mkdtemp()
+        cls.root = os.path.join(cls.tmp, "bolts & nuts")
+        os.makedirs(os.path.join(cls.root, "hex"))
+        for i in range(7):
+            data = tiny_png(100 + i)
+            for copy in ("a", "b"):
+                with open(os.path.join(cls.root, "hex", f"{i}{copy}.png"), "wb") as f:
+                    f.write(data)
+        cls.out = os.path.join(cls.tmp, "out")
+        r = subprocess.run([TAMIS, "audit", cls.root, "--out", cls.out, "--quiet", "--no-cache"],
+                           capture_output=True, text=True)
+        assert r.returncode in (0, 1), r.stderr
+        cls.page = os.path.join(cls.out, "report.html")
+        with open(cls.page, encoding="utf-8") as f:
+            cls.html = f.read()
+
+    @classmethod
+    def tearDownClass(cls):
+        shutil.rmtree(cls.tmp, ignore_errors=True)
+
+    def test_header_names_root_and_settings(self):
+        header = re.search(r"<header>(.*?)</header>", self.html, re.S).group(1)
+        self.assertIn(self.root.replace("&", "&amp;"), header)
+        for text in ("split 70/15/15", "seed 1", "within 8 bits", "correlation 0.995"):
+            self.assertIn(text, header)
+
+    def test_codes_are_tallied_once_and_never_broken(self):
+        tally = re.search(r'<div class="bycode">(.*?)</div>', self.html, re.S).group(1)
+        self.assertEqual(tally.count('data-code="byte-identical"'), 1)
+        self.assertIn("14 files", tally)
+        self.assertIn("code.code{word-break:normal;white-space:nowrap}", self.html)
+
+    def test_one_size_gives_a_sentence_not_a_chart(self):
+        section = re.search(r'<section id="sizes">(.*?)</section>', self.html, re.S).group(1)
+        self.assertIn("All 14 images are 8 x 8 px.", section)
+        self.assertNotIn("<svg", section)
+
+    def test_five_findings_a_code_until_a_code_is_chosen(self):
+        r = chromium("--virtual-time-budget=3000", "--dump-dom", "file://" + self.page, cwd=self.tmp)
+        table = re.search(r'<table id="findings-table">(.*?)</table>', r.stdout, re.S).group(1)
+        rows = re.findall(r'<tr data-sev="[^"]*" data-code="byte-identical"[^>]*>', table)
+        self.assertEqual(len(rows), 7)
+        self.assertEqual(sum('display: none' in row for row in rows), 2)
+        self.assertIn("five a code", r.stdout)
+
+
 if __name__ == "__main__":
     TAMIS = os.path.abspath(sys.argv.pop(1))
     unittest.main(verbosity=1)
