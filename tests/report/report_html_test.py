@@ -47,7 +47,24 @@ def chromium(*args, cwd):
     return r
 
 
-class ReportInBrowser(unittest.TestCase):
+class AuditedPage(unittest.TestCase):
+    """A test class whose setUpClass builds a tree in cls.tmp and audits it."""
+
+    @classmethod
+    def audit(cls, root, *extra):
+        cls.out = os.path.join(cls.tmp, "out")
+        r = subprocess.run([TAMIS, "audit", root, "--out", cls.out, "--quiet", *extra], capture_output=True, text=True)
+        assert r.returncode in (0, 1), r.stderr
+        cls.page = os.path.join(cls.out, "report.html")
+        with open(cls.page, encoding="utf-8") as f:
+            cls.html = f.read()
+
+    @classmethod
+    def tearDownClass(cls):
+        shutil.rmtree(cls.tmp, ignore_errors=True)
+
+
+class ReportInBrowser(AuditedPage):
     @classmethod
     def setUpClass(cls):
         cls.tmp = tempfile.mkdtemp()
@@ -62,16 +79,7 @@ class ReportInBrowser(unittest.TestCase):
             data = f.read()
         with open(os.path.join(root, "plain", "copy " + HOSTILE[0]), "wb") as f:
             f.write(data)
-        cls.out = os.path.join(cls.tmp, "out")
-        r = subprocess.run([TAMIS, "audit", root, "--out", cls.out, "--quiet"], capture_output=True, text=True)
-        assert r.returncode in (0, 1), r.stderr
-        cls.page = os.path.join(cls.out, "report.html")
-        with open(cls.page, encoding="utf-8") as f:
-            cls.html = f.read()
-
-    @classmethod
-    def tearDownClass(cls):
-        shutil.rmtree(cls.tmp, ignore_errors=True)
+        cls.audit(root)
 
     def test_no_hostile_name_runs_and_each_appears_as_text(self):
         r = chromium("--virtual-time-budget=3000", "--dump-dom", "file://" + self.page, cwd=self.tmp)
@@ -108,7 +116,7 @@ class ReportInBrowser(unittest.TestCase):
         self.assertGreater(teal, 1200 * 30)
 
 
-class ReportLayout(unittest.TestCase):
+class ReportLayout(AuditedPage):
     """The page names ROOT and the settings, tallies each code once, folds long
     path lists, shows five findings a code until a code is chosen, and gives a
     sentence instead of a chart when every image has one size. The fixture is
@@ -124,17 +132,7 @@ class ReportLayout(unittest.TestCase):
             for copy in ("a", "b"):
                 with open(os.path.join(cls.root, "hex", f"{i}{copy}.png"), "wb") as f:
                     f.write(data)
-        cls.out = os.path.join(cls.tmp, "out")
-        r = subprocess.run([TAMIS, "audit", cls.root, "--out", cls.out, "--quiet", "--no-cache"],
-                           capture_output=True, text=True)
-        assert r.returncode in (0, 1), r.stderr
-        cls.page = os.path.join(cls.out, "report.html")
-        with open(cls.page, encoding="utf-8") as f:
-            cls.html = f.read()
-
-    @classmethod
-    def tearDownClass(cls):
-        shutil.rmtree(cls.tmp, ignore_errors=True)
+        cls.audit(cls.root, "--no-cache")
 
     def test_header_names_root_and_settings(self):
         header = re.search(r"<header>(.*?)</header>", self.html, re.S).group(1)
