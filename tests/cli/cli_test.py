@@ -922,6 +922,25 @@ class Outputs(unittest.TestCase):
             size = sum(os.path.getsize(os.path.join(d, n)) for d, _, ns in os.walk(root) for n in ns)
             self.assertLess(size, 3_000_000)
 
+    def test_readme_tour_is_what_the_demo_gives(self):
+        # README.md's tour: its summary lines are the demo audit's own, and its pandas
+        # snippet runs on the outputs (pandas, Debian python3-pandas).
+        readme = read_text(os.path.join(REPO, "README.md"))
+        tour = readme[readme.index("## A first run: the demo"):readme.index("## Exit status")]
+        with tempfile.TemporaryDirectory() as t:
+            root, out = os.path.join(t, "swatches"), os.path.join(t, "swatches-audit")
+            self.assertEqual(run("demo", root).returncode, 0)
+            r = run("audit", root, "--out", out, "--no-cache")
+            self.assertEqual(r.returncode, 1)
+            shown = re.search(r"```\n(files seen .*?)```", tour, re.S).group(1).splitlines()
+            for line in shown:
+                if line.strip() != "...":
+                    self.assertIn(line, r.stdout.splitlines())
+            snippet = re.search(r"```python\n(.*?)```", tour, re.S).group(1)
+            code = snippet + "\nassert len(train) > 100 and len(flagged) > 10 and len(copies) == 5\n"
+            p = subprocess.run([sys.executable, "-c", code], cwd=t, capture_output=True, text=True)
+            self.assertEqual(p.returncode, 0, p.stderr)
+
     def test_demo_writes_exactly_the_committed_demo_data(self):
         # tamis demo regenerates demo_data/ byte for byte, whatever the compiler
         # (a clang build drew the demo's colours in another order once: function
