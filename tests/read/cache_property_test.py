@@ -70,12 +70,19 @@ def build_tree(root, rng):
 
 
 def listed(root, sub):
-    """The files of every class's `sub` folder ("images" or "masks"), sorted."""
+    """The visible files in folders named "masks" (sub "masks") or elsewhere (sub
+    "images"), sorted: in the Pillow tree and in the demo tree alike."""
     out = []
-    for c in CLASSES:
-        d = os.path.join(root, c, sub)
-        out += [os.path.join(d, n) for n in sorted(os.listdir(d))]
+    for d, dirs, files in os.walk(root):
+        dirs.sort()
+        in_masks = os.path.basename(d) == "masks"
+        if in_masks == (sub == "masks"):
+            out += [os.path.join(d, n) for n in sorted(files) if not n.startswith(".")]
     return out
+
+
+def classes_of(root):
+    return sorted(e for e in os.listdir(root) if os.path.isdir(os.path.join(root, e)))
 
 
 def drop_thumbnails(cache, rng):
@@ -99,7 +106,8 @@ def edit(root, rng, cache):
         return f"the cache lost {drop_thumbnails(cache, rng)} thumbnails", 0
     imgs = listed(root, "images")
     # Half the edits hit members of the look-alike group (whose thumbnails the report shows).
-    family = [q for q in imgs if any(k in os.path.basename(q) for k in ("lichen_0", "mirror", "reencoded", "soft"))]
+    family = [q for q in imgs if any(k in os.path.basename(q)
+                                     for k in ("lichen_0", "mirror", "reencoded", "soft", "swatch_001", "swatch_002", "swatch_090"))]
     p = rng.choice(family if family and rng.random() < 0.5 else imgs)
     if kind == "touch":
         st = os.stat(p)
@@ -116,8 +124,10 @@ def edit(root, rng, cache):
         os.rename(p, q)
         return f"rename {p}", 1
     if kind == "copy":
-        other = rng.choice([c for c in CLASSES if f"/{c}/" not in p])
-        q = os.path.join(root, other, "images", f"x{rng.randrange(1000)}_" + os.path.basename(p))
+        other = rng.choice([c for c in classes_of(root) if f"/{c}/" not in p])
+        into = os.path.join(root, other, "images") if os.path.isdir(os.path.join(root, other, "images")) \
+            else os.path.join(root, other)
+        q = os.path.join(into, f"x{rng.randrange(1000)}_" + os.path.basename(p))
         shutil.copyfile(p, q)
         return f"copy {p} -> {other}", 0
     if kind == "delete":
@@ -125,7 +135,10 @@ def edit(root, rng, cache):
             os.remove(p)
         return f"delete {p}", 0
     if kind == "pixels":
-        img = Image.open(p).convert("RGB")
+        try:
+            img = Image.open(p).convert("RGB")
+        except OSError:  # a file the demo made unreadable on purpose
+            return f"pixels (unreadable) {p}", 0
         ImageDraw.Draw(img).rectangle((2, 2, 12, 12), fill=tuple(rng.randrange(256) for _ in range(3)))
         img.save(p)
         return f"pixels {p}", 0
@@ -142,9 +155,9 @@ def edit(root, rng, cache):
         return f"remove mask {m}", 0
     # a new mask twin for an image without one
     name = os.path.basename(p)
-    if name.endswith(".png"):
+    if name.endswith(".png") and os.path.basename(os.path.dirname(p)) == "images":
         m = os.path.join(os.path.dirname(os.path.dirname(p)), "masks", name)
-        if not os.path.exists(m):
+        if not os.path.exists(m) and os.path.isdir(os.path.dirname(m)):
             mask_for(Image.open(p), rng).save(m)
             return f"new mask {m}", 0
     return "nothing", 0
@@ -169,7 +182,12 @@ def main():
         rng = random.Random(1000 + seq)
         with tempfile.TemporaryDirectory() as t:
             root = os.path.join(t, "tree")
-            build_tree(root, rng)
+            if seq % 3 == 2:  # every third sequence edits the demo tree (JPEG, 16-bit, alpha, EXIF, masks)
+                r = subprocess.run([TAMIS, "demo", root], capture_output=True, text=True)
+                if r.returncode != 0:
+                    raise SystemExit(f"demo exited {r.returncode}: {r.stderr}")
+            else:
+                build_tree(root, rng)
             cache = os.path.join(t, "cache.sqlite")
             scratch = os.path.join(t, "scratch")
             os.mkdir(scratch)
