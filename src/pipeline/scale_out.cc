@@ -74,12 +74,18 @@ ScanPart scan_tree(const TreeSettings& settings, Shard shard, std::vector<StageT
   return p;
 }
 
+constexpr size_t kPartsKeptOpen = 64;
+
 PartSet::PartSet(const std::vector<std::filesystem::path>& files) {
   if (files.empty()) throw MergeError("no parts were given");
   std::vector<std::unique_ptr<PartFile>> opened;
   for (const auto& f : files) {
     try {
       opened.push_back(std::make_unique<PartFile>(f));
+      // Beyond a few parts, none holds a descriptor between reads (each read opens
+      // and closes its file): a merge of thousands of parts stays within the
+      // process's limit on open files (1,024 by default).
+      if (files.size() > kPartsKeptOpen) opened.back()->release();
     } catch (const PartError& e) {
       throw MergeError(e.what());
     }

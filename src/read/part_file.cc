@@ -162,18 +162,42 @@ void write_part(std::ostream& os, const ScanPart& p) {
 
 void PartFile::fail(const std::string& why) const { throw PartError("part " + file_.string() + " " + why); }
 
+namespace {
+// A descriptor closed when the read is done (a released part's, opened for one read).
+struct OneRead {
+  int fd = -1;
+  ~OneRead() {
+    if (fd >= 0) ::close(fd);
+  }
+};
+}  // namespace
+
 void PartFile::read_at(uint64_t at, void* out, size_t n, const char* why) const {
+  OneRead own;
+  int fd = fd_;
+  if (fd < 0) {  // released: open it for this read, and check that it is still the same file
+    own.fd = ::open(file_.c_str(), O_RDONLY | O_CLOEXEC);
+    struct stat st{};
+    if (own.fd < 0 || ::fstat(own.fd, &st) != 0) fail(std::string("cannot be read again: ") + std::strerror(errno));
+    const stat_key now{static_cast<uint64_t>(st.st_dev), static_cast<uint64_t>(st.st_ino), static_cast<uint64_t>(st.st_size),
+                       int64_t{st.st_mtim.tv_sec} * 1000000000 + st.st_mtim.tv_nsec};
+    if (!(now == key_)) fail("changed while the merge read it");
+    fd = own.fd;
+  }
   for (size_t done = 0; done < n;) {
-    const ssize_t got = ::pread(fd_, static_cast<char*>(out) + done, n - done, static_cast<off_t>(at + done));
+    const ssize_t got = ::pread(fd, static_cast<char*>(out) + done, n - done, static_cast<off_t>(at + done));
     if (got < 0 && errno == EINTR) continue;
     if (got <= 0) fail(why);
     done += static_cast<size_t>(got);
   }
 }
 
-PartFile::~PartFile() {
+void PartFile::release() const {
   if (fd_ >= 0) ::close(fd_);
+  fd_ = -1;
 }
+
+PartFile::~PartFile() { release(); }
 
 PartFile::PartFile(const std::filesystem::path& file) : file_(file) {
   fd_ = ::open(file.c_str(), O_RDONLY | O_CLOEXEC);
@@ -181,6 +205,8 @@ PartFile::PartFile(const std::filesystem::path& file) : file_(file) {
   struct stat st{};
   if (::fstat(fd_, &st) != 0 || !S_ISREG(st.st_mode)) fail("is not a regular file");
   size_ = static_cast<uint64_t>(st.st_size);
+  key_ = {static_cast<uint64_t>(st.st_dev), static_cast<uint64_t>(st.st_ino), size_,
+          int64_t{st.st_mtim.tv_sec} * 1000000000 + st.st_mtim.tv_nsec};
   const char* cut = "is cut short (truncated) or cannot be read";
   uint8_t head[kHeader];
   if (size_ < kHeader + kTrailer) fail("is not a tamis part (too short: truncated or another file)");

@@ -182,6 +182,30 @@ class ScaleOut(unittest.TestCase):
             self.assertEqual(r.returncode, 2)
             self.assertFalse(os.path.exists(os.path.join(root, "p.part")))
 
+    def test_a_thousand_parts_merge_within_the_usual_open_file_limit(self):
+        # 1,030 shards of the planted tree (most of them empty parts) merged and joined
+        # under RLIMIT_NOFILE 256 (the usual soft limit is 1,024): each part is opened for
+        # a read and closed after it, so the merge never holds them all; same outputs.
+        import resource
+        def low_limit():
+            resource.setrlimit(resource.RLIMIT_NOFILE, (256, resource.getrlimit(resource.RLIMIT_NOFILE)[1]))
+        with tempfile.TemporaryDirectory() as t:
+            root = os.path.join(t, "tree")
+            planted_copy_tree(root)
+            a = run("audit", root, "--out", os.path.join(t, "audit"), "--no-cache")
+            shards = 1030
+            parts = [os.path.join(t, "parts", f"{k}.part") for k in range(shards)]
+            for k, p in enumerate(parts):
+                r = run("scan", root, "--shard", f"{k}/{shards}", "--out", p, "--no-cache", "--threads", "1")
+                self.assertEqual(r.returncode, 0, r.stderr)
+            m = subprocess.run([TAMIS, "merge", *parts, "--out", os.path.join(t, "merged")], capture_output=True,
+                               text=True, preexec_fn=low_limit)
+            self.assertEqual(m.returncode, a.returncode, m.stderr)
+            same_outputs(self, os.path.join(t, "audit"), os.path.join(t, "merged"))
+            j = subprocess.run([TAMIS, "join", *parts, "--out", os.path.join(t, "all.join")], capture_output=True,
+                               text=True, preexec_fn=low_limit)
+            self.assertEqual(j.returncode, 0, j.stderr)
+
     def test_bad_sets_of_parts_are_refused_with_exit_2(self):
         with tempfile.TemporaryDirectory() as t:
             root = os.path.join(t, "data")

@@ -111,10 +111,20 @@ class PartFile {
   void read_thumbnails(size_t first, size_t count, Thumbnail* out) const;
   // Reads the whole file and checks its second checksum. Throws PartError.
   void verify() const;
+  // Closes the file; every later read opens it for that read alone and closes it
+  // after, so that a merge of thousands of parts holds no descriptor between reads
+  // (the usual limit is 1,024 a process). A file that is no longer the one first
+  // opened (device, inode, size or modification time) fails the read.
+  void release() const;
 
  private:
   std::filesystem::path file_;
-  int fd_ = -1;
+  mutable int fd_ = -1;  // -1 once released
+  struct stat_key {
+    uint64_t dev = 0, ino = 0, size = 0;
+    int64_t mtime_ns = 0;
+    bool operator==(const stat_key&) const = default;
+  } key_;
   uint64_t size_ = 0, thumbs_at_ = 0, head_sum_ = 0, file_sum_ = 0, recs_at_ = 0, recs_bytes_ = 0, count_ = 0;
   ScanPart info_;
   std::vector<uint32_t> thumb_record_;
