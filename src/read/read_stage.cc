@@ -63,7 +63,7 @@ void set_stamp(FileRecord& r, const struct stat& st) {
   r.inode = st.st_ino;
 }
 
-enum class Source { read, cached_by_hash };  // (hits by path never reach read_one)
+enum class Source { read, cached_by_hash, left_aside };  // (hits by path never reach read_one)
 
 // `from_cache(row)`: a copy of the cached record of that row (a row another
 // entry took is copied from that entry's record).
@@ -83,7 +83,7 @@ Source read_one(int rootfd, const WalkEntry& e, const ReadOptions& opt, const Re
     r.defect = Defect::hidden;
     struct stat st {};
     if (!e.stamped && fstatat(rootfd, e.path.c_str(), &st, AT_SYMLINK_NOFOLLOW) == 0) set_stamp(r, st);
-    return Source::read;
+    return Source::left_aside;  // never opened: not counted as read
   }
   bool image_name = format_from_extension(e.path) != Format::unknown || has_other_image_extension(e.path);
   // A file the walk did not stat is stamped from its open descriptor.
@@ -284,7 +284,7 @@ std::vector<FileRecord> read_files(const std::filesystem::path& root, const std:
         copied_row[i] = static_cast<int64_t>(row);
         return from_cache(row);
       });
-      (src == Source::cached_by_hash ? n_hash : n_read)++;
+      if (src != Source::left_aside) (src == Source::cached_by_hash ? n_hash : n_read)++;
       if (buf.capacity() > (64u << 20)) std::vector<uint8_t>().swap(buf);  // do not pin huge buffers
       progress();
     }, 8);

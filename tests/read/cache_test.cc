@@ -52,8 +52,8 @@ TEST_CASE("cache: a second audit of an unchanged tree reads no image and writes 
   Run clean = audit(t / "data", "");
   Run cold = audit(t / "data", c / "records.sqlite");
   Run warm = audit(t / "data", c / "records.sqlite");
-  CHECK(cold.counts.read == n);
-  CHECK(warm.counts.read == 1);  // the hidden file is never cached: it is not read either
+  CHECK(cold.counts.read == n - 1);  // the hidden file is never opened, never counted as read
+  CHECK(warm.counts.read == 0);      // (nor cached)
   CHECK(warm.counts.cached == n - 1);
   CHECK(cold.out == clean.out);
   CHECK(warm.out == clean.out);
@@ -69,12 +69,12 @@ TEST_CASE("cache: a touched file is read again, a renamed file reuses its record
   fs::last_write_time(f, fs::last_write_time(f) + std::chrono::seconds(5));
   Run touched = audit(t / "data", cache);
   CHECK(touched.counts.cached_by_hash == 1);  // not trusted by path any more; its bytes are hashed
-  CHECK(touched.counts.read == 1);            // (and the hidden file, which is never cached)
+  CHECK(touched.counts.read == 0);            // (the hidden file is never opened)
   // new bytes: read and decoded again
   fs::copy_file(t / "data" / "gingham" / "swatch_003.jpg", f, fs::copy_options::overwrite_existing);
   test::write_text(t / "data" / "gingham" / "swatch_003.jpg", "");  // and an emptied file
   Run changed = audit(t / "data", cache);
-  CHECK(changed.counts.read == 2);             // the emptied file and the hidden one
+  CHECK(changed.counts.read == 1);             // the emptied file
   CHECK(changed.counts.cached_by_hash == 1);   // swatch_002 now holds swatch_003's old bytes
   // rename: same bytes under a new name
   fs::rename(t / "data" / "pinstripe" / "swatch_003.jpg", t / "data" / "pinstripe" / "renamed.jpg");

@@ -33,7 +33,7 @@ class RecordCache;
 
 // What the read stage did with the files (for the summary; never in a report).
 struct ReadCounts {
-  uint64_t read = 0;            // files opened and decoded (or found not to be images)
+  uint64_t read = 0;            // files opened and decoded (or found not to be images); hidden files are not opened
   uint64_t cached = 0;          // records reused from the cache by path, size, time and inode
   uint64_t cached_by_hash = 0;  // records reused by content hash (touched, rewritten, copied, moved files)
   uint64_t moved = 0;           // of those, files whose stored path is no longer in the tree (moved or renamed)
