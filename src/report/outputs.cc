@@ -2,7 +2,10 @@
 
 #include <turbojpeg.h>
 
+#include <algorithm>
+#include <cmath>
 #include <exception>
+#include <optional>
 #include <stdexcept>
 #include <thread>
 #include <vector>
@@ -49,16 +52,71 @@ std::vector<uint8_t> gray_jpeg(const uint8_t* pixels, int width, int height, int
   return out;
 }
 
-// JPEG thumbnails (the 32x32 look-alike thumbnails, shown at 64 px) of the groups'
-// first members, within `budget` bytes of data URIs.
+// An RGB image as baseline JPEG, 4:4:4 (libjpeg-turbo); empty on failure.
+std::vector<uint8_t> rgb_jpeg(const uint8_t* pixels, int width, int height, int quality) {
+  std::vector<uint8_t> out;
+  tjhandle tj = tjInitCompress();
+  if (!tj) return out;
+  unsigned char* buf = nullptr;
+  unsigned long size = 0;
+  if (tjCompress2(tj, pixels, width, width * 3, height, TJPF_RGB, &buf, &size, TJSAMP_444, quality, 0) == 0)
+    out.assign(buf, buf + size);
+  tjFree(buf);
+  tjDestroy(tj);
+  return out;
+}
+
+// The look-alike thumbnail in colour, 32x32 RGB: its gray plane as luma and its
+// 8x8 chroma (OpenCV's 8-bit YCrCb, BT.601) enlarged bilinearly (cell centres,
+// edges held), converted back with the BT.601 coefficients. Computed in double,
+// so the same on every processor. With `mask`, the mask's thumbnail is drawn over
+// it in ochre, in proportion to the mask's share of its brightest value.
+std::vector<uint8_t> colour_thumbnail(const Thumbnail& t, const Thumbnail* mask = nullptr) {
+  std::vector<uint8_t> rgb(static_cast<size_t>(kThumbSide * kThumbSide * 3));
+  const uint8_t* cb = t.data() + kThumbSide * kThumbSide;
+  const uint8_t* cr = cb + kChromaSide * kChromaSide;
+  uint8_t mask_top = 0;
+  if (mask)
+    for (int i = 0; i < kThumbSide * kThumbSide; ++i) mask_top = std::max(mask_top, (*mask)[static_cast<size_t>(i)]);
+  const double scale = double(kChromaSide) / kThumbSide;
+  auto at = [](const uint8_t* plane, int x, int y) { return double(plane[y * kChromaSide + x]); };
+  for (int y = 0; y < kThumbSide; ++y)
+    for (int x = 0; x < kThumbSide; ++x) {
+      const double fx = std::clamp((x + 0.5) * scale - 0.5, 0.0, double(kChromaSide - 1));
+      const double fy = std::clamp((y + 0.5) * scale - 0.5, 0.0, double(kChromaSide - 1));
+      const int x0 = static_cast<int>(fx), y0 = static_cast<int>(fy);
+      const int x1 = std::min(x0 + 1, kChromaSide - 1), y1 = std::min(y0 + 1, kChromaSide - 1);
+      const double ax = fx - x0, ay = fy - y0;
+      auto lerp = [&](const uint8_t* p) {
+        return (at(p, x0, y0) * (1 - ax) + at(p, x1, y0) * ax) * (1 - ay) + (at(p, x0, y1) * (1 - ax) + at(p, x1, y1) * ax) * ay;
+      };
+      const double Y = t[static_cast<size_t>(y * kThumbSide + x)], u = lerp(cb) - 128.0, v = lerp(cr) - 128.0;
+      double c[3] = {Y + 1.403 * v, Y - 0.714 * v - 0.344 * u, Y + 1.773 * u};
+      if (mask && mask_top > 0) {
+        const double a = 0.6 * (*mask)[static_cast<size_t>(y * kThumbSide + x)] / mask_top;
+        const double tint[3] = {227, 100, 20};  // the report's ochre, #e36414
+        for (int k = 0; k < 3; ++k) c[k] = c[k] * (1 - a) + tint[k] * a;
+      }
+      for (int k = 0; k < 3; ++k)
+        rgb[static_cast<size_t>((y * kThumbSide + x) * 3 + k)] = static_cast<uint8_t>(std::clamp(std::lround(c[k]), 0L, 255L));
+    }
+  return rgb;
+}
+
+// JPEG thumbnails (the 32x32 look-alike thumbnails in colour, shown at 96 px) of
+// the groups' first members, and of the first image/mask pairs (the image with its
+// mask drawn over it, then the mask), within `budget` bytes of data URIs.
 Thumbnails group_thumbnails(const AuditResult& r, size_t budget) {
   Thumbnails out;
   size_t used = 0;
-  auto uri_of = [&](size_t record) {
-    if (!r.thumbs.has(record)) return std::string();
-    Thumbnail t;
+  auto uri_of = [&](size_t record, std::optional<size_t> mask = std::nullopt) {
+    if (!r.thumbs.has(record) || (mask && !r.thumbs.has(*mask))) return std::string();
+    Thumbnail t, m;
     r.thumbs.get(record, t);
-    std::vector<uint8_t> jpg = gray_jpeg(t.data(), 32, 32, 85);
+    if (mask) r.thumbs.get(*mask, m);
+    const bool gray = r.records[record].kind == FileKind::mask;  // a mask is shown as it is
+    std::vector<uint8_t> jpg = gray ? gray_jpeg(t.data(), kThumbSide, kThumbSide, 85)
+                                    : rgb_jpeg(colour_thumbnail(t, mask ? &m : nullptr).data(), kThumbSide, kThumbSide, 85);
     if (jpg.empty()) return std::string();
     return "data:image/jpeg;base64," + base64(jpg);
   };
@@ -68,7 +126,8 @@ Thumbnails group_thumbnails(const AuditResult& r, size_t budget) {
     if (r.masks.mask_of[i] < 0) continue;
     const FileRecord& img = r.records[i];
     const FileRecord& mask = r.records[static_cast<size_t>(r.masks.mask_of[i])];
-    std::string a = uri_of(i), b = uri_of(static_cast<size_t>(r.masks.mask_of[i]));
+    const size_t m = static_cast<size_t>(r.masks.mask_of[i]);
+    std::string a = uri_of(i, m), b = uri_of(m);
     if (a.empty() || b.empty() || used + a.size() + b.size() > budget) break;
     used += a.size() + b.size();
     out["#masks"].emplace_back(img.path, std::move(a));

@@ -67,7 +67,7 @@ th{background:#f1ebe0;font-weight:600}td.num{text-align:right;font-variant-numer
 code,.path{font-family:ui-monospace,Menlo,Consolas,monospace;font-size:12.5px;word-break:break-all;white-space:pre-wrap}
 .note{color:#5d6b70;font-size:12.5px}.filters{display:flex;gap:14px;align-items:center;margin:0 0 8px;font-size:13px}
 .group{border-top:1px solid #ece4d6;padding:8px 0}.gh{font-size:13px;margin-bottom:4px}.strip{display:flex;gap:8px;flex-wrap:wrap}
-figure{margin:0;width:96px}figure img,.nothumb{width:64px;height:64px;image-rendering:pixelated;border:1px solid var(--rule);background:#eee6d8}
+figure{margin:0;width:104px}figure img,.nothumb{width:96px;height:96px;border:1px solid var(--rule);background:#eee6d8}
 code.code{word-break:normal;white-space:nowrap}details summary{cursor:pointer;color:#5d6b70;font-size:12.5px}
 .bycode{display:flex;flex-wrap:wrap;gap:6px 14px;margin:0 0 10px;font-size:13px}.bycode a{cursor:pointer;color:var(--ink);text-decoration:none;border-bottom:1px dotted var(--rule)}
 figcaption{font-size:10.5px}table.narrow{width:auto;margin-top:8px}.legend span{display:inline-block;width:10px;height:10px;margin:0 4px 0 10px;border-radius:2px}
@@ -339,9 +339,9 @@ void mask_pairs(std::ostringstream& o, const json& report, const Thumbnails& thu
   if (it != thumbs.end()) {
     o << "<div class=\"strip\">";
     for (const auto& [path, uri] : it->second)
-      o << "<figure><img alt=\"\" width=\"64\" height=\"64\" src=\"" << uri << "\"><figcaption class=\"path\">"
+      o << "<figure><img alt=\"\" width=\"96\" height=\"96\" src=\"" << uri << "\"><figcaption class=\"path\">"
         << html_escape(path) << "</figcaption></figure>";
-    o << "</div>";
+    o << "</div><p class=\"note\">Each image with its mask drawn over it in ochre, then the mask (32x32 thumbnails).</p>";
   }
   o << "</section>\n";
 }
@@ -350,7 +350,8 @@ void groups(std::ostringstream& o, const json& report, const Thumbnails& thumbs)
   const json& gs = array_at(report, "groups");
   if (gs.empty()) return;
   o << "<section id=\"groups\"><h2>Copies and look-alikes</h2><p class=\"note\">" << gs.size()
-    << " groups; each strip shows the first images of a group (its 32x32 look-alike thumbnails) with their paths.</p>";
+    << " groups; each strip shows the first images of a group (their 32x32 look-alike thumbnails, in colour) with their"
+       " paths, and how each pair was matched.</p>";
   size_t shown = 0;
   for (const auto& g : gs) {
     if (shown++ == 60) {
@@ -370,11 +371,36 @@ void groups(std::ostringstream& o, const json& report, const Thumbnails& thumbs)
         for (const auto& [tp, data] : it->second)
           if (tp == path) uri = data;
       o << "<figure>";
-      if (!uri.empty()) o << "<img alt=\"\" width=\"64\" height=\"64\" src=\"" << uri << "\">";
+      if (!uri.empty()) o << "<img alt=\"\" width=\"96\" height=\"96\" src=\"" << uri << "\">";
       else o << "<div class=\"nothumb\"></div>";
       o << "<figcaption class=\"path\">" << html_escape(path) << "</figcaption></figure>";
     }
-    o << "</div></div>";
+    o << "</div>";
+    // How the pairs that joined the group matched (report.json "links"), the first eight.
+    size_t l = 0;
+    for (const auto& link : array_at(g, "links")) {
+      if (l++ == 8) break;
+      o << "<div class=\"note\"><span class=\"path\">" << esc(link.value("a", json(""))) << "</span> and <span class=\"path\">"
+        << esc(link.value("b", json(""))) << "</span>: ";
+      if (str(link.value("how", json(""))) == "identical") {
+        o << "byte-identical";
+      } else {
+        const std::string turn = str(link.value("turn", json("none")));
+        char corr[32];
+        std::snprintf(corr, sizeof corr, "%.4f", link.value("correlation", 0.0));
+        o << (turn == "none" ? std::string("as they are") : "the first " + html_escape(turn)) << ", correlation " << corr;
+        const std::string blurred = str(link.value("blurred", json("none")));
+        if (blurred != "none") {
+          char sigma[32];
+          std::snprintf(sigma, sizeof sigma, "%.2f", link.value("blur_sigma", 0.0));
+          o << " after blurring " << html_escape(blurred) << " by " << sigma << " thumbnail px";
+        }
+        const std::string fit = str(link.value("fit_source", json("none")));
+        if (fit != "none") o << " through a tone-and-colour fit of " << html_escape(fit);
+      }
+      o << "</div>";
+    }
+    o << "</div>";
   }
   o << "</section>\n";
 }

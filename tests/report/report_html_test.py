@@ -160,6 +160,67 @@ class ReportLayout(AuditedPage):
         self.assertIn("five a code", r.stdout)
 
 
+class ColourThumbnails(AuditedPage):
+    """The groups' and the mask pairs' thumbnails are in colour: their mean colour is
+    the original file's as Pillow (python3-pil, the reference decoder) reads it, within
+    4 levels a channel; an image shown with its mask is tinted where the mask is."""
+
+    @classmethod
+    def setUpClass(cls):
+        cls.tmp = tempfile.mkdtemp()
+        cls.root = os.path.join(cls.tmp, "swatches")
+        r = subprocess.run([TAMIS, "demo", cls.root], capture_output=True, text=True)
+        assert r.returncode == 0, r.stderr
+        cls.audit(cls.root, "--no-cache")
+
+    def figures(self):
+        import io
+        from PIL import Image
+        found = re.findall(r'<figure><img alt="" width="96" height="96" src="data:image/jpeg;base64,([^"]+)">'
+                           r'<figcaption class="path">([^<]+)</figcaption>', self.html)
+        return [(Image.open(io.BytesIO(base64.b64decode(b))).convert("RGB"), p) for b, p in found]
+
+    def test_group_thumbnails_have_the_files_colours(self):
+        from PIL import Image
+        groups = self.html[self.html.index('<section id="groups">'):self.html.index('<section id="masks">')]
+        self.assertIn("the first mirror, correlation", groups)
+        self.assertIn("byte-identical", groups)
+        checked = 0
+        for im, path in self.figures():
+            if f">{path}<" not in groups or "/masks/" in path:
+                continue
+            with Image.open(os.path.join(self.root, path)) as original:
+                want = [sum(c) / len(c) for c in zip(*original.convert("RGB").getdata())]
+            got = [sum(c) / len(c) for c in zip(*im.getdata())]
+            self.assertTrue(all(abs(a - b) <= 4 for a, b in zip(got, want)), (path, got, want))
+            self.assertGreater(max(got) - min(got), 8, path)  # colour, not gray
+            checked += 1
+        self.assertGreaterEqual(checked, 8)
+
+    def test_masks_are_drawn_over_their_images(self):
+        from PIL import Image
+        masks = self.html[self.html.index('<section id="masks">'):]
+        pairs = [(im, p) for im, p in self.figures() if f">{p}<" in masks]
+        self.assertGreaterEqual(len(pairs), 8)
+        for (shown, image_path), (_, mask_path) in zip(pairs[0::2], pairs[1::2]):
+            self.assertEqual(os.path.basename(image_path)[:-4], os.path.basename(mask_path)[:-4])
+            with Image.open(os.path.join(self.root, mask_path)) as m:
+                if m.getextrema()[1] == 0 or m.size != (256, 224):
+                    continue  # the planted empty and wrongly sized masks
+                on = m.convert("L").resize((32, 32), Image.BOX)
+            with Image.open(os.path.join(self.root, image_path)) as photo:
+                plain = photo.convert("RGB").resize((32, 32), Image.BOX)
+            # Where the mask covers the pixel, the shown image is nearer the ochre (227, 100, 20).
+            ochre = (227, 100, 20)
+            def dist(c):
+                return sum((a - b) ** 2 for a, b in zip(c, ochre))
+            top = on.getextrema()[1]
+            nearer = [dist(shown.getpixel((x, y))) < dist(plain.getpixel((x, y)))
+                      for y in range(32) for x in range(32) if on.getpixel((x, y)) > 0.5 * top]
+            self.assertGreater(len(nearer), 10, image_path)
+            self.assertGreater(sum(nearer) / len(nearer), 0.9, image_path)
+
+
 if __name__ == "__main__":
     TAMIS = os.path.abspath(sys.argv.pop(1))
     unittest.main(verbosity=1)
