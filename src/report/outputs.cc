@@ -38,28 +38,17 @@ std::string base64(const std::vector<uchar>& in) {
   return out;
 }
 
-// A gray image as baseline JPEG (libjpeg-turbo); empty on failure.
-std::vector<uint8_t> gray_jpeg(const uint8_t* pixels, int width, int height, int quality) {
+// A gray (channels 1) or RGB (channels 3) image as baseline JPEG, chroma not
+// subsampled (libjpeg-turbo); empty on failure.
+std::vector<uint8_t> encode_jpeg(const uint8_t* pixels, int width, int height, int channels, int quality) {
   std::vector<uint8_t> out;
   tjhandle tj = tjInitCompress();
   if (!tj) return out;
   unsigned char* buf = nullptr;
   unsigned long size = 0;
-  if (tjCompress2(tj, pixels, width, width, height, TJPF_GRAY, &buf, &size, TJSAMP_GRAY, quality, 0) == 0)
-    out.assign(buf, buf + size);
-  tjFree(buf);
-  tjDestroy(tj);
-  return out;
-}
-
-// An RGB image as baseline JPEG, 4:4:4 (libjpeg-turbo); empty on failure.
-std::vector<uint8_t> rgb_jpeg(const uint8_t* pixels, int width, int height, int quality) {
-  std::vector<uint8_t> out;
-  tjhandle tj = tjInitCompress();
-  if (!tj) return out;
-  unsigned char* buf = nullptr;
-  unsigned long size = 0;
-  if (tjCompress2(tj, pixels, width, width * 3, height, TJPF_RGB, &buf, &size, TJSAMP_444, quality, 0) == 0)
+  const bool gray = channels == 1;
+  if (tjCompress2(tj, pixels, width, width * channels, height, gray ? TJPF_GRAY : TJPF_RGB, &buf, &size,
+                  gray ? TJSAMP_GRAY : TJSAMP_444, quality, 0) == 0)
     out.assign(buf, buf + size);
   tjFree(buf);
   tjDestroy(tj);
@@ -115,8 +104,8 @@ Thumbnails group_thumbnails(const AuditResult& r, size_t budget) {
     r.thumbs.get(record, t);
     if (mask) r.thumbs.get(*mask, m);
     const bool gray = r.records[record].kind == FileKind::mask;  // a mask is shown as it is
-    std::vector<uint8_t> jpg = gray ? gray_jpeg(t.data(), kThumbSide, kThumbSide, 85)
-                                    : rgb_jpeg(colour_thumbnail(t, mask ? &m : nullptr).data(), kThumbSide, kThumbSide, 85);
+    std::vector<uint8_t> jpg = gray ? encode_jpeg(t.data(), kThumbSide, kThumbSide, 1, 85)
+                                    : encode_jpeg(colour_thumbnail(t, mask ? &m : nullptr).data(), kThumbSide, kThumbSide, 3, 85);
     if (jpg.empty()) return std::string();
     return "data:image/jpeg;base64," + base64(jpg);
   };
