@@ -18,6 +18,20 @@ std::vector<uint32_t> shown_records(const AuditIndex& r) {
       shown.push_back(i);
       shown.push_back(static_cast<uint32_t>(r.masks.mask_of[i]));
     }
+  // The first images (in path order) that meet each quality floor: those the
+  // report may show as flagged near-uniform, underexposed, ... whatever the
+  // policy's z cut (which decides which of them are flagged).
+  unsigned counts[std::size(kFloorCodes)] = {};
+  for (uint32_t i = 0; i < r.records.size(); ++i) {
+    const unsigned met = quality_floors_met(r.records[i]);
+    bool take = false;
+    for (size_t k = 0; k < std::size(kFloorCodes); ++k)
+      if ((met >> k & 1u) && counts[k] < kFloorCandidatesKept) {
+        ++counts[k];
+        take = true;
+      }
+    if (take) shown.push_back(i);
+  }
   return shown;
 }
 

@@ -117,6 +117,18 @@ Pools image_pools(const std::vector<FileRecord>& records, const Labelling& label
 
 }
 
+}  // namespace
+
+unsigned quality_floors_met(const FileRecord& r) {
+  if (r.kind != FileKind::image || !r.features.has_lookalike) return 0;
+  const ImageStats& st = r.features.stats;
+  if (st.luma_std < kFlatContrast) return 1u;  // a flat frame is judged by that rule alone
+  return (st.luma_mean < kDarkMean ? 2u : 0u) | (st.luma_mean > kBrightMean ? 4u : 0u) |
+         (st.entropy < kLowEntropy ? 8u : 0u) | (st.focus < kUnsharpFocus ? 16u : 0u);
+}
+
+namespace {
+
 // Each image against the thresholds and its class's distributions: the codes
 // it raises, with their measurements, into `col`; images below the input side
 // counted in `upscaled`.
@@ -146,14 +158,15 @@ void collect_image_flags(const std::vector<FileRecord>& records, const Labelling
         return nlohmann::json{{"mean", round2(st.luma_mean)}, {"std", round2(st.luma_std)},
                               {"entropy", round2(st.entropy)}, {"focus", round2(st.focus)}};
       };
-      if (st.luma_std < 3.0) {
+      if (st.luma_std < kFlatContrast) {
         col.add("near-uniform", r, m);
       } else {
         double z = pools.pick(pools.mean, c).z(st.luma_mean);
-        if (st.luma_mean < 30 && z < -cs.outlier_z) col.add("underexposed", r, m);
-        if (st.luma_mean > 225 && z > cs.outlier_z) col.add("overexposed", r, m);
-        if (st.entropy < 3.0 && pools.pick(pools.entropy, c).z(st.entropy) < -cs.outlier_z) col.add("low-entropy", r, m);
-        if (st.focus < 100 && pools.pick(pools.focus, c).z(std::log1p(st.focus)) < -cs.outlier_z) col.add("unsharp", r, m);
+        if (st.luma_mean < kDarkMean && z < -cs.outlier_z) col.add("underexposed", r, m);
+        if (st.luma_mean > kBrightMean && z > cs.outlier_z) col.add("overexposed", r, m);
+        if (st.entropy < kLowEntropy && pools.pick(pools.entropy, c).z(st.entropy) < -cs.outlier_z) col.add("low-entropy", r, m);
+        if (st.focus < kUnsharpFocus && pools.pick(pools.focus, c).z(std::log1p(st.focus)) < -cs.outlier_z)
+          col.add("unsharp", r, m);
       }
       bool colour = p.mode == ColorMode::rgb || p.mode == ColorMode::rgba || p.mode == ColorMode::cmyk;
       if (colour && st.channels_equal) col.add("gray-as-rgb", r);

@@ -11,6 +11,7 @@
 #include <vector>
 
 #include "tamis/base/atomic_file.h"
+#include "tamis/place/checks.h"
 #include "tamis/read/walk.h"
 #include "tamis/report/index_file.h"
 #include "tamis/report/junit.h"
@@ -122,6 +123,25 @@ Thumbnails group_thumbnails(const AuditResult& r, size_t budget) {
     out["#masks"].emplace_back(img.path, std::move(a));
     out["#masks"].emplace_back(mask.path, std::move(b));
     ++pairs;
+  }
+  // The first pictures of each exposure, information and focus finding (key
+  // "#flag:CODE"): the thumbnails the index keeps for them (pipeline/audit.h).
+  for (const Finding& f : r.findings) {
+    if (std::find_if(std::begin(kFloorCodes), std::end(kFloorCodes), [&](const char* c) { return f.code == c; }) ==
+        std::end(kFloorCodes))
+      continue;
+    auto& strip = out["#flag:" + f.code];
+    for (const std::string& path : f.paths) {
+      if (strip.size() == kFlaggedShown) break;
+      const auto it = std::lower_bound(r.records.begin(), r.records.end(), path,
+                                       [](const FileRecord& rec, const std::string& p) { return rec.path < p; });
+      if (it == r.records.end() || it->path != path) continue;
+      std::string uri = uri_of(static_cast<size_t>(it - r.records.begin()));
+      if (uri.empty()) continue;
+      if (used + uri.size() > budget) return out;
+      used += uri.size();
+      strip.emplace_back(path, std::move(uri));
+    }
   }
   for (size_t gi = 0; gi < r.groups.groups.size() && gi < 60; ++gi) {
     const Group& g = r.groups.groups[gi];

@@ -70,6 +70,7 @@ code,.path{font-family:ui-monospace,Menlo,Consolas,monospace;font-size:12.5px;wo
 figure{margin:0;width:104px}figure img,.nothumb{width:96px;height:96px;border:1px solid var(--rule);background:#eee6d8}
 code.code{word-break:normal;white-space:nowrap}details summary{cursor:pointer;color:#5d6b70;font-size:12.5px}
 .bycode{display:flex;flex-wrap:wrap;gap:6px 14px;margin:0 0 10px;font-size:13px}.bycode a{cursor:pointer;color:var(--ink);text-decoration:none;border-bottom:1px dotted var(--rule)}
+.mini{margin-top:4px}.mini img{width:64px;height:64px;border:1px solid var(--rule)}
 figcaption{font-size:10.5px}table.narrow{width:auto;margin-top:8px}.legend span{display:inline-block;width:10px;height:10px;margin:0 4px 0 10px;border-radius:2px}
 )CSS";
 
@@ -166,7 +167,7 @@ std::string class_of_path(const std::string& p, bool pre_split) {
   return b == std::string::npos ? "" : p.substr(a + 1, b - a - 1);
 }
 
-void findings(std::ostringstream& o, const json& report, const std::vector<Finding>* finding_list) {
+void findings(std::ostringstream& o, const json& report, const std::vector<Finding>* finding_list, const Thumbnails& thumbs) {
   const json& fs = array_at(report, "findings");
   const bool pre_split = object_at(report, "layout").value("pre_split", false);
   o << "<section id=\"findings\"><h2>Findings</h2>";
@@ -257,6 +258,14 @@ void findings(std::ostringstream& o, const json& report, const std::vector<Findi
     if (paths.size() > kOpen + kFolded)
       o << "<div class=\"note\">… and " << paths.size() - kOpen - kFolded << " more (report.json)</div>";
     if (paths.size() > kOpen) o << "</details>";
+    // Pictures of the first images a quality finding names (one such finding a code).
+    const auto pictures = thumbs.find("#flag:" + str(f.value("code", json(""))));
+    if (pictures != thumbs.end() && !pictures->second.empty()) {
+      o << "<div class=\"strip mini\">";
+      for (const auto& [path, uri] : pictures->second)
+        o << "<img alt=\"\" width=\"64\" height=\"64\" title=\"" << html_escape(path) << "\" src=\"" << uri << "\">";
+      o << "</div>";
+    }
     o << "</td></tr>";
   }
   o << "</tbody></table>";
@@ -462,7 +471,7 @@ std::string render_html(const json& report, const Thumbnails& thumbs, const std:
     << " px, smallest class " << esc(st.value("min_class", json(0))) << ", imbalance limit "
     << esc(st.value("max_imbalance", json(0))) << "</p></header><main>\n";
   tiles(o, object_at(report, "totals"));
-  findings(o, report, finding_paths);
+  findings(o, report, finding_paths, thumbs);
   classes(o, report);
   groups(o, report, thumbs);
   mask_pairs(o, report, thumbs);

@@ -197,6 +197,21 @@ class ColourThumbnails(AuditedPage):
             checked += 1
         self.assertGreaterEqual(checked, 8)
 
+    def test_flagged_frames_are_pictured_in_their_findings(self):
+        # The demo's blank, dark and blurred frames: each quality finding's row shows
+        # its images, the blank one nearly flat in the picture too.
+        import io
+        from PIL import Image
+        for code, paths in (("near-uniform", ["gingham/swatch_093.jpg"]), ("underexposed", ["polka_dots/swatch_093.jpg"]),
+                            ("unsharp", ["houndstooth/swatch_095.jpg", "polka_dots/swatch_093.jpg"])):
+            row = re.search(r'<tr data-sev="[^"]*" data-code="' + code + r'".*?</tr>', self.html, re.S).group(0)
+            shown = re.findall(r'<img alt="" width="64" height="64" title="([^"]+)" src="data:image/jpeg;base64,([^"]+)"', row)
+            self.assertEqual([p for p, _ in shown], paths, code)
+            if code == "near-uniform":
+                im = Image.open(io.BytesIO(base64.b64decode(shown[0][1]))).convert("L")
+                lo, hi = im.getextrema()
+                self.assertLessEqual(hi - lo, 6)
+
     def test_masks_are_drawn_over_their_images(self):
         from PIL import Image
         masks = self.html[self.html.index('<section id="masks">'):]

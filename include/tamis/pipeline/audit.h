@@ -116,7 +116,9 @@ AuditIndex read_tree(const TreeSettings& settings);
 // masks then labels from r.records and r.settings.masks;
 void pair_and_label(AuditIndex& r, StageClock& clock);
 // the records whose thumbnails the outputs may show (group members, images
-// paired with masks and their masks; may repeat);
+// paired with masks and their masks, and the first kFloorCandidatesKept images
+// in path order that meet each quality floor, checks.h; may repeat);
+inline constexpr unsigned kFloorCandidatesKept = 64;
 std::vector<uint32_t> shown_records(const AuditIndex& r);
 // the totals from the records' kinds.
 void count_totals(AuditIndex& r);

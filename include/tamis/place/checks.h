@@ -28,6 +28,16 @@ struct CheckSettings {
   double outlier_z = 3.5;          // robust z-score beyond which a value is unusual for its class
 };
 
+// The absolute floors of the exposure, information and focus checks (docs/checks.md).
+// The policy sets only the z cut, so an image can be flagged near-uniform,
+// underexposed, overexposed, low-entropy or unsharp only when it meets its floor.
+inline constexpr double kFlatContrast = 3.0;  // luminance spread under this: near-uniform
+inline constexpr double kDarkMean = 30.0, kBrightMean = 225.0, kLowEntropy = 3.0, kUnsharpFocus = 100.0;
+// The codes above, in order; and which of their floors a readable image meets
+// (bit k for kFloorCodes[k]; 0 for any other record).
+inline constexpr const char* kFloorCodes[] = {"near-uniform", "underexposed", "overexposed", "low-entropy", "unsharp"};
+unsigned quality_floors_met(const FileRecord& r);
+
 // One `unreadable` finding per reason (error), one `no-label` (warning) for
 // images directly in ROOT, one `link-not-followed` (info) and one
 // `folder-unreadable` (warning) when the walk met such.

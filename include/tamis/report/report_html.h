@@ -24,8 +24,11 @@ namespace tamis {
 // Escapes & < > " ' for use in HTML text and attribute values.
 std::string html_escape(std::string_view s);
 
-// Small pictures of group members: group id -> (path, "data:image/jpeg;base64,…").
+// Small pictures: group id, "#masks" (image with its mask drawn over it, then the
+// mask, pair by pair) or "#flag:CODE" (the first images a quality finding names)
+// -> (path, "data:image/jpeg;base64,…").
 using Thumbnails = std::map<std::string, std::vector<std::pair<std::string, std::string>>>;
+inline constexpr size_t kFlaggedShown = 6;  // pictures of a quality finding's images
 
 // Renders the page from the report JSON (so the page never shows a number the
 // JSON does not hold) and the group thumbnails. A report made without the
