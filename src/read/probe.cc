@@ -9,6 +9,7 @@
 #include <string>
 
 #include "tamis/base/byte_reader.h"
+#include "tamis/read/decode/pnm_header.h"
 #include "tamis/read/exif.h"
 
 namespace tamis {
@@ -514,37 +515,7 @@ ProbeOutcome probe_tiff(Bytes b) {
 }
 
 // ---------------------------------------------------------------- PNM / PAM
-// Netpbm formats: P1..P6 with whitespace/comment-separated header fields, P7 (PAM).
-struct PnmCursor {
-  Bytes b;
-  size_t off;
-  void skip_space() {
-    while (off < b.size()) {
-      if (b[off] == '#') {
-        while (off < b.size() && b[off] != '\n' && b[off] != '\r') ++off;
-      } else if (std::isspace(b[off])) {
-        ++off;
-      } else {
-        break;
-      }
-    }
-  }
-  std::optional<uint64_t> number() {
-    skip_space();
-    uint64_t v = 0;
-    size_t start = off;
-    while (off < b.size() && std::isdigit(b[off]) && off - start < 10) v = v * 10 + (b[off++] - '0');
-    if (off == start) return std::nullopt;
-    return v;
-  }
-  std::string word() {
-    skip_space();
-    std::string w;
-    while (off < b.size() && !std::isspace(b[off]) && w.size() < 32) w.push_back(static_cast<char>(b[off++]));
-    return w;
-  }
-};
-
+// Netpbm formats (read/decode/pnm_header.h reads the header).
 uint8_t bits_for_maxval(uint64_t maxval) {
   uint8_t bits = 1;
   while (bits < 16 && (uint64_t{1} << bits) - 1 < maxval) ++bits;
@@ -554,54 +525,13 @@ uint8_t bits_for_maxval(uint64_t maxval) {
 ProbeOutcome probe_pnm(Bytes b) {
   ProbeOutcome out;
   out.info.format = Format::pnm;
-  char kind = static_cast<char>(b[1]);
-  PnmCursor c{b, 2};
-  uint64_t w = 0, h = 0, maxval = 1, depth = 1;
-  if (kind == '7') {
-    bool ended = false;
-    std::string tupltype;
-    for (int fields = 0; fields < 64 && c.off < b.size(); ++fields) {
-      std::string key = c.word();
-      if (key == "ENDHDR") {
-        ended = true;
-        break;
-      }
-      if (key == "TUPLTYPE") {
-        tupltype = c.word();
-        continue;
-      }
-      auto v = c.number();
-      if (!v) break;
-      if (key == "WIDTH") w = *v;
-      else if (key == "HEIGHT") h = *v;
-      else if (key == "DEPTH") depth = *v;
-      else if (key == "MAXVAL") maxval = *v;
-    }
-    if (!ended) {
-      out.defect = c.off >= b.size() ? Defect::truncated : Defect::bad_header;
-      return out;
-    }
-    // ENDHDR is followed by one newline.
-    if (c.off < b.size() && b[c.off] == '\n') ++c.off;
-  } else {
-    auto vw = c.number(), vh = c.number();
-    if (!vw || !vh) {
-      out.defect = Defect::truncated;
-      return out;
-    }
-    w = *vw;
-    h = *vh;
-    if (kind != '1' && kind != '4') {
-      auto vm = c.number();
-      if (!vm) {
-        out.defect = Defect::truncated;
-        return out;
-      }
-      maxval = *vm;
-    }
-    if (kind == '3' || kind == '6') depth = 3;
-    if (c.off < b.size()) ++c.off;  // the single whitespace before binary data
+  const PnmHeader ph = read_pnm_header(b);
+  if (ph.status != PnmHeader::Status::ok) {
+    out.defect = ph.status == PnmHeader::Status::truncated ? Defect::truncated : Defect::bad_header;
+    return out;
   }
+  const char kind = ph.kind;
+  const uint64_t w = ph.width, h = ph.height, maxval = ph.maxval, depth = ph.depth;
   out.info.width = static_cast<uint32_t>(std::min<uint64_t>(w, 0xffffffff));
   out.info.height = static_cast<uint32_t>(std::min<uint64_t>(h, 0xffffffff));
   out.info.bit_depth = (kind == '1' || kind == '4') ? 1 : bits_for_maxval(maxval);
@@ -617,7 +547,7 @@ ProbeOutcome probe_pnm(Bytes b) {
   uint64_t need = 0;
   if (kind == '4') need = ((w + 7) / 8) * h;
   if (kind == '5' || kind == '6' || kind == '7') need = w * h * depth * (maxval > 255 ? 2 : 1);
-  if (need > 0 && b.size() - c.off < need) out.defect = Defect::truncated;
+  if (need > 0 && b.size() - ph.data_at < need) out.defect = Defect::truncated;
   return out;
 }
 

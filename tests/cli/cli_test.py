@@ -1545,6 +1545,73 @@ class Accept(unittest.TestCase):
                 self.assertEqual(run("audit", root, "--out", os.path.join(t, "bad"), "--policy", policy).returncode, 2, bad)
 
 
+class Netpbm(unittest.TestCase):
+    """PGM/PPM samples run to the file's maxval, and a PAM's RGB is red first (Netpbm's
+    own specification). References: Pillow (python3-pil 9.4, which scales PGM and PPM to
+    8 bits against maxval) on libjxl-testdata's flower at every depth from 1 to 8 bits, and
+    pictures the test writes byte by byte with numpy (its own truth) for 10 and 12 bits
+    and for PAM, which Pillow does not read."""
+
+    FLOWER = "/usr/share/libjxl-testdata/jxl/flower"
+
+    def audit_rows(self, root, out):
+        r = run("audit", root, "--out", out, "--no-cache", "--quiet")
+        self.assertIn(r.returncode, (0, 1), r.stderr)
+        return {row["path"]: row for row in csv.DictReader(io.StringIO(read_text(os.path.join(out, "manifest.csv"))))}
+
+    def test_low_and_high_maxval_are_scaled_as_pillow_and_netpbm_say(self):
+        import numpy as np
+        from PIL import Image
+        with tempfile.TemporaryDirectory() as t:
+            root = os.path.join(t, "data")
+            os.makedirs(os.path.join(root, "flower"))
+            names = [f"flower_small.{kind}.depth{d}.{ext}" for kind, ext in (("g", "pgm"), ("rgb", "ppm")) for d in range(1, 9)]
+            for n in names:
+                shutil.copyfile(os.path.join(self.FLOWER, n), os.path.join(root, "flower", n))
+            # 10 and 12 bits, written by the test: a gradient whose 8-bit values it knows.
+            rng = np.random.default_rng(5)
+            os.makedirs(os.path.join(root, "deep"))
+            expected = {}
+            for maxval in (1023, 4095):
+                v = (np.linspace(0, maxval, 64 * 48).reshape(48, 64) * rng.uniform(0.3, 1.0)).astype(">u2")
+                with open(os.path.join(root, "deep", f"g{maxval}.pgm"), "wb") as f:
+                    f.write(f"P5\n64 48\n{maxval}\n".encode() + v.tobytes())
+                expected[f"deep/g{maxval}.pgm"] = float(np.floor(v.astype(float) * 255 / maxval + 0.5).mean())
+            rows = self.audit_rows(root, os.path.join(t, "o"))
+            for n in names:
+                with Image.open(os.path.join(self.FLOWER, n)) as im:
+                    want = float(np.asarray(im.convert("L"), dtype=float).mean())
+                got = float(rows["flower/" + n]["brightness"])
+                self.assertLess(abs(got - want), 1.0, (n, got, want))  # the reduced image's mean against Pillow's
+                self.assertNotIn("near-uniform", rows["flower/" + n]["finding_codes"], n)
+            for path, want in expected.items():
+                self.assertLess(abs(float(rows[path]["brightness"]) - want), 0.6, path)
+
+    def test_a_pam_and_a_png_of_one_picture_are_one_group_with_its_colours(self):
+        import numpy as np
+        from PIL import Image
+        with tempfile.TemporaryDirectory() as t:
+            root = os.path.join(t, "data", "c")
+            os.makedirs(root)
+            a = np.zeros((64, 64, 3), np.uint8)
+            a[...] = (220, 40, 30)
+            a[20:40, 20:40] = (30, 60, 200)
+            Image.fromarray(a).save(os.path.join(root, "red.png"))
+            def pam(name, arr, tupltype, maxval=255):
+                h, w, d = arr.shape
+                data = arr.astype(">u2" if maxval > 255 else np.uint8).tobytes()
+                with open(os.path.join(root, name), "wb") as f:
+                    f.write(f"P7\nWIDTH {w}\nHEIGHT {h}\nDEPTH {d}\nMAXVAL {maxval}\nTUPLTYPE {tupltype}\nENDHDR\n".encode() + data)
+            pam("red_rgb.pam", a, "RGB")
+            pam("red_rgba.pam", np.dstack([a, np.full((64, 64), 255, np.uint8)]), "RGB_ALPHA")
+            pam("red_rgba10.pam", np.dstack([a.astype(np.uint32) * 1023 // 255, np.full((64, 64), 1023)]), "RGB_ALPHA", 1023)
+            out = os.path.join(t, "o")
+            rows = self.audit_rows(os.path.join(t, "data"), out)
+            groups = {rows[p]["group"] for p in ("c/red.png", "c/red_rgb.pam", "c/red_rgba.pam", "c/red_rgba10.pam")}
+            self.assertEqual(len(groups), 1)
+            self.assertNotEqual(groups, {""})
+            self.assertNotIn("transparency", rows["c/red_rgba10.pam"]["finding_codes"])  # alpha against maxval too
+
 class Cache(unittest.TestCase):
     def test_a_killed_run_then_a_clean_rerun_gives_identical_outputs(self):
         import signal

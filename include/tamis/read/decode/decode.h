@@ -44,8 +44,9 @@ namespace tamis {
 // rule, a decoder path); the cache's settings key carries it, so records decoded
 // by older rules are never reused. 2: block reduction above 2^24 pixels; 3:
 // images with alpha judged as laid over a plain ground, GIF transparency read,
-// 16-bit colour taken to 8 bits against the top of the bits it uses.
-inline constexpr int kDecodeRules = 3;
+// 16-bit colour taken to 8 bits against the top of the bits it uses; 4: PNM
+// samples taken to 8 bits against the file's maxval, a PAM's RGB read red first.
+inline constexpr int kDecodeRules = 4;
 
 struct DecodeLimits {
   uint64_t max_pixels = 200'000'000;        // width * height claimed by the header (--max-pixels)
