@@ -1612,6 +1612,50 @@ class Netpbm(unittest.TestCase):
             self.assertNotEqual(groups, {""})
             self.assertNotIn("transparency", rows["c/red_rgba10.pam"]["finding_codes"])  # alpha against maxval too
 
+class PixelsAgreeWithPillow(unittest.TestCase):
+    """Every opaque image that Pillow (python3-pil, the reference decoder) reads in
+    Debian's libjxl-testdata and visp-images-data: the mean luminance tamis measures
+    (manifest `brightness`, on its reduced image) is Pillow's (ITU-R 601 'L', 16-bit
+    gray as round(v / 257)) within 1.5 levels. Found two decoder defects when first
+    run (Netpbm maxval, a brightening rule for 16-bit samples)."""
+
+    def check_tree(self, root):
+        import numpy as np
+        from PIL import Image
+        with tempfile.TemporaryDirectory() as t:
+            r = run("audit", root, "--out", os.path.join(t, "o"), "--no-cache", "--quiet")
+            self.assertIn(r.returncode, (0, 1), r.stderr)
+            rows = csv.DictReader(io.StringIO(read_text(os.path.join(t, "o", "manifest.csv"))))
+            compared, far = 0, []
+            for row in rows:
+                if row["brightness"] == "" or row["color_mode"] in ("rgba", "graya"):
+                    continue
+                try:
+                    with Image.open(os.path.join(root, row["path"])) as im:
+                        if "transparency" in im.info:
+                            continue
+                        if im.mode in ("I;16", "I;16B", "I"):
+                            lum = np.floor(np.asarray(im, dtype=float) / 257 + 0.5)
+                        else:
+                            lum = np.asarray(im.convert("RGB").convert("L"), dtype=float)
+                except Exception:  # a file Pillow does not read is no reference
+                    continue
+                compared += 1
+                if abs(float(row["brightness"]) - float(lum.mean())) > 1.5:
+                    far.append((row["path"], row["brightness"], round(float(lum.mean()), 1)))
+            return compared, far
+
+    def test_libjxl_testdata(self):
+        compared, far = self.check_tree("/usr/share/libjxl-testdata")
+        self.assertGreaterEqual(compared, 100)
+        self.assertEqual(far, [])
+
+    def test_visp_images(self):
+        compared, far = self.check_tree("/usr/share/visp-images-data/ViSP-images")
+        self.assertGreaterEqual(compared, 900)
+        self.assertEqual(far, [])
+
+
 class Cache(unittest.TestCase):
     def test_a_killed_run_then_a_clean_rerun_gives_identical_outputs(self):
         import signal

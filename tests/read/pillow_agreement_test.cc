@@ -120,11 +120,14 @@ TEST_CASE("images with alpha are judged as Pillow lays them over a plain ground"
   CHECK(checked == 7);
 }
 
-// 16-bit samples that use fewer bits are taken to 8 bits against the top of
-// the bits they use (decode_internal.h deep_top); the fixture computes the
-// reference with numpy. Before, 8-bit values in a 16-bit TIFF became a flat
-// black picture (scikit-image's chessboard_GRAY_U16.tif was near-uniform).
-TEST_CASE("16-bit samples of fewer bits are read against their own top", "[decode][deep][pillow]") {
+// 16-bit samples that use fewer bits are taken to 8 bits against 65535, as the
+// PNG specification and the loaders (Pillow, OpenCV, TensorFlow) take them: a
+// 12-bit camera's picture is dark, 8-bit values in a 16-bit TIFF a black one,
+// which is what a model would be trained on. The fixture computes the reference
+// with numpy. (From 2026-12-03 to 12-04 tamis read them against the top of the
+// bits they use, which brightened dark 16-bit photographs whose samples stay
+// under 32768, such as libjxl-testdata's linear-light PNGs, by up to 132 levels.)
+TEST_CASE("16-bit samples of fewer bits are read against 65535, as loaders read them", "[decode][deep][pillow]") {
   const int checked = for_each_reference("deep", [](const Decoded& d, const std::string& reference) {
     cv::Mat ref = cv::imread(reference, cv::IMREAD_GRAYSCALE);
     REQUIRE(!ref.empty());

@@ -93,22 +93,14 @@ cv::Mat pnm_to_8bit(const cv::Mat& m, uint32_t maxval) {
 
 cv::Mat to_8bit(const cv::Mat& m) {
   if (m.depth() == CV_8U) return m;
-  if (m.depth() == CV_16U) {  // against the top of the bits the colour uses (deep_top)
+  if (m.depth() == CV_16U) {  // against 65535 (Deep samples, decode_internal.h)
     const int ch = m.channels();
-    const bool alpha = ch == 2 || ch == 4;
-    uint32_t colour_max = 0;
-    for (int y = 0; y < m.rows; ++y) {
-      const uint16_t* s = m.ptr<uint16_t>(y);
-      for (int x = 0; x < m.cols; ++x, s += ch)
-        for (int c = 0; c < ch - (alpha ? 1 : 0); ++c) colour_max = std::max<uint32_t>(colour_max, s[c]);
-    }
-    const uint32_t top = deep_top(colour_max);
     cv::Mat out(m.rows, m.cols, CV_8UC(ch));
+    const size_t n = size_t(m.cols) * size_t(ch);
     for (int y = 0; y < m.rows; ++y) {
       const uint16_t* s = m.ptr<uint16_t>(y);
       uint8_t* d = out.ptr<uint8_t>(y);
-      for (int x = 0; x < m.cols; ++x, s += ch, d += ch)
-        for (int c = 0; c < ch; ++c) d[c] = deep_to_8(s[c], alpha && c == ch - 1 ? 65535 : top);
+      for (size_t i = 0; i < n; ++i) d[i] = deep_to_8(s[i], 65535);
     }
     return out;
   }

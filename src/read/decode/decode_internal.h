@@ -115,19 +115,13 @@ class BoxReducer {
   cv::Mat out_;
 };
 
-// Deep samples at 8 bits (docs/decoding.md, Deep samples). 16-bit colour is
-// taken to 8 bits against the top of the bits it uses: 65535 when its largest
-// sample reaches 32768, else 2^b - 1 for the b bits of the largest sample (a
-// 12-bit camera's 0..4095, or 8-bit values kept in 16-bit samples, are not
-// squeezed into the 16 darkest levels, or into one). Alpha is always taken
-// against 65535. Full range: (v + 128) / 257, which is OpenCV's rounding of
-// v / 257 for every v (257 is odd, so v / 257 never ends in exactly .5).
-inline uint32_t deep_top(uint32_t colour_max) {
-  if (colour_max >= 32768) return 65535;
-  uint32_t top = 0;
-  while (top < colour_max) top = top * 2 + 1;
-  return top;
-}
+// Deep samples at 8 bits (docs/decoding.md, Deep samples): v against `top`,
+// the largest value the format gives a sample: 65535 for 16-bit PNG and TIFF
+// (as the PNG specification, Pillow, OpenCV and TensorFlow's loaders take them:
+// a picture that uses only the low bits is dark for them, and for tamis), a PNM's
+// maxval. Against 65535: (v + 128) / 257, which is OpenCV's rounding of v / 257
+// for every v (257 is odd, so v / 257 never ends in exactly .5); else
+// round(v 255 / top) half up.
 inline uint8_t deep_to_8(uint32_t v, uint32_t top) {
   if (top == 65535) return static_cast<uint8_t>((v + 128) / 257);
   if (top == 0) return 0;

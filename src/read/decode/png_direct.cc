@@ -189,15 +189,13 @@ bool detail::decode_png_streamed(std::span<const uint8_t> b, const ProbeInfo& pr
   const size_t bps = probe.bit_depth / 8, w = probe.width, h = probe.height;
   const size_t stride = w * size_t(in_ch) * bps;
   const bool has_alpha = in_ch == 2 || in_ch == 4;
-  // One pass over the rows, 16-bit colour samples taken to 8 bits against `top`
-  // (deep_to_8; alpha always against 65535); the largest colour sample is kept.
-  auto pass = [&](uint32_t top, uint32_t& colour_max) -> bool {
+  // One pass over the rows, 16-bit samples taken to 8 bits against 65535 (deep_to_8).
+  auto pass = [&]() -> bool {
     ZStream zs;
     if (!zs.ok) return false;
     std::vector<uint8_t> cur(stride + 1), prev(stride, 0), row8(w * size_t(out_ch));
     DistinctCounter distinct(65);
     uint8_t alpha_min = 255;
-    colour_max = 0;
     BoxReducer box(probe.width, probe.height, out_ch, box_factor(w, h, side));
     size_t part = 0;
     bool ended = false;
@@ -207,14 +205,9 @@ bool detail::decode_png_streamed(std::span<const uint8_t> b, const ProbeInfo& pr
       const uint8_t* s = cur.data() + 1;
       uint8_t* d = row8.data();
       auto colour = [&](size_t i) -> uint8_t {
-        if (bps == 1) return s[i];
-        const uint32_t v = (unsigned{s[2 * i]} << 8) | s[2 * i + 1];  // big-endian
-        colour_max = std::max(colour_max, v);
-        return deep_to_8(v, top);
+        return bps == 1 ? s[i] : deep_to_8((unsigned{s[2 * i]} << 8) | s[2 * i + 1], 65535);  // big-endian
       };
-      auto alpha = [&](size_t i) -> uint8_t {
-        return bps == 1 ? s[i] : deep_to_8((unsigned{s[2 * i]} << 8) | s[2 * i + 1], 65535);
-      };
+      auto alpha = colour;
       for (size_t x = 0; x < w; ++x, d += out_ch) {
         const size_t i = x * size_t(in_ch);
         switch (in_ch) {
@@ -242,12 +235,7 @@ bool detail::decode_png_streamed(std::span<const uint8_t> b, const ProbeInfo& pr
     out.distinct = static_cast<uint8_t>(distinct.count());
     return true;
   };
-  uint32_t colour_max = 0;
-  if (!pass(65535, colour_max)) return false;
-  const uint32_t top = deep_top(colour_max);
-  if (bps == 1 || top == 65535) return true;
-  // 16-bit samples that use fewer bits: a second pass, against their own top.
-  return pass(top, colour_max);
+  return pass();
 }
 
 bool decode_png_direct(std::span<const uint8_t> b, const ProbeInfo& probe, cv::Mat& out) {

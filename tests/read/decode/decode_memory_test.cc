@@ -146,8 +146,7 @@ TEST_CASE("a large PNG decoded row by row equals libpng's decode, reduced by the
       {"RGB 16", 2, 16, 3, 0, 1, 1101, 1100},       {"grey+alpha 16", 4, 16, 2, 0, 1, 700, 703},
       {"RGBA 16", 6, 16, 4, 0, 2, 640, 777},        {"grey 16", 0, 16, 1, 0, 4, 3000, 300},
       {"few grey levels (a mask)", 0, 8, 1, 3, 1, 1500, 1200},
-      // 16-bit colour of fewer bits (a 12-bit camera, 8-bit values kept in 16 bits):
-      // the streamed path's second pass against the colour's own top.
+      // 16-bit colour of fewer bits (a 12-bit camera, 8-bit values kept in 16 bits).
       {"grey 16 of 12 bits", 0, 16, 1, 0, 2, 1100, 900, 12}, {"RGBA 16 of 8 bits", 6, 16, 4, 0, 1, 700, 640, 8},
   };
   for (const Case& c : cases) {

@@ -45,7 +45,8 @@ namespace tamis {
 // by older rules are never reused. 2: block reduction above 2^24 pixels; 3:
 // images with alpha judged as laid over a plain ground, GIF transparency read,
 // 16-bit colour taken to 8 bits against the top of the bits it uses; 4: PNM
-// samples taken to 8 bits against the file's maxval, a PAM's RGB read red first.
+// samples taken to 8 bits against the file's maxval, a PAM's RGB read red first,
+// and 16-bit PNG and TIFF colour against 65535 again (as loaders read it).
 inline constexpr int kDecodeRules = 4;
 
 struct DecodeLimits {
