@@ -349,13 +349,13 @@ size_t write_demo(const std::filesystem::path& dir) {
   // Files that are not what they say: a truncated JPEG (the upload stopped
   // halfway) and a text file named like an image.
   {
-    const std::string& whole = bytes_of(fs::path("gingham") / name(3, "jpg"));
+    // (swatch 003 upside down, so that what is left of it copies no other file)
     std::vector<uint8_t> copy;
     cv::Mat again = kept["gingham3"].clone();
     cv::flip(again, again, 0);
     opencv_imencode(".jpg", again, copy, jpeg);
-    save_text(files, fs::path("gingham") / name(91, "jpg"), std::string(copy.begin(), copy.begin() + static_cast<std::ptrdiff_t>(copy.size() / 2)));
-    (void)whole;
+    save_text(files, fs::path("gingham") / name(91, "jpg"),
+              std::string(copy.begin(), copy.begin() + static_cast<std::ptrdiff_t>(copy.size() / 2)));
   }
   save_text(files, fs::path("pinstripe") / name(92, "png"), "shot list for the pinstripe session: 36 swatches, north light\n");
   // Storage: a valid JPEG in 4:1:1 sampling (no finding: it is read), gray
