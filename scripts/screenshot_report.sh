@@ -10,7 +10,10 @@ tamis="$here/build/tamis"
 [ -x "$tamis" ] || { echo "screenshot: build tamis first (bash scripts/setup.sh demo)" >&2; exit 2; }
 browser="$(command -v chromium || true)"
 [ -n "$browser" ] || { echo "screenshot: chromium is not installed (apt-get install chromium)" >&2; exit 2; }
-work="$(mktemp -d)"
+# A fixed folder, so that the page's header names the same ROOT on every run.
+work="${TMPDIR:-/tmp}/tamis-screenshot"
+rm -rf "$work"
+mkdir -p "$work"
 trap 'rm -rf "$work"' EXIT
 "$tamis" demo "$work/swatches" >/dev/null
 # Exit 1 is expected: the demo is built to have problems.
