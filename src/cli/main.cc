@@ -50,6 +50,9 @@ std::string safe(std::string_view text) {
   return out;
 }
 
+// An error as the user reads it: "tamis: " and a plain sentence (base/errors.h).
+void say(const std::exception& e) { std::fprintf(stderr, "tamis: %s\n", safe(tamis::plain_message(e)).c_str()); }
+
 // Help that a person can act on: each option's value is named by what it is
 // (DIR, FILE, N, K/N, a list of choices), never by the parser's type and range
 // ("UINT:UINT in [0 - 1024]"); a required option says so in words.
@@ -110,6 +113,13 @@ struct CommonOptions {
   uint64_t thumbnail_memory_mb = tamis::ReadOptions{}.thumbnail_memory_bytes >> 20;
 };
 
+// The progress the options ask for: shown when stderr is a terminal or with
+// --progress, never with --quiet or --no-progress (progress.h).
+tamis::cli::ProgressLine progress_for(const CommonOptions& o) {
+  const bool terminal = tamis::cli::ProgressLine::stderr_is_terminal();
+  return tamis::cli::ProgressLine(!o.quiet && !o.no_progress && (o.progress || terminal), terminal);
+}
+
 void add_mask_options(CLI::App* cmd, CommonOptions& o) {
   cmd->add_option("--mask-folder", o.mask_folders, "a folder (relative to ROOT) that holds masks, whatever its pixels say");
   cmd->add_option("--not-mask-folder", o.not_mask_folders, "a folder (relative to ROOT) that never holds masks");
@@ -163,7 +173,7 @@ bool resolve_judge(const JudgeOptions& o, tamis::Policy& policy, tamis::Baseline
     try {
       baseline = tamis::load_baseline(o.baseline);
     } catch (const std::exception& e) {
-      std::fprintf(stderr, "tamis: %s\n", safe(tamis::plain_message(e)).c_str());
+      say(e);
       return false;
     }
   }
@@ -247,7 +257,7 @@ bool resolve_classes(const SplitOptions& o, const tamis::Policy& policy, tamis::
   try {
     tamis::validate_class_map(map);
   } catch (const std::invalid_argument& e) {
-    std::fprintf(stderr, "tamis: %s\n", safe(tamis::plain_message(e)).c_str());
+    say(e);
     return false;
   }
   return true;
@@ -258,7 +268,7 @@ bool resolve_split(const SplitOptions& o, tamis::SplitSettings& s, tamis::KeepMa
   try {
     s.percent = tamis::parse_split_spec(o.spec);
   } catch (const std::invalid_argument& e) {
-    std::fprintf(stderr, "tamis: %s\n", safe(tamis::plain_message(e)).c_str());
+    say(e);
     return false;
   }
   s.seed = o.seed;
@@ -418,10 +428,10 @@ int finish(tamis::AuditResult& result, const std::string& out, const JudgeOption
   try {
     tamis::write_outputs(out, result, jo.thumbnails_kb * 1024, timings ? &result.times : nullptr, jo.junit);
   } catch (const tamis::InsideRootError& e) {
-    std::fprintf(stderr, "tamis: %s\n", safe(tamis::plain_message(e)).c_str());
+    say(e);
     return kExitBadUsage;
   } catch (const std::exception& e) {
-    std::fprintf(stderr, "tamis: %s\n", safe(tamis::plain_message(e)).c_str());
+    say(e);
     return kExitCannotRun;
   }
   if (!quiet) print_summary(result, out, jo.format);
@@ -501,7 +511,7 @@ int run_audit_command(const std::string& root, const std::string& out, const Spl
     if (!jo.junit.empty()) tamis::refuse_inside_root(root, jo.junit, "--junit");
     if (!o.cache.empty()) tamis::refuse_inside_root(root, o.cache, "--cache");
   } catch (const tamis::InsideRootError& e) {
-    std::fprintf(stderr, "tamis: %s\n", safe(tamis::plain_message(e)).c_str());
+    say(e);
     return kExitBadUsage;
   }
   std::error_code ec;
@@ -509,8 +519,7 @@ int run_audit_command(const std::string& root, const std::string& out, const Spl
     std::fprintf(stderr, "tamis: ROOT %s is not a readable folder\n", root.c_str());
     return kExitCannotRun;
   }
-  const bool terminal = tamis::cli::ProgressLine::stderr_is_terminal();
-  tamis::cli::ProgressLine progress(!o.quiet && !o.no_progress && (o.progress || terminal), terminal);
+  tamis::cli::ProgressLine progress = progress_for(o);
   settings.read.on_progress = [&progress](size_t done, size_t total) { progress.update(done, total); };
   tamis::AuditResult result;
   try {
@@ -519,7 +528,7 @@ int run_audit_command(const std::string& root, const std::string& out, const Spl
     if (!result.cache_note.empty() && !o.quiet) std::fprintf(stderr, "tamis: %s\n", safe(result.cache_note).c_str());
   } catch (const std::exception& e) {
     progress.finish();
-    std::fprintf(stderr, "tamis: %s\n", safe(tamis::plain_message(e)).c_str());
+    say(e);
     return kExitCannotRun;
   }
   return finish(result, out, jo, o.quiet, o.timings);
@@ -544,21 +553,21 @@ int run_split_command(const std::string& dir, const std::string& out, const Spli
   try {
     index = tamis::load_index(std::filesystem::path(dir) / tamis::kIndexFileName);
   } catch (const std::exception& e) {
-    std::fprintf(stderr, "tamis: %s\n", safe(tamis::plain_message(e)).c_str());
+    say(e);
     return kExitCannotRun;
   }
   try {  // early, before the split: the output layer checks again when it writes
     tamis::refuse_inside_root(index.settings.root, out, "--out");
     if (!jo.junit.empty()) tamis::refuse_inside_root(index.settings.root, jo.junit, "--junit");
   } catch (const tamis::InsideRootError& e) {
-    std::fprintf(stderr, "tamis: %s\n", safe(tamis::plain_message(e)).c_str());
+    say(e);
     return kExitBadUsage;
   }
   tamis::AuditResult result;
   try {
     result = tamis::place(std::move(index), place);
   } catch (const std::exception& e) {
-    std::fprintf(stderr, "tamis: %s\n", safe(tamis::plain_message(e)).c_str());
+    say(e);
     return kExitCannotRun;
   }
   return finish(result, out, jo, quiet, false);
@@ -575,10 +584,10 @@ int run_export_command(const std::string& dir, const std::string& tree, const st
   try {
     r = tamis::export_tree(s);
   } catch (const tamis::ExportError& e) {
-    std::fprintf(stderr, "tamis: %s\n", safe(tamis::plain_message(e)).c_str());
+    say(e);
     return e.exit_status;
   } catch (const std::exception& e) {
-    std::fprintf(stderr, "tamis: %s\n", safe(tamis::plain_message(e)).c_str());
+    say(e);
     return kExitCannotRun;
   }
   if (quiet) return 0;
@@ -604,7 +613,7 @@ int run_export_command(const std::string& dir, const std::string& tree, const st
 // mend in the command (an output inside ROOT, a set of parts or join outputs
 // the merge refuses), 3 for a run that could not be done.
 int failed(const std::exception& e) {
-  std::fprintf(stderr, "tamis: %s\n", safe(tamis::plain_message(e)).c_str());
+  say(e);
   const bool usage = dynamic_cast<const tamis::InsideRootError*>(&e) || dynamic_cast<const tamis::MergeError*>(&e) ||
                      dynamic_cast<const tamis::JoinFileError*>(&e);
   return usage ? kExitBadUsage : kExitCannotRun;
@@ -664,8 +673,7 @@ int run_scan_command(const std::string& root, const std::string& out, const std:
     std::fprintf(stderr, "tamis: ROOT %s is not a readable folder\n", root.c_str());
     return kExitCannotRun;
   }
-  const bool terminal = tamis::cli::ProgressLine::stderr_is_terminal();
-  tamis::cli::ProgressLine progress(!o.quiet && !o.no_progress && (o.progress || terminal), terminal);
+  tamis::cli::ProgressLine progress = progress_for(o);
   settings.read.on_progress = [&progress](size_t done, size_t total) { progress.update(done, total); };
   std::vector<tamis::StageTime> times;
   tamis::ScanPart part;
@@ -926,7 +934,7 @@ int main(int argc, char** argv) {
       std::fprintf(stderr, "tamis: %s\n", safe(e.what()).c_str());
       return kExitBadUsage;
     } catch (const std::exception& e) {
-      std::fprintf(stderr, "tamis: %s\n", safe(tamis::plain_message(e)).c_str());
+      say(e);
       return kExitCannotRun;
     }
   }

@@ -185,6 +185,18 @@ void findings(std::ostringstream& o, const json& report, const std::vector<Findi
   o << "</select></label><label>class <select id=\"f-class\"><option value=\"\">all</option>";
   for (const auto& c : classes) o << "<option>" << html_escape(c) << "</option>";
   o << "</select></label><span class=\"note\" id=\"f-count\"></span></div>";
+  // A finding's paths: from the findings themselves when given (the report then
+  // holds none), else from the JSON, copied into `buffer`.
+  auto listed = [&](size_t row) -> const std::vector<std::string>* {
+    return finding_list && row < finding_list->size() && !fs[row].contains("paths") ? &(*finding_list)[row].paths : nullptr;
+  };
+  auto paths_of = [&](size_t row, std::vector<std::string>& buffer) -> const std::vector<std::string>& {
+    if (const auto* list = listed(row)) return *list;
+    buffer.clear();
+    for (const auto& p : array_at(fs[row], "paths")) buffer.push_back(str(p));
+    return buffer;
+  };
+  auto rank_of = [](const std::string& sev) { return sev == "error" ? 0 : sev == "warning" ? 1 : 2; };
   // Each code once, errors first: how many findings and files; a click shows all of that code.
   struct Tally {
     int rank = 2;
@@ -196,11 +208,9 @@ void findings(std::ostringstream& o, const json& report, const std::vector<Findi
     const json& f = fs[row];
     Tally& t = tally[str(f.value("code", json("")))];
     t.severity = str(f.value("severity", json("info")));
-    t.rank = std::min(t.rank, t.severity == "error" ? 0 : t.severity == "warning" ? 1 : 2);
+    t.rank = std::min(t.rank, rank_of(t.severity));
     ++t.findings;
-    // The files the findings name (given apart from the JSON when it holds none, as below).
-    t.files += !f.contains("paths") && finding_list && row < finding_list->size() ? (*finding_list)[row].paths.size()
-                                                                                 : array_at(f, "paths").size();
+    t.files += listed(row) ? listed(row)->size() : array_at(f, "paths").size();
   }
   std::vector<std::pair<std::string, Tally>> by_code(tally.begin(), tally.end());
   std::stable_sort(by_code.begin(), by_code.end(), [](const auto& a, const auto& b) { return a.second.rank < b.second.rank; });
@@ -220,15 +230,7 @@ void findings(std::ostringstream& o, const json& report, const std::vector<Findi
     if (shown == kMaxRows) break;
     const size_t row = shown++;
     std::string sev = str(f.value("severity", json("info")));
-    // The paths from the findings themselves when given (the report then holds none).
-    const std::vector<std::string>* list = &from_json;
-    if (finding_list && row < finding_list->size() && !f.contains("paths")) {
-      list = &(*finding_list)[row].paths;
-    } else {
-      from_json.clear();
-      for (const auto& p : array_at(f, "paths")) from_json.push_back(str(p));
-    }
-    const std::vector<std::string>& paths = *list;
+    const std::vector<std::string>& paths = paths_of(row, from_json);
     std::set<std::string> row_classes;
     for (const auto& p : paths) {
       std::string c = class_of_path(p, pre_split);
@@ -240,7 +242,7 @@ void findings(std::ostringstream& o, const json& report, const std::vector<Findi
       for (const auto& l : details["labels"]) if (l.is_string()) row_classes.insert(l.get<std::string>());
     std::string cls_attr;
     for (const auto& c : row_classes) cls_attr += "\x1f" + c;
-    int rank = sev == "error" ? 0 : sev == "warning" ? 1 : 2;
+    const int rank = rank_of(sev);
     o << "<tr data-sev=\"" << html_escape(sev) << "\" data-code=\"" << esc(f.value("code", json(""))) << "\" data-classes=\""
       << html_escape(cls_attr + "\x1f") << "\" data-k0=\"" << rank << "\" data-k3=\"" << paths.size() << "\">"
       << "<td><span class=\"sev " << html_escape(sev) << "\">" << html_escape(sev) << "</span>";

@@ -68,39 +68,26 @@ cv::Mat detail::flatten_alpha(const cv::Mat& m) {
 
 namespace {
 
-// PNM samples run from 0 to the file's maxval (Netpbm), which OpenCV passes on
-// as they are: a PGM of maxval 1, 3 or 1023 is taken to 8 bits against that
-// maxval, every channel (a PAM's alpha too), rounded half up: round(v * 255 /
-// maxval), as Pillow scales PGM and PPM (samples above maxval count as maxval).
-cv::Mat pnm_to_8bit(const cv::Mat& m, uint32_t maxval) {
-  if (maxval == 0 || (maxval == 255 && m.depth() == CV_8U) || (maxval == 65535 && m.depth() == CV_16U) ||
-      (m.depth() != CV_8U && m.depth() != CV_16U))
-    return m;  // full range (to_8bit takes 16 bits of 65535 down), a bitmap, or not a PNM's layout
-  cv::Mat out(m.rows, m.cols, CV_8UC(m.channels()));
-  const size_t n = size_t(m.cols) * size_t(m.channels());
-  for (int y = 0; y < m.rows; ++y) {
-    uint8_t* d = out.ptr<uint8_t>(y);
-    if (m.depth() == CV_8U) {
-      const uint8_t* s = m.ptr<uint8_t>(y);
-      for (size_t i = 0; i < n; ++i) d[i] = deep_to_8(s[i], maxval);
-    } else {
-      const uint16_t* s = m.ptr<uint16_t>(y);
-      for (size_t i = 0; i < n; ++i) d[i] = deep_to_8(s[i], maxval);
-    }
-  }
-  return out;
-}
-
-cv::Mat to_8bit(const cv::Mat& m) {
-  if (m.depth() == CV_8U) return m;
-  if (m.depth() == CV_16U) {  // against 65535 (Deep samples, decode_internal.h)
-    const int ch = m.channels();
-    cv::Mat out(m.rows, m.cols, CV_8UC(ch));
-    const size_t n = size_t(m.cols) * size_t(ch);
+// Samples to 8 bits against `top`, the largest value the format gives a sample
+// (decode_internal.h deep_to_8): 65535 for 16-bit PNG and TIFF (Deep samples),
+// 255 for 8-bit ones (left as they are), a PNM's maxval (Netpbm: OpenCV passes
+// PNM samples on unscaled, so a PGM of maxval 1, 3 or 1023 is taken down against
+// that maxval, every channel, a PAM's alpha too, as Pillow scales PGM and PPM;
+// samples above maxval count as maxval). Other depths: OpenCV's conversion.
+cv::Mat to_8bit(const cv::Mat& m, uint32_t top) {
+  if (m.depth() == CV_8U && top == 255) return m;
+  if (m.depth() == CV_8U || m.depth() == CV_16U) {
+    cv::Mat out(m.rows, m.cols, CV_8UC(m.channels()));
+    const size_t n = size_t(m.cols) * size_t(m.channels());
     for (int y = 0; y < m.rows; ++y) {
-      const uint16_t* s = m.ptr<uint16_t>(y);
       uint8_t* d = out.ptr<uint8_t>(y);
-      for (size_t i = 0; i < n; ++i) d[i] = deep_to_8(s[i], 65535);
+      if (m.depth() == CV_8U) {
+        const uint8_t* s = m.ptr<uint8_t>(y);
+        for (size_t i = 0; i < n; ++i) d[i] = deep_to_8(s[i], top);
+      } else {
+        const uint16_t* s = m.ptr<uint16_t>(y);
+        for (size_t i = 0; i < n; ++i) d[i] = deep_to_8(s[i], top);
+      }
     }
     return out;
   }
@@ -564,17 +551,19 @@ Decoded decode_image(std::span<const uint8_t> b, const ProbeInfo& probe, const D
     out.defect = Defect::bad_header;  // the decoder disagrees with the header
     return out;
   }
+  uint32_t top = m.depth() == CV_16U ? 65535 : 255;
   if (probe.format == Format::pnm) {
     const PnmHeader ph = read_pnm_header(b);
-    if (ph.kind != '1' && ph.kind != '4' && ph.status == PnmHeader::Status::ok && ph.maxval <= 65535)
-      m = pnm_to_8bit(m, static_cast<uint32_t>(ph.maxval));
+    // A bitmap (P1, P4) comes as 0 and 255 already.
+    if (ph.kind != '1' && ph.kind != '4' && ph.status == PnmHeader::Status::ok && ph.maxval >= 1 && ph.maxval <= 65535)
+      top = static_cast<uint32_t>(ph.maxval);
     // OpenCV (4.6) gives a PAM's RGB and RGB_ALPHA tuples in the file's order,
     // red first, where every other path gives blue first: swapped here, so that a
     // PAM and a PNG of one picture have the same colours (a PPM is already BGR).
     if (ph.kind == '7' && (m.channels() == 3 || m.channels() == 4))
       cv::cvtColor(m, m, m.channels() == 3 ? cv::COLOR_RGB2BGR : cv::COLOR_RGBA2BGRA);
   }
-  m = to_8bit(m);
+  m = to_8bit(m, top);
   out.distinct = count_distinct(m, 65);
   if (m.channels() == 2 || m.channels() == 4) {  // judged as it looks over a plain ground
     const int ch = m.channels();
