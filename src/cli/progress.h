@@ -32,9 +32,16 @@ class ProgressLine {
     if (terminal_ ? (done != total && ms - last < 100)
                   : (tenth <= last_tenth_.load(std::memory_order_relaxed) && ms - last < 60000))
       return;
-    std::unique_lock<std::mutex> lock(mutex_, std::try_to_lock);
-    if (!lock.owns_lock()) return;
-    if (!terminal_ && tenth <= last_tenth_ && ms - last_ms_ < 60000) return;  // another thread printed it
+    // On a terminal a busy lock skips the update (the next one redraws the line);
+    // a plain line is due only at a tenth or a minute, and is waited for, so that
+    // the 100% line is never lost to another thread's print.
+    std::unique_lock<std::mutex> lock(mutex_, std::defer_lock);
+    if (terminal_) {
+      if (!lock.try_lock()) return;
+    } else {
+      lock.lock();
+      if (tenth <= last_tenth_ && ms - last_ms_ < 60000) return;  // another thread printed it
+    }
     last_ms_ = ms;
     last_tenth_ = tenth;
     double rate = ms > 0 ? done * 1000.0 / ms : 0.0;
