@@ -43,6 +43,7 @@ int main(int argc, char** argv) {
   GroupSettings gs;
   gs.threads = threads;
   if (argc > 5) gs.join_memory_bytes = std::strtoull(argv[5], nullptr, 10) << 20;
+  if (const char* r = getenv("SCREEN_RADIUS")) gs.screen_radius = std::atof(r);
   std::vector<uint64_t> identity, variants;
   for (const auto& r : records)
     if (r.kind == FileKind::image && r.features.has_lookalike) {
@@ -62,9 +63,11 @@ int main(int argc, char** argv) {
     t0 = Clock::now();
     GroupResult g = find_groups(records, thumbs, gs);
     double t_groups = seconds_since(t0);
-    std::printf("join %.3f s (%zu hits); find_groups %.3f s: %llu candidate hits, %llu confirmed pairs, %zu groups\n",
+    size_t grouped = 0;
+    for (const auto& grp : g.groups) grouped += grp.members.size();
+    std::printf("join %.3f s (%zu hits); find_groups %.3f s: %llu candidate hits, %llu confirmed pairs, %zu groups, %zu images grouped (screen radius %.3f)\n",
                 t_join, hits.size(), t_groups, (unsigned long long)g.candidate_hits,
-                (unsigned long long)g.confirmed_pairs, g.groups.size());
+                (unsigned long long)g.confirmed_pairs, g.groups.size(), grouped, gs.screen_radius);
   }
   return 0;
 }

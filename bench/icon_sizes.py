@@ -6,7 +6,11 @@ for every icon that exists at 48 px, the share of its other sizes in its group.
 The renderings of one icon at two sizes are the same drawing resampled by the
 theme's renderer (with pixel hinting at the small sizes), so each is a copy.
 
-Usage: icon_sizes.py TAMIS WORKDIR
+Usage: icon_sizes.py TAMIS WORKDIR [POLICY]
+
+Also counts the links (joined pairs) between icons of different names: the
+theme draws some names alike (aliases, variants), so these are not all false,
+but a change that raises them joins drawings it should not.
 """
 import collections
 import json
@@ -33,7 +37,8 @@ def main():
                 if f.endswith(".png"):
                     shutil.copyfile(os.path.join(d, f), os.path.join(root, cat, f"{size}_{f}"))
     out = os.path.join(work, "out")
-    subprocess.run([tamis, "audit", root, "--out", out, "--no-cache"], capture_output=True, check=False)
+    policy = ["--policy", sys.argv[3]] if len(sys.argv) > 3 else []
+    subprocess.run([tamis, "audit", root, "--out", out, "--no-cache"] + policy, capture_output=True, check=False)
     report = json.load(open(os.path.join(out, "report.json")))
     group = {}
     for g in report["groups"]:
@@ -55,6 +60,10 @@ def main():
             total[size] += 1
             found[size] += group.get(ref) is not None and group.get(ref) == group.get(path)
     print(f"{sum(len(v) for v in by_icon.values())} icons, {len(report['groups'])} groups")
+    name_of = lambda p: (p.split("/")[0], p.split("/")[1].split("_", 1)[1])
+    links = [l for g in report["groups"] for l in g["links"]]
+    other = [l for l in links if name_of(l["a"]) != name_of(l["b"])]
+    print(f"{len(links)} links, {len(other)} between different icon names")
     for size in SIZES:
         if total[size]:
             print(f"{size} against 48x48: {found[size]}/{total[size]} = {found[size] / total[size]:.3f}")

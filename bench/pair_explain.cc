@@ -4,6 +4,7 @@
 // would pair them (distance <= radius), each measurement of match_thumbnails
 // against the pair's settings (the small-picture rule applied).
 // Usage: pair_explain FILE_A FILE_B
+#include <cmath>
 #include <cstdio>
 #include <stdexcept>
 
@@ -14,6 +15,7 @@
 #include "tamis/relate/groups.h"
 #include "tamis/relate/lookalike_index.h"
 #include "tamis/relate/match.h"
+#include "tamis/relate/screen_join.h"
 
 using namespace tamis;
 
@@ -39,11 +41,20 @@ int main(int argc, char** argv) {
       for (int k = 0; k < bc.count; ++k) std::printf(" %d", bc.steps[k]);
       std::printf("\n");
     }
+    const MatchProfile qa = match_profile(a.thumb), qb = match_profile(b.thumb);
+    {
+      double la = 0, lb = 0;
+      for (int i = 0; i < kScreenCoefficients; ++i) {
+        la += double(qa.low[size_t(i)]) * qa.low[size_t(i)];
+        lb += double(qb.low[size_t(i)]) * qb.low[size_t(i)];
+      }
+      std::printf("screen block length a %.4f b %.4f\n", std::sqrt(la) / 32767, std::sqrt(lb) / 32767);
+    }
     for (int t = 0; t < kDihedralCount; ++t) {
       const int d = hamming(a.phash[t], b.phash[0]);
       const Match m = match_thumbnails(a.thumb, t, b.thumb, ms);
-      std::printf("t%d dist %2d%s corr %.5f (blur %d on %s, fitted %d) local %.4f chroma %.3f chroma_local %.3f -> %s\n",
-                  t, d, d <= gs.radius ? " " : "*", m.correlation, m.blur_step, m.blurred_a ? "a" : "b", int(m.fitted),
+      std::printf("t%d screen %.4f dist %2d%s corr %.5f (blur %d on %s, fitted %d) local %.4f chroma %.3f chroma_local %.3f -> %s\n",
+                  t, std::sqrt(double(screen_distance2(qa, t, qb))) / 32767.0, d, d <= gs.radius ? " " : "*", m.correlation, m.blur_step, m.blurred_a ? "a" : "b", int(m.fitted),
                   m.local, m.chroma, m.chroma_local, m.joined && d <= gs.radius ? "JOINED" : "no");
     }
   } catch (const std::exception& e) {

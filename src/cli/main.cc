@@ -493,6 +493,14 @@ void resolve_cache(const std::string& root, const CommonOptions& o, tamis::TreeS
   if (o.cache.empty() && tamis::path_is_inside(root, settings.cache_file)) settings.cache_file.clear();
 }
 
+// The policy's look-alike settings (the hash and screen radii and the match's
+// thresholds), keeping the run's threads and memory budget.
+void take_lookalike(tamis::GroupSettings& to, const tamis::GroupSettings& from) {
+  to.radius = from.radius;
+  to.screen_radius = from.screen_radius;
+  to.match = from.match;
+}
+
 int run_audit_command(const std::string& root, const std::string& out, const SplitOptions& so,
                       const JudgeOptions& jo, const CommonOptions& o) {
   namespace fs = std::filesystem;
@@ -501,8 +509,7 @@ int run_audit_command(const std::string& root, const std::string& out, const Spl
   Judging judging;
   if (!resolve_judging(so, jo, judging)) return kExitBadUsage;
   tamis::PlaceOptions& place = judging.place;
-  settings.groups.radius = place.policy.lookalike.radius;
-  settings.groups.match = place.policy.lookalike.match;
+  take_lookalike(settings.groups, place.policy.lookalike);
   resolve_cache(root, o, settings);
   if (!resolve_reading(o, settings)) return kExitBadUsage;
   // Early, before a long read: the output layer checks again when it writes.
@@ -715,8 +722,7 @@ bool resolve_lookalike(const std::string& policy_file, tamis::TreeSettings& sett
     std::fprintf(stderr, "tamis: %s (%s)\n", safe(tamis::plain_message(e)).c_str(), policy_file.c_str());
     return false;
   }
-  settings.groups.radius = policy.lookalike.radius;
-  settings.groups.match = policy.lookalike.match;
+  take_lookalike(settings.groups, policy.lookalike);
   return true;
 }
 
@@ -752,8 +758,7 @@ int run_merge_command(const std::vector<std::string>& inputs, const std::string&
   Judging judging;
   if (!resolve_judging(so, jo, judging)) return kExitBadUsage;
   tamis::PlaceOptions& place = judging.place;
-  settings.groups.radius = place.policy.lookalike.radius;
-  settings.groups.match = place.policy.lookalike.match;
+  take_lookalike(settings.groups, place.policy.lookalike);
   if (!resolve_reading(o, settings)) return kExitBadUsage;
   // Parts and join outputs come in one list: each is told by its signature.
   std::vector<std::filesystem::path> part_files;

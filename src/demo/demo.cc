@@ -65,11 +65,16 @@ cv::Mat gingham(SplitMix64& rng, cv::Size size) {
   cv::Mat img(size, CV_8UC3, cv::Scalar(245, 245, 240));
   cv::Scalar c = colour(rng);
   int band = 8 + static_cast<int>(rng.below(10));
+  // Where the checks start, taken from the dye (no draw of its own, so that the
+  // other swatches keep their pixels): two dyes of one weave are two fabrics,
+  // not one picture recoloured, and are cut at different places.
+  const int period = band * 2;
+  const int px = static_cast<int>(c[0] + 3 * c[1]) % period, py = static_cast<int>(c[2] + 5 * c[1]) % period;
   cv::Mat layer = img.clone();
-  for (int x = 0; x < size.width; x += band * 2) cv::rectangle(layer, {x, 0, band, size.height}, c, cv::FILLED);
+  for (int x = px - period; x < size.width; x += period) cv::rectangle(layer, {x, 0, band, size.height}, c, cv::FILLED);
   cv::addWeighted(img, 0.5, layer, 0.5, 0, img);
   layer = img.clone();
-  for (int y = 0; y < size.height; y += band * 2) cv::rectangle(layer, {0, y, size.width, band}, c, cv::FILLED);
+  for (int y = py - period; y < size.height; y += period) cv::rectangle(layer, {0, y, size.width, band}, c, cv::FILLED);
   cv::addWeighted(img, 0.5, layer, 0.5, 0, img);
   return img;
 }

@@ -71,7 +71,8 @@ Policy parse_policy(const std::string& text) {
           p.lookalike.match.max_chroma_local = number_at(v, "lookalike.max_chroma_local", 0, 100);
         else if (name == "fit_floor") p.lookalike.match.fit_floor = number_at(v, "lookalike.fit_floor", 0.5, 1);
         else if (name == "small_side") p.lookalike.match.small_side = number_at(v, "lookalike.small_side", 0, 4096);
-        else throw PolicyError("policy: lookalike." + name + ": no such setting (radius, min_correlation, max_local, max_chroma, max_chroma_local, fit_floor, small_side)");
+        else if (name == "screen_radius") p.lookalike.screen_radius = number_at(v, "lookalike.screen_radius", 0, 0.5);
+        else throw PolicyError("policy: lookalike." + name + ": no such setting (radius, screen_radius, min_correlation, max_local, max_chroma, max_chroma_local, fit_floor, small_side)");
       }
     } else if (key == "exclude_flagged") {
       if (!value.is_array()) throw PolicyError("policy: exclude_flagged must be a list of finding codes");

@@ -8,6 +8,7 @@
 #include "tamis/base/parallel.h"
 #include "tamis/read/features.h"
 #include "tamis/relate/lookalike_index.h"
+#include "tamis/relate/screen_join.h"
 
 namespace tamis {
 
@@ -216,6 +217,15 @@ std::vector<GroupLink> join_lookalikes(const std::vector<FileRecord>& records, c
     }
   }
   out.candidate_hits -= self_hits;
+  // The second key: hits of the screen coefficients that the hash did not give.
+  uint64_t screen_found = 0;
+  const auto screen_hits = screen_join(profile, screen_threshold(settings.screen_radius), settings.threads,
+                                       [&](uint32_t v, uint32_t j) {
+                                         return hamming(records[eligible[v / kDihedralCount]].features.look.phash[v % kDihedralCount],
+                                                        identity[j]) > settings.radius;
+                                       }, keep, &screen_found);
+  out.candidate_hits += screen_found;
+  confirm_hits(screen_hits, thumbs, eligible, profile, allowance, settings, confirmed);
   return confirmed;
 }
 
@@ -317,6 +327,7 @@ std::string group_settings_key(const GroupSettings& s) {
   add(s.match.max_chroma_local);
   add(s.match.fit_floor);
   add(s.match.small_side);
+  add(s.screen_radius);
   return key;
 }
 
@@ -394,6 +405,44 @@ LookalikeLinks join_lookalike_slice(const std::vector<FileRecord>& records, cons
   const size_t hit_budget = std::max<size_t>(size_t{1} << 20, settings.join_memory_bytes / 16);
   size_t batch = std::min(query.size(), std::clamp<size_t>(hit_budget / 64, 256, size_t{1} << 16));
   std::vector<GroupLink> confirmed;
+  // Confirms kept hits (8 * eligible i + t, eligible j), sorted: their images'
+  // thumbnails read in local order (ascending with the eligible order, so a < b
+  // is kept), confirmed as the whole join does; the links go to `confirmed`.
+  auto confirm_kept = [&](std::vector<std::pair<uint32_t, uint32_t>>& kept) {
+    std::vector<uint32_t> local;
+    for (const auto& [v, j] : kept) {
+      local.push_back(v / kDihedralCount);
+      local.push_back(j);
+    }
+    std::sort(local.begin(), local.end());
+    local.erase(std::unique(local.begin(), local.end()), local.end());
+    auto at = [&](uint32_t k) {
+      return static_cast<uint32_t>(std::lower_bound(local.begin(), local.end(), k) - local.begin());
+    };
+    for (auto& [v, j] : kept) {
+      v = at(v / kDihedralCount) * kDihedralCount + v % kDihedralCount;
+      j = at(j);
+    }
+    std::sort(kept.begin(), kept.end());
+    ThumbnailTable thumbs;
+    thumbs.assign_all(local.size());
+    std::vector<MatchProfile> local_profile(local.size());
+    std::vector<float> local_allowance(local.size());
+    read(local, [&](size_t q, const Thumbnail& th) {
+      thumbs.at(q) = th;
+      local_profile[q] = match_profile(th);
+      local_allowance[q] = allowance_of(local[q]);
+    });
+    std::vector<uint32_t> slots(local.size());
+    std::iota(slots.begin(), slots.end(), 0u);
+    std::vector<GroupLink> found_links;
+    confirm_hits(kept, thumbs, slots, local_profile, local_allowance, settings, found_links);
+    for (GroupLink& l : found_links) {  // local -> record indices (both ascend together)
+      l.a = eligible[local[l.a]];
+      l.b = eligible[local[l.b]];
+      confirmed.push_back(l);
+    }
+  };
   std::vector<uint64_t> variants;
   for (size_t first = 0; first < query.size();) {
     const size_t count = std::min(batch, query.size() - first);
@@ -442,45 +491,34 @@ LookalikeLinks join_lookalike_slice(const std::vector<FileRecord>& records, cons
     const size_t batch_hits = hits.size();
     std::vector<std::pair<uint32_t, uint32_t>>().swap(hits);
     std::vector<MatchProfile>().swap(profile);
-    // The kept hits' images, with their thumbnails, in local order (ascending
-    // with the eligible order, so a < b is kept), confirmed as the whole join does.
-    std::vector<uint32_t> local;
-    for (const auto& [v, j] : kept) {
-      local.push_back(v / kDihedralCount);
-      local.push_back(j);
-    }
-    std::sort(local.begin(), local.end());
-    local.erase(std::unique(local.begin(), local.end()), local.end());
-    auto at = [&](uint32_t k) {
-      return static_cast<uint32_t>(std::lower_bound(local.begin(), local.end(), k) - local.begin());
-    };
-    for (auto& [v, j] : kept) {
-      v = at(v / kDihedralCount) * kDihedralCount + v % kDihedralCount;
-      j = at(j);
-    }
-    std::sort(kept.begin(), kept.end());
-    ThumbnailTable thumbs;
-    thumbs.assign_all(local.size());
-    std::vector<MatchProfile> local_profile(local.size());
-    std::vector<float> local_allowance(local.size());
-    read(local, [&](size_t q, const Thumbnail& th) {
-      thumbs.at(q) = th;
-      local_profile[q] = match_profile(th);
-      local_allowance[q] = allowance_of(local[q]);
-    });
-    std::vector<uint32_t> slots(local.size());
-    std::iota(slots.begin(), slots.end(), 0u);
-    std::vector<GroupLink> found_links;
-    confirm_hits(kept, thumbs, slots, local_profile, local_allowance, settings, found_links);
-    for (GroupLink& l : found_links) {  // local -> record indices (both ascend together)
-      l.a = eligible[local[l.a]];
-      l.b = eligible[local[l.b]];
-      confirmed.push_back(l);
-    }
+    confirm_kept(kept);
     first += count;
     // The next batch: as many queries as the budget allows at this batch's rate.
     const double per_query = double(batch_hits) / double(count);
     batch = per_query <= 0 ? count * 2 : std::clamp<size_t>(static_cast<size_t>(double(hit_budget) / per_query), 256, size_t{1} << 20);
+  }
+  // The second key (screen_join.h) for the slice's queries: every image's
+  // profile (128 bytes each), the hits the hash did not give, confirmed as above.
+  const int64_t threshold2 = screen_threshold(settings.screen_radius);
+  if (threshold2 > 0) {
+    std::vector<uint32_t> all(n);
+    std::iota(all.begin(), all.end(), 0u);
+    std::vector<MatchProfile> profile(n);
+    read(all, [&](size_t q, const Thumbnail& th) { profile[q] = match_profile(th); });
+    std::vector<float> allowance(n);
+    for (uint32_t k = 0; k < n; ++k) allowance[k] = allowance_of(k);
+    uint64_t found = 0;
+    auto kept = screen_join(profile, threshold2, settings.threads, [&](uint32_t v, uint32_t j) {
+      const uint32_t i = v / kDihedralCount;
+      return i % slices == slice && hamming(records[eligible[i]].features.look.phash[v % kDihedralCount], identity[j]) > settings.radius;
+    }, [&](uint32_t v, uint32_t j) {
+      const uint32_t i = v / kDihedralCount;
+      return match_may_join(profile[i], static_cast<int>(v % kDihedralCount), profile[j],
+                            pair_settings(settings.match, allowance[i], allowance[j]));
+    }, &found);
+    result.candidate_hits += found;
+    std::vector<MatchProfile>().swap(profile);
+    confirm_kept(kept);
   }
   one_link_a_pair(confirmed);
   result.links = std::move(confirmed);

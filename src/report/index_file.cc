@@ -96,7 +96,8 @@ void save_index(const std::filesystem::path& file, const AuditIndex& x, StagedFi
                           {"max_chroma", x.settings.groups.match.max_chroma},
                           {"max_chroma_local", x.settings.groups.match.max_chroma_local},
                           {"fit_floor", x.settings.groups.match.fit_floor},
-                          {"small_side", x.settings.groups.match.small_side}};
+                          {"small_side", x.settings.groups.match.small_side},
+                          {"screen_radius", x.settings.groups.screen_radius}};
   const auto& cs = x.placed.checks;
   j["checks"] = {{"min_side", cs.min_side}, {"input_side", cs.input_side}, {"min_class", cs.min_class},
                  {"max_imbalance", cs.max_imbalance}, {"outlier_z", cs.outlier_z}};
@@ -271,6 +272,9 @@ AuditIndex load_index(const std::filesystem::path& file) {
     // Written since the closer correlation for small pictures; before, there was none.
     x.settings.groups.match.small_side =
         j.at("groups_settings").contains("small_side") ? j.at("groups_settings").at("small_side").get<double>() : 0.0;
+    // Written since the second candidate key; before, there was none.
+    x.settings.groups.screen_radius =
+        j.at("groups_settings").contains("screen_radius") ? j.at("groups_settings").at("screen_radius").get<double>() : 0.0;
     x.settings.masks.force = strs(j.at("mask_settings").at("force"));
     x.settings.masks.forbid = strs(j.at("mask_settings").at("forbid"));
     const json& ck = j.at("checks");

@@ -37,6 +37,7 @@ json settings_json(const TreeSettings& s, const PlaceSettings& placed) {
       {"lookalike_max_chroma_local", s.groups.match.max_chroma_local},
       {"lookalike_fit_floor", s.groups.match.fit_floor},
       {"lookalike_small_side", s.groups.match.small_side},
+      {"lookalike_screen_radius", s.groups.screen_radius},
       {"min_side", placed.checks.min_side},
       {"input_side", placed.checks.input_side},
       {"min_class", placed.checks.min_class},

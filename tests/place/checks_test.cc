@@ -305,7 +305,7 @@ TEST_CASE("the sharpness statistic equals OpenCV's Laplacian variance bit for bi
 }
 
 TEST_CASE("the policy's lookalike section sets the look-alike sensitivity and refuses what it does not know", "[policy][lookalike]") {
-  const Policy p = parse_policy(R"({"lookalike": {"radius": 6, "min_correlation": 0.99, "max_local": 0.04, "max_chroma": 0.5, "max_chroma_local": 0.9, "fit_floor": 0.98, "small_side": 20}})");
+  const Policy p = parse_policy(R"({"lookalike": {"radius": 6, "min_correlation": 0.99, "max_local": 0.04, "max_chroma": 0.5, "max_chroma_local": 0.9, "fit_floor": 0.98, "small_side": 20, "screen_radius": 0.07}})");
   CHECK(p.lookalike.radius == 6);
   CHECK(p.lookalike.match.min_correlation == 0.99);
   CHECK(p.lookalike.match.max_local == 0.04);
@@ -313,6 +313,7 @@ TEST_CASE("the policy's lookalike section sets the look-alike sensitivity and re
   CHECK(p.lookalike.match.max_chroma_local == 0.9);
   CHECK(p.lookalike.match.fit_floor == 0.98);
   CHECK(p.lookalike.match.small_side == 20);
+  CHECK(p.lookalike.screen_radius == 0.07);
   const Policy d = parse_policy("{}");
   CHECK(d.lookalike.radius == GroupSettings{}.radius);
   CHECK(d.lookalike.match.max_local == MatchSettings{}.max_local);

@@ -18,6 +18,7 @@
 #include "tamis/pipeline/audit.h"
 #include "tamis/read/features.h"
 #include "tamis/relate/lookalike_index.h"
+#include "tamis/relate/screen_join.h"
 #include "tamis/relate/match.h"
 
 using namespace tamis;
@@ -165,7 +166,8 @@ std::vector<Lookalike> real_thumbnails(size_t n_fashion) {
 
 TEST_CASE("find_groups equals the definition checked pair by pair", "[lookalike][groups]") {
   // Groups are the connected components of pairs (i, j) such that some flip/turn t
-  // of i has a hash within the radius of j's and thumbnails that match (match.h):
+  // of i has a hash within the radius of j's, or screen coefficients within the
+  // screen radius of j's (screen_join.h), and thumbnails that match (match.h):
   // here every pair and every t is tried, with no index and no screen.
   auto looks = real_thumbnails(3000);
   std::vector<FileRecord> records(looks.size());
@@ -186,25 +188,37 @@ TEST_CASE("find_groups equals the definition checked pair by pair", "[lookalike]
   ThumbnailTable thumbs;
   thumbs.assign_all(looks.size());
   for (size_t i = 0; i < looks.size(); ++i) thumbs.at(i) = looks[i].thumb;
-  for (double c : {0.9, 0.99, 0.995}) {
+  std::vector<ScreenKey> key(looks.size());
+  std::vector<uint8_t> has_key(looks.size());
+  for (size_t i = 0; i < looks.size(); ++i) has_key[i] = screen_key(match_profile(looks[i].thumb), key[i]);
+  // The thresholds with the second key at its default, and at 0.995 with it
+  // wider (many pairs that only the screen coefficients bring) and off.
+  for (auto [c, screen] : {std::pair{0.9, -1.0}, {0.99, -1.0}, {0.995, -1.0}, {0.995, 0.2}, {0.995, 0.0}}) {
     GroupSettings gs;
     gs.match.min_correlation = c;
+    if (screen >= 0) gs.screen_radius = screen;
+    const int64_t screen2 = screen_threshold(gs.screen_radius);
     auto allowance = [&](uint32_t i) { return size_allowance(records[i].probe.width, records[i].probe.height, gs.match); };
     GroupResult got = find_groups(records, thumbs, gs);
     std::set<std::pair<uint32_t, uint32_t>> pairs;
-    uint64_t hits = 0;
+    uint64_t hits = 0, screen_only = 0;
     for (uint32_t i = 0; i < records.size(); ++i)
       for (uint32_t j = 0; j < records.size(); ++j) {
         if (i == j) continue;
         for (int t = 0; t < kDihedralCount; ++t) {
-          if (hamming(looks[i].phash[t], looks[j].phash[0]) > gs.radius) continue;
+          const bool by_hash = hamming(looks[i].phash[t], looks[j].phash[0]) <= gs.radius;
+          const bool by_screen = has_key[i] && has_key[j] && screen_key_distance2(key[i], t, key[j]) <= screen2;
+          if (!by_hash && !by_screen) continue;
           ++hits;
+          screen_only += !by_hash;
           if (match_thumbnails(looks[i].thumb, t, looks[j].thumb, pair_settings(gs.match, allowance(i), allowance(j))).joined)
             pairs.emplace(std::min(i, j), std::max(i, j));
         }
       }
-    INFO("threshold " << c << ": " << pairs.size() << " pairs");
+    INFO("threshold " << c << ", screen radius " << gs.screen_radius << ": " << pairs.size() << " pairs, "
+                       << screen_only << " hits by the screen coefficients alone");
     CHECK(pairs.size() > 50);
+    if (gs.screen_radius > 0.1) CHECK(screen_only > 1000);  // the key tested, not only the hash
     CHECK(got.confirmed_pairs == pairs.size());
     CHECK(got.candidate_hits == hits);
     // Same partition: two records share a group exactly when the pairs connect them.

@@ -48,7 +48,7 @@ struct Policy {
   bool one_per_group = false;                // "one_per_group": one member of each look-alike group in the split
   ClassMap classes;                          // "class_aliases" {variant: class}, "exclude_classes" [names] (class_map.h)
   std::vector<AcceptEntry> accept;           // "accept": accepted findings
-  GroupSettings lookalike;  // "lookalike": radius, min_correlation, max_local, max_chroma, max_chroma_local, fit_floor, small_side (groups.h, match.h)
+  GroupSettings lookalike;  // "lookalike": radius, screen_radius, min_correlation, max_local, max_chroma, max_chroma_local, fit_floor, small_side (groups.h, match.h)
 };
 
 // The documented default policy (docs/policy.md): the checks' own severities.

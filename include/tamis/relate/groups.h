@@ -4,7 +4,10 @@
 //   - their bytes are identical (XXH3-128 content hash equal), or
 //   - they look alike: the DCT hash of one of the 8 flips/turns of the first is
 //     within Hamming distance `radius` of the second's DCT hash (candidates found
-//     exactly by join_within, lookalike_index.h), AND the independent second signal confirms it:
+//     exactly by join_within, lookalike_index.h), or that flip/turn's screen
+//     key (its 42 low DCT coefficients scaled to unit length) is within
+//     `screen_radius` of the second's (the second key, found exactly by
+//     screen_join, screen_join.h), AND the thumbnails confirm it:
 //     the thumbnails, after that flip/turn, match (match.h: Pearson correlation of
 //     the 32x32 gray thumbnails, the sharper blurred towards the other, at least
 //     `match.min_correlation`, no window of 8x8 whose residual exceeds
@@ -35,6 +38,10 @@ namespace tamis {
 
 struct GroupSettings {
   int radius = 8;                // docs/lookalikes.md: how the defaults were measured
+  // The second candidate key (screen_join.h): pairs whose screen coefficients,
+  // each set scaled to unit length, lie within screen_radius after some
+  // flip/turn are candidates too, whatever their hashes. 0 turns it off.
+  double screen_radius = 0.04;
   MatchSettings match;           // how a hash hit is confirmed (match.h)
   unsigned threads = 0;
   // The look-alike join's memory budget: its buffer of entries is searched in

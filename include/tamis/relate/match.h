@@ -86,8 +86,8 @@ namespace tamis {
 // colour check's luma term; 4: a turn of the chroma only as a hue turn of the
 // whole picture, and the colour checks for pictures whose gray is flat; 5: the
 // colour check's local share; 6: a closer correlation for pictures under
-// small_side).
-inline constexpr int kMatchRules = 6;
+// small_side; 7: the second candidate key, screen_radius).
+inline constexpr int kMatchRules = 7;
 
 struct MatchSettings {
   double min_correlation = 0.995;
