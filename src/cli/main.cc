@@ -156,7 +156,7 @@ void add_judge_options(CLI::App* cmd, JudgeOptions& o) {
   cmd->add_option("--baseline", o.baseline, "an earlier report.json: report what changed; with fail_on \"new\" fail only on new findings");
   cmd->add_option("--junit", o.junit, "also write the checks as JUnit XML to FILE");
   cmd->add_option("--format", o.format, "summary on stdout: text or json")->check(CLI::IsMember({"text", "json"}));
-  cmd->add_option("--thumbnails-kb", o.thumbnails_kb, "thumbnail data report.html may embed, in KB (default 300; 0: none)")
+  cmd->add_option("--thumbnails-kb", o.thumbnails_kb, "picture data report.html may embed, in KB (default 1024; 0: none)")
       ->check(CLI::Range(size_t{0}, size_t{1} << 20));
 }
 
@@ -333,6 +333,7 @@ void print_summary(const tamis::AuditResult& r, const std::filesystem::path& out
   // (severity rank, code) -> findings, those breaking the policy, files they name.
   struct CodeCount {
     size_t findings = 0, breaking = 0, files = 0;
+    bool all_images = false;  // a size rule every image meets (a finding of the set, naming no file)
   };
   std::map<std::pair<int, std::string>, CodeCount> by_code;
   size_t by_severity[3] = {0, 0, 0}, failing = 0;
@@ -345,6 +346,7 @@ void print_summary(const tamis::AuditResult& r, const std::filesystem::path& out
     ++c.findings;
     c.breaking += breaks;
     c.files += f.paths.size();
+    c.all_images = c.all_images || f.details.value("all_images", false);
     ++by_severity[rank];
     failing += breaks;
   }
@@ -389,7 +391,9 @@ void print_summary(const tamis::AuditResult& r, const std::filesystem::path& out
     const tamis::FindingKind* kind = tamis::finding_kind(key.second);
     const char* colour = key.first == 0 ? red : key.first == 1 ? amber : "";
     const std::string counts = count_of(n.findings, "finding", "findings") +
-                               (n.files > 0 ? ", " + count_of(n.files, "file", "files") : std::string());
+                               (n.all_images ? ", all images"
+                                : n.files > 0 ? ", " + count_of(n.files, "file", "files")
+                                              : std::string());
     std::printf("  %s%-7s %-22s%s %-24s %s\n", colour, kSeverityName[key.first], key.second.c_str(), *colour ? off : "",
                 counts.c_str(), kind ? std::string(kind->title).c_str() : "");
   }

@@ -2,6 +2,8 @@
 
 #include <turbojpeg.h>
 
+#include <opencv2/imgproc.hpp>
+
 #include <algorithm>
 #include <cmath>
 #include <exception>
@@ -12,6 +14,7 @@
 
 #include "tamis/base/atomic_file.h"
 #include "tamis/place/checks.h"
+#include "tamis/read/preview.h"
 #include "tamis/read/walk.h"
 #include "tamis/report/index_file.h"
 #include "tamis/report/junit.h"
@@ -93,13 +96,61 @@ std::vector<uint8_t> colour_thumbnail(const Thumbnail& t, const Thumbnail* mask 
   return rgb;
 }
 
-// JPEG thumbnails (the 32x32 look-alike thumbnails in colour, shown at 96 px) of
-// the groups' first members, and of the first image/mask pairs (the image with its
-// mask drawn over it, then the mask), within `budget` bytes of data URIs.
+// The picture of a record from its file (read/preview.h), up to kPreviewSide px
+// on its longer side, as RGB (a mask as gray), with `mask`'s file drawn over it
+// in ochre as colour_thumbnail draws it; empty when either file cannot be read now.
+std::vector<uint8_t> preview_pixels(const AuditResult& r, size_t record, std::optional<size_t> mask, int& width,
+                                    int& height, int& channels) {
+  if (r.settings.root.empty()) return {};
+  const FileRecord& rec = r.records[record];
+  cv::Mat img = preview_image(r.settings.root / rec.path, kPreviewSide, r.settings.read.decode);
+  if (img.empty()) return {};
+  width = img.cols;
+  height = img.rows;
+  channels = rec.kind == FileKind::mask ? 1 : 3;
+  std::vector<uint8_t> px(static_cast<size_t>(width) * height * channels);
+  cv::Mat m;
+  uint8_t top = 0;
+  if (mask) {
+    cv::Mat mp = preview_image(r.settings.root / r.records[*mask].path, kPreviewSide, r.settings.read.decode);
+    if (mp.empty()) return {};
+    cv::resize(mp, m, img.size(), 0, 0, cv::INTER_AREA);
+    for (int y = 0; y < m.rows; ++y)
+      for (int x = 0; x < m.cols; ++x) top = std::max(top, m.at<cv::Vec3b>(y, x)[1]);
+  }
+  for (int y = 0; y < height; ++y)
+    for (int x = 0; x < width; ++x) {
+      const cv::Vec3b p = img.at<cv::Vec3b>(y, x);
+      uint8_t* o = &px[(static_cast<size_t>(y) * width + x) * channels];
+      if (channels == 1) {
+        o[0] = p[1];  // a mask is gray: its three channels are equal
+        continue;
+      }
+      double c[3] = {double(p[2]), double(p[1]), double(p[0])};
+      if (mask && top > 0) {
+        const double a = 0.6 * m.at<cv::Vec3b>(y, x)[1] / top;
+        const double tint[3] = {227, 100, 20};  // the report's ochre, #e36414
+        for (int k = 0; k < 3; ++k) c[k] = c[k] * (1 - a) + tint[k] * a;
+      }
+      for (int k = 0; k < 3; ++k) o[k] = static_cast<uint8_t>(std::clamp(std::lround(c[k]), 0L, 255L));
+    }
+  return px;
+}
+
+// Pictures for the page: from the files (previews, kPreviewSide px), else the
+// 32x32 look-alike thumbnails in colour; of the groups' first members, of the
+// first image/mask pairs (the image with its mask drawn over it, then the mask)
+// and of the flagged images, within `budget` bytes of data URIs.
 Thumbnails group_thumbnails(const AuditResult& r, size_t budget) {
   Thumbnails out;
   size_t used = 0;
   auto uri_of = [&](size_t record, std::optional<size_t> mask = std::nullopt) {
+    int w = 0, h = 0, ch = 0;
+    const std::vector<uint8_t> px = preview_pixels(r, record, mask, w, h, ch);
+    if (!px.empty()) {
+      const std::vector<uint8_t> jpg = encode_jpeg(px.data(), w, h, ch, 80);
+      if (!jpg.empty()) return "data:image/jpeg;base64," + base64(jpg);
+    }
     if (!r.thumbs.has(record) || (mask && !r.thumbs.has(*mask))) return std::string();
     Thumbnail t, m;
     r.thumbs.get(record, t);

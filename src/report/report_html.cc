@@ -67,10 +67,11 @@ th{background:#f1ebe0;font-weight:600}td.num{text-align:right;font-variant-numer
 code,.path{font-family:ui-monospace,Menlo,Consolas,monospace;font-size:12.5px;word-break:break-all;white-space:pre-wrap}
 .note{color:#5d6b70;font-size:12.5px}.filters{display:flex;gap:14px;align-items:center;margin:0 0 8px;font-size:13px}
 .group{border-top:1px solid #ece4d6;padding:8px 0}.gh{font-size:13px;margin-bottom:4px}.strip{display:flex;gap:8px;flex-wrap:wrap}
-figure{margin:0;width:104px}figure img,.nothumb{width:96px;height:96px;border:1px solid var(--rule);background:#eee6d8}
+figure{margin:0;width:168px}figure img,.nothumb{width:160px;height:160px;object-fit:contain;border:1px solid var(--rule);background:#eee6d8}
+figure:focus-within{width:264px}figure img:focus,.mini img:focus{width:256px;height:256px;outline:2px solid var(--ochre)}
 code.code{word-break:normal;white-space:nowrap}details summary{cursor:pointer;color:#5d6b70;font-size:12.5px}
 .bycode{display:flex;flex-wrap:wrap;gap:6px 14px;margin:0 0 10px;font-size:13px}.bycode a{cursor:pointer;color:var(--ink);text-decoration:none;border-bottom:1px dotted var(--rule)}
-.mini{margin-top:4px}.mini img{width:64px;height:64px;border:1px solid var(--rule)}
+.mini{margin-top:4px}.mini img{width:128px;height:128px;object-fit:contain;border:1px solid var(--rule);background:#eee6d8}
 figcaption{font-size:10.5px}table.narrow{width:auto;margin-top:8px}.legend span{display:inline-block;width:10px;height:10px;margin:0 4px 0 10px;border-radius:2px}
 )CSS";
 
@@ -265,7 +266,7 @@ void findings(std::ostringstream& o, const json& report, const std::vector<Findi
     if (pictures != thumbs.end() && !pictures->second.empty()) {
       o << "<div class=\"strip mini\">";
       for (const auto& [path, uri] : pictures->second)
-        o << "<img alt=\"\" width=\"64\" height=\"64\" title=\"" << html_escape(path) << "\" src=\"" << uri << "\">";
+        o << "<img alt=\"\" tabindex=\"0\" width=\"128\" height=\"128\" title=\"" << html_escape(path) << "\" src=\"" << uri << "\">";
       o << "</div>";
     }
     o << "</td></tr>";
@@ -350,9 +351,10 @@ void mask_pairs(std::ostringstream& o, const json& report, const Thumbnails& thu
   if (it != thumbs.end()) {
     o << "<div class=\"strip\">";
     for (const auto& [path, uri] : it->second)
-      o << "<figure><img alt=\"\" width=\"96\" height=\"96\" src=\"" << uri << "\"><figcaption class=\"path\">"
+      o << "<figure><img alt=\"\" tabindex=\"0\" width=\"160\" height=\"160\" src=\"" << uri << "\"><figcaption class=\"path\">"
         << html_escape(path) << "</figcaption></figure>";
-    o << "</div><p class=\"note\">Each image with its mask drawn over it in ochre, then the mask (32x32 thumbnails).</p>";
+    o << "</div><p class=\"note\">Each image with its mask drawn over it in ochre, then the mask (from the files, or their"
+         " 32x32 thumbnails when a file cannot be read now; click a picture to enlarge it).</p>";
   }
   o << "</section>\n";
 }
@@ -361,8 +363,9 @@ void groups(std::ostringstream& o, const json& report, const Thumbnails& thumbs)
   const json& gs = array_at(report, "groups");
   if (gs.empty()) return;
   o << "<section id=\"groups\"><h2>Copies and look-alikes</h2><p class=\"note\">" << gs.size()
-    << " groups; each strip shows the first images of a group (their 32x32 look-alike thumbnails, in colour) with their"
-       " paths, and how each pair was matched.</p>";
+    << " groups; each strip shows the first images of a group (from the files, or their 32x32 look-alike thumbnails"
+       " when a file cannot be read now; click a picture to enlarge it) with their paths, and how each pair was"
+       " matched.</p>";
   size_t shown = 0;
   for (const auto& g : gs) {
     if (shown++ == 60) {
@@ -382,7 +385,7 @@ void groups(std::ostringstream& o, const json& report, const Thumbnails& thumbs)
         for (const auto& [tp, data] : it->second)
           if (tp == path) uri = data;
       o << "<figure>";
-      if (!uri.empty()) o << "<img alt=\"\" width=\"96\" height=\"96\" src=\"" << uri << "\">";
+      if (!uri.empty()) o << "<img alt=\"\" tabindex=\"0\" width=\"160\" height=\"160\" src=\"" << uri << "\">";
       else o << "<div class=\"nothumb\"></div>";
       o << "<figcaption class=\"path\">" << html_escape(path) << "</figcaption></figure>";
     }

@@ -340,3 +340,52 @@ TEST_CASE("a baseline of another report schema version is refused", "[baseline][
     CHECK_THROWS_AS(load_baseline(t / "report.json"), std::runtime_error);
   }
 }
+
+TEST_CASE("a size rule every image meets is said once for the set, naming no file", "[checks][size]") {
+  // A collection of 20x20 pictures (as Fashion-MNIST is of 28x28 ones): every
+  // image is under min_side (32) and input_side (224). The finding says so once
+  // with the size; with one larger image among them, it names the small ones.
+  test::TempDir t;
+  const fs::path cls = t.path() / "swatches";
+  fs::create_directories(cls);
+  SplitMix64 rng(5);
+  auto noise = [&](int side) {
+    cv::Mat m(side, side, CV_8UC3);
+    for (int y = 0; y < side; ++y)
+      for (int x = 0; x < side; ++x) m.at<cv::Vec3b>(y, x) = cv::Vec3b(uint8_t(rng.below(256)), uint8_t(rng.below(256)), uint8_t(rng.below(256)));
+    return m;
+  };
+  for (int k = 0; k < 3; ++k) REQUIRE(cv::imwrite((cls / ("s" + std::to_string(k) + ".png")).string(), noise(20)));
+  AuditSettings s;
+  s.root = t.path();
+  auto find = [](const AuditResult& r, const std::string& code) -> const Finding* {
+    for (const auto& f : r.findings)
+      if (f.code == code) return &f;
+    return nullptr;
+  };
+  {
+    const AuditResult r = run_audit(s);
+    for (const char* code : {"tiny-image", "below-input-size"}) {
+      const Finding* f = find(r, code);
+      REQUIRE(f != nullptr);
+      INFO(f->message);
+      CHECK(f->paths.empty());
+      CHECK(f->details.value("all_images", false));
+      CHECK(f->details.at("count") == 3);
+      CHECK(f->message.rfind("all images (20x20): ", 0) == 0);  // the count is in details (a baseline keys on the message)
+    }
+    for (const auto& [path, codes] : codes_by_path(r)) CHECK(codes.count("tiny-image") == 0);
+  }
+  REQUIRE(cv::imwrite((cls / "large.png").string(), noise(64)));
+  {
+    const AuditResult r = run_audit(s);
+    const Finding* tiny = find(r, "tiny-image");
+    REQUIRE(tiny != nullptr);
+    CHECK(tiny->paths.size() == 3);
+    CHECK(!tiny->details.contains("all_images"));
+    const Finding* below = find(r, "below-input-size");
+    REQUIRE(below != nullptr);
+    CHECK(below->paths.empty());  // 64 px is under 224 as well: still the whole set
+    CHECK(below->message.rfind("all images: ", 0) == 0);  // two sizes: none named
+  }
+}

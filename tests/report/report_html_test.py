@@ -176,7 +176,7 @@ class ColourThumbnails(AuditedPage):
     def figures(self):
         import io
         from PIL import Image
-        found = re.findall(r'<figure><img alt="" width="96" height="96" src="data:image/jpeg;base64,([^"]+)">'
+        found = re.findall(r'<figure><img alt="" tabindex="0" width="160" height="160" src="data:image/jpeg;base64,([^"]+)">'
                            r'<figcaption class="path">([^<]+)</figcaption>', self.html)
         return [(Image.open(io.BytesIO(base64.b64decode(b))).convert("RGB"), p) for b, p in found]
 
@@ -194,6 +194,8 @@ class ColourThumbnails(AuditedPage):
             got = [sum(c) / len(c) for c in zip(*im.getdata())]
             self.assertTrue(all(abs(a - b) <= 4 for a, b in zip(got, want)), (path, got, want))
             self.assertGreater(max(got) - min(got), 8, path)  # colour, not gray
+            # A picture from the file (256x224 in the demo), not the 32x32 thumbnail.
+            self.assertEqual(im.size, (256, 224), path)
             checked += 1
         self.assertGreaterEqual(checked, 8)
 
@@ -205,7 +207,7 @@ class ColourThumbnails(AuditedPage):
         for code, paths in (("near-uniform", ["gingham/swatch_093.jpg"]), ("underexposed", ["polka_dots/swatch_093.jpg"]),
                             ("unsharp", ["houndstooth/swatch_095.jpg", "polka_dots/swatch_093.jpg"])):
             row = re.search(r'<tr data-sev="[^"]*" data-code="' + code + r'".*?</tr>', self.html, re.S).group(0)
-            shown = re.findall(r'<img alt="" width="64" height="64" title="([^"]+)" src="data:image/jpeg;base64,([^"]+)"', row)
+            shown = re.findall(r'<img alt="" tabindex="0" width="128" height="128" title="([^"]+)" src="data:image/jpeg;base64,([^"]+)"', row)
             self.assertEqual([p for p, _ in shown], paths, code)
             if code == "near-uniform":
                 im = Image.open(io.BytesIO(base64.b64decode(shown[0][1]))).convert("L")
@@ -218,6 +220,7 @@ class ColourThumbnails(AuditedPage):
         pairs = [(im, p) for im, p in self.figures() if f">{p}<" in masks]
         self.assertGreaterEqual(len(pairs), 8)
         for (shown, image_path), (_, mask_path) in zip(pairs[0::2], pairs[1::2]):
+            shown = shown.resize((32, 32), Image.BOX)  # compared at the thumbnails' 32x32
             self.assertEqual(os.path.basename(image_path)[:-4], os.path.basename(mask_path)[:-4])
             with Image.open(os.path.join(self.root, mask_path)) as m:
                 if m.getextrema()[1] == 0 or m.size != (256, 224):

@@ -27,8 +27,9 @@ namespace tamis {
 // their sizes and XXH3-64 (atomic_file.h StagedFiles, docs/outputs.md).
 inline constexpr const char* kSetFileName = "tamis-set.json";
 
-// Bytes of thumbnail data URIs report.html carries by default (about 300 KB).
-inline constexpr size_t kThumbnailBudget = 300 * 1024;
+// Bytes of picture data URIs report.html carries by default (about 1 MB).
+inline constexpr size_t kThumbnailBudget = 1024 * 1024;
+inline constexpr uint32_t kPreviewSide = 256;  // report pictures from the files: longer side, px
 
 // A write refused because its target is ROOT or lies inside it.
 struct InsideRootError : std::runtime_error {

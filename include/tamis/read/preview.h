@@ -1,0 +1,28 @@
+// Previews: a picture of a file at a size a person can look at (the report's
+// groups, flagged images and masks), decoded again from the file when the
+// report is written. Read-only; never writes anything.
+//
+// Contract: preview_image(file, side, limits) reads the file (at most
+// limits-sized work: the decode stage's pixel and memory limits apply), decodes
+// it through decode_image (decode.h: the same decoders, the same alpha rule: a
+// transparent picture as it looks laid over white, or black where white would
+// hide it) at a reduced size, and area-reduces it so that its longer side is at
+// most `side` (never enlarged). The result is 8-bit BGR, as stored (EXIF
+// orientation not applied, as the look-alike thumbnails), or empty when the
+// file cannot be read or decoded now (moved, changed, damaged): the caller then
+// falls back to the stored thumbnail. Never throws. Deterministic: a pure
+// function of the file's bytes.
+#pragma once
+
+#include <cstdint>
+#include <filesystem>
+
+#include <opencv2/core.hpp>
+
+#include "tamis/read/decode/decode.h"
+
+namespace tamis {
+
+cv::Mat preview_image(const std::filesystem::path& file, uint32_t side, const DecodeLimits& limits);
+
+}  // namespace tamis
