@@ -818,7 +818,7 @@ int main(int argc, char** argv) {
   SplitOptions resplit_opts;
   std::string split_dir, split_out;
   bool split_quiet = false;
-  CLI::App* split = app.add_subcommand("split", "re-split from an audit's saved index (DIR/index.cbor), reading no image");
+  CLI::App* split = app.add_subcommand("split", "re-split from an audit's saved index (DIR/index.cbor), reading no image but report.html's pictures");
   split->footer("Example: tamis split /data/photos-audit --out /data/photos-split-2 --seed 2 --split 80/20");
   split->add_option("DIR", split_dir, "the --out folder of an earlier audit")->required();
   split->add_option("--out", split_out, "folder for the new manifest and reports")->required();

@@ -199,6 +199,39 @@ class ColourThumbnails(AuditedPage):
             checked += 1
         self.assertGreaterEqual(checked, 8)
 
+    def test_without_the_files_the_pictures_come_from_the_saved_thumbnails(self):
+        # `tamis split` from the saved index when ROOT is gone: the page still has its
+        # pictures, drawn from the index's 32x32 thumbnails, each still in the file's
+        # colours (mean within 8 levels of Pillow's: a 32x32 JPEG of a 256x224 swatch).
+        import io
+        from PIL import Image
+        moved = self.root + "-moved"
+        os.rename(self.root, moved)
+        try:
+            out = os.path.join(self.tmp, "resplit")
+            r = subprocess.run([TAMIS, "split", self.out, "--out", out, "--quiet"], capture_output=True, text=True)
+            self.assertIn(r.returncode, (0, 1), r.stderr)
+            with open(os.path.join(out, "report.html"), encoding="utf-8") as f:
+                html = f.read()
+            found = re.findall(r'<figure><img alt="" tabindex="0" width="160" height="160" src="data:image/jpeg;base64,([^"]+)">'
+                               r'<figcaption class="path">([^<]+)</figcaption>', html)
+            self.assertGreaterEqual(len(found), 8)
+            groups = html[html.index('<section id="groups">'):html.index('<section id="masks">')]
+            checked = 0
+            for b, path in found:
+                im = Image.open(io.BytesIO(base64.b64decode(b))).convert("RGB")
+                self.assertEqual(im.size, (32, 32), path)
+                if f">{path}<" not in groups:
+                    continue  # the masks section's pictures are tinted by their masks
+                with Image.open(os.path.join(moved, path)) as original:
+                    want = [sum(c) / len(c) for c in zip(*original.convert("RGB").getdata())]
+                got = [sum(c) / len(c) for c in zip(*im.getdata())]
+                self.assertTrue(all(abs(a - b) <= 8 for a, b in zip(got, want)), (path, got, want))
+                checked += 1
+            self.assertGreaterEqual(checked, 8)
+        finally:
+            os.rename(moved, self.root)
+
     def test_flagged_frames_are_pictured_in_their_findings(self):
         # The demo's blank, dark and blurred frames: each quality finding's row shows
         # its images, the blank one nearly flat in the picture too.
