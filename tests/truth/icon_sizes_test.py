@@ -24,7 +24,6 @@ against Pillow and numpy (Debian python3-pil, python3-numpy), independent of tam
 
 Usage: icon_sizes_test.py TAMIS_BINARY
 """
-import collections
 import json
 import os
 import shutil
@@ -35,7 +34,9 @@ import tempfile
 import numpy as np
 from PIL import Image
 
-THEME = "/usr/share/icons/Adwaita"
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+from icons import THEME, best_turn_correlation, copy_icon_tree, name_pairs, recall_against_48  # noqa: E402
+
 SIZES = ["32x32", "48x48", "64x64", "96x96"]
 CATEGORIES = ("actions", "status", "devices")
 
@@ -43,19 +44,6 @@ CATEGORIES = ("actions", "status", "devices")
 def alpha_32(path):
     im = Image.open(path).convert("RGBA")
     return np.asarray(im.getchannel("A").resize((32, 32), Image.BOX), dtype=np.float64)
-
-
-def best_turn_correlation(a, b):
-    best = -1.0
-    for k in range(4):
-        for flip in (False, True):
-            t = np.rot90(a, k)
-            if flip:
-                t = np.fliplr(t)
-            x, y = t.ravel() - t.mean(), b.ravel() - b.mean()
-            den = np.sqrt((x * x).sum() * (y * y).sum())
-            best = max(best, float((x * y).sum() / den) if den > 0 else (1.0 if (x == y).all() else 0.0))
-    return best
 
 
 def audit(tamis, root, out, policy=None):
@@ -66,41 +54,6 @@ def audit(tamis, root, out, policy=None):
     return json.load(open(os.path.join(out, "report.json")))
 
 
-def name_of(path):
-    category, file = path.split("/", 1)
-    return category, file.split("_", 1)[1]
-
-
-def recall(report, root):
-    group = {}
-    for g in report["groups"]:
-        for link in g["links"]:
-            group[link["a"]] = group[link["b"]] = g["id"]
-    by_icon = collections.defaultdict(dict)
-    for category in sorted(os.listdir(root)):
-        for f in os.listdir(os.path.join(root, category)):
-            size, _ = f.split("_", 1)
-            by_icon[name_of(f"{category}/{f}")][size] = f"{category}/{f}"
-    found, total = collections.Counter(), collections.Counter()
-    for sizes in by_icon.values():
-        ref = sizes.get("48x48")
-        if ref is None:
-            continue
-        for size, path in sizes.items():
-            if size != "48x48":
-                total[size] += 1
-                found[size] += group.get(ref) is not None and group.get(ref) == group.get(path)
-    return {s: (found[s], total[s]) for s in total}
-
-
-def name_pairs(report):
-    pairs = set()
-    for g in report["groups"]:
-        names = sorted({name_of(p) for link in g["links"] for p in (link["a"], link["b"])})
-        pairs.update((a, b) for i, a in enumerate(names) for b in names[i + 1:])
-    return pairs
-
-
 def main():
     tamis = sys.argv[1]
     if not os.path.isdir(os.path.join(THEME, "48x48")):
@@ -109,22 +62,14 @@ def main():
     work = tempfile.mkdtemp(prefix="tamis-icon-sizes-")
     try:
         root = os.path.join(work, "icons")
-        for size in SIZES:
-            for category in CATEGORIES:
-                src = os.path.join(THEME, size, category)
-                if not os.path.isdir(src):
-                    continue
-                os.makedirs(os.path.join(root, category), exist_ok=True)
-                for f in sorted(os.listdir(src)):
-                    if f.endswith(".png"):
-                        shutil.copyfile(os.path.join(src, f), os.path.join(root, category, f"{size}_{f}"))
+        copy_icon_tree(root, SIZES, CATEGORIES)
         report = audit(tamis, root, os.path.join(work, "on"))
         off_policy = os.path.join(work, "off.json")
         with open(off_policy, "w") as f:
             json.dump({"lookalike": {"screen_radius": 0}}, f)
         off = audit(tamis, root, os.path.join(work, "off"), off_policy)
         failures = []
-        on_recall, off_recall = recall(report, root), recall(off, root)
+        on_recall, off_recall = recall_against_48(report, root), recall_against_48(off, root)
         for size in ("32x32", "64x64", "96x96"):
             found, total = on_recall[size]
             print(f"{size} against 48x48: {found}/{total} with the second key, {off_recall[size][0]}/{total} without")

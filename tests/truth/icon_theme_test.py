@@ -26,27 +26,15 @@ import tempfile
 import numpy as np
 from PIL import Image
 
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+from icons import best_turn_correlation  # noqa: E402
+
 THEME = "/usr/share/icons/Adwaita/48x48"
 
 
 def alpha_plane(path):
     im = Image.open(path).convert("RGBA")
     return np.asarray(im, dtype=np.float64)[:, :, 3]
-
-
-def best_turn_correlation(a, b):
-    best = -1.0
-    for k in range(4):
-        for flip in (False, True):
-            t = np.rot90(a, k)
-            if flip:
-                t = np.fliplr(t)
-            if t.shape != b.shape:
-                continue
-            x, y = t.ravel() - t.mean(), b.ravel() - b.mean()
-            den = np.sqrt((x * x).sum() * (y * y).sum())
-            best = max(best, float((x * y).sum() / den) if den > 0 else (1.0 if (x == y).all() else 0.0))
-    return best
 
 
 def main():
