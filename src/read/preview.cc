@@ -1,7 +1,11 @@
 #include "tamis/read/preview.h"
 
+#include <fcntl.h>
+#include <sys/stat.h>
+#include <unistd.h>
+
 #include <algorithm>
-#include <fstream>
+#include <cerrno>
 #include <vector>
 
 #include <opencv2/imgproc.hpp>
@@ -12,12 +16,26 @@ namespace tamis {
 
 cv::Mat preview_image(const std::filesystem::path& file, uint32_t side, const DecodeLimits& limits) {
   try {
-    std::error_code ec;
-    const auto size = std::filesystem::file_size(file, ec);
-    if (ec || size == 0 || size > (uint64_t{1} << 31) || side == 0) return {};
-    std::ifstream in(file, std::ios::binary);
-    std::vector<uint8_t> bytes(static_cast<size_t>(size));
-    if (!in.read(reinterpret_cast<char*>(bytes.data()), static_cast<std::streamsize>(size))) return {};
+    if (side == 0) return {};
+    // The file itself, never what a link put there since the walk points to
+    // (the walk follows no link either): O_NOFOLLOW, a regular file only.
+    const int fd = ::open(file.c_str(), O_RDONLY | O_NOFOLLOW | O_CLOEXEC);
+    if (fd < 0) return {};
+    std::vector<uint8_t> bytes;
+    struct stat st {};
+    bool ok = ::fstat(fd, &st) == 0 && S_ISREG(st.st_mode) && st.st_size > 0 && uint64_t(st.st_size) <= (uint64_t{1} << 31);
+    if (ok) {
+      bytes.resize(static_cast<size_t>(st.st_size));
+      size_t got = 0;
+      while (ok && got < bytes.size()) {
+        const ssize_t n = ::read(fd, bytes.data() + got, bytes.size() - got);
+        if (n < 0 && errno == EINTR) continue;
+        if (n <= 0) ok = false;
+        else got += static_cast<size_t>(n);
+      }
+    }
+    ::close(fd);
+    if (!ok) return {};
     const ProbeOutcome probe = probe_bytes(bytes);
     if (probe.defect != Defect::none) return {};
     DecodeLimits l = limits;

@@ -232,6 +232,32 @@ class ColourThumbnails(AuditedPage):
         finally:
             os.rename(moved, self.root)
 
+    def test_a_file_replaced_by_a_link_is_not_followed(self):
+        # After the audit, a shown picture is replaced by a symbolic link to another
+        # image: the re-split's page shows that path by its saved 32x32 thumbnail,
+        # never the linked file (the walk follows no link, nor does the report).
+        import io
+        from PIL import Image
+        groups = self.html[self.html.index('<section id="groups">'):self.html.index('<section id="masks">')]
+        path = next(p for _, p in self.figures() if f">{p}<" in groups)
+        target = os.path.join(self.root, path)
+        kept = target + ".kept"
+        os.rename(target, kept)
+        os.symlink(os.path.join(self.root, "gingham", "swatch_003.jpg"), target)
+        try:
+            out = os.path.join(self.tmp, "linked")
+            r = subprocess.run([TAMIS, "split", self.out, "--out", out, "--quiet"], capture_output=True, text=True)
+            self.assertIn(r.returncode, (0, 1), r.stderr)
+            with open(os.path.join(out, "report.html"), encoding="utf-8") as f:
+                html = f.read()
+            shown = dict((p, b) for b, p in re.findall(
+                r'<figure><img alt="" tabindex="0" width="160" height="160" src="data:image/jpeg;base64,([^"]+)">'
+                r'<figcaption class="path">([^<]+)</figcaption>', html))
+            self.assertEqual(Image.open(io.BytesIO(base64.b64decode(shown[path]))).size, (32, 32), path)
+        finally:
+            os.remove(target)
+            os.rename(kept, target)
+
     def test_flagged_frames_are_pictured_in_their_findings(self):
         # The demo's blank, dark and blurred frames: each quality finding's row shows
         # its images, the blank one nearly flat in the picture too.

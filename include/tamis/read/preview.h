@@ -2,7 +2,8 @@
 // groups, flagged images and masks), decoded again from the file when the
 // report is written. Read-only; never writes anything.
 //
-// Contract: preview_image(file, side, limits) reads the file (at most
+// Contract: preview_image(file, side, limits) reads the file (a regular file,
+// opened without following a link in its last component; at most
 // limits-sized work: the decode stage's pixel and memory limits apply), decodes
 // it through decode_image (decode.h: the same decoders, the same alpha rule: a
 // transparent picture as it looks laid over white, or black where white would
