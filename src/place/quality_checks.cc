@@ -17,7 +17,8 @@ struct Collector {
   std::map<std::string, std::vector<std::string>, std::less<>> paths;  // code -> paths
   std::map<std::string, nlohmann::json, std::less<>> examples;         // code -> measurements
   uint64_t images = 0;                                                  // images seen
-  std::vector<std::pair<uint32_t, uint32_t>> sizes;                     // their first two distinct sizes
+  std::pair<uint32_t, uint32_t> size{};                                 // the first one's width and height
+  bool one_size = true;                                                 // and every other's
   template <typename Map>
   static typename Map::mapped_type& slot(Map& m, std::string_view code) {
     auto it = m.find(code);
@@ -140,9 +141,8 @@ void collect_image_flags(const std::vector<FileRecord>& records, const Labelling
     const auto& r = records[i];
     if (r.kind != FileKind::image) continue;
     const auto& p = r.probe;
-    ++col.images;
-    if (col.sizes.size() <= 1 && std::find(col.sizes.begin(), col.sizes.end(), std::pair{p.width, p.height}) == col.sizes.end())
-      col.sizes.push_back({p.width, p.height});
+    if (col.images++ == 0) col.size = {p.width, p.height};
+    else if (col.size != std::pair{p.width, p.height}) col.one_size = false;
     const auto& st = r.features.stats;
     const size_t c = labels.label_of[i] >= 0 ? static_cast<size_t>(labels.label_of[i]) : pools.nc;
     const uint32_t shorter = std::min(p.width, p.height);
@@ -241,9 +241,8 @@ void emit_image_findings(Collector& col, uint64_t upscaled, const CheckSettings&
     const bool size_rule = f.code == "tiny-image" || f.code == "below-input-size";
     const bool whole_set = size_rule && col.images >= 2 && it->second.size() == col.images;
     if (whole_set) {
-      const std::string size = col.sizes.size() == 1
-                                   ? " (" + std::to_string(col.sizes[0].first) + "x" + std::to_string(col.sizes[0].second) + ")"
-                                   : "";
+      const std::string size =
+          col.one_size ? " (" + std::to_string(col.size.first) + "x" + std::to_string(col.size.second) + ")" : "";
       // No count in the message: a baseline knows a finding that names no file
       // by its message, and adding an image of that size changes no fact.
       f.message = "all images" + size + ": " + what;

@@ -15,6 +15,7 @@
 #include "tamis/base/parallel.h"
 #include "tamis/read/cache.h"
 #include "tamis/read/features.h"
+#include "tamis/read/file_bytes.h"
 #include "tamis/read/probe.h"
 
 namespace tamis {
@@ -27,35 +28,6 @@ struct Fd {
     if (fd >= 0) close(fd);
   }
 };
-
-// Opens `rel` for reading: read-only, never through a symbolic link, without
-// blocking (whatever replaced the file since it was listed fails the read: a
-// folder refuses it, a FIFO has no data, a device gives too much).
-int open_file(int rootfd, const std::string& rel) {
-  return openat(rootfd, rel.c_str(), O_RDONLY | O_NOFOLLOW | O_CLOEXEC | O_NOCTTY | O_NONBLOCK);
-}
-
-// Reads the whole open file into `buf` (reused across calls). False on any error
-// or when the file is no longer `expect` bytes long. No fstat: the walk (or the
-// caller, from this descriptor) has just seen a regular file of that size; one
-// byte more than expected is asked for, so a file that grew shows it, and a
-// short read of a regular file means its end.
-bool read_whole(int fd, uint64_t expect, std::vector<uint8_t>& buf) {
-  if (fd < 0) return false;
-  buf.resize(expect + 1);
-  size_t got = 0;
-  while (got <= expect) {
-    const size_t want = expect + 1 - got;
-    ssize_t n = read(fd, buf.data() + got, want);
-    if (n < 0 && errno == EINTR) continue;
-    if (n < 0) return false;
-    got += static_cast<size_t>(n);
-    if (n == 0 || static_cast<size_t>(n) < want) break;  // the end of the file
-  }
-  if (got != expect) return false;
-  buf.resize(expect);
-  return true;
-}
 
 void set_stamp(FileRecord& r, const struct stat& st) {
   r.size = static_cast<uint64_t>(st.st_size);
@@ -90,7 +62,7 @@ Source read_one(int rootfd, const WalkEntry& e, const ReadOptions& opt, const Re
   Fd f;
   bool opened = true;
   if (!e.stamped) {
-    f.fd = open_file(rootfd, e.path);
+    f.fd = open_data_file(rootfd, e.path);
     struct stat st {};
     opened = f.fd >= 0 && fstat(f.fd, &st) == 0 && S_ISREG(st.st_mode);
     if (opened) set_stamp(r, st);
@@ -104,7 +76,7 @@ Source read_one(int rootfd, const WalkEntry& e, const ReadOptions& opt, const Re
     r.defect = Defect::not_an_image;
     return Source::read;
   }
-  if (opened && f.fd < 0) f.fd = open_file(rootfd, e.path);
+  if (opened && f.fd < 0) f.fd = open_data_file(rootfd, e.path);
   if (!opened || !read_whole(f.fd, r.size, buf)) {
     // A file we cannot read is only "ours" if it claims to be an image.
     if (image_name) {

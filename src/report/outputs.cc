@@ -7,6 +7,7 @@
 #include <algorithm>
 #include <cmath>
 #include <exception>
+#include <map>
 #include <optional>
 #include <stdexcept>
 #include <thread>
@@ -59,6 +60,14 @@ std::vector<uint8_t> encode_jpeg(const uint8_t* pixels, int width, int height, i
   return out;
 }
 
+// A mask drawn over an RGB colour: the report's ochre (#e36414) laid on in
+// proportion to the mask's value against its brightest, at most 0.6.
+void ochre_over(double c[3], uint8_t value, uint8_t top) {
+  const double a = 0.6 * value / top;
+  const double tint[3] = {227, 100, 20};
+  for (int k = 0; k < 3; ++k) c[k] = c[k] * (1 - a) + tint[k] * a;
+}
+
 // The look-alike thumbnail in colour, 32x32 RGB: its gray plane as luma and its
 // 8x8 chroma (OpenCV's 8-bit YCrCb, BT.601) enlarged bilinearly (cell centres,
 // edges held), converted back with the BT.601 coefficients. Computed in double,
@@ -85,53 +94,36 @@ std::vector<uint8_t> colour_thumbnail(const Thumbnail& t, const Thumbnail* mask 
       };
       const double Y = t[static_cast<size_t>(y * kThumbSide + x)], u = lerp(cb) - 128.0, v = lerp(cr) - 128.0;
       double c[3] = {Y + 1.403 * v, Y - 0.714 * v - 0.344 * u, Y + 1.773 * u};
-      if (mask && mask_top > 0) {
-        const double a = 0.6 * (*mask)[static_cast<size_t>(y * kThumbSide + x)] / mask_top;
-        const double tint[3] = {227, 100, 20};  // the report's ochre, #e36414
-        for (int k = 0; k < 3; ++k) c[k] = c[k] * (1 - a) + tint[k] * a;
-      }
+      if (mask && mask_top > 0) ochre_over(c, (*mask)[static_cast<size_t>(y * kThumbSide + x)], mask_top);
       for (int k = 0; k < 3; ++k)
         rgb[static_cast<size_t>((y * kThumbSide + x) * 3 + k)] = static_cast<uint8_t>(std::clamp(std::lround(c[k]), 0L, 255L));
     }
   return rgb;
 }
 
-// The picture of a record from its file (read/preview.h), up to kPreviewSide px
-// on its longer side, as RGB (a mask as gray), with `mask`'s file drawn over it
-// in ochre as colour_thumbnail draws it; empty when either file cannot be read now.
-std::vector<uint8_t> preview_pixels(const AuditResult& r, size_t record, std::optional<size_t> mask, int& width,
-                                    int& height, int& channels) {
-  if (r.settings.root.empty()) return {};
-  const FileRecord& rec = r.records[record];
-  cv::Mat img = preview_image(r.settings.root / rec.path, kPreviewSide, r.settings.read.decode);
-  if (img.empty()) return {};
-  width = img.cols;
-  height = img.rows;
-  channels = rec.kind == FileKind::mask ? 1 : 3;
-  std::vector<uint8_t> px(static_cast<size_t>(width) * height * channels);
+// The picture `img` (a preview, BGR) as RGB, or as gray for a mask, with the
+// mask preview `mask` (when not empty) drawn over it in ochre as
+// colour_thumbnail draws it.
+std::vector<uint8_t> preview_pixels(const cv::Mat& img, bool gray, const cv::Mat& mask) {
+  const int channels = gray ? 1 : 3;
+  std::vector<uint8_t> px(static_cast<size_t>(img.cols) * img.rows * channels);
   cv::Mat m;
   uint8_t top = 0;
-  if (mask) {
-    cv::Mat mp = preview_image(r.settings.root / r.records[*mask].path, kPreviewSide, r.settings.read.decode);
-    if (mp.empty()) return {};
-    cv::resize(mp, m, img.size(), 0, 0, cv::INTER_AREA);
+  if (!mask.empty()) {
+    cv::resize(mask, m, img.size(), 0, 0, cv::INTER_AREA);
     for (int y = 0; y < m.rows; ++y)
       for (int x = 0; x < m.cols; ++x) top = std::max(top, m.at<cv::Vec3b>(y, x)[1]);
   }
-  for (int y = 0; y < height; ++y)
-    for (int x = 0; x < width; ++x) {
+  for (int y = 0; y < img.rows; ++y)
+    for (int x = 0; x < img.cols; ++x) {
       const cv::Vec3b p = img.at<cv::Vec3b>(y, x);
-      uint8_t* o = &px[(static_cast<size_t>(y) * width + x) * channels];
-      if (channels == 1) {
+      uint8_t* o = &px[(static_cast<size_t>(y) * img.cols + x) * channels];
+      if (gray) {
         o[0] = p[1];  // a mask is gray: its three channels are equal
         continue;
       }
       double c[3] = {double(p[2]), double(p[1]), double(p[0])};
-      if (mask && top > 0) {
-        const double a = 0.6 * m.at<cv::Vec3b>(y, x)[1] / top;
-        const double tint[3] = {227, 100, 20};  // the report's ochre, #e36414
-        for (int k = 0; k < 3; ++k) c[k] = c[k] * (1 - a) + tint[k] * a;
-      }
+      if (top > 0) ochre_over(c, m.at<cv::Vec3b>(y, x)[1], top);
       for (int k = 0; k < 3; ++k) o[k] = static_cast<uint8_t>(std::clamp(std::lround(c[k]), 0L, 255L));
     }
   return px;
@@ -144,11 +136,24 @@ std::vector<uint8_t> preview_pixels(const AuditResult& r, size_t record, std::op
 Thumbnails group_thumbnails(const AuditResult& r, size_t budget) {
   Thumbnails out;
   size_t used = 0;
+  // A record's preview from its file (empty when it cannot be read now); a
+  // mask's is kept, since its pair shows it twice (over its image, then alone).
+  std::map<size_t, cv::Mat> mask_previews;
+  auto preview_of = [&](size_t record) -> cv::Mat {
+    if (r.settings.root.empty()) return {};
+    auto kept = mask_previews.find(record);
+    if (kept != mask_previews.end()) return kept->second;
+    cv::Mat p = preview_image(r.settings.root / r.records[record].path, kPreviewSide, r.settings.read.max_bytes,
+                              r.settings.read.decode);
+    if (r.records[record].kind == FileKind::mask) mask_previews.emplace(record, p);
+    return p;
+  };
   auto uri_of = [&](size_t record, std::optional<size_t> mask = std::nullopt) {
-    int w = 0, h = 0, ch = 0;
-    const std::vector<uint8_t> px = preview_pixels(r, record, mask, w, h, ch);
-    if (!px.empty()) {
-      const std::vector<uint8_t> jpg = encode_jpeg(px.data(), w, h, ch, 80);
+    const cv::Mat img = preview_of(record), over = mask ? preview_of(*mask) : cv::Mat();
+    if (!img.empty() && (!mask || !over.empty())) {
+      const bool gray = r.records[record].kind == FileKind::mask;
+      const std::vector<uint8_t> px = preview_pixels(img, gray, over);
+      const std::vector<uint8_t> jpg = encode_jpeg(px.data(), img.cols, img.rows, gray ? 1 : 3, 80);
       if (!jpg.empty()) return "data:image/jpeg;base64," + base64(jpg);
     }
     if (!r.thumbs.has(record) || (mask && !r.thumbs.has(*mask))) return std::string();

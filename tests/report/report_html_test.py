@@ -173,16 +173,30 @@ class ColourThumbnails(AuditedPage):
         assert r.returncode == 0, r.stderr
         cls.audit(cls.root, "--no-cache")
 
-    def figures(self):
+    def figures(self, html=None):
+        """(picture, path) of every figure of a page (the audit's by default)."""
         import io
         from PIL import Image
         found = re.findall(r'<figure><img alt="" tabindex="0" width="160" height="160" src="data:image/jpeg;base64,([^"]+)">'
-                           r'<figcaption class="path">([^<]+)</figcaption>', self.html)
+                           r'<figcaption class="path">([^<]+)</figcaption>', self.html if html is None else html)
         return [(Image.open(io.BytesIO(base64.b64decode(b))).convert("RGB"), p) for b, p in found]
+
+    @staticmethod
+    def groups_section(html):
+        return html[html.index('<section id="groups">'):html.index('<section id="masks">')]
+
+    def resplit(self, name):
+        """report.html of `tamis split` from the audit's saved index, into tmp/name."""
+        out = os.path.join(self.tmp, name)
+        r = subprocess.run([TAMIS, "split", self.out, "--out", out, "--quiet"], capture_output=True, text=True,
+                           timeout=120)
+        self.assertIn(r.returncode, (0, 1), r.stderr)
+        with open(os.path.join(out, "report.html"), encoding="utf-8") as f:
+            return f.read()
 
     def test_group_thumbnails_have_the_files_colours(self):
         from PIL import Image
-        groups = self.html[self.html.index('<section id="groups">'):self.html.index('<section id="masks">')]
+        groups = self.groups_section(self.html)
         self.assertIn("the first mirror, correlation", groups)
         self.assertIn("byte-identical", groups)
         checked = 0
@@ -203,23 +217,16 @@ class ColourThumbnails(AuditedPage):
         # `tamis split` from the saved index when ROOT is gone: the page still has its
         # pictures, drawn from the index's 32x32 thumbnails, each still in the file's
         # colours (mean within 8 levels of Pillow's: a 32x32 JPEG of a 256x224 swatch).
-        import io
         from PIL import Image
         moved = self.root + "-moved"
         os.rename(self.root, moved)
         try:
-            out = os.path.join(self.tmp, "resplit")
-            r = subprocess.run([TAMIS, "split", self.out, "--out", out, "--quiet"], capture_output=True, text=True)
-            self.assertIn(r.returncode, (0, 1), r.stderr)
-            with open(os.path.join(out, "report.html"), encoding="utf-8") as f:
-                html = f.read()
-            found = re.findall(r'<figure><img alt="" tabindex="0" width="160" height="160" src="data:image/jpeg;base64,([^"]+)">'
-                               r'<figcaption class="path">([^<]+)</figcaption>', html)
+            html = self.resplit("resplit")
+            found = self.figures(html)
             self.assertGreaterEqual(len(found), 8)
-            groups = html[html.index('<section id="groups">'):html.index('<section id="masks">')]
+            groups = self.groups_section(html)
             checked = 0
-            for b, path in found:
-                im = Image.open(io.BytesIO(base64.b64decode(b))).convert("RGB")
+            for im, path in found:
                 self.assertEqual(im.size, (32, 32), path)
                 if f">{path}<" not in groups:
                     continue  # the masks section's pictures are tinted by their masks
@@ -236,24 +243,32 @@ class ColourThumbnails(AuditedPage):
         # After the audit, a shown picture is replaced by a symbolic link to another
         # image: the re-split's page shows that path by its saved 32x32 thumbnail,
         # never the linked file (the walk follows no link, nor does the report).
-        import io
-        from PIL import Image
-        groups = self.html[self.html.index('<section id="groups">'):self.html.index('<section id="masks">')]
+        groups = self.groups_section(self.html)
         path = next(p for _, p in self.figures() if f">{p}<" in groups)
         target = os.path.join(self.root, path)
         kept = target + ".kept"
         os.rename(target, kept)
         os.symlink(os.path.join(self.root, "gingham", "swatch_003.jpg"), target)
         try:
-            out = os.path.join(self.tmp, "linked")
-            r = subprocess.run([TAMIS, "split", self.out, "--out", out, "--quiet"], capture_output=True, text=True)
-            self.assertIn(r.returncode, (0, 1), r.stderr)
-            with open(os.path.join(out, "report.html"), encoding="utf-8") as f:
-                html = f.read()
-            shown = dict((p, b) for b, p in re.findall(
-                r'<figure><img alt="" tabindex="0" width="160" height="160" src="data:image/jpeg;base64,([^"]+)">'
-                r'<figcaption class="path">([^<]+)</figcaption>', html))
-            self.assertEqual(Image.open(io.BytesIO(base64.b64decode(shown[path]))).size, (32, 32), path)
+            shown = {p: im for im, p in self.figures(self.resplit("linked"))}
+            self.assertEqual(shown[path].size, (32, 32), path)
+        finally:
+            os.remove(target)
+            os.rename(kept, target)
+
+    def test_a_file_replaced_by_a_fifo_does_not_stop_the_page(self):
+        # A FIFO with no writer where a shown picture was: opening it for reading
+        # must not wait (the read stage's discipline, file_bytes.h); the page shows
+        # the path by its saved thumbnail.
+        groups = self.groups_section(self.html)
+        path = next(p for _, p in self.figures() if f">{p}<" in groups)
+        target = os.path.join(self.root, path)
+        kept = target + ".kept"
+        os.rename(target, kept)
+        os.mkfifo(target)
+        try:
+            shown = {p: im for im, p in self.figures(self.resplit("fifo"))}
+            self.assertEqual(shown[path].size, (32, 32), path)
         finally:
             os.remove(target)
             os.rename(kept, target)

@@ -2,10 +2,10 @@
 // groups, flagged images and masks), decoded again from the file when the
 // report is written. Read-only; never writes anything.
 //
-// Contract: preview_image(file, side, limits) reads the file (a regular file,
-// opened without following a link in its last component; at most
-// limits-sized work: the decode stage's pixel and memory limits apply), decodes
-// it through decode_image (decode.h: the same decoders, the same alpha rule: a
+// Contract: preview_image(file, side, max_bytes, limits) reads the file as the
+// read stage does (file_bytes.h: a regular file of at most max_bytes, never
+// through a link, never blocking), decodes it through decode_image (decode.h:
+// the same decoders and pixel and memory limits, the same alpha rule: a
 // transparent picture as it looks laid over white, or black where white would
 // hide it) at a reduced size, and area-reduces it so that its longer side is at
 // most `side` (never enlarged). The result is 8-bit BGR, as stored (EXIF
@@ -24,6 +24,6 @@
 
 namespace tamis {
 
-cv::Mat preview_image(const std::filesystem::path& file, uint32_t side, const DecodeLimits& limits);
+cv::Mat preview_image(const std::filesystem::path& file, uint32_t side, uint64_t max_bytes, const DecodeLimits& limits);
 
 }  // namespace tamis
