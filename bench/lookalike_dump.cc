@@ -2,7 +2,7 @@
 // thumbnails and hashes of the planted sets (tests/support/planted.h) and of
 // Fashion-MNIST, with the pairs whose truth is known, for analysis outside the
 // project (numpy):
-//   DIR/thumbs.u8   N x 1,152 bytes (record.h's thumbnail layout)
+//   DIR/thumbs.u8   N x 3,072 bytes (record.h's thumbnail layout)
 //   DIR/phash.u64   N x 8 codes (transform t of each image)
 //   DIR/pairs.tsv   kind  family  a  b   (copy pairs: a = source, b = copy;
 //                   "distinct" pairs of rendered scenes, family = how)

@@ -65,6 +65,15 @@ int main(int argc, char** argv) {
   // Distinct photograph tiles (pairs of tiles of one photograph share textures).
   std::vector<Lookalike> tile_looks;
   for (const auto& t : tiles) tile_looks.push_back(test::lookalike_of_bytes(test::encode_copy(t, 90)));
+  // The same distinct pictures with the second of each pair hue-turned by 40
+  // degrees (a whole-picture colour change on top of the difference).
+  std::vector<std::vector<Lookalike>> scene_turned;
+  for (const auto& sc : scenes) {
+    scene_turned.emplace_back();
+    for (const auto& p : sc.pictures) scene_turned.back().push_back(test::lookalike_of_bytes(test::encode_copy(test::hue_turned(p, 40), 90)));
+  }
+  std::vector<Lookalike> tile_turned;
+  for (const auto& t : tiles) tile_turned.push_back(test::lookalike_of_bytes(test::encode_copy(test::hue_turned(t, 40), 90)));
   // Fashion-MNIST records for find_groups.
   std::vector<FileRecord> records(files.size());
   ThumbnailTable thumbs;
@@ -109,6 +118,16 @@ int main(int argc, char** argv) {
     int tiles_joined = 0;
     for (size_t i = 0; i < tile_looks.size(); ++i)
       for (size_t j = i + 1; j < tile_looks.size(); ++j) tiles_joined += test::pair_joined(tile_looks[i], tile_looks[j], gs);
+    int turned_scenes = 0, turned_tiles = 0;
+    for (size_t sc = 0; sc < scenes.size(); ++sc)
+      for (size_t i = 0; i < scene_looks[sc].size(); ++i)
+        for (size_t j = i + 1; j < scene_looks[sc].size(); ++j)
+          if (test::pair_joined(scene_looks[sc][i], scene_turned[sc][j], gs)) {
+            ++turned_scenes;
+            ++wrong["turned: " + scenes[sc].how[i] + " / " + scenes[sc].how[j]];
+          }
+    for (size_t i = 0; i < tile_looks.size(); ++i)
+      for (size_t j = i + 1; j < tile_looks.size(); ++j) turned_tiles += test::pair_joined(tile_looks[i], tile_turned[j], gs);
     const GroupResult g = find_groups(records, thumbs, gs);
     size_t grouped = 0;
     for (const auto& grp : g.groups) grouped += grp.members.size();
@@ -120,9 +139,10 @@ int main(int argc, char** argv) {
         worst_total = ft.second;
         worst = name;
       }
-    std::printf("local %.3f chroma %.2f corr %.3f | lowest recall %s %d/%d | distinct joined %d/%d, tiles %d/%zu | fashion-mnist grouped %zu\n",
+    std::printf("local %.3f chroma %.2f corr %.3f | lowest recall %s %d/%d | distinct joined %d/%d, tiles %d/%zu, "
+                "one side hue-turned %d + %d | fashion-mnist grouped %zu\n",
                 gs.match.max_local, gs.match.max_chroma, gs.match.min_correlation, worst.c_str(), worst_found, worst_total, distinct_joined,
-                distinct_pairs, tiles_joined, tile_looks.size() * (tile_looks.size() - 1) / 2, grouped);
+                distinct_pairs, tiles_joined, tile_looks.size() * (tile_looks.size() - 1) / 2, turned_scenes, turned_tiles, grouped);
     if (!detail) return;
     std::printf("%-26s %s\n", "kind", "found / copies");
     for (const auto& [name, ft] : per_kind) std::printf("%-26s %4d / %4d  %.3f\n", name.c_str(), ft.first, ft.second, double(ft.first) / ft.second);

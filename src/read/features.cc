@@ -438,8 +438,8 @@ void apply_dihedral(const uint8_t* src, uint8_t* dst, int n, int t) {
 
 void turn_thumbnail(const Thumbnail& src, Thumbnail& dst, int t) {
   apply_dihedral(src.data(), dst.data(), kThumbSide, t);
-  apply_dihedral(src.data() + kGrayBytes, dst.data() + kGrayBytes, kChromaSide, t);
-  apply_dihedral(src.data() + kGrayBytes + kChromaPlane, dst.data() + kGrayBytes + kChromaPlane, kChromaSide, t);
+  apply_dihedral(src.data() + kGrayBytes, dst.data() + kGrayBytes, kThumbSide, t);
+  apply_dihedral(src.data() + kGrayBytes + kChromaPlane, dst.data() + kGrayBytes + kChromaPlane, kThumbSide, t);
 }
 
 Lookalike lookalike_features(const cv::Mat& reduced) {
@@ -447,7 +447,7 @@ Lookalike lookalike_features(const cv::Mat& reduced) {
   cv::Mat t32 = hash_thumbnail(reduced);
   f.phash = dct_hashes(t32);
   for (int y = 0; y < 32; ++y) std::copy(t32.ptr<uint8_t>(y), t32.ptr<uint8_t>(y) + 32, f.thumb.begin() + y * 32);
-  // Chroma at 8x8 (area-averaged); a gray image's is neutral.
+  // Chroma at 32x32, reduced as the gray plane is; a gray image's is neutral.
   uint8_t* cb = f.thumb.data() + kGrayBytes;
   uint8_t* cr = cb + kChromaPlane;
   if (reduced.channels() == 1) {
@@ -456,14 +456,15 @@ Lookalike lookalike_features(const cv::Mat& reduced) {
     cv::Mat bgr = reduced, ycc, small;
     if (reduced.channels() == 4) cv::cvtColor(reduced, bgr, cv::COLOR_BGRA2BGR);
     cv::cvtColor(bgr, ycc, cv::COLOR_BGR2YCrCb);
-    const bool shrink = ycc.cols >= kChromaSide && ycc.rows >= kChromaSide;
-    cv::resize(ycc, small, cv::Size(kChromaSide, kChromaSide), 0, 0, shrink ? cv::INTER_AREA : cv::INTER_LINEAR);
-    for (int y = 0; y < kChromaSide; ++y)
-      for (int x = 0; x < kChromaSide; ++x) {
-        const cv::Vec3b p = small.at<cv::Vec3b>(y, x);
-        cr[y * kChromaSide + x] = p[1];
-        cb[y * kChromaSide + x] = p[2];
+    const bool shrink = ycc.cols >= kThumbSide && ycc.rows >= kThumbSide;
+    cv::resize(ycc, small, cv::Size(kThumbSide, kThumbSide), 0, 0, shrink ? cv::INTER_AREA : cv::INTER_LINEAR);
+    for (int y = 0; y < kThumbSide; ++y) {
+      const cv::Vec3b* row = small.ptr<cv::Vec3b>(y);
+      for (int x = 0; x < kThumbSide; ++x) {
+        cr[y * kThumbSide + x] = row[x][1];
+        cb[y * kThumbSide + x] = row[x][2];
       }
+    }
   }
   return f;
 }

@@ -69,30 +69,21 @@ void ochre_over(double c[3], uint8_t value, uint8_t top) {
 }
 
 // The look-alike thumbnail in colour, 32x32 RGB: its gray plane as luma and its
-// 8x8 chroma (OpenCV's 8-bit YCrCb, BT.601) enlarged bilinearly (cell centres,
-// edges held), converted back with the BT.601 coefficients. Computed in double,
-// so the same on every processor. With `mask`, the mask's thumbnail is drawn over
-// it in ochre, in proportion to the mask's share of its brightest value.
+// chroma (OpenCV's 8-bit YCrCb, BT.601), converted back with the BT.601
+// coefficients. Computed in double, so the same on every processor. With `mask`,
+// the mask's thumbnail is drawn over it in ochre, in proportion to the mask's
+// share of its brightest value.
 std::vector<uint8_t> colour_thumbnail(const Thumbnail& t, const Thumbnail* mask = nullptr) {
   std::vector<uint8_t> rgb(static_cast<size_t>(kThumbSide * kThumbSide * 3));
-  const uint8_t* cb = t.data() + kThumbSide * kThumbSide;
-  const uint8_t* cr = cb + kChromaSide * kChromaSide;
+  const uint8_t* cb = t.data() + kGrayBytes;
+  const uint8_t* cr = cb + kChromaPlane;
   uint8_t mask_top = 0;
   if (mask)
     for (int i = 0; i < kThumbSide * kThumbSide; ++i) mask_top = std::max(mask_top, (*mask)[static_cast<size_t>(i)]);
-  const double scale = double(kChromaSide) / kThumbSide;
-  auto at = [](const uint8_t* plane, int x, int y) { return double(plane[y * kChromaSide + x]); };
   for (int y = 0; y < kThumbSide; ++y)
     for (int x = 0; x < kThumbSide; ++x) {
-      const double fx = std::clamp((x + 0.5) * scale - 0.5, 0.0, double(kChromaSide - 1));
-      const double fy = std::clamp((y + 0.5) * scale - 0.5, 0.0, double(kChromaSide - 1));
-      const int x0 = static_cast<int>(fx), y0 = static_cast<int>(fy);
-      const int x1 = std::min(x0 + 1, kChromaSide - 1), y1 = std::min(y0 + 1, kChromaSide - 1);
-      const double ax = fx - x0, ay = fy - y0;
-      auto lerp = [&](const uint8_t* p) {
-        return (at(p, x0, y0) * (1 - ax) + at(p, x1, y0) * ax) * (1 - ay) + (at(p, x0, y1) * (1 - ax) + at(p, x1, y1) * ax) * ay;
-      };
-      const double Y = t[static_cast<size_t>(y * kThumbSide + x)], u = lerp(cb) - 128.0, v = lerp(cr) - 128.0;
+      const size_t i = static_cast<size_t>(y * kThumbSide + x);
+      const double Y = t[i], u = double(cb[i]) - 128.0, v = double(cr[i]) - 128.0;
       double c[3] = {Y + 1.403 * v, Y - 0.714 * v - 0.344 * u, Y + 1.773 * u};
       if (mask && mask_top > 0) ochre_over(c, (*mask)[static_cast<size_t>(y * kThumbSide + x)], mask_top);
       for (int k = 0; k < 3; ++k)

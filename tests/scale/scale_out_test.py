@@ -72,9 +72,9 @@ def read_part(path):
         data = f.read()
     assert data[:16] == b"\x89tamis-part\r\n\x1a\n\0", "signature"
     version, zero, meta_n, count, recs_n, thumbs_n, zero2 = struct.unpack_from("<IIQQQQQ", data, 16)
-    assert version == 1 and zero == 0 and zero2 == 0
+    assert version == 2 and zero == 0 and zero2 == 0
     thumbs_at = 64 + meta_n + recs_n + 16 * thumbs_n
-    assert len(data) == thumbs_at + 1152 * thumbs_n + 24, "length"
+    assert len(data) == thumbs_at + 3072 * thumbs_n + 24, "length"
     head_sum, file_sum = struct.unpack_from("<QQ", data, len(data) - 24)
     assert data[-8:] == b"tamisend"
     assert xxhash.xxh3_64_intdigest(data[:thumbs_at]) == head_sum, "first checksum"
@@ -89,7 +89,7 @@ def read_part(path):
     assert at == 64 + meta_n + recs_n
     for k in range(thumbs_n):
         rec, s = struct.unpack_from("<QQ", data, at + 16 * k)
-        thumb = data[thumbs_at + 1152 * k:thumbs_at + 1152 * (k + 1)]
+        thumb = data[thumbs_at + 3072 * k:thumbs_at + 3072 * (k + 1)]
         assert xxhash.xxh3_64_intdigest(thumb) == s, "a thumbnail's checksum"
     return meta, paths
 

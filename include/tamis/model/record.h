@@ -89,12 +89,14 @@ struct LookalikeCodes {
 };
 
 // A look-alike thumbnail: the 32x32 gray thumbnail the codes are made from
-// (row-major, bytes 0-1023), then the picture's chroma at 8x8: Cb (1024-1087)
-// and Cr (1088-1151), ITU-R BT.601 as OpenCV's YCrCb, 128 = neutral (a gray
-// image's chroma is all 128). The chroma lets confirmation tell apart pictures
-// whose gray versions match but whose colours differ in one part (match.h).
-inline constexpr int kThumbSide = 32, kChromaSide = 8;
-inline constexpr size_t kGrayBytes = 1024, kChromaPlane = 64;
+// (row-major, bytes 0-1023), then the picture's chroma at the same 32x32:
+// Cb (1024-2047) and Cr (2048-3071), ITU-R BT.601 as OpenCV's YCrCb, 128 =
+// neutral (a gray image's chroma is all 128). The chroma lets confirmation tell
+// apart pictures whose gray versions match but whose colours differ in one part,
+// and predict how a change of hue or saturation moves each pixel's gray level
+// (match.h). Until the sixteenth session the chroma was 8x8 (1,152 bytes).
+inline constexpr int kThumbSide = 32;
+inline constexpr size_t kGrayBytes = 1024, kChromaPlane = 1024;
 using Thumbnail = std::array<uint8_t, kGrayBytes + 2 * kChromaPlane>;
 
 // Look-alike signals of one image as features.h computes them: the codes and the

@@ -13,7 +13,7 @@
 //   records  per record: path length u32, path, size u64, mtime u64, inode u64,
 //            record byte count u8, the record's bytes
 //   table    per thumbnail: record index u64, XXH3-64 of the thumbnail u64
-//   thumbs   per thumbnail: 1,152 bytes (model/record.h Thumbnail)
+//   thumbs   per thumbnail: 3,072 bytes (model/record.h Thumbnail)
 //   trailer  XXH3-64 of every byte before the thumbnails, XXH3-64 of every byte
 //            before the trailer, "tamisend"
 //
@@ -39,7 +39,7 @@
 
 namespace tamis {
 
-inline constexpr uint32_t kPartVersion = 1;
+inline constexpr uint32_t kPartVersion = 2;  // 2: thumbnails of 3,072 bytes (32x32 chroma)
 
 struct PartError : std::runtime_error {
   using std::runtime_error::runtime_error;

@@ -45,7 +45,7 @@ struct ReadOptions {
   unsigned threads = 0;                      // 0 = all cores
   uint64_t max_bytes = 4ull << 30;           // files larger than this are not read
   DecodeLimits decode;
-  // Thumbnails (1,152 bytes an image) beyond this many bytes go to a scratch
+  // Thumbnails (3,072 bytes an image) beyond this many bytes go to a scratch
   // file in `scratch_dir` instead of memory (ThumbnailTable), unless that folder
   // is empty, missing or inside ROOT, or the file cannot be made there (no
   // space, read-only: ReadCounts::scratch_note says why, and the thumbnails stay

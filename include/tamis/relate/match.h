@@ -86,8 +86,9 @@ namespace tamis {
 // colour check's luma term; 4: a turn of the chroma only as a hue turn of the
 // whole picture, and the colour checks for pictures whose gray is flat; 5: the
 // colour check's local share; 6: a closer correlation for pictures under
-// small_side; 7: the second candidate key, screen_radius).
-inline constexpr int kMatchRules = 7;
+// small_side; 7: the second candidate key, screen_radius; 8: 32x32 chroma, a
+// whole-picture HSV change modelled in the fit, and fitted from kColourFitFloor).
+inline constexpr int kMatchRules = 8;
 
 struct MatchSettings {
   double min_correlation = 0.995;
@@ -133,7 +134,16 @@ MatchSettings pair_settings(const MatchSettings& settings, float allowance_a, fl
 // and the planted tone and colour copies lose almost nothing from 0.98 to 0.99
 // (docs/lookalikes.md).
 inline constexpr double kFitGate = 0.99;
-double fit_gate(const MatchSettings& settings);
+// A pair whose two pictures have colour is fitted from a lower floor,
+// kColourFitFloor (or fit_floor when lower), which is also its gate, when its
+// colours changed as a whole (the colour check's fit turns the chroma by 10
+// degrees or more or scales it by 10% or more): a hue or saturation change
+// leaves copies whose plain correlation is 0.91-0.98 (photograph tiles turned
+// by 60 degrees), and the fit's turn regressor predicts that change pixel by
+// pixel (docs/lookalikes.md).
+inline constexpr double kColourFitFloor = 0.90;
+double fit_floor(const MatchSettings& settings, bool colour);
+double fit_gate(const MatchSettings& settings, bool colour = false);
 
 // The blur ladder: sigma = 0.25 s thumbnail pixels for s = 0..kBlurSteps-1
 // (kBlurSteps is in model/group.h, since a stored link names its step).
@@ -157,6 +167,7 @@ struct alignas(128) MatchProfile {
   std::array<int16_t, kScreenSlots> low{};
   std::array<uint16_t, kBlurSteps> energy{};
   bool flat = false;
+  bool colour = false;  // the chroma varies (the colour checks' rule)
 };
 static_assert(sizeof(MatchProfile) == 128);
 MatchProfile match_profile(const Thumbnail& thumb);
