@@ -1,6 +1,7 @@
 #include "tamis/model/record.h"
 
 #include <algorithm>
+#include <cstring>
 
 #include "tamis/base/memory.h"
 
@@ -90,7 +91,8 @@ std::string_view defect_message(Defect d) {
 }
 
 ThumbnailTable::ThumbnailTable(const ThumbnailTable& other)
-    : n_(other.n_), all_(other.all_), file_(other.file_), slot_(other.slot_), data_(other.data_) {
+    : n_(other.n_), all_(other.all_), file_(other.file_), chroma_at_(other.chroma_at_), slot_(other.slot_), data_(other.data_) {
+  if (other.chroma_used_) chroma_used_ = std::make_unique<std::atomic<uint32_t>>(other.chroma_used_->load());
   if (other.dense_) {
     dense_.reset(new Thumbnail[std::max<size_t>(n_, 1)]);
     std::copy_n(other.dense_.get(), n_, dense_.get());
@@ -114,6 +116,9 @@ void ThumbnailTable::assign_all(size_t records, bool zeroed) {
   data_.clear();
   data_.shrink_to_fit();
   dense_.reset();
+  chroma_at_.clear();
+  chroma_at_.shrink_to_fit();
+  chroma_used_.reset();
   dense_.reset(new Thumbnail[std::max<size_t>(records, 1)]);  // default-initialised: not written yet
   advise_huge_pages(dense_.get(), records * sizeof(Thumbnail));
   if (zeroed) std::fill_n(dense_.get(), records, Thumbnail{});
@@ -124,6 +129,9 @@ void ThumbnailTable::assign_none(size_t records) {
   all_ = false;
   dense_.reset();
   file_.reset();
+  chroma_at_.clear();
+  chroma_at_.shrink_to_fit();
+  chroma_used_.reset();
   slot_.assign(records, kNone);
   data_.clear();
   data_.shrink_to_fit();
@@ -135,6 +143,33 @@ void ThumbnailTable::assign_spilled(size_t records, const std::filesystem::path&
   n_ = records;
   all_ = true;
   file_ = std::move(file);
+  chroma_at_.assign(records, kZeroChroma);
+  chroma_used_ = std::make_unique<std::atomic<uint32_t>>(0);
+}
+
+// A spilled record's chroma slot for these planes: kZeroChroma or kNeutralChroma
+// when they are all 0 or all 128, else the record's pool slot (a new one, also
+// left in *fresh, when it has none yet; *fresh is kNone otherwise).
+uint32_t ThumbnailTable::chroma_slot(size_t record, const uint8_t* chroma, uint32_t* fresh) {
+  *fresh = kNone;
+  static const std::array<uint8_t, 2 * kChromaPlane> zero{}, neutral = [] {
+    std::array<uint8_t, 2 * kChromaPlane> a;
+    a.fill(128);
+    return a;
+  }();
+  if (std::memcmp(chroma, neutral.data(), neutral.size()) == 0) return kNeutralChroma;
+  if (std::memcmp(chroma, zero.data(), zero.size()) == 0) return kZeroChroma;
+  const uint32_t had = chroma_at_[record];
+  if (had != kZeroChroma && had != kNeutralChroma) return had;
+  *fresh = chroma_used_->fetch_add(1, std::memory_order_relaxed);
+  return *fresh;
+}
+
+void ThumbnailTable::fill_chroma(uint32_t slot, uint8_t* chroma) const {
+  if (slot == kZeroChroma || slot == kNeutralChroma)
+    std::fill_n(chroma, 2 * kChromaPlane, slot == kZeroChroma ? uint8_t{0} : uint8_t{128});
+  else
+    file_->read_at(pool_offset(slot), chroma, 2 * kChromaPlane);
 }
 
 void ThumbnailTable::make_room(const std::vector<uint32_t>& which) {
@@ -150,24 +185,55 @@ void ThumbnailTable::make_room(const std::vector<uint32_t>& which) {
 }
 
 void ThumbnailTable::get(size_t record, Thumbnail& out) const {
-  if (file_)
-    file_->read_at(static_cast<uint64_t>(record) * sizeof(Thumbnail), out.data(), out.size());
-  else
+  if (!file_) {
     out = at(record);
+    return;
+  }
+  file_->read_at(static_cast<uint64_t>(record) * kGrayBytes, out.data(), kGrayBytes);
+  fill_chroma(chroma_at_[record], out.data() + kGrayBytes);
 }
 
 void ThumbnailTable::put(size_t record, const Thumbnail& t) {
-  if (file_)
-    file_->write_at(static_cast<uint64_t>(record) * sizeof(Thumbnail), t.data(), t.size());
-  else
+  if (!file_) {
     at(record) = t;
+    return;
+  }
+  file_->write_at(static_cast<uint64_t>(record) * kGrayBytes, t.data(), kGrayBytes);
+  uint32_t fresh;
+  const uint32_t slot = chroma_slot(record, t.data() + kGrayBytes, &fresh);
+  if (slot != kZeroChroma && slot != kNeutralChroma) file_->write_at(pool_offset(slot), t.data() + kGrayBytes, 2 * kChromaPlane);
+  chroma_at_[record] = slot;
 }
 
 void ThumbnailTable::put_range(size_t first, size_t count, const Thumbnail* data) {
-  if (file_)
-    file_->write_at(static_cast<uint64_t>(first) * sizeof(Thumbnail), data, count * sizeof(Thumbnail));
-  else
+  if (!file_) {
     for (size_t k = 0; k < count; ++k) at(first + k) = data[k];
+    return;
+  }
+  // The gray planes in one write; the chroma that needs the pool in as few
+  // writes as there are runs of consecutive slots.
+  std::vector<uint8_t> buf(count * kGrayBytes);
+  for (size_t k = 0; k < count; ++k) std::copy_n(data[k].data(), kGrayBytes, buf.data() + k * kGrayBytes);
+  file_->write_at(static_cast<uint64_t>(first) * kGrayBytes, buf.data(), buf.size());
+  buf.clear();
+  uint32_t run_start = kNone, run_next = kNone;
+  auto flush = [&]() {
+    if (!buf.empty()) file_->write_at(pool_offset(run_start), buf.data(), buf.size());
+    buf.clear();
+  };
+  for (size_t k = 0; k < count; ++k) {
+    uint32_t fresh;
+    const uint32_t slot = chroma_slot(first + k, data[k].data() + kGrayBytes, &fresh);
+    chroma_at_[first + k] = slot;
+    if (slot == kZeroChroma || slot == kNeutralChroma) continue;
+    if (slot != run_next) {
+      flush();
+      run_start = slot;
+    }
+    buf.insert(buf.end(), data[k].data() + kGrayBytes, data[k].data() + sizeof(Thumbnail));
+    run_next = slot + 1;
+  }
+  flush();
 }
 
 void ThumbnailTable::get_many(const uint32_t* which, size_t count, Thumbnail* out) const {
@@ -175,12 +241,30 @@ void ThumbnailTable::get_many(const uint32_t* which, size_t count, Thumbnail* ou
     for (size_t k = 0; k < count; ++k) out[k] = at(which[k]);
     return;
   }
-  // Runs of consecutive records, one read each (Thumbnail is a byte array: no padding).
-  static_assert(sizeof(Thumbnail) == kGrayBytes + 2 * kChromaPlane);
+  // Runs of consecutive records, one read each for their gray planes, and runs
+  // of consecutive pool slots, one read each for their chroma.
+  std::vector<uint8_t> buf;
   for (size_t k = 0; k < count;) {
     size_t e = k + 1;
     while (e < count && which[e] == which[e - 1] + 1) ++e;
-    file_->read_at(static_cast<uint64_t>(which[k]) * sizeof(Thumbnail), out[k].data(), (e - k) * sizeof(Thumbnail));
+    buf.resize((e - k) * kGrayBytes);
+    file_->read_at(static_cast<uint64_t>(which[k]) * kGrayBytes, buf.data(), buf.size());
+    for (size_t q = k; q < e; ++q) std::copy_n(buf.data() + (q - k) * kGrayBytes, kGrayBytes, out[q].data());
+    k = e;
+  }
+  constexpr size_t kChroma = 2 * kChromaPlane;
+  for (size_t k = 0; k < count;) {
+    const uint32_t slot = chroma_at_[which[k]];
+    if (slot == kZeroChroma || slot == kNeutralChroma) {
+      fill_chroma(slot, out[k].data() + kGrayBytes);
+      ++k;
+      continue;
+    }
+    size_t e = k + 1;
+    while (e < count && chroma_at_[which[e]] == slot + (e - k)) ++e;
+    buf.resize((e - k) * kChroma);
+    file_->read_at(pool_offset(slot), buf.data(), buf.size());
+    for (size_t q = k; q < e; ++q) std::copy_n(buf.data() + (q - k) * kChroma, kChroma, out[q].data() + kGrayBytes);
     k = e;
   }
 }

@@ -293,11 +293,14 @@ std::vector<uint32_t> RecordCache::load_thumbnails(ThumbnailTable& thumbs, const
   auto fill = [&](size_t w, std::span<const uint8_t> stored) {
     bool bad = false;
     const auto data = checked(stored, row_seed(paths_[wanted[w].first]), bad);
-    if (bad || data.size() != thumb.size()) {
+    // A whole thumbnail, or its gray plane alone when its chroma is neutral (a
+    // gray image's: store_rows keeps a third of the bytes).
+    if (bad || (data.size() != thumb.size() && data.size() != kGrayBytes)) {
       ++damaged_rows_;
       return;
     }
     std::copy(data.begin(), data.end(), thumb.begin());
+    if (data.size() == kGrayBytes) std::fill(thumb.begin() + kGrayBytes, thumb.end(), uint8_t{128});
     thumbs.put(wanted[w].second, thumb);
     found[w] = 1;
   };
@@ -513,7 +516,8 @@ void RecordCache::store_rows(const std::vector<FileRecord>& records, const Thumb
       sqlite3_bind_blob(t.s, 2, r.path.data(), static_cast<int>(r.path.size()), SQLITE_TRANSIENT);
       if (with_thumb) {
         thumbs.get(i, thumb);
-        thumb_data.assign(thumb.begin(), thumb.end());
+        const bool neutral = std::all_of(thumb.begin() + kGrayBytes, thumb.end(), [](uint8_t v) { return v == 128; });
+        thumb_data.assign(thumb.begin(), neutral ? thumb.begin() + kGrayBytes : thumb.end());
         append_sum(thumb_data, row_seed(r.path));
         sqlite3_bind_blob(t.s, 3, thumb_data.data(), static_cast<int>(thumb_data.size()), SQLITE_STATIC);
       }

@@ -8,6 +8,7 @@
 #pragma once
 
 #include <array>
+#include <atomic>
 #include <cstdint>
 #include <filesystem>
 #include <memory>
@@ -111,7 +112,11 @@ struct Lookalike : LookalikeCodes {
 // by record; a record may have no slot. The slots live in memory, or, for a tree
 // whose thumbnails would take more memory than the read allows
 // (ReadOptions::thumbnail_memory_bytes), in a scratch file (base/spill_file.h):
-// then get() and put() read and write the file and at() may not be used.
+// then get() and put() read and write the file and at() may not be used. In the
+// file a thumbnail's gray plane has its own place (record x 1,024 bytes) and its
+// two chroma planes go to a pool after all the gray planes only when they are
+// neither all 128 (a gray image) nor all 0 (never written): a tree of gray
+// images writes a third of the bytes (Fashion-MNIST: 72 MB instead of 215 MB).
 // keep_only() brings the slots the outputs show back into memory and frees the
 // rest. Where the slots live never changes a value read from them.
 class ThumbnailTable {
@@ -153,10 +158,17 @@ class ThumbnailTable {
 
  private:
   static constexpr uint32_t kNone = UINT32_MAX;
+  // A spilled record's chroma: a pool slot, or one of these.
+  static constexpr uint32_t kZeroChroma = UINT32_MAX, kNeutralChroma = UINT32_MAX - 1;
+  uint32_t chroma_slot(size_t record, const uint8_t* chroma, uint32_t* fresh);
+  void fill_chroma(uint32_t slot, uint8_t* chroma) const;
+  uint64_t pool_offset(uint32_t slot) const { return static_cast<uint64_t>(n_) * kGrayBytes + uint64_t{slot} * 2 * kChromaPlane; }
   size_t n_ = 0;
-  bool all_ = false;                     // record i in dense_[i], or in the file at i * sizeof(Thumbnail)
+  bool all_ = false;                     // record i in dense_[i], or in the file (gray at i * kGrayBytes)
   std::unique_ptr<Thumbnail[]> dense_;
   std::shared_ptr<SpillFile> file_;      // set: the slots are in this file
+  std::vector<uint32_t> chroma_at_;      // spilled: per record, its chroma's pool slot or kZeroChroma / kNeutralChroma
+  std::unique_ptr<std::atomic<uint32_t>> chroma_used_;  // spilled: pool slots handed out
   std::vector<uint32_t> slot_;           // otherwise: per record, its slot in data_ or kNone
   std::vector<Thumbnail> data_;
 };
