@@ -1,5 +1,5 @@
-// Look-alike confirmation: whether two thumbnails (record.h: 32x32 gray and 8x8
-// chroma) that the hash join put side by side show the same picture.
+// Look-alike confirmation: whether two thumbnails (record.h: 32x32 gray and
+// 32x32 chroma) that the hash join put side by side show the same picture.
 //
 // Four measurements, all after the hit's flip/turn, each from a published or
 // textbook quantity:
@@ -25,9 +25,13 @@
 //    linear Pearson correlation cannot follow), and, when the source has colour,
 //    linear terms in its chroma (bilinear from the 8x8 cells: Cb, Cr, and the
 //    largest and smallest of R - Y, G - Y, B - Y, which is how an HSV hue or
-//    saturation change moves the gray level of coloured pixels). The
-//    correlation is then sqrt(explained share), the better of the two ways
-//    round, and the local check measures the fit's residual;
+//    saturation change moves the gray level of coloured pixels), and, when the
+//    pair's colours changed as a whole (an HSV turn and saturation factor of
+//    the cells that explain the other side's chroma), the gray change that this
+//    change makes to each pixel's own colour (from the 32x32 chroma). Such pairs,
+//    both sides in colour, are fitted from a plain correlation of
+//    kColourFitFloor. The correlation is then sqrt(explained share), the better
+//    of the two ways round, and the local check measures the fit's residual;
 //  - local: the residual between the two standardized thumbnails (zero mean, unit
 //    variance; the sharper after its blur), its mean square in the worst 8x8
 //    window (windows at a step of 4). The global mean square is 2 (1 -
@@ -36,7 +40,8 @@
 //    them in a window. It catches pictures on a shared smooth backdrop whose
 //    correlation is high because the backdrop dominates the variance;
 //  - chroma: the share of the colour variation that no global colour change
-//    explains. The less colourful thumbnail's 8x8 chroma z = Cb + i Cr is fitted
+//    explains. The less colourful thumbnail's chroma in 8x8 cells (means of
+//    4x4 pixels) z = Cb + i Cr is fitted
 //    by least squares as alpha z' + gamma y' + beta of the other's chroma z' and
 //    luma cells y' (complex alpha: a hue rotation and a saturation scale; gamma:
 //    the cast that grows with brightness, which gains on red and blue leave, held
