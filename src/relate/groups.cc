@@ -226,6 +226,39 @@ std::vector<GroupLink> join_lookalikes(const std::vector<FileRecord>& records, c
                                        }, keep, &screen_found);
   out.candidate_hits += screen_found;
   confirm_hits(screen_hits, thumbs, eligible, profile, allowance, settings, confirmed);
+  // The third key: the value plane's screen coefficients (value_profile), for
+  // the images in colour, hits that neither the hash nor the gray key gave.
+  std::vector<uint32_t> coloured;
+  for (uint32_t k = 0; k < n; ++k)
+    if (profile[k].colour) coloured.push_back(k);
+  const int64_t threshold2 = screen_threshold(settings.screen_radius);
+  if (threshold2 > 0 && coloured.size() >= 2) {
+    std::vector<MatchProfile> value(coloured.size());
+    parallel_for((coloured.size() + kBlock - 1) / kBlock, settings.threads, [&](size_t b) {
+      const size_t first = b * kBlock, count = std::min(kBlock, coloured.size() - first);
+      std::vector<uint32_t> recs(count);
+      for (size_t q = 0; q < count; ++q) recs[q] = eligible[coloured[first + q]];
+      std::vector<Thumbnail> block(count);
+      thumbs.get_many(recs.data(), count, block.data());
+      for (size_t q = 0; q < count; ++q) value[first + q] = value_profile(block[q]);
+    }, 1);
+    uint64_t value_found = 0;
+    auto value_hits = screen_join(value, threshold2, settings.threads, [&](uint32_t v, uint32_t cj) {
+      const uint32_t i = coloured[v / kDihedralCount], j = coloured[cj];
+      const int t = static_cast<int>(v % kDihedralCount);
+      if (hamming(records[eligible[i]].features.look.phash[t], identity[j]) <= settings.radius) return false;
+      const int64_t d2 = screen_distance2(profile[i], t, profile[j]);
+      return d2 < 0 || d2 > threshold2;
+    }, [&](uint32_t v, uint32_t cj) {
+      return keep(coloured[v / kDihedralCount] * kDihedralCount + v % kDihedralCount, coloured[cj]);
+    }, &value_found);
+    out.candidate_hits += value_found;
+    for (auto& [v, j] : value_hits) {  // to eligible indices (ascending with the compact ones)
+      v = coloured[v / kDihedralCount] * kDihedralCount + v % kDihedralCount;
+      j = coloured[j];
+    }
+    confirm_hits(value_hits, thumbs, eligible, profile, allowance, settings, confirmed);
+  }
   return confirmed;
 }
 
@@ -517,8 +550,36 @@ LookalikeLinks join_lookalike_slice(const std::vector<FileRecord>& records, cons
                             pair_settings(settings.match, allowance[i], allowance[j]));
     }, &found);
     result.candidate_hits += found;
-    std::vector<MatchProfile>().swap(profile);
     confirm_kept(kept);
+    // The third key (value_profile) among the images in colour, as the whole
+    // join has it: hits that neither the hash nor the gray key gave.
+    std::vector<uint32_t> coloured;
+    for (uint32_t k = 0; k < n; ++k)
+      if (profile[k].colour) coloured.push_back(k);
+    if (coloured.size() >= 2) {
+      std::vector<MatchProfile> value(coloured.size());
+      read(coloured, [&](size_t q, const Thumbnail& th) { value[q] = value_profile(th); });
+      uint64_t value_found = 0;
+      auto value_kept = screen_join(value, threshold2, settings.threads, [&](uint32_t v, uint32_t cj) {
+        const uint32_t i = coloured[v / kDihedralCount], j = coloured[cj];
+        const int t = static_cast<int>(v % kDihedralCount);
+        if (i % slices != slice || hamming(records[eligible[i]].features.look.phash[t], identity[j]) <= settings.radius) return false;
+        const int64_t d2 = screen_distance2(profile[i], t, profile[j]);
+        return d2 < 0 || d2 > threshold2;
+      }, [&](uint32_t v, uint32_t cj) {
+        const uint32_t i = coloured[v / kDihedralCount], j = coloured[cj];
+        return match_may_join(profile[i], static_cast<int>(v % kDihedralCount), profile[j],
+                              pair_settings(settings.match, allowance[i], allowance[j]));
+      }, &value_found);
+      result.candidate_hits += value_found;
+      for (auto& [v, j] : value_kept) {  // to eligible indices
+        v = coloured[v / kDihedralCount] * kDihedralCount + v % kDihedralCount;
+        j = coloured[j];
+      }
+      std::vector<MatchProfile>().swap(value);
+      std::vector<MatchProfile>().swap(profile);
+      confirm_kept(value_kept);
+    }
   }
   one_link_a_pair(confirmed);
   result.links = std::move(confirmed);

@@ -729,6 +729,26 @@ MatchProfile match_profile(const Thumbnail& thumb) {
   return p;
 }
 
+MatchProfile value_profile(const Thumbnail& thumb) {
+  if (!has_colour(thumb)) {
+    MatchProfile p;
+    p.flat = true;
+    return p;
+  }
+  Thumbnail v;
+  const uint8_t* cb = thumb.data() + kGrayBytes;
+  const uint8_t* cr = cb + kChromaPlane;
+  for (size_t i = 0; i < kGrayBytes; ++i) {
+    const double y = thumb[i], u = double(cb[i]) - 128.0, w = double(cr[i]) - 128.0;
+    const double top = std::max({y + 1.402 * w, y - 0.344136 * u - 0.714136 * w, y + 1.772 * u});
+    v[i] = static_cast<uint8_t>(std::clamp(std::lround(top), 0L, 255L));
+  }
+  std::fill(v.begin() + kGrayBytes, v.end(), uint8_t{128});
+  MatchProfile p = match_profile(v);
+  p.colour = true;
+  return p;
+}
+
 BlurCandidates blur_candidates(const MatchProfile& a, const MatchProfile& b) {
   BlurCandidates c;
   // A blur by tau lowers the mean of lambda by about 2 tau times its variance

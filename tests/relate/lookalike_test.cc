@@ -160,15 +160,26 @@ std::vector<Lookalike> real_thumbnails(size_t n_fashion) {
       out.push_back(lookalike_features(copy));
     }
   }
+  // Colour pictures whose colours change as a whole: photograph tiles (planted.h)
+  // and their hue and saturation copies (the colour floor, the value key).
+  for (const auto& tile : test::photograph_tiles()) {
+    out.push_back(lookalike_features(tile));
+    for (int degrees : {-30, 60}) out.push_back(lookalike_features(test::hue_turned(tile, degrees)));
+    for (const auto& kind : test::planted_kinds())
+      if (kind.name == "saturation-0.5" || kind.name == "hue-30-q75")
+        out.push_back(test::lookalike_of_bytes(test::encode_copy(kind.make(tile), kind.jpeg_quality)));
+  }
   return out;
 }
 }  // namespace
 
 TEST_CASE("find_groups equals the definition checked pair by pair", "[lookalike][groups]") {
   // Groups are the connected components of pairs (i, j) such that some flip/turn t
-  // of i has a hash within the radius of j's, or screen coefficients within the
-  // screen radius of j's (screen_join.h), and thumbnails that match (match.h):
-  // here every pair and every t is tried, with no index and no screen.
+  // of i has a hash within the radius of j's, or screen coefficients (of the
+  // gray plane, or of the value plane for pictures in colour) within the screen
+  // radius of j's (screen_join.h, match.h value_profile), and thumbnails that
+  // match (match.h): here every pair and every t is tried, with no index and no
+  // screen.
   auto looks = real_thumbnails(3000);
   std::vector<FileRecord> records(looks.size());
   for (size_t i = 0; i < looks.size(); ++i) {
@@ -188,9 +199,12 @@ TEST_CASE("find_groups equals the definition checked pair by pair", "[lookalike]
   ThumbnailTable thumbs;
   thumbs.assign_all(looks.size());
   for (size_t i = 0; i < looks.size(); ++i) thumbs.at(i) = looks[i].thumb;
-  std::vector<ScreenKey> key(looks.size());
-  std::vector<uint8_t> has_key(looks.size());
-  for (size_t i = 0; i < looks.size(); ++i) has_key[i] = screen_key(match_profile(looks[i].thumb), key[i]);
+  std::vector<ScreenKey> key(looks.size()), value_key(looks.size());
+  std::vector<uint8_t> has_key(looks.size()), has_value_key(looks.size());
+  for (size_t i = 0; i < looks.size(); ++i) {
+    has_key[i] = screen_key(match_profile(looks[i].thumb), key[i]);
+    has_value_key[i] = screen_key(value_profile(looks[i].thumb), value_key[i]);
+  }
   // The thresholds with the second key at its default, and at 0.995 with it
   // wider (many pairs that only the screen coefficients bring) and off.
   for (auto [c, screen] : {std::pair{0.9, -1.0}, {0.99, -1.0}, {0.995, -1.0}, {0.995, 0.2}, {0.995, 0.0}}) {
@@ -201,24 +215,27 @@ TEST_CASE("find_groups equals the definition checked pair by pair", "[lookalike]
     auto allowance = [&](uint32_t i) { return size_allowance(records[i].probe.width, records[i].probe.height, gs.match); };
     GroupResult got = find_groups(records, thumbs, gs);
     std::set<std::pair<uint32_t, uint32_t>> pairs;
-    uint64_t hits = 0, screen_only = 0;
+    uint64_t hits = 0, screen_only = 0, value_only = 0;
     for (uint32_t i = 0; i < records.size(); ++i)
       for (uint32_t j = 0; j < records.size(); ++j) {
         if (i == j) continue;
         for (int t = 0; t < kDihedralCount; ++t) {
           const bool by_hash = hamming(looks[i].phash[t], looks[j].phash[0]) <= gs.radius;
           const bool by_screen = has_key[i] && has_key[j] && screen_key_distance2(key[i], t, key[j]) <= screen2;
-          if (!by_hash && !by_screen) continue;
+          const bool by_value = has_value_key[i] && has_value_key[j] && screen_key_distance2(value_key[i], t, value_key[j]) <= screen2;
+          if (!by_hash && !by_screen && !by_value) continue;
           ++hits;
           screen_only += !by_hash;
+          value_only += !by_hash && !by_screen;
           if (match_thumbnails(looks[i].thumb, t, looks[j].thumb, pair_settings(gs.match, allowance(i), allowance(j))).joined)
             pairs.emplace(std::min(i, j), std::max(i, j));
         }
       }
     INFO("threshold " << c << ", screen radius " << gs.screen_radius << ": " << pairs.size() << " pairs, "
-                       << screen_only << " hits by the screen coefficients alone");
+                       << screen_only << " hits by the screen coefficients alone, " << value_only << " by the value plane's");
     CHECK(pairs.size() > 50);
     if (gs.screen_radius > 0.1) CHECK(screen_only > 1000);  // the key tested, not only the hash
+    if (gs.screen_radius > 0) CHECK(value_only > 0);         // and the value plane's key
     CHECK(got.confirmed_pairs == pairs.size());
     CHECK(got.candidate_hits == hits);
     // Same partition: two records share a group exactly when the pairs connect them.

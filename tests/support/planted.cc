@@ -11,6 +11,7 @@
 #include "tamis/read/decode/decode.h"
 #include "tamis/read/features.h"
 #include "tamis/read/probe.h"
+#include "tamis/relate/screen_join.h"
 #include "tamis/relate/lookalike_index.h"
 #include "tamis/relate/match.h"
 #include "support/photos.h"
@@ -171,9 +172,17 @@ Lookalike lookalike_of_bytes(const std::vector<uint8_t>& bytes) {
 
 bool pair_joined(const Lookalike& a, const Lookalike& b, const GroupSettings& gs, float allowance_a, float allowance_b) {
   const MatchSettings ms = pair_settings(gs.match, allowance_a, allowance_b);
+  // The candidate keys as find_groups has them: the hash, the gray screen key
+  // and the value plane's key (screen_join.h, match.h).
+  const int64_t thr2 = screen_threshold(gs.screen_radius);
+  const MatchProfile pa = match_profile(a.thumb), pb = match_profile(b.thumb);
+  const MatchProfile va = value_profile(a.thumb), vb = value_profile(b.thumb);
+  auto near = [&](int64_t d2) { return thr2 > 0 && d2 >= 0 && d2 <= thr2; };
   for (int t = 0; t < kDihedralCount; ++t) {
-    if (hamming(a.phash[t], b.phash[0]) <= gs.radius && match_thumbnails(a.thumb, t, b.thumb, ms).joined) return true;
-    if (hamming(b.phash[t], a.phash[0]) <= gs.radius && match_thumbnails(b.thumb, t, a.thumb, ms).joined) return true;
+    const bool ab = hamming(a.phash[t], b.phash[0]) <= gs.radius || near(screen_distance2(pa, t, pb)) || near(screen_distance2(va, t, vb));
+    if (ab && match_thumbnails(a.thumb, t, b.thumb, ms).joined) return true;
+    const bool ba = hamming(b.phash[t], a.phash[0]) <= gs.radius || near(screen_distance2(pb, t, pa)) || near(screen_distance2(vb, t, va));
+    if (ba && match_thumbnails(b.thumb, t, a.thumb, ms).joined) return true;
   }
   return false;
 }

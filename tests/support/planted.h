@@ -45,7 +45,8 @@ struct Scene {
 Lookalike lookalike_of_bytes(const std::vector<uint8_t>& bytes);
 
 // Whether find_groups would join a and b as a pair: some flip/turn of either has
-// a hash within the radius of the other's and the thumbnails match (match.h),
+// a hash within the radius of the other's, or a screen key (gray or value plane,
+// screen_join.h) within screen_radius, and the thumbnails match (match.h),
 // judged by pair_settings with the pictures' size_allowance (1: both at least
 // small_side pixels on a side).
 bool pair_joined(const Lookalike& a, const Lookalike& b, const GroupSettings& gs, float allowance_a = 1.0f,

@@ -177,6 +177,15 @@ struct alignas(128) MatchProfile {
 static_assert(sizeof(MatchProfile) == 128);
 MatchProfile match_profile(const Thumbnail& thumb);
 
+// The profile of a thumbnail's value plane: each pixel's largest channel (the
+// HSV value, from its gray level, Cb and Cr, BT.601, rounded), profiled as
+// match_profile profiles a gray plane. A change of hue or saturation on the HSV
+// circle leaves every pixel's value as it was, while it can move the gray
+// picture's hash and screen key far (photograph tiles turned by 60 degrees:
+// 10-14 bits). Its screen coefficients are the third candidate key
+// (screen_join.h). Flat (no key) unless the thumbnail has colour.
+MatchProfile value_profile(const Thumbnail& thumb);
+
 // The blur steps tried for a pair: `steps[0..count)`, and whether the blur goes
 // on a (true: a is the sharper) or on b. Step 0 (no blur) is always tried besides.
 struct BlurCandidates {
