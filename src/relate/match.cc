@@ -956,27 +956,44 @@ Match match_thumbnails(const Thumbnail& ta, const MatchProfile& pa, int t, const
   // floor but that neither the plain nor a blurred comparison joins: both ways
   // round (each side as the source), the better kept.
   alignas(32) float fitted[1024];
-  // Pairs in colour whose colours changed as a whole (colour_change) are fitted
-  // from a lower floor: a hue or saturation change moves coloured pixels' gray
-  // levels far more than a tone change does, and the fit's turn regressor
-  // predicts it pixel by pixel.
+  // Pairs in colour whose colours changed as a whole (colour_change) are also
+  // fitted with the change's regressor, which predicts pixel by pixel how a hue
+  // or saturation change moves the gray levels, and from a lower floor and gate
+  // (kColourFitFloor): such a change moves coloured pixels' gray levels far more
+  // than a tone change does. A fit with that regressor must come closer than
+  // min_correlation: leave at most kColourPathShare of the allowance
+  // (1 - min_correlation) unexplained. Hue and saturation copies of photographs
+  // reach 0.999 and more through it; distinct smooth pictures of about one colour
+  // each (crops of a photograph's blurred background), whose colours a turn maps
+  // onto each other, reached 0.995-0.998 (docs/lookalikes.md). Pairs whose plain
+  // correlation reaches fit_floor keep the fit without it at min_correlation.
   const bool colour = pa.colour && pb.colour;
+  const bool via_colour = plain < s.fit_floor;  // only the colour floor lets it be fitted
   if (m.correlation < s.min_correlation && s.fit_floor < s.min_correlation && plain >= fit_floor(s, colour) &&
-      blur_may_reach(pa, pb, cand, lp, fit_gate(s, colour))) {
-    const ColourChange change = colour ? colour_change(ta, b) : ColourChange{};
-    if (plain >= s.fit_floor || change.found) {
-      const double ab = tone_colour_fit(ta, b, pa.colour, change, nullptr);
-      const double ba = tone_colour_fit(b, ta, pb.colour, inverse(change), nullptr);
+      blur_may_reach(pa, pb, cand, lp, fit_gate(s, colour && via_colour))) {
+    const ColourChange none, change = colour ? colour_change(ta, b) : ColourChange{};
+    struct Try {
+      const ColourChange* change;
+      double need;
+    };
+    const double closer = 1.0 - (1.0 - s.min_correlation) * kColourPathShare;
+    const Try tries[2] = {{&none, via_colour ? 2.0 : 0.0}, {&change, change.found ? closer : 2.0}};
+    const ColourChange* won = nullptr;
+    for (const Try& tr : tries) {
+      if (tr.need > 1.0) continue;  // not tried
+      const double ab = tone_colour_fit(ta, b, pa.colour, *tr.change, nullptr);
+      const double ba = tone_colour_fit(b, ta, pb.colour, inverse(*tr.change), nullptr);
       const double best = std::max(ab, ba);
-      if (best > m.correlation) {
+      if (best > m.correlation && best >= tr.need) {
         m.correlation = static_cast<float>(best);
         m.fitted = true;
         m.fitted_a = ab >= ba;
-        if (best >= s.min_correlation) {  // the fitted plane, for the local check
-          if (m.fitted_a) tone_colour_fit(ta, b, pa.colour, change, fitted);
-          else tone_colour_fit(b, ta, pb.colour, inverse(change), fitted);
-        }
+        won = tr.change;
       }
+    }
+    if (won && m.correlation >= s.min_correlation) {  // the fitted plane, for the local check
+      if (m.fitted_a) tone_colour_fit(ta, b, pa.colour, *won, fitted);
+      else tone_colour_fit(b, ta, pb.colour, inverse(*won), fitted);
     }
   }
   if (m.correlation < s.min_correlation) return m;

@@ -147,7 +147,16 @@ inline constexpr double kFitGate = 0.99;
 // by 60 degrees), and the fit's turn regressor predicts that change pixel by
 // pixel (docs/lookalikes.md).
 inline constexpr double kColourFitFloor = 0.90;
+// A pair fitted only because of that lower floor (its plain correlation under
+// fit_floor) must leave at most this share of the allowance (1 -
+// min_correlation) unexplained: 0.998 at the default. Measured: hue and
+// saturation copies of photograph tiles fit at 0.999 and more; crops of one
+// photograph's blurred background, each of about one colour, at 0.995-0.998.
+inline constexpr double kColourPathShare = 0.4;
 double fit_floor(const MatchSettings& settings, bool colour);
+// The gate for a pair in colour fitted only because of the lower floor (`colour`
+// true) is that floor; any other pair's is kFitGate, held within [fit_floor,
+// min_correlation].
 double fit_gate(const MatchSettings& settings, bool colour = false);
 
 // The blur ladder: sigma = 0.25 s thumbnail pixels for s = 0..kBlurSteps-1
