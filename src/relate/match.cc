@@ -138,19 +138,20 @@ struct ChromaCells {
   std::array<double, kCells> u{}, v{};
 };
 ChromaCells chroma_cells(const Thumbnail& t) {
-  std::array<uint32_t, kCells> su{}, sv{};
-  const uint8_t* u = t.data() + kGrayBytes;
-  const uint8_t* v = u + kChromaPlane;
-  for (int r = 0; r < kThumbSide; ++r)
-    for (int c = 0; c < kThumbSide; ++c) {
-      const size_t k = size_t((r / 4) * kCellSide + c / 4), i = size_t(r * kThumbSide + c);
-      su[k] += u[i];
-      sv[k] += v[i];
-    }
   ChromaCells cells;
-  for (size_t k = 0; k < kCells; ++k) {
-    cells.u[k] = su[k] / 16.0;
-    cells.v[k] = sv[k] / 16.0;
+  for (int p = 0; p < 2; ++p) {
+    const uint8_t* plane = t.data() + kGrayBytes + size_t(p) * kChromaPlane;
+    double* out = p == 0 ? cells.u.data() : cells.v.data();
+    for (int cr = 0; cr < kCellSide; ++cr) {
+      // The cell row's four pixel rows summed column by column (vectorizable),
+      // then four columns a cell.
+      uint16_t col[kThumbSide];
+      const uint8_t* r0 = plane + 4 * cr * kThumbSide;
+      for (int x = 0; x < kThumbSide; ++x)
+        col[x] = static_cast<uint16_t>(r0[x] + r0[x + kThumbSide] + r0[x + 2 * kThumbSide] + r0[x + 3 * kThumbSide]);
+      for (int c = 0; c < kCellSide; ++c)
+        out[cr * kCellSide + c] = double(col[4 * c] + col[4 * c + 1] + col[4 * c + 2] + col[4 * c + 3]) / 16.0;
+    }
   }
   return cells;
 }
@@ -161,9 +162,8 @@ struct CentredChroma {
   double ss = 0;  // sum of |z|^2: the chroma's variation
 };
 
-CentredChroma centred_chroma(const Thumbnail& t) {
+CentredChroma centred_chroma(const ChromaCells& cells) {
   CentredChroma c;
-  const ChromaCells cells = chroma_cells(t);
   double mu = 0, mv = 0;
   for (size_t k = 0; k < kCells; ++k) {
     mu += cells.u[k];
@@ -214,9 +214,9 @@ struct ChromaFit {
   double local = 0;   // the largest share of a 2x2-cell window's chroma that the fit leaves unexplained
 };
 
-ChromaFit chroma_unexplained(const Thumbnail& a, const Thumbnail& b) {
+ChromaFit chroma_unexplained(const Thumbnail& a, const Thumbnail& b, const ChromaCells& cells_a, const ChromaCells& cells_b) {
   ChromaFit fit;
-  const CentredChroma ca = centred_chroma(a), cb = centred_chroma(b);
+  const CentredChroma ca = centred_chroma(cells_a), cb = centred_chroma(cells_b);
   const double floor_ss = 2.0 * double(kCells) * kColourless * kColourless;
   if (ca.ss < floor_ss && cb.ss < floor_ss) return fit;
   // Fit the less colourful side (target) from the more colourful (source).
@@ -305,22 +305,44 @@ ChromaFit chroma_unexplained(const Thumbnail& a, const Thumbnail& b) {
   return fit;
 }
 
-// A colour turned by `degrees` around the HSV hue circle (value and saturation
-// kept), the way image editors and augmentation libraries turn hue.
-void hsv_turn(double& r, double& g, double& b, double degrees) {
+// A colour on the HSV circle: its hue (0 <= h < 6, in sextants), its chroma
+// c = largest - smallest channel, and its smallest channel m (from 0..255, held).
+struct Hsv {
+  double h = 0, c = 0, m = 0;
+};
+Hsv to_hsv(double r, double g, double b) {
   r = std::clamp(r, 0.0, 255.0);
   g = std::clamp(g, 0.0, 255.0);
   b = std::clamp(b, 0.0, 255.0);
   const double v = std::max({r, g, b}), m = std::min({r, g, b}), c = v - m;
-  if (c <= 1e-9) return;
-  double h = v == r ? std::fmod((g - b) / c + 6.0, 6.0) : v == g ? (b - r) / c + 2.0 : (r - g) / c + 4.0;
-  h = std::fmod(h + degrees / 60.0 + 12.0, 6.0);
-  const double x = c * (1.0 - std::fabs(std::fmod(h, 2.0) - 1.0));
-  const int sector = std::min(5, static_cast<int>(h));
-  const double rr[6] = {c, x, 0, 0, x, c}, gg[6] = {x, c, c, x, 0, 0}, bb[6] = {0, 0, x, c, c, x};
-  r = rr[sector] + m;
-  g = gg[sector] + m;
-  b = bb[sector] + m;
+  if (c <= 1e-9) return {0.0, 0.0, m};
+  double h = v == r ? (g - b) / c : v == g ? (b - r) / c + 2.0 : (r - g) / c + 4.0;  // -1 <= h < 5
+  if (h < 0) h += 6.0;
+  return {h, c, m};
+}
+// The colour of hue h + sextants (any real), chroma c and smallest channel m.
+// (floor, not fmod: the same bits on every processor, and cheaper.)
+void from_hsv(const Hsv& p, double sextants, double& r, double& g, double& b) {
+  if (p.c <= 1e-9) {
+    r = g = b = p.m;
+    return;
+  }
+  double h = p.h + sextants;
+  h -= 6.0 * std::floor(h / 6.0);
+  if (h >= 6.0) h = 0.0;
+  const double half = h - 2.0 * std::floor(h / 2.0);  // h mod 2
+  const double x = p.c * (1.0 - std::fabs(half - 1.0));
+  const int sector = std::min(5, std::max(0, static_cast<int>(h)));
+  const double rr[6] = {p.c, x, 0, 0, x, p.c}, gg[6] = {x, p.c, p.c, x, 0, 0}, bb[6] = {0, 0, x, p.c, p.c, x};
+  r = rr[sector] + p.m;
+  g = gg[sector] + p.m;
+  b = bb[sector] + p.m;
+}
+
+// A colour turned by `degrees` around the HSV hue circle (value and saturation
+// kept), the way image editors and augmentation libraries turn hue.
+void hsv_turn(double& r, double& g, double& b, double degrees) {
+  from_hsv(to_hsv(r, g, b), degrees / 60.0, r, g, b);
 }
 
 // A colour turned by `degrees` on the HSV circle and its saturation scaled by
@@ -360,13 +382,20 @@ struct HueTurn {
   double degrees = 0, unexplained = 0, total = 0;
   double scale = 0;  // the saturation factor at that angle
 };
-HueTurn best_hue_turn(const Thumbnail& src, const Thumbnail& dst) {
+// `around` (a multiple of 5 degrees) and `reach`: the coarse search covers
+// around - reach .. around + reach (the whole circle by default).
+HueTurn best_hue_turn(const Thumbnail& src, const ChromaCells& sc, const ChromaCells& tc, int around = 0, int reach = 180) {
   const std::array<double, kCells> ys = luma_cells(src);
-  const ChromaCells sc = chroma_cells(src), tc = chroma_cells(dst);
   HueTurn h;
   for (size_t k = 0; k < kCells; ++k) {
     const double x = tc.u[k] - 128.0, y = tc.v[k] - 128.0;
     h.total += x * x + y * y;
+  }
+  // Each cell's colour on the HSV circle, once.
+  std::array<Hsv, kCells> cell;
+  for (size_t k = 0; k < kCells; ++k) {
+    const double yk = ys[k], cb = sc.u[k] - 128.0, cr = sc.v[k] - 128.0;
+    cell[k] = to_hsv(yk + 1.402 * cr, yk - 0.344136 * cb - 0.714136 * cr, yk + 1.772 * cb);
   }
   // Unexplained chroma after turning by `degrees` and the best saturation factor
   // (left in `scale`).
@@ -374,9 +403,8 @@ HueTurn best_hue_turn(const Thumbnail& src, const Thumbnail& dst) {
   auto unexplained = [&](double degrees) {
     double pp = 0, pt = 0;
     for (size_t k = 0; k < kCells; ++k) {
-      const double yk = ys[k], cb = sc.u[k] - 128.0, cr = sc.v[k] - 128.0;
-      double r = yk + 1.402 * cr, g = yk - 0.344136 * cb - 0.714136 * cr, b = yk + 1.772 * cb;
-      hsv_turn(r, g, b, degrees);
+      double r, g, b;
+      from_hsv(cell[k], degrees / 60.0, r, g, b);
       const double y = 0.299 * r + 0.587 * g + 0.114 * b;
       const double pu = (b - y) / 1.772, pv = (r - y) / 1.402;
       pp += pu * pu + pv * pv;
@@ -387,7 +415,7 @@ HueTurn best_hue_turn(const Thumbnail& src, const Thumbnail& dst) {
   };
   h.unexplained = unexplained(0);
   h.scale = scale;
-  for (int d = -175; d <= 180; d += 5) {
+  for (int d = std::max(around - reach, around - 175); d <= std::min(around + reach, around + 180); d += 5) {
     const double e = unexplained(d);
     if (e < h.unexplained) {
       h.unexplained = e;
@@ -407,11 +435,11 @@ HueTurn best_hue_turn(const Thumbnail& src, const Thumbnail& dst) {
   return h;
 }
 
-bool hue_turn_consistent(const Thumbnail& src, const Thumbnail& dst, double alpha_re, double alpha_im) {
+bool hue_turn_consistent(const Thumbnail& src, const ChromaCells& sc, const ChromaCells& tc, double alpha_re, double alpha_im) {
   // |arg alpha| < 20 degrees (no libm call: the same bits on every processor).
   if (alpha_re > 0 && std::fabs(alpha_im) < kTanHueMinTurn * alpha_re) return true;
   if (alpha_re * alpha_re + alpha_im * alpha_im < 0.25 * 0.25) return true;  // mostly gray: nothing turned
-  const HueTurn h = best_hue_turn(src, dst);
+  const HueTurn h = best_hue_turn(src, sc, tc);
   return h.unexplained <= kHueResidual * (h.total + kChromaFloorSs);
 }
 
@@ -419,13 +447,14 @@ bool hue_turn_consistent(const Thumbnail& src, const Thumbnail& dst, double alph
 // unexplained share (recorded in m.chroma) within max_chroma, its largest share in
 // a 2x2-cell window (m.chroma_local) within max_chroma_local, and a turn of the
 // chroma only as a hue turn of the whole picture.
-bool colours_agree(const Thumbnail& ta, const Thumbnail& b, const MatchSettings& s, Match& m) {
-  const ChromaFit cf = chroma_unexplained(ta, b);
+bool colours_agree(const Thumbnail& ta, const Thumbnail& b, const ChromaCells& ca, const ChromaCells& cb, const MatchSettings& s,
+                   Match& m) {
+  const ChromaFit cf = chroma_unexplained(ta, b, ca, cb);
   m.chroma = static_cast<float>(cf.share);
   m.chroma_local = static_cast<float>(cf.local);
   if (cf.share < 0) return true;
   if (cf.share > s.max_chroma || cf.local > s.max_chroma_local) return false;
-  return cf.a_src ? hue_turn_consistent(ta, b, cf.alpha_re, cf.alpha_im) : hue_turn_consistent(b, ta, cf.alpha_re, cf.alpha_im);
+  return cf.a_src ? hue_turn_consistent(ta, ca, cb, cf.alpha_re, cf.alpha_im) : hue_turn_consistent(b, cb, ca, cf.alpha_re, cf.alpha_im);
 }
 
 // Sums over 1,024 values in eight fixed lanes (vectorizable, and the same
@@ -499,15 +528,20 @@ struct ColourChange {
 };
 constexpr double kTanFitMinTurn = 0.17632698070846498;  // tan(10 degrees)
 constexpr double kChangeShare = 0.1;
-ColourChange colour_change(const Thumbnail& a, const Thumbnail& b) {
+ColourChange colour_change(const Thumbnail& a, const Thumbnail& b, const ChromaCells& ca, const ChromaCells& cb) {
   ColourChange c;
-  const ChromaFit cf = chroma_unexplained(a, b);
+  const ChromaFit cf = chroma_unexplained(a, b, ca, cb);
   if (cf.share < 0 || cf.share > kChangeShare) return c;
   const double a2 = cf.alpha_re * cf.alpha_re + cf.alpha_im * cf.alpha_im;
   if (a2 < 0.25 * 0.25) return c;
   const bool turned = !(cf.alpha_re > 0 && std::fabs(cf.alpha_im) < kTanFitMinTurn * cf.alpha_re);
   if (!turned && a2 > 0.9 * 0.9 && a2 < 1.1 * 1.1) return c;
-  const HueTurn h = cf.a_src ? best_hue_turn(a, b) : best_hue_turn(b, a);
+  // The HSV turn lies near the chroma fit's turn, arg alpha (measured on the
+  // planted hue copies: within 20 degrees), so the search covers 45 degrees
+  // either side of it (the hue-turn check searches the whole circle).
+  const double turn = std::atan2(cf.alpha_im, cf.alpha_re) * (180.0 / 3.14159265358979323846);
+  const int around = 5 * static_cast<int>(std::lround(turn / 5.0));
+  const HueTurn h = cf.a_src ? best_hue_turn(a, ca, cb, around, 45) : best_hue_turn(b, cb, ca, -around, 45);
   if (!(h.unexplained <= kHueResidual * (h.total + kChromaFloorSs)) || h.scale < 0.05) return c;
   c.found = true;
   c.degrees = cf.a_src ? h.degrees : -h.degrees;
@@ -524,12 +558,15 @@ ColourChange inverse(const ColourChange& c) {
 // The tone-and-colour fit: the target's gray plane fitted by least squares as a
 // function of the source's pixels: a cubic tone curve of the gray level (a
 // gamma, a contrast or brightness change with clipping at one end) plus, when the
-// source has colour, linear terms in its chroma (bilinear from the 8x8 cells: Cb,
-// Cr, and the largest and smallest of R - Y, G - Y, B - Y), which is how a hue or
-// saturation change moves the gray level of coloured pixels. Returns the
+// source has colour (`colour`: its chroma cells; nullptr for a gray source),
+// linear terms in its chroma (bilinear from the 8x8 cells: Cb, Cr, and the
+// largest and smallest of R - Y, G - Y, B - Y), which is how a hue or saturation
+// change moves the gray level of coloured pixels, and the gray change of
+// `change` pixel by pixel (when found). Returns the
 // correlation the fit explains, sqrt(explained / total) of the target's
 // variation, and, when `pred` is given, writes the fitted plane (centred) there.
-double tone_colour_fit(const Thumbnail& src, const Thumbnail& dst, bool colour, const ColourChange& change, float* pred) {
+double tone_colour_fit(const Thumbnail& src, const Thumbnail& dst, const ChromaCells* colour, const ColourChange& change,
+                       float* pred) {
   double gram[kFitMax][kFitMax] = {}, rhs[kFitMax] = {}, c[kFitMax] = {}, yy = 0;
   if (!colour) {
     // A gray source: the tone curve depends on the source's level alone, so the
@@ -589,9 +626,8 @@ double tone_colour_fit(const Thumbnail& src, const Thumbnail& dst, bool colour, 
   // edges held. (The cells, not the full chroma: regressors as sharp as the
   // pixels would let an object that only one picture has explain its own gray
   // footprint; measured on the rendered scenes, 8 distinct pairs joined against 6.)
-  const ChromaCells cells = chroma_cells(src);
   for (int p = 0; p < 2; ++p) {
-    const double* plane = p == 0 ? cells.u.data() : cells.v.data();
+    const double* plane = p == 0 ? colour->u.data() : colour->v.data();
     for (int r = 0; r < kThumbSide; ++r) {
       const float fy = std::clamp((float(r) - 1.5f) * 0.25f, 0.0f, float(kCellSide - 1));
       const int y0 = std::min(int(fy), kCellSide - 2);
@@ -668,7 +704,7 @@ bool has_colour(const Thumbnail& t) {
     return a;
   }();
   if (std::memcmp(t.data() + kGrayBytes, neutral.data(), neutral.size()) == 0) return false;
-  return centred_chroma(t).ss >= 2.0 * double(kCells) * kColourless * kColourless;
+  return centred_chroma(chroma_cells(t)).ss >= 2.0 * double(kCells) * kColourless * kColourless;
 }
 
 }  // namespace
@@ -895,10 +931,21 @@ Match match_thumbnails(const Thumbnail& ta, const MatchProfile& pa, int t, const
   Match m;
   m.correlation = static_cast<float>(thumb_correlation(ta, pa.stats, b, pb.stats));
   if (pa.flat || pb.flat) {  // the flat rule decides the gray pictures; the colours still count
-    m.joined = m.correlation >= s.min_correlation && colours_agree(ta, b, s, m);
+    m.joined = m.correlation >= s.min_correlation && colours_agree(ta, b, chroma_cells(ta), chroma_cells(b), s, m);
     return m;
   }
   const double plain = m.correlation;
+  // Each side's chroma cells, computed once a pair when first needed.
+  ChromaCells ca, cb;
+  bool have_a = false, have_b = false;
+  auto cells_a = [&]() -> const ChromaCells& {
+    if (!have_a) ca = chroma_cells(ta), have_a = true;
+    return ca;
+  };
+  auto cells_b = [&]() -> const ChromaCells& {
+    if (!have_b) cb = chroma_cells(b), have_b = true;
+    return cb;
+  };
   std::vector<float> blurred;  // the blurred side's pixels, when a blur step matched best
   // The blur steps, unless the low blocks prove that none can reach the
   // threshold (blur_may_reach: a bound, so the result is the same). They are
@@ -971,29 +1018,28 @@ Match match_thumbnails(const Thumbnail& ta, const MatchProfile& pa, int t, const
   const bool via_colour = plain < s.fit_floor;  // only the colour floor lets it be fitted
   if (m.correlation < s.min_correlation && s.fit_floor < s.min_correlation && plain >= fit_floor(s, colour) &&
       blur_may_reach(pa, pb, cand, lp, fit_gate(s, colour && via_colour))) {
-    const ColourChange none, change = colour ? colour_change(ta, b) : ColourChange{};
-    struct Try {
-      const ColourChange* change;
-      double need;
-    };
-    const double closer = 1.0 - (1.0 - s.min_correlation) * kColourPathShare;
-    const Try tries[2] = {{&none, via_colour ? 2.0 : 0.0}, {&change, change.found ? closer : 2.0}};
+    const ColourChange none;
+    ColourChange change;
     const ColourChange* won = nullptr;
-    for (const Try& tr : tries) {
-      if (tr.need > 1.0) continue;  // not tried
-      const double ab = tone_colour_fit(ta, b, pa.colour, *tr.change, nullptr);
-      const double ba = tone_colour_fit(b, ta, pb.colour, inverse(*tr.change), nullptr);
+    auto attempt = [&](const ColourChange& c, double need) {
+      const double ab = tone_colour_fit(ta, b, pa.colour ? &cells_a() : nullptr, c, nullptr);
+      const double ba = tone_colour_fit(b, ta, pb.colour ? &cells_b() : nullptr, inverse(c), nullptr);
       const double best = std::max(ab, ba);
-      if (best > m.correlation && best >= tr.need) {
+      if (best > m.correlation && best >= need) {
         m.correlation = static_cast<float>(best);
         m.fitted = true;
         m.fitted_a = ab >= ba;
-        won = tr.change;
+        won = &c;
       }
-    }
+    };
+    if (!via_colour) attempt(none, 0.0);
+    // The change's regressor only when the fit without it does not join (the
+    // change's search is the costlier part).
+    if (colour && m.correlation < s.min_correlation && (change = colour_change(ta, b, cells_a(), cells_b())).found)
+      attempt(change, 1.0 - (1.0 - s.min_correlation) * kColourPathShare);
     if (won && m.correlation >= s.min_correlation) {  // the fitted plane, for the local check
-      if (m.fitted_a) tone_colour_fit(ta, b, pa.colour, *won, fitted);
-      else tone_colour_fit(b, ta, pb.colour, inverse(*won), fitted);
+      if (m.fitted_a) tone_colour_fit(ta, b, pa.colour ? &cells_a() : nullptr, *won, fitted);
+      else tone_colour_fit(b, ta, pb.colour ? &cells_b() : nullptr, inverse(*won), fitted);
     }
   }
   if (m.correlation < s.min_correlation) return m;
@@ -1005,7 +1051,7 @@ Match match_thumbnails(const Thumbnail& ta, const MatchProfile& pa, int t, const
     m.local = static_cast<float>(m.blurred_a ? local_residual(blurred.data(), b.data())
                                              : local_residual(ta.data(), blurred.data()));
   if (m.local > s.max_local) return m;
-  m.joined = colours_agree(ta, b, s, m);
+  m.joined = colours_agree(ta, b, cells_a(), cells_b(), s, m);
   return m;
 }
 
