@@ -550,9 +550,11 @@ LookalikeLinks join_lookalike_slice(const std::vector<FileRecord>& records, cons
                             pair_settings(settings.match, allowance[i], allowance[j]));
     }, &found);
     result.candidate_hits += found;
-    confirm_kept(kept);
     // The third key (value_profile) among the images in colour, as the whole
-    // join has it: hits that neither the hash nor the gray key gave.
+    // join has it: hits that neither the hash nor the gray key gave. Both keys'
+    // hits are found before any is confirmed, so that the profiles are let go
+    // first.
+    std::vector<std::pair<uint32_t, uint32_t>> value_kept;
     std::vector<uint32_t> coloured;
     for (uint32_t k = 0; k < n; ++k)
       if (profile[k].colour) coloured.push_back(k);
@@ -560,7 +562,7 @@ LookalikeLinks join_lookalike_slice(const std::vector<FileRecord>& records, cons
       std::vector<MatchProfile> value(coloured.size());
       read(coloured, [&](size_t q, const Thumbnail& th) { value[q] = value_profile(th); });
       uint64_t value_found = 0;
-      auto value_kept = screen_join(value, threshold2, settings.threads, [&](uint32_t v, uint32_t cj) {
+      value_kept = screen_join(value, threshold2, settings.threads, [&](uint32_t v, uint32_t cj) {
         const uint32_t i = coloured[v / kDihedralCount], j = coloured[cj];
         const int t = static_cast<int>(v % kDihedralCount);
         if (i % slices != slice || hamming(records[eligible[i]].features.look.phash[t], identity[j]) <= settings.radius) return false;
@@ -576,10 +578,10 @@ LookalikeLinks join_lookalike_slice(const std::vector<FileRecord>& records, cons
         v = coloured[v / kDihedralCount] * kDihedralCount + v % kDihedralCount;
         j = coloured[j];
       }
-      std::vector<MatchProfile>().swap(value);
-      std::vector<MatchProfile>().swap(profile);
-      confirm_kept(value_kept);
     }
+    std::vector<MatchProfile>().swap(profile);
+    confirm_kept(kept);
+    confirm_kept(value_kept);
   }
   one_link_a_pair(confirmed);
   result.links = std::move(confirmed);

@@ -13,11 +13,15 @@
 #include <xxhash.h>
 
 #include "support/fashion_mnist.h"
+#include "support/planted.h"
 #include "support/temp_tree.h"
 #include "tamis/demo/demo.h"
 #include "tamis/model/cbor_reader.h"
 #include "tamis/model/record_codec.h"
 #include "tamis/pipeline/scale_out.h"
+#include "tamis/read/features.h"
+#include "tamis/relate/lookalike_index.h"
+#include "tamis/relate/screen_join.h"
 #include "tamis/report/outputs.h"
 
 using namespace tamis;
@@ -249,6 +253,62 @@ TEST_CASE("Fashion-MNIST: the join's slices together give find_groups' groups ex
               std::tie(y.a, y.b, y.turn, y.correlation, y.blur_step, y.blurred_a, y.fit_source));
       }
     }
+  }
+}
+
+TEST_CASE("colour pictures: the join's slices give find_groups' groups, the value plane's key included", "[scale-out]") {
+  // Photograph tiles (planted.h: Debian photographs) and their hue-turned and
+  // desaturated copies: pairs that only the third candidate key (the value
+  // plane's, match.h value_profile) gives, which each slice must find as the
+  // whole join does.
+  std::vector<Lookalike> looks;
+  for (const auto& tile : test::photograph_tiles()) {
+    looks.push_back(lookalike_features(tile));
+    for (int degrees : {-30, 60}) looks.push_back(lookalike_features(test::hue_turned(tile, degrees)));
+  }
+  std::vector<FileRecord> records(looks.size());
+  ThumbnailTable thumbs;
+  thumbs.assign_all(looks.size());
+  for (size_t i = 0; i < looks.size(); ++i) {
+    char path[32];
+    std::snprintf(path, sizeof path, "t/%04zu.png", i);
+    records[i].path = path;
+    records[i].kind = FileKind::image;
+    records[i].features.has_lookalike = records[i].features.has_content_hash = true;
+    records[i].features.content_hash = {i, 7};
+    records[i].features.look = looks[i];
+    thumbs.put(i, looks[i].thumb);
+  }
+  // Hits that only the value key gives (neither the hash nor the gray key).
+  GroupSettings gs;
+  gs.threads = 2;
+  const int64_t thr2 = screen_threshold(gs.screen_radius);
+  size_t value_only = 0;
+  for (size_t i = 0; i < looks.size(); ++i)
+    for (size_t j = 0; j < looks.size(); ++j)
+      for (int t = 0; t < kDihedralCount && i != j; ++t) {
+        const int64_t dv = screen_distance2(value_profile(looks[i].thumb), t, value_profile(looks[j].thumb));
+        const int64_t dg = screen_distance2(match_profile(looks[i].thumb), t, match_profile(looks[j].thumb));
+        value_only += dv >= 0 && dv <= thr2 && !(dg >= 0 && dg <= thr2) && hamming(looks[i].phash[t], looks[j].phash[0]) > gs.radius;
+      }
+  CHECK(value_only > 0);
+  const GroupResult expect = find_groups(records, thumbs, gs);
+  REQUIRE(expect.groups.size() > 20);
+  auto load = [&](const uint32_t* which, size_t count, Thumbnail* out) {
+    for (size_t k = 0; k < count; ++k) thumbs.get(which[k], out[k]);
+  };
+  for (uint32_t slices : {1u, 3u}) {
+    LookalikeLinks all;
+    for (uint32_t s = 0; s < slices; ++s) {
+      LookalikeLinks one = join_lookalike_slice(records, gs, s, slices, load);
+      all.links.insert(all.links.end(), one.links.begin(), one.links.end());
+      all.candidate_hits += one.candidate_hits;
+    }
+    const GroupResult got = groups_from_links(records, all);
+    INFO(slices << " slices, " << value_only << " hits by the value key alone");
+    CHECK(got.candidate_hits == expect.candidate_hits);
+    CHECK(got.confirmed_pairs == expect.confirmed_pairs);
+    CHECK(got.group_of == expect.group_of);
   }
 }
 
