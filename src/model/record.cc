@@ -147,11 +147,15 @@ void ThumbnailTable::assign_spilled(size_t records, const std::filesystem::path&
   chroma_used_ = std::make_unique<std::atomic<uint32_t>>(0);
 }
 
-// A spilled record's chroma slot for these planes: kZeroChroma or kNeutralChroma
-// when they are all 0 or all 128, else the record's pool slot (a new one, also
-// left in *fresh, when it has none yet; *fresh is kNone otherwise).
+// A spilled record's chroma slot for these planes: its pool slot when it has
+// one (a record keeps it once given, whatever is written later: at most one
+// slot a record, so the pool never outgrows the file); else kZeroChroma or
+// kNeutralChroma when they are all 0 or all 128; else a new pool slot (also
+// left in *fresh; *fresh is kNone otherwise).
 uint32_t ThumbnailTable::chroma_slot(size_t record, const uint8_t* chroma, uint32_t* fresh) {
   *fresh = kNone;
+  const uint32_t had = chroma_at_[record];
+  if (had != kZeroChroma && had != kNeutralChroma) return had;
   static const std::array<uint8_t, 2 * kChromaPlane> zero{}, neutral = [] {
     std::array<uint8_t, 2 * kChromaPlane> a;
     a.fill(128);
@@ -159,8 +163,6 @@ uint32_t ThumbnailTable::chroma_slot(size_t record, const uint8_t* chroma, uint3
   }();
   if (std::memcmp(chroma, neutral.data(), neutral.size()) == 0) return kNeutralChroma;
   if (std::memcmp(chroma, zero.data(), zero.size()) == 0) return kZeroChroma;
-  const uint32_t had = chroma_at_[record];
-  if (had != kZeroChroma && had != kNeutralChroma) return had;
   *fresh = chroma_used_->fetch_add(1, std::memory_order_relaxed);
   return *fresh;
 }

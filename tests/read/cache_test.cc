@@ -301,6 +301,18 @@ TEST_CASE("a spilled thumbnail table reads back what was written, zeros elsewher
   s.get_many(all.data(), all.size(), sa.data());
   m.get_many(all.data(), all.size(), ma.data());
   CHECK(sa == ma);
+  {
+    // Every record rewritten again and again, colour and gray in turn: a record
+    // keeps one pool slot, so the file (40 thumbnails' room) never overflows.
+    ThumbnailTable r;
+    r.assign_spilled(40, scratch.path());
+    for (int round = 0; round < 4; ++round)
+      for (size_t i = 0; i < 40; ++i) CHECK_NOTHROW(r.put(i, (round + i) % 2 ? gray(i + round) : pattern(i + round)));
+    for (size_t i = 0; i < 40; ++i) {
+      r.get(i, got);
+      CHECK(got == ((3 + i) % 2 ? gray(i + 3) : pattern(i + 3)));
+    }
+  }
   ThumbnailTable copy = s;  // shares the file
   copy.get(25, got);
   CHECK(got == pattern(25));
