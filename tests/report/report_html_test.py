@@ -239,39 +239,35 @@ class ColourThumbnails(AuditedPage):
         finally:
             os.rename(moved, self.root)
 
-    def test_a_file_replaced_by_a_link_is_not_followed(self):
-        # After the audit, a shown picture is replaced by a symbolic link to another
-        # image: the re-split's page shows that path by its saved 32x32 thumbnail,
-        # never the linked file (the walk follows no link, nor does the report).
+    def shown_after_replacing(self, replace, name):
+        """A group's shown picture replaced by `replace(target)` after the audit:
+        the re-split's picture of that path (the file is put back afterwards)."""
         groups = self.groups_section(self.html)
         path = next(p for _, p in self.figures() if f">{p}<" in groups)
         target = os.path.join(self.root, path)
         kept = target + ".kept"
         os.rename(target, kept)
-        os.symlink(os.path.join(self.root, "gingham", "swatch_003.jpg"), target)
+        replace(target)
         try:
-            shown = {p: im for im, p in self.figures(self.resplit("linked"))}
-            self.assertEqual(shown[path].size, (32, 32), path)
+            return path, {p: im for im, p in self.figures(self.resplit(name))}[path]
         finally:
             os.remove(target)
             os.rename(kept, target)
+
+    def test_a_file_replaced_by_a_link_is_not_followed(self):
+        # After the audit, a shown picture is replaced by a symbolic link to another
+        # image: the re-split's page shows that path by its saved 32x32 thumbnail,
+        # never the linked file (the walk follows no link, nor does the report).
+        path, shown = self.shown_after_replacing(
+            lambda target: os.symlink(os.path.join(self.root, "gingham", "swatch_003.jpg"), target), "linked")
+        self.assertEqual(shown.size, (32, 32), path)
 
     def test_a_file_replaced_by_a_fifo_does_not_stop_the_page(self):
         # A FIFO with no writer where a shown picture was: opening it for reading
         # must not wait (the read stage's discipline, file_bytes.h); the page shows
         # the path by its saved thumbnail.
-        groups = self.groups_section(self.html)
-        path = next(p for _, p in self.figures() if f">{p}<" in groups)
-        target = os.path.join(self.root, path)
-        kept = target + ".kept"
-        os.rename(target, kept)
-        os.mkfifo(target)
-        try:
-            shown = {p: im for im, p in self.figures(self.resplit("fifo"))}
-            self.assertEqual(shown[path].size, (32, 32), path)
-        finally:
-            os.remove(target)
-            os.rename(kept, target)
+        path, shown = self.shown_after_replacing(os.mkfifo, "fifo")
+        self.assertEqual(shown.size, (32, 32), path)
 
     def test_flagged_frames_are_pictured_in_their_findings(self):
         # The demo's blank, dark and blurred frames: each quality finding's row shows
