@@ -147,24 +147,26 @@ void ThumbnailTable::assign_spilled(size_t records, const std::filesystem::path&
   chroma_used_ = std::make_unique<std::atomic<uint32_t>>(0);
 }
 
-// A spilled record's chroma slot for these planes: its pool slot when it has
-// one (a record keeps it once given, whatever is written later: at most one
-// slot a record, so the pool never outgrows the file); else kZeroChroma or
-// kNeutralChroma when they are all 0 or all 128; else a new pool slot (also
-// left in *fresh; *fresh is kNone otherwise).
-uint32_t ThumbnailTable::chroma_slot(size_t record, const uint8_t* chroma, uint32_t* fresh) {
-  *fresh = kNone;
-  const uint32_t had = chroma_at_[record];
-  if (had != kZeroChroma && had != kNeutralChroma) return had;
-  static const std::array<uint8_t, 2 * kChromaPlane> zero{}, neutral = [] {
+bool neutral_chroma(const Thumbnail& t) {
+  static const std::array<uint8_t, 2 * kChromaPlane> neutral = [] {
     std::array<uint8_t, 2 * kChromaPlane> a;
     a.fill(128);
     return a;
   }();
-  if (std::memcmp(chroma, neutral.data(), neutral.size()) == 0) return kNeutralChroma;
-  if (std::memcmp(chroma, zero.data(), zero.size()) == 0) return kZeroChroma;
-  *fresh = chroma_used_->fetch_add(1, std::memory_order_relaxed);
-  return *fresh;
+  return std::memcmp(t.data() + kGrayBytes, neutral.data(), neutral.size()) == 0;
+}
+
+// A spilled record's chroma slot for t's chroma planes: its pool slot when it has
+// one (a record keeps it once given, whatever is written later: at most one
+// slot a record, so the pool never outgrows the file); else kZeroChroma or
+// kNeutralChroma when they are all 0 or all 128; else a new pool slot.
+uint32_t ThumbnailTable::chroma_slot(size_t record, const Thumbnail& t) {
+  const uint32_t had = chroma_at_[record];
+  if (had != kZeroChroma && had != kNeutralChroma) return had;
+  static const std::array<uint8_t, 2 * kChromaPlane> zero{};
+  if (neutral_chroma(t)) return kNeutralChroma;
+  if (std::memcmp(t.data() + kGrayBytes, zero.data(), zero.size()) == 0) return kZeroChroma;
+  return chroma_used_->fetch_add(1, std::memory_order_relaxed);
 }
 
 void ThumbnailTable::fill_chroma(uint32_t slot, uint8_t* chroma) const {
@@ -201,8 +203,7 @@ void ThumbnailTable::put(size_t record, const Thumbnail& t) {
     return;
   }
   file_->write_at(static_cast<uint64_t>(record) * kGrayBytes, t.data(), kGrayBytes);
-  uint32_t fresh;
-  const uint32_t slot = chroma_slot(record, t.data() + kGrayBytes, &fresh);
+  const uint32_t slot = chroma_slot(record, t);
   if (slot != kZeroChroma && slot != kNeutralChroma) file_->write_at(pool_offset(slot), t.data() + kGrayBytes, 2 * kChromaPlane);
   chroma_at_[record] = slot;
 }
@@ -224,8 +225,7 @@ void ThumbnailTable::put_range(size_t first, size_t count, const Thumbnail* data
     buf.clear();
   };
   for (size_t k = 0; k < count; ++k) {
-    uint32_t fresh;
-    const uint32_t slot = chroma_slot(first + k, data[k].data() + kGrayBytes, &fresh);
+    const uint32_t slot = chroma_slot(first + k, data[k]);
     chroma_at_[first + k] = slot;
     if (slot == kZeroChroma || slot == kNeutralChroma) continue;
     if (slot != run_next) {

@@ -516,8 +516,7 @@ void RecordCache::store_rows(const std::vector<FileRecord>& records, const Thumb
       sqlite3_bind_blob(t.s, 2, r.path.data(), static_cast<int>(r.path.size()), SQLITE_TRANSIENT);
       if (with_thumb) {
         thumbs.get(i, thumb);
-        const bool neutral = std::all_of(thumb.begin() + kGrayBytes, thumb.end(), [](uint8_t v) { return v == 128; });
-        thumb_data.assign(thumb.begin(), neutral ? thumb.begin() + kGrayBytes : thumb.end());
+        thumb_data.assign(thumb.begin(), neutral_chroma(thumb) ? thumb.begin() + kGrayBytes : thumb.end());
         append_sum(thumb_data, row_seed(r.path));
         sqlite3_bind_blob(t.s, 3, thumb_data.data(), static_cast<int>(thumb_data.size()), SQLITE_STATIC);
       }

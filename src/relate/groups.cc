@@ -146,6 +146,34 @@ void confirm_hits(const std::vector<std::pair<uint32_t, uint32_t>>& hits, const 
   for (auto& f : found) confirmed.insert(confirmed.end(), f.begin(), f.end());
 }
 
+// The third candidate key's hits (8 * eligible i + t, eligible j), sorted: pairs
+// of images in colour (`coloured`: ascending eligible indices; `value`: their
+// value profiles, match.h value_profile) whose value keys lie within
+// threshold2, that `admit` accepts (the hash did not give them; a join slice
+// also asks for its own queries) and that the gray key (their `profile`) did
+// not give either, less those `keep` rejects; both filters take eligible
+// indices. Adds the hits admitted to *found.
+std::vector<std::pair<uint32_t, uint32_t>> value_key_hits(const std::vector<uint32_t>& coloured,
+                                                          const std::vector<MatchProfile>& value,
+                                                          const std::vector<MatchProfile>& profile, int64_t threshold2,
+                                                          unsigned threads, const PairFilter& admit, const PairFilter& keep,
+                                                          uint64_t* found) {
+  auto variant = [&](uint32_t v) { return coloured[v / kDihedralCount] * kDihedralCount + v % kDihedralCount; };
+  uint64_t admitted = 0;
+  auto hits = screen_join(value, threshold2, threads, [&](uint32_t v, uint32_t cj) {
+    const uint32_t i = coloured[v / kDihedralCount], j = coloured[cj];
+    if (!admit(variant(v), j)) return false;
+    const int64_t d2 = screen_distance2(profile[i], static_cast<int>(v % kDihedralCount), profile[j]);
+    return d2 < 0 || d2 > threshold2;
+  }, [&](uint32_t v, uint32_t cj) { return keep(variant(v), coloured[cj]); }, &admitted);
+  *found += admitted;
+  for (auto& [v, j] : hits) {  // to eligible indices (ascending with the compact ones)
+    v = variant(v);
+    j = coloured[j];
+  }
+  return hits;
+}
+
 // Phase 2, look-alikes: candidates from an exact Hamming join of each flip/turn's
 // codes with the identity codes, confirmed by the thumbnails (match.h). Returns
 // the confirmed pairs (eligible indices, in no order: one_link_a_pair sorts them
@@ -219,11 +247,11 @@ std::vector<GroupLink> join_lookalikes(const std::vector<FileRecord>& records, c
   out.candidate_hits -= self_hits;
   // The second key: hits of the screen coefficients that the hash did not give.
   uint64_t screen_found = 0;
-  const auto screen_hits = screen_join(profile, screen_threshold(settings.screen_radius), settings.threads,
-                                       [&](uint32_t v, uint32_t j) {
-                                         return hamming(records[eligible[v / kDihedralCount]].features.look.phash[v % kDihedralCount],
-                                                        identity[j]) > settings.radius;
-                                       }, keep, &screen_found);
+  const PairFilter hash_miss = [&](uint32_t v, uint32_t j) {
+    return hamming(records[eligible[v / kDihedralCount]].features.look.phash[v % kDihedralCount], identity[j]) > settings.radius;
+  };
+  const auto screen_hits = screen_join(profile, screen_threshold(settings.screen_radius), settings.threads, hash_miss, keep,
+                                       &screen_found);
   out.candidate_hits += screen_found;
   confirm_hits(screen_hits, thumbs, eligible, profile, allowance, settings, confirmed);
   // The third key: the value plane's screen coefficients (value_profile), for
@@ -242,21 +270,8 @@ std::vector<GroupLink> join_lookalikes(const std::vector<FileRecord>& records, c
       thumbs.get_many(recs.data(), count, block.data());
       for (size_t q = 0; q < count; ++q) value[first + q] = value_profile(block[q]);
     }, 1);
-    uint64_t value_found = 0;
-    auto value_hits = screen_join(value, threshold2, settings.threads, [&](uint32_t v, uint32_t cj) {
-      const uint32_t i = coloured[v / kDihedralCount], j = coloured[cj];
-      const int t = static_cast<int>(v % kDihedralCount);
-      if (hamming(records[eligible[i]].features.look.phash[t], identity[j]) <= settings.radius) return false;
-      const int64_t d2 = screen_distance2(profile[i], t, profile[j]);
-      return d2 < 0 || d2 > threshold2;
-    }, [&](uint32_t v, uint32_t cj) {
-      return keep(coloured[v / kDihedralCount] * kDihedralCount + v % kDihedralCount, coloured[cj]);
-    }, &value_found);
-    out.candidate_hits += value_found;
-    for (auto& [v, j] : value_hits) {  // to eligible indices (ascending with the compact ones)
-      v = coloured[v / kDihedralCount] * kDihedralCount + v % kDihedralCount;
-      j = coloured[j];
-    }
+    const auto value_hits = value_key_hits(coloured, value, profile, threshold2, settings.threads, hash_miss, keep,
+                                           &out.candidate_hits);
     confirm_hits(value_hits, thumbs, eligible, profile, allowance, settings, confirmed);
   }
   return confirmed;
@@ -540,15 +555,19 @@ LookalikeLinks join_lookalike_slice(const std::vector<FileRecord>& records, cons
     read(all, [&](size_t q, const Thumbnail& th) { profile[q] = match_profile(th); });
     std::vector<float> allowance(n);
     for (uint32_t k = 0; k < n; ++k) allowance[k] = allowance_of(k);
-    uint64_t found = 0;
-    auto kept = screen_join(profile, threshold2, settings.threads, [&](uint32_t v, uint32_t j) {
+    // Hits of the slice's queries that the hash did not give; kept as the whole
+    // join's filter keeps them.
+    const PairFilter mine = [&](uint32_t v, uint32_t j) {
       const uint32_t i = v / kDihedralCount;
       return i % slices == slice && hamming(records[eligible[i]].features.look.phash[v % kDihedralCount], identity[j]) > settings.radius;
-    }, [&](uint32_t v, uint32_t j) {
+    };
+    const PairFilter keep = [&](uint32_t v, uint32_t j) {
       const uint32_t i = v / kDihedralCount;
       return match_may_join(profile[i], static_cast<int>(v % kDihedralCount), profile[j],
                             pair_settings(settings.match, allowance[i], allowance[j]));
-    }, &found);
+    };
+    uint64_t found = 0;
+    auto kept = screen_join(profile, threshold2, settings.threads, mine, keep, &found);
     result.candidate_hits += found;
     // The third key (value_profile) among the images in colour, as the whole
     // join has it: hits that neither the hash nor the gray key gave. Both keys'
@@ -561,23 +580,7 @@ LookalikeLinks join_lookalike_slice(const std::vector<FileRecord>& records, cons
     if (coloured.size() >= 2) {
       std::vector<MatchProfile> value(coloured.size());
       read(coloured, [&](size_t q, const Thumbnail& th) { value[q] = value_profile(th); });
-      uint64_t value_found = 0;
-      value_kept = screen_join(value, threshold2, settings.threads, [&](uint32_t v, uint32_t cj) {
-        const uint32_t i = coloured[v / kDihedralCount], j = coloured[cj];
-        const int t = static_cast<int>(v % kDihedralCount);
-        if (i % slices != slice || hamming(records[eligible[i]].features.look.phash[t], identity[j]) <= settings.radius) return false;
-        const int64_t d2 = screen_distance2(profile[i], t, profile[j]);
-        return d2 < 0 || d2 > threshold2;
-      }, [&](uint32_t v, uint32_t cj) {
-        const uint32_t i = coloured[v / kDihedralCount], j = coloured[cj];
-        return match_may_join(profile[i], static_cast<int>(v % kDihedralCount), profile[j],
-                              pair_settings(settings.match, allowance[i], allowance[j]));
-      }, &value_found);
-      result.candidate_hits += value_found;
-      for (auto& [v, j] : value_kept) {  // to eligible indices
-        v = coloured[v / kDihedralCount] * kDihedralCount + v % kDihedralCount;
-        j = coloured[j];
-      }
+      value_kept = value_key_hits(coloured, value, profile, threshold2, settings.threads, mine, keep, &result.candidate_hits);
     }
     std::vector<MatchProfile>().swap(profile);
     confirm_kept(kept);

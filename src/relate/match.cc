@@ -782,13 +782,7 @@ double tone_colour_fit(const Thumbnail& src, const Thumbnail& dst, const ChromaC
 
 // Whether a thumbnail's chroma varies (chroma_unexplained's rule).
 bool has_colour(const Thumbnail& t) {
-  // A gray image's chroma is all 128 (the common case, checked fast).
-  static const std::array<uint8_t, 2 * kChromaPlane> neutral = [] {
-    std::array<uint8_t, 2 * kChromaPlane> a;
-    a.fill(128);
-    return a;
-  }();
-  if (std::memcmp(t.data() + kGrayBytes, neutral.data(), neutral.size()) == 0) return false;
+  if (neutral_chroma(t)) return false;  // a gray image's (the common case, checked fast)
   return centred_chroma(chroma_cells(t)).ss >= 2.0 * double(kCells) * kColourless * kColourless;
 }
 

@@ -99,6 +99,8 @@ struct LookalikeCodes {
 inline constexpr int kThumbSide = 32;
 inline constexpr size_t kGrayBytes = 1024, kChromaPlane = 1024;
 using Thumbnail = std::array<uint8_t, kGrayBytes + 2 * kChromaPlane>;
+// Whether a thumbnail's chroma is neutral (both planes all 128: a gray image's).
+bool neutral_chroma(const Thumbnail& t);
 
 // Look-alike signals of one image as features.h computes them: the codes and the
 // thumbnail. A record keeps the codes; the thumbnail goes to a ThumbnailTable.
@@ -160,7 +162,7 @@ class ThumbnailTable {
   static constexpr uint32_t kNone = UINT32_MAX;
   // A spilled record's chroma: a pool slot, or one of these.
   static constexpr uint32_t kZeroChroma = UINT32_MAX, kNeutralChroma = UINT32_MAX - 1;
-  uint32_t chroma_slot(size_t record, const uint8_t* chroma, uint32_t* fresh);
+  uint32_t chroma_slot(size_t record, const Thumbnail& t);
   void fill_chroma(uint32_t slot, uint8_t* chroma) const;
   uint64_t pool_offset(uint32_t slot) const { return static_cast<uint64_t>(n_) * kGrayBytes + uint64_t{slot} * 2 * kChromaPlane; }
   size_t n_ = 0;
