@@ -206,9 +206,31 @@ int main(int argc, char** argv) {
       int best_t = 0, best_d = 65;
       for (int t = 0; t < kDihedralCount; ++t)
         if (hamming(a.phash[t], c.look.phash[0]) < best_d) { best_d = hamming(a.phash[t], c.look.phash[0]); best_t = t; }
-      const Match m = match_thumbnails(a.thumb, best_t, c.look.thumb, gs.match);
-      std::printf("why %-26s src %3zu hash %2d corr %.4f local %.3f chroma %.3f blur %d\n", kinds[c.kind].name.c_str(), c.source, best_d,
-                  m.correlation, m.local, m.chroma, m.blur_step);
+      const cv::Size sa = sources[c.source].pixels.size();
+      const MatchSettings ms = pair_settings(gs.match, picture_size(uint32_t(sa.width), uint32_t(sa.height)),
+                                             picture_size(uint32_t(c.size.width), uint32_t(c.size.height)), best_t);
+      const Match m = match_thumbnails(a.thumb, best_t, c.look.thumb, ms);
+      // The resampled comparison alone, when the pair has one.
+      Match r;
+      int kernel = -1;
+      if (ms.resample.width > 0) {
+        Thumbnail ta;
+        turn_thumbnail(a.thumb, ta, best_t);
+        MatchSettings own = ms;
+        own.resample = {};
+        own.min_correlation = ms.resample.min_correlation;
+        const Thumbnail& large = ms.resample.on_a ? ta : c.look.thumb;
+        const Thumbnail& small = ms.resample.on_a ? c.look.thumb : ta;
+        for (int k = 0; k < kResampleKernels; ++k) {  // the best kernel by the match's own correlation
+          Thumbnail rs;
+          resample_thumbnail(large, ms.resample, ResampleKernel(k), rs);
+          const Match mk = match_thumbnails(rs, 0, small, own);
+          if (mk.correlation > r.correlation) r = mk, kernel = k;
+        }
+      }
+      std::printf("why %-26s src %3zu hash %2d corr %.4f local %.3f chroma %.3f blur %d | resampled %.4f/%.5f kernel %d blur %d fit %d local %.3f\n",
+                  kinds[c.kind].name.c_str(), c.source, best_d, m.correlation, m.local, m.chroma, m.blur_step, r.correlation,
+                  ms.resample.min_correlation, kernel, r.blur_step, int(r.fitted), r.local);
     }
     return 0;
   }

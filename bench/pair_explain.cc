@@ -29,8 +29,8 @@ int main(int argc, char** argv) {
     const ProbeOutcome pa = probe_bytes(bytes_a), pb = probe_bytes(bytes_b);
     const Lookalike a = test::lookalike_of_bytes(bytes_a), b = test::lookalike_of_bytes(bytes_b);
     const GroupSettings gs;
-    const MatchSettings ms = pair_settings(gs.match, size_allowance(pa.info.width, pa.info.height, gs.match),
-                                           size_allowance(pb.info.width, pb.info.height, gs.match));
+    const PictureSize sa = picture_size(pa.info.width, pa.info.height), sb = picture_size(pb.info.width, pb.info.height);
+    const MatchSettings ms = pair_settings(gs.match, sa, sb, 0);
     std::printf("a %ux%u  b %ux%u  pair threshold %.5f  radius %d\n", pa.info.width, pa.info.height, pb.info.width,
                 pb.info.height, ms.min_correlation, gs.radius);
     {
@@ -52,7 +52,7 @@ int main(int argc, char** argv) {
     }
     for (int t = 0; t < kDihedralCount; ++t) {
       const int d = hamming(a.phash[t], b.phash[0]);
-      const Match m = match_thumbnails(a.thumb, t, b.thumb, ms);
+      const Match m = match_thumbnails(a.thumb, t, b.thumb, pair_settings(gs.match, sa, sb, t));
       std::printf("t%d screen %.4f dist %2d%s corr %.5f (blur %d on %s, fitted %d) local %.4f chroma %.3f chroma_local %.3f -> %s\n",
                   t, std::sqrt(double(screen_distance2(qa, t, qb))) / 32767.0, d, d <= gs.radius ? " " : "*", m.correlation, m.blur_step, m.blurred_a ? "a" : "b", int(m.fitted),
                   m.local, m.chroma, m.chroma_local, m.joined && d <= gs.radius ? "JOINED" : "no");

@@ -76,7 +76,7 @@ constexpr size_t kConfirmBatch = 16384;  // thumbnails a batch reads at most (pl
 
 void confirm_hits(const std::vector<std::pair<uint32_t, uint32_t>>& hits, const ThumbnailTable& thumbs,
                   const std::vector<uint32_t>& eligible, const std::vector<MatchProfile>& profile,
-                  const std::vector<float>& allowance, const GroupSettings& settings, std::vector<GroupLink>& confirmed) {
+                  const std::vector<PictureSize>& size, const GroupSettings& settings, std::vector<GroupLink>& confirmed) {
   std::vector<size_t> starts;
   for (size_t h = 0; h < hits.size(); ++h)
     if (h == 0 || hits[h].first != hits[h - 1].first) starts.push_back(h);
@@ -93,7 +93,7 @@ void confirm_hits(const std::vector<std::pair<uint32_t, uint32_t>>& hits, const 
     for (size_t h = starts[g]; h < starts[g + 1]; ++h) {
       const uint32_t j = hits[h].second;
       const Match m = match_thumbnails(turned, profile[i], t, thumb_of(j), profile[j],
-                                       pair_settings(settings.match, allowance[i], allowance[j]), &spectrum);
+                                       pair_settings(settings.match, size[i], size[j], t), &spectrum);
       if (!m.joined) continue;
       // Said of the pair (a, b), a < b: the flip/turn of a that matches b
       // (the inverse of t when the hit was b's), and which side was blurred.
@@ -101,7 +101,7 @@ void confirm_hits(const std::vector<std::pair<uint32_t, uint32_t>>& hits, const 
       const bool forward = i < j;
       const int fit = !m.fitted ? 0 : (m.fitted_a == forward ? 1 : 2);
       found[g].push_back({std::min(i, j), std::max(i, j), forward ? t : kInverse[t], m.correlation, m.blur_step,
-                          forward ? m.blurred_a : !m.blurred_a, fit});
+                          forward ? m.blurred_a : !m.blurred_a, fit, m.resampled});
     }
   };
   if (!thumbs.spilled()) {
@@ -196,10 +196,9 @@ std::vector<GroupLink> join_lookalikes(const std::vector<FileRecord>& records, c
     thumbs.get_many(eligible.data() + first, count, block.data());
     for (size_t k = 0; k < count; ++k) profile[first + k] = match_profile(block[k]);
   }, 1);
-  // Per image: its share of the correlation's allowance (1 under small_side px).
-  std::vector<float> allowance(n);
-  for (size_t k = 0; k < n; ++k)
-    allowance[k] = size_allowance(records[eligible[k]].probe.width, records[eligible[k]].probe.height, settings.match);
+  // Per image: its pixel size (pair_settings: the allowance, the resampled comparison).
+  std::vector<PictureSize> size(n);
+  for (size_t k = 0; k < n; ++k) size[k] = picture_size(records[eligible[k]].probe.width, records[eligible[k]].probe.height);
   // A hit (8 * image + t, j) goes on to the confirmation unless it pairs an
   // image with itself or the profiles prove that the thumbnails cannot match
   // (neither as they are nor with any blur step the pair would try).
@@ -207,7 +206,7 @@ std::vector<GroupLink> join_lookalikes(const std::vector<FileRecord>& records, c
     const uint32_t i = variant / kDihedralCount;
     if (i == j) return false;
     const int t = static_cast<int>(variant % kDihedralCount);
-    return match_may_join(profile[i], t, profile[j], pair_settings(settings.match, allowance[i], allowance[j]));
+    return match_may_join(profile[i], t, profile[j], pair_settings(settings.match, size[i], size[j], t));
   };
   // Hits of an image with itself are counted by the join but are no candidates.
   uint64_t self_hits = 0;
@@ -228,7 +227,7 @@ std::vector<GroupLink> join_lookalikes(const std::vector<FileRecord>& records, c
     for (size_t k = 0; k < n; ++k)
       for (int t = 0; t < kDihedralCount; ++t) variants[k * kDihedralCount + t] = records[eligible[k]].features.look.phash[t];
     confirm_hits(join_within(variants, identity, settings.radius, settings.threads, keep, &found, settings.join_memory_bytes),
-                 thumbs, eligible, profile, allowance, settings, confirmed);
+                 thumbs, eligible, profile, size, settings, confirmed);
     out.candidate_hits += found;
   } else {
     std::vector<uint64_t> variant(n);
@@ -241,7 +240,7 @@ std::vector<GroupLink> join_lookalikes(const std::vector<FileRecord>& records, c
                               settings.join_memory_bytes);
       out.candidate_hits += found;
       for (auto& h : hits) h.first = h.first * kDihedralCount + static_cast<uint32_t>(t);
-      confirm_hits(hits, thumbs, eligible, profile, allowance, settings, confirmed);
+      confirm_hits(hits, thumbs, eligible, profile, size, settings, confirmed);
     }
   }
   out.candidate_hits -= self_hits;
@@ -253,7 +252,7 @@ std::vector<GroupLink> join_lookalikes(const std::vector<FileRecord>& records, c
   const auto screen_hits = screen_join(profile, screen_threshold(settings.screen_radius), settings.threads, hash_miss, keep,
                                        &screen_found);
   out.candidate_hits += screen_found;
-  confirm_hits(screen_hits, thumbs, eligible, profile, allowance, settings, confirmed);
+  confirm_hits(screen_hits, thumbs, eligible, profile, size, settings, confirmed);
   // The third key: the value plane's screen coefficients (value_profile), for
   // the images in colour, hits that neither the hash nor the gray key gave.
   std::vector<uint32_t> coloured;
@@ -272,7 +271,7 @@ std::vector<GroupLink> join_lookalikes(const std::vector<FileRecord>& records, c
     }, 1);
     const auto value_hits = value_key_hits(coloured, value, profile, threshold2, settings.threads, hash_miss, keep,
                                            &out.candidate_hits);
-    confirm_hits(value_hits, thumbs, eligible, profile, allowance, settings, confirmed);
+    confirm_hits(value_hits, thumbs, eligible, profile, size, settings, confirmed);
   }
   return confirmed;
 }
@@ -280,8 +279,8 @@ std::vector<GroupLink> join_lookalikes(const std::vector<FileRecord>& records, c
 // One measurement a pair: its first in (a, b, turn, blur step) order.
 void one_link_a_pair(std::vector<GroupLink>& confirmed) {
   std::sort(confirmed.begin(), confirmed.end(), [](const GroupLink& x, const GroupLink& y) {
-    return std::tie(x.a, x.b, x.turn, x.blur_step, x.blurred_a, x.fit_source) <
-           std::tie(y.a, y.b, y.turn, y.blur_step, y.blurred_a, y.fit_source);
+    return std::tie(x.a, x.b, x.turn, x.blur_step, x.blurred_a, x.fit_source, x.resampled) <
+           std::tie(y.a, y.b, y.turn, y.blur_step, y.blurred_a, y.fit_source, y.resampled);
   });
   confirmed.erase(std::unique(confirmed.begin(), confirmed.end(),
                               [](const GroupLink& x, const GroupLink& y) { return x.a == y.a && x.b == y.b; }),
@@ -443,9 +442,9 @@ LookalikeLinks join_lookalike_slice(const std::vector<FileRecord>& records, cons
       parallel_for(count, settings.threads, [&](size_t q) { each(first + q, block[q]); }, 64);
     }
   };
-  auto allowance_of = [&](uint32_t k) {
+  auto size_of = [&](uint32_t k) {
     const FileRecord& r = records[eligible[k]];
-    return size_allowance(r.probe.width, r.probe.height, settings.match);
+    return picture_size(r.probe.width, r.probe.height);
   };
   // The queries go in batches whose hits (before the profiles' filter) stay
   // near a budget taken from the join's memory budget; the next batch's size
@@ -475,16 +474,16 @@ LookalikeLinks join_lookalike_slice(const std::vector<FileRecord>& records, cons
     ThumbnailTable thumbs;
     thumbs.assign_all(local.size());
     std::vector<MatchProfile> local_profile(local.size());
-    std::vector<float> local_allowance(local.size());
+    std::vector<PictureSize> local_size(local.size());
     read(local, [&](size_t q, const Thumbnail& th) {
       thumbs.at(q) = th;
       local_profile[q] = match_profile(th);
-      local_allowance[q] = allowance_of(local[q]);
+      local_size[q] = size_of(local[q]);
     });
     std::vector<uint32_t> slots(local.size());
     std::iota(slots.begin(), slots.end(), 0u);
     std::vector<GroupLink> found_links;
-    confirm_hits(kept, thumbs, slots, local_profile, local_allowance, settings, found_links);
+    confirm_hits(kept, thumbs, slots, local_profile, local_size, settings, found_links);
     for (GroupLink& l : found_links) {  // local -> record indices (both ascend together)
       l.a = eligible[local[l.a]];
       l.b = eligible[local[l.b]];
@@ -523,17 +522,17 @@ LookalikeLinks join_lookalike_slice(const std::vector<FileRecord>& records, cons
       return static_cast<uint32_t>(std::lower_bound(named.begin(), named.end(), k) - named.begin());
     };
     std::vector<MatchProfile> profile(named.size());
-    std::vector<float> allowance(named.size());
+    std::vector<PictureSize> size(named.size());
     read(named, [&](size_t q, const Thumbnail& th) {
       profile[q] = match_profile(th);
-      allowance[q] = allowance_of(named[q]);
+      size[q] = size_of(named[q]);
     });
     std::vector<std::pair<uint32_t, uint32_t>> kept;  // (8 * eligible i + t, eligible j)
     for (const auto& [v, j] : hits) {
       const uint32_t i = query[first + v / kDihedralCount];
       const uint32_t pi = pos(i), pj = pos(j);
       const int t = static_cast<int>(v % kDihedralCount);
-      if (match_may_join(profile[pi], t, profile[pj], pair_settings(settings.match, allowance[pi], allowance[pj])))
+      if (match_may_join(profile[pi], t, profile[pj], pair_settings(settings.match, size[pi], size[pj], t)))
         kept.push_back({i * kDihedralCount + static_cast<uint32_t>(t), j});
     }
     const size_t batch_hits = hits.size();
@@ -553,8 +552,8 @@ LookalikeLinks join_lookalike_slice(const std::vector<FileRecord>& records, cons
     std::iota(all.begin(), all.end(), 0u);
     std::vector<MatchProfile> profile(n);
     read(all, [&](size_t q, const Thumbnail& th) { profile[q] = match_profile(th); });
-    std::vector<float> allowance(n);
-    for (uint32_t k = 0; k < n; ++k) allowance[k] = allowance_of(k);
+    std::vector<PictureSize> size(n);
+    for (uint32_t k = 0; k < n; ++k) size[k] = size_of(k);
     // Hits of the slice's queries that the hash did not give; kept as the whole
     // join's filter keeps them.
     const PairFilter mine = [&](uint32_t v, uint32_t j) {
@@ -563,8 +562,8 @@ LookalikeLinks join_lookalike_slice(const std::vector<FileRecord>& records, cons
     };
     const PairFilter keep = [&](uint32_t v, uint32_t j) {
       const uint32_t i = v / kDihedralCount;
-      return match_may_join(profile[i], static_cast<int>(v % kDihedralCount), profile[j],
-                            pair_settings(settings.match, allowance[i], allowance[j]));
+      const int t = static_cast<int>(v % kDihedralCount);
+      return match_may_join(profile[i], t, profile[j], pair_settings(settings.match, size[i], size[j], t));
     };
     uint64_t found = 0;
     auto kept = screen_join(profile, threshold2, settings.threads, mine, keep, &found);

@@ -4,6 +4,7 @@
 #include <array>
 #include <cmath>
 #include <cstring>
+#include <map>
 #include <vector>
 
 namespace tamis {
@@ -17,11 +18,410 @@ float size_allowance(uint32_t width, uint32_t height, const MatchSettings& setti
   return static_cast<float>(share);
 }
 
-MatchSettings pair_settings(const MatchSettings& settings, float allowance_a, float allowance_b) {
+PictureSize picture_size(uint32_t width, uint32_t height) {
+  return {static_cast<uint16_t>(std::min<uint32_t>(width, 65535)), static_cast<uint16_t>(std::min<uint32_t>(height, 65535))};
+}
+
+MatchSettings pair_settings(const MatchSettings& settings, PictureSize a, PictureSize b, int t) {
   MatchSettings s = settings;
+  s.resample = {};
+  const float allowance_a = size_allowance(a.width, a.height, settings);
+  const float allowance_b = size_allowance(b.width, b.height, settings);
   const float share = std::sqrt(allowance_a * allowance_b);
   if (share < 1.0f) s.min_correlation = 1.0 - (1.0 - settings.min_correlation) * static_cast<double>(share);
+  // a's size in b's frame: a flip/turn with a transpose (t & 4) swaps its sides.
+  if (t & 4) std::swap(a.width, a.height);
+  if (a.width == 0 || a.height == 0 || b.width == 0 || b.height == 0) return s;
+  const bool a_larger = a.width >= b.width && a.height >= b.height;
+  const bool b_larger = b.width >= a.width && b.height >= a.height;
+  if (a_larger == b_larger) return s;  // the same size, or neither inside the other
+  const PictureSize& small = a_larger ? b : a;
+  const PictureSize& large = a_larger ? a : b;
+  if (std::min(small.width, small.height) >= kThumbSide ||
+      double(small.width) * small.height > kResampleArea * double(large.width) * large.height)
+    return s;
+  s.resample.width = small.width;
+  s.resample.height = small.height;
+  s.resample.large_width = large.width;
+  s.resample.large_height = large.height;
+  s.resample.on_a = a_larger;
+  const float own = a_larger ? allowance_b : allowance_a;
+  s.resample.min_correlation = 1.0 - (1.0 - settings.min_correlation) * static_cast<double>(own);
   return s;
+}
+
+namespace {
+
+// OpenCV's cubic (a = -0.75, cv::INTER_CUBIC) and Pillow's (a = -0.5,
+// Image.BICUBIC) convolution kernels (Keys 1981), and the triangle.
+double cubic_weight(double x, double a) {
+  x = x < 0 ? -x : x;
+  if (x < 1) return ((a + 2) * x - (a + 3)) * x * x + 1;
+  if (x < 2) return ((a * x - 5 * a) * x + 8 * a) * x - 4 * a;
+  return 0;
+}
+// sin(pi x) in plain arithmetic (no libm call: the same bits on every
+// processor): x reduced to [-1/2, 1/2] about the nearest integer, then the
+// Taylor series to the term in z^23 (|z| <= pi / 2: below 1e-17).
+double sin_pi(double x) {
+  const double k = std::floor(x + 0.5);
+  const double z = 3.14159265358979323846 * (x - k);
+  const double z2 = z * z;
+  double term = z, sum = z;
+  for (int n = 1; n <= 11; ++n) {
+    term *= -z2 / double((2 * n) * (2 * n + 1));
+    sum += term;
+  }
+  const long long ki = static_cast<long long>(k);
+  return (ki % 2 != 0) ? -sum : sum;
+}
+// The Lanczos kernel of 4 lobes, sinc(x) sinc(x / 4) (cv::INTER_LANCZOS4's).
+double lanczos4_weight(double x) {
+  if (x > -1e-9 && x < 1e-9) return 1.0;
+  if (x <= -4 || x >= 4) return 0.0;
+  constexpr double kPi = 3.14159265358979323846;
+  return 4.0 * sin_pi(x) * sin_pi(x / 4.0) / (kPi * kPi * x * x);
+}
+double triangle_weight(double x) {
+  x = x < 0 ? -x : x;
+  return x < 1 ? 1 - x : 0;
+}
+
+// One side's reduction from `large` samples to `small` (< kThumbSide), as a
+// small x large matrix (row-major), by each of the ways programs reduce
+// pictures (ResampleKernel).
+std::vector<double> reduction(int large, int small, ResampleKernel kernel) {
+  std::vector<double> k(size_t(small) * size_t(large), 0.0);
+  const double scale = double(large) / small;
+  auto at = [&](int j, int x) -> double& { return k[size_t(j) * size_t(large) + size_t(std::clamp(x, 0, large - 1))]; };
+  for (int j = 0; j < small; ++j) {
+    const double centre = (j + 0.5) * scale;  // in input pixels, edges at integers
+    switch (kernel) {
+      case ResampleKernel::area: {  // cv::INTER_AREA: the input pixels the output covers, partly covered ones in part
+        const double lo = j * scale, hi = (j + 1) * scale;
+        for (int x = 0; x < large; ++x) {
+          const double overlap = std::min(hi, double(x + 1)) - std::max(lo, double(x));
+          if (overlap > 0) at(j, x) += overlap / scale;
+        }
+        break;
+      }
+      case ResampleKernel::nearest:  // cv::INTER_NEAREST: the input pixel floor(j scale)
+        at(j, static_cast<int>(j * scale)) += 1.0;
+        break;
+      case ResampleKernel::nearest_centre:  // Pillow's NEAREST: the pixel under the output's centre
+        at(j, static_cast<int>(centre)) += 1.0;
+        break;
+      case ResampleKernel::linear:  // cv::INTER_LINEAR, INTER_CUBIC and INTER_LANCZOS4: taps at the centre, not widened
+      case ResampleKernel::cubic:
+      case ResampleKernel::lanczos: {
+        const double f = centre - 0.5;
+        const int x0 = static_cast<int>(std::floor(f));
+        if (kernel == ResampleKernel::linear) {
+          at(j, x0) += 1.0 - (f - x0);
+          at(j, x0 + 1) += f - x0;
+        } else if (kernel == ResampleKernel::cubic) {
+          for (int x = x0 - 1; x <= x0 + 2; ++x) at(j, x) += cubic_weight(f - x, -0.75);
+        } else {
+          double sum = 0;
+          for (int x = x0 - 3; x <= x0 + 4; ++x) sum += lanczos4_weight(f - x);
+          for (int x = x0 - 3; x <= x0 + 4; ++x) at(j, x) += lanczos4_weight(f - x) / sum;
+        }
+        break;
+      }
+      case ResampleKernel::triangle_wide:  // Pillow's BILINEAR and BICUBIC: the kernel widened by the scale
+      case ResampleKernel::cubic_wide: {
+        const bool tri = kernel == ResampleKernel::triangle_wide;
+        const double support = (tri ? 1.0 : 2.0) * scale;
+        const int first = static_cast<int>(std::floor(centre - support)), last = static_cast<int>(std::floor(centre + support));
+        double sum = 0;
+        std::vector<std::pair<int, double>> taps;
+        for (int x = first; x <= last; ++x) {
+          if (x < 0 || x >= large) continue;  // Pillow leaves out what lies outside and renormalizes
+          const double d = (x + 0.5 - centre) / scale;
+          const double w = tri ? triangle_weight(d) : cubic_weight(d, -0.5);
+          if (w == 0) continue;
+          taps.push_back({x, w});
+          sum += w;
+        }
+        for (const auto& [x, w] : taps) at(j, x) += w / sum;
+        break;
+      }
+    }
+  }
+  return k;
+}
+
+// Linear interpolation of `from` samples at the centres of `to` samples over the
+// same extent (half-pixel centres, replicated edges).
+void linear_taps(int from, int to, int i, int& x0, int& x1, double& w) {
+  const double f = (i + 0.5) * from / double(to) - 0.5;
+  x0 = static_cast<int>(std::floor(f));
+  w = f - x0;
+  if (x0 < 0) x0 = 0, w = 0;
+  if (x0 >= from - 1) x0 = from - 1, w = 0;
+  x1 = std::min(x0 + 1, from - 1);
+}
+
+// The least-squares inverse (U^T U)^-1 U^T (n x 32, row-major) of the linear
+// enlargement U (32 x n) of n < 32 samples to 32, as features.cc's cv::resize
+// enlarges a picture under 32 px: it gives the picture's pixels back from its
+// thumbnail up to the thumbnail's rounding. The identity for n = 32. Computed
+// once a thread for each n (Gauss-Jordan; U^T U is symmetric positive definite,
+// no pivoting needed).
+const std::vector<double>& enlargement_inverse(int n) {
+  thread_local std::array<std::vector<double>, kThumbSide + 1> made;
+  std::vector<double>& back = made[size_t(n)];
+  if (!back.empty()) return back;
+  back.assign(size_t(n) * kThumbSide, 0.0);
+  if (n == kThumbSide) {
+    for (int x = 0; x < n; ++x) back[size_t(x) * kThumbSide + size_t(x)] = 1.0;
+    return back;
+  }
+  std::vector<double> u(size_t(kThumbSide) * size_t(n), 0.0);  // [32][n]
+  for (int i = 0; i < kThumbSide; ++i) {
+    int x0, x1;
+    double w;
+    linear_taps(n, kThumbSide, i, x0, x1, w);
+    u[size_t(i) * size_t(n) + size_t(x0)] += 1.0 - w;
+    u[size_t(i) * size_t(n) + size_t(x1)] += w;
+  }
+  // Gauss-Jordan on [U^T U | U^T].
+  const size_t cols = size_t(n) + kThumbSide;
+  std::vector<double> g(size_t(n) * cols, 0.0);
+  for (int row = 0; row < n; ++row) {
+    for (int c = 0; c < n; ++c) {
+      double v = 0;
+      for (int i = 0; i < kThumbSide; ++i) v += u[size_t(i) * size_t(n) + size_t(row)] * u[size_t(i) * size_t(n) + size_t(c)];
+      g[size_t(row) * cols + size_t(c)] = v;
+    }
+    for (int i = 0; i < kThumbSide; ++i) g[size_t(row) * cols + size_t(n) + size_t(i)] = u[size_t(i) * size_t(n) + size_t(row)];
+  }
+  for (int p = 0; p < n; ++p) {
+    const double d = g[size_t(p) * cols + size_t(p)];
+    for (size_t c = 0; c < cols; ++c) g[size_t(p) * cols + c] /= d;
+    for (int row = 0; row < n; ++row) {
+      if (row == p) continue;
+      const double f = g[size_t(row) * cols + size_t(p)];
+      if (f == 0) continue;
+      for (size_t c = 0; c < cols; ++c) g[size_t(row) * cols + c] -= f * g[size_t(p) * cols + c];
+    }
+  }
+  for (int x = 0; x < n; ++x)
+    for (int i = 0; i < kThumbSide; ++i) back[size_t(x) * kThumbSide + size_t(i)] = g[size_t(x) * cols + size_t(n) + size_t(i)];
+  return back;
+}
+
+// Sparse rows of a resampling matrix: output j takes weight[k] of input
+// index[k] for k in [start[j], start[j + 1]).
+struct Taps {
+  std::vector<int> start, index;
+  std::vector<double> weight;
+};
+Taps sparse(const std::vector<double>& dense, int outputs, int inputs) {
+  Taps t;
+  for (int j = 0; j < outputs; ++j) {
+    t.start.push_back(int(t.index.size()));
+    for (int x = 0; x < inputs; ++x)
+      if (dense[size_t(j) * size_t(inputs) + size_t(x)] != 0) {
+        t.index.push_back(x);
+        t.weight.push_back(dense[size_t(j) * size_t(inputs) + size_t(x)]);
+      }
+  }
+  t.start.push_back(int(t.index.size()));
+  return t;
+}
+
+// One side's way through the resampled comparison: the thumbnail's 32 samples
+// go back to the picture's `pixels` (min(large, 32): the inverse of features.cc's
+// enlargement for a picture under 32 px on this side, enlargement_inverse;
+// else the thumbnail's pixels stand for the picture's), are reduced to `small`
+// by the kernel (`down`), and enlarged to 32 (`up`: linear interpolation with
+// half-pixel centres and replicated edges, as features.cc's cv::resize enlarges
+// a small picture). A side that is not reduced has pixels = small = 32 and both
+// the identity.
+struct SideResample {
+  int pixels = kThumbSide, small = kThumbSide;
+  Taps down, up;
+};
+
+SideResample make_side_resample(int large, int small, ResampleKernel kernel) {
+  SideResample r;
+  std::vector<double> identity(size_t(kThumbSide) * kThumbSide, 0.0);
+  for (int i = 0; i < kThumbSide; ++i) identity[size_t(i * kThumbSide + i)] = 1.0;
+  if (small <= 0 || small >= kThumbSide || small >= large) {
+    r.down = r.up = sparse(identity, kThumbSide, kThumbSide);
+    return r;
+  }
+  r.pixels = std::min(large, kThumbSide);
+  r.small = small;
+  r.down = sparse(reduction(r.pixels, small, kernel), small, r.pixels);
+  std::vector<double> up(size_t(kThumbSide) * size_t(small), 0.0);
+  for (int i = 0; i < kThumbSide; ++i) {
+    int x0, x1;
+    double w;
+    linear_taps(small, kThumbSide, i, x0, x1, w);
+    up[size_t(i) * size_t(small) + size_t(x0)] += 1.0 - w;
+    up[size_t(i) * size_t(small) + size_t(x1)] += w;
+  }
+  r.up = sparse(up, kThumbSide, small);
+  return r;
+}
+
+// The same, made once a thread for each (pixels, reduced size, kernel).
+const SideResample& side_resample(int large, int small, ResampleKernel kernel) {
+  thread_local std::map<uint32_t, SideResample> made;
+  const bool reduced = small > 0 && small < kThumbSide && small < large;
+  const uint32_t key = !reduced ? 0u
+                                : (uint32_t(std::min(large, kThumbSide)) << 16) | (uint32_t(small) << 8) | uint32_t(kernel);
+  auto it = made.find(key);
+  if (it == made.end()) it = made.emplace(key, make_side_resample(large, small, kernel)).first;
+  return it->second;
+}
+
+// A plane's picture pixels from its thumbnail: by . in . bx^T (py x px values),
+// b the enlargement's inverse of each side (the identity at 32). Each output
+// sums its terms in the same order whatever the loops' order (the inner loops
+// run over outputs, which the compiler may do several at a time).
+void picture_plane(const uint8_t* in, int px, int py, double* out) {
+  const size_t nx = size_t(px), ny = size_t(py), side = kThumbSide;
+  if (px == kThumbSide && py == kThumbSide) {
+    for (size_t i = 0; i < kGrayBytes; ++i) out[i] = in[i];
+    return;
+  }
+  const std::vector<double>& bx = enlargement_inverse(px);  // [j][c]
+  const std::vector<double>& by = enlargement_inverse(py);  // [i][y]
+  double bxt[1024];  // bx transposed: [c][j]
+  for (size_t j = 0; j < nx; ++j)
+    for (size_t c = 0; c < side; ++c) bxt[c * nx + j] = bx[j * side + c];
+  double rows[1024];  // [y][j]
+  for (size_t y = 0; y < side; ++y) {
+    double* r = rows + y * nx;
+    for (size_t j = 0; j < nx; ++j) r[j] = 0;
+    for (size_t c = 0; c < side; ++c) {
+      const double v = in[y * side + c];
+      const double* w = bxt + c * nx;
+      for (size_t j = 0; j < nx; ++j) r[j] += w[j] * v;
+    }
+  }
+  for (size_t i = 0; i < ny; ++i) {
+    double* o = out + i * nx;
+    for (size_t j = 0; j < nx; ++j) o[j] = 0;
+    for (size_t y = 0; y < side; ++y) {
+      const double w = by[i * side + y];
+      const double* r = rows + y * nx;
+      for (size_t j = 0; j < nx; ++j) o[j] += w * r[j];
+    }
+  }
+}
+
+// Values (rows of in_w, row-major) through the taps of each side: tx along a
+// row, ty down a column; each result rounded half up and held to 0-255 (as a file holds
+// pixels) when `round`.
+void apply_taps(const double* in, int in_w, const Taps& tx, const Taps& ty, bool round, double* out) {
+  const size_t out_w = tx.start.size() - 1, out_h = ty.start.size() - 1;
+  double rows[1024];  // [input row][output column], for the input rows ty reads
+  size_t in_rows = 0;
+  for (int idx : ty.index) in_rows = std::max(in_rows, size_t(idx) + 1);
+  for (size_t y = 0; y < in_rows; ++y)
+    for (size_t j = 0; j < out_w; ++j) {
+      double v = 0;
+      for (int k = tx.start[j]; k < tx.start[j + 1]; ++k) v += tx.weight[size_t(k)] * in[y * size_t(in_w) + size_t(tx.index[size_t(k)])];
+      rows[y * out_w + j] = v;
+    }
+  for (size_t i = 0; i < out_h; ++i)
+    for (size_t j = 0; j < out_w; ++j) {
+      double v = 0;
+      for (int k = ty.start[i]; k < ty.start[i + 1]; ++k) v += ty.weight[size_t(k)] * rows[size_t(ty.index[size_t(k)]) * out_w + j];
+      out[i * out_w + j] = round ? std::clamp(static_cast<int>(std::floor(v + 0.5)), 0, 255) : v;
+    }
+}
+
+// The Pearson correlation of n values (0 when either is constant).
+double pearson(const double* x, const double* y, size_t n) {
+  double mx = 0, my = 0;
+  for (size_t i = 0; i < n; ++i) mx += x[i], my += y[i];
+  mx /= double(n);
+  my /= double(n);
+  double xy = 0, xx = 0, yy = 0;
+  for (size_t i = 0; i < n; ++i) {
+    xy += (x[i] - mx) * (y[i] - my);
+    xx += (x[i] - mx) * (x[i] - mx);
+    yy += (y[i] - my) * (y[i] - my);
+  }
+  return xx > 0 && yy > 0 ? xy / std::sqrt(xx * yy) : 0.0;
+}
+
+}  // namespace
+
+namespace {
+
+// The kernel choice (resample_kernel) given the larger picture's gray pixels.
+ResampleKernel choose_kernel(const double* pixels, const Thumbnail& small, const MatchSettings::Resample& r) {
+  // The smaller picture's pixels (its thumbnail's gray plane through the
+  // inverse of its enlargement), then each kernel's reduction of the larger
+  // one's pixels, compared at the smaller size.
+  const SideResample& ax = side_resample(r.large_width, r.width, ResampleKernel::area);
+  const SideResample& ay = side_resample(r.large_height, r.height, ResampleKernel::area);
+  double want[1024], got[1024];
+  picture_plane(small.data(), ax.small, ay.small, want);
+  ResampleKernel best_kernel = ResampleKernel::area;
+  double best = -2;
+  for (int k = 0; k < kResampleKernels; ++k) {
+    const SideResample& sx = side_resample(r.large_width, r.width, ResampleKernel(k));
+    const SideResample& sy = side_resample(r.large_height, r.height, ResampleKernel(k));
+    apply_taps(pixels, sx.pixels, sx.down, sy.down, true, got);
+    const double c = pearson(got, want, size_t(sx.small) * size_t(sy.small));
+    if (c > best) best = c, best_kernel = ResampleKernel(k);
+  }
+  return best_kernel;
+}
+
+// resample_thumbnail, with the gray plane's pixels given when known.
+void resample_planes(const Thumbnail& in, const double* gray_pixels, const MatchSettings::Resample& r, ResampleKernel kernel,
+                     Thumbnail& out, bool gray_only) {
+  const SideResample& sx = side_resample(r.large_width, r.width, kernel);
+  const SideResample& sy = side_resample(r.large_height, r.height, kernel);
+  double pixels[1024], small[1024], big[1024];
+  for (size_t plane = 0; plane < (gray_only ? 1u : 3u); ++plane) {
+    const uint8_t* src = in.data() + plane * kGrayBytes;
+    uint8_t* dst = out.data() + plane * kGrayBytes;
+    // A constant plane (a gray picture's chroma) stays as it is: every step's
+    // weights sum to 1.
+    if (std::all_of(src, src + kGrayBytes, [&](uint8_t v) { return v == src[0]; })) {
+      std::fill(dst, dst + kGrayBytes, src[0]);
+      continue;
+    }
+    if (plane == 0 && gray_pixels) std::copy(gray_pixels, gray_pixels + sx.pixels * sy.pixels, pixels);
+    else picture_plane(src, sx.pixels, sy.pixels, pixels);
+    apply_taps(pixels, sx.pixels, sx.down, sy.down, true, small);
+    apply_taps(small, sx.small, sx.up, sy.up, true, big);
+    for (size_t i = 0; i < kGrayBytes; ++i) dst[i] = static_cast<uint8_t>(big[i]);
+  }
+}
+
+}  // namespace
+
+ResampleKernel resample_kernel(const Thumbnail& large, const Thumbnail& small, const MatchSettings::Resample& r) {
+  const SideResample& ax = side_resample(r.large_width, r.width, ResampleKernel::area);
+  const SideResample& ay = side_resample(r.large_height, r.height, ResampleKernel::area);
+  double pixels[1024];
+  picture_plane(large.data(), ax.pixels, ay.pixels, pixels);
+  return choose_kernel(pixels, small, r);
+}
+
+void resample_thumbnail(const Thumbnail& in, const MatchSettings::Resample& r, ResampleKernel kernel, Thumbnail& out,
+                        bool gray_only) {
+  resample_planes(in, nullptr, r, kernel, out, gray_only);
+}
+
+// The resampled comparison's thumbnail of the larger picture: the kernel
+// chosen, then all three planes (the gray plane's pixels computed once).
+void resampled_for_pair(const Thumbnail& large, const Thumbnail& small, const MatchSettings::Resample& r, Thumbnail& out) {
+  const SideResample& ax = side_resample(r.large_width, r.width, ResampleKernel::area);
+  const SideResample& ay = side_resample(r.large_height, r.height, ResampleKernel::area);
+  double pixels[1024];
+  picture_plane(large.data(), ax.pixels, ay.pixels, pixels);
+  resample_planes(large, pixels, r, choose_kernel(pixels, small, r), out, false);
 }
 
 namespace {
@@ -978,6 +1378,14 @@ bool blur_may_reach(const MatchProfile& a, const MatchProfile& b, const BlurCand
   return false;
 }
 
+// Whether a pair gets the resampled comparison: pair_settings asked for it and
+// the screen's bound lets the blur-matched correlation reach kResampleGate.
+bool resample_tried(const MatchProfile& pa, int t, const MatchProfile& pb, const MatchSettings& s) {
+  if (s.resample.width <= 0 || pa.flat || pb.flat) return false;
+  const BlurCandidates c = blur_candidates(pa, pb);
+  return blur_may_reach(pa, pb, c, low_pair(pa, t, pb, c), std::min(kResampleGate, s.resample.min_correlation));
+}
+
 }  // namespace
 
 double fit_floor(const MatchSettings& s, bool colour) {
@@ -1001,12 +1409,17 @@ bool match_may_join(const MatchProfile& a, int t, const MatchProfile& b, const M
   const double dist = std::max(0.0, lp.aa + lp.bb - 2.0 * lp.dot);
   const double d = std::max(0.0, std::sqrt(dist) - 2.5e-4);
   if (1.0 - d * d / 2.0 >= thr) return true;
-  // The blurred bound at min_correlation, or at the fit's gate when the fit is on.
-  return blur_may_reach(a, b, c, lp, fit_gate(settings, a.colour && b.colour));
+  // The blurred bound at min_correlation, or at the fit's gate when the fit is
+  // on, or at the resampled comparison's gate.
+  return blur_may_reach(a, b, c, lp, fit_gate(settings, a.colour && b.colour)) || resample_tried(a, t, b, settings);
 }
 
-Match match_thumbnails(const Thumbnail& ta, const MatchProfile& pa, int t, const Thumbnail& b, const MatchProfile& pb,
-                       const MatchSettings& s, std::vector<float>* a_spectrum) {
+namespace {
+
+// The comparison of the thumbnails as they are (match_thumbnails without the
+// resampled comparison).
+Match match_direct(const Thumbnail& ta, const MatchProfile& pa, int t, const Thumbnail& b, const MatchProfile& pb,
+                   const MatchSettings& s, std::vector<float>* a_spectrum) {
   Match m;
   m.correlation = static_cast<float>(thumb_correlation(ta, pa.stats, b, pb.stats));
   if (pa.flat || pb.flat) {  // the flat rule decides the gray pictures; the colours still count
@@ -1131,6 +1544,24 @@ Match match_thumbnails(const Thumbnail& ta, const MatchProfile& pa, int t, const
                                              : local_residual(ta.data(), blurred.data()));
   if (m.local > s.max_local) return m;
   m.joined = colours_agree(ta, b, cells_a(), cells_b(), s, m);
+  return m;
+}
+
+}  // namespace
+
+Match match_thumbnails(const Thumbnail& ta, const MatchProfile& pa, int t, const Thumbnail& b, const MatchProfile& pb,
+                       const MatchSettings& s, std::vector<float>* a_spectrum) {
+  const Match direct = match_direct(ta, pa, t, b, pb, s, a_spectrum);
+  if (direct.joined || !resample_tried(pa, t, pb, s)) return direct;
+  MatchSettings own = s;
+  own.resample = {};
+  own.min_correlation = s.resample.min_correlation;
+  Thumbnail r;
+  resampled_for_pair(s.resample.on_a ? ta : b, s.resample.on_a ? b : ta, s.resample, r);
+  Match m = s.resample.on_a ? match_direct(r, match_profile(r), 0, b, pb, own, nullptr)
+                            : match_direct(ta, pa, t, r, match_profile(r), own, a_spectrum);
+  if (!m.joined) return direct;
+  m.resampled = true;
   return m;
 }
 

@@ -411,6 +411,7 @@ void groups(std::ostringstream& o, const json& report, const Thumbnails& thumbs)
         }
         const std::string fit = str(link.value("fit_source", json("none")));
         if (fit != "none") o << " through a tone-and-colour fit of " << html_escape(fit);
+        if (link.value("resampled", false)) o << ", the larger picture brought to the smaller one's size";
       }
       o << "</div>";
     }

@@ -161,6 +161,7 @@ json groups_json(const AuditResult& r) {
         link["blur_sigma"] = blur_sigma(l.blur_step);
         link["blurred"] = l.blur_step > 0 ? (l.blurred_a ? "a" : "b") : "none";
         link["fit_source"] = l.fit_source == 1 ? "a" : l.fit_source == 2 ? "b" : "none";
+        link["resampled"] = l.resampled;
       }
       links.push_back(std::move(link));
     }

@@ -212,7 +212,7 @@ TEST_CASE("find_groups equals the definition checked pair by pair", "[lookalike]
     gs.match.min_correlation = c;
     if (screen >= 0) gs.screen_radius = screen;
     const int64_t screen2 = screen_threshold(gs.screen_radius);
-    auto allowance = [&](uint32_t i) { return size_allowance(records[i].probe.width, records[i].probe.height, gs.match); };
+    auto size = [&](uint32_t i) { return picture_size(records[i].probe.width, records[i].probe.height); };
     GroupResult got = find_groups(records, thumbs, gs);
     std::set<std::pair<uint32_t, uint32_t>> pairs;
     uint64_t hits = 0, screen_only = 0, value_only = 0;
@@ -227,7 +227,7 @@ TEST_CASE("find_groups equals the definition checked pair by pair", "[lookalike]
           ++hits;
           screen_only += !by_hash;
           value_only += !by_hash && !by_screen;
-          if (match_thumbnails(looks[i].thumb, t, looks[j].thumb, pair_settings(gs.match, allowance(i), allowance(j))).joined)
+          if (match_thumbnails(looks[i].thumb, t, looks[j].thumb, pair_settings(gs.match, size(i), size(j), t)).joined)
             pairs.emplace(std::min(i, j), std::max(i, j));
         }
       }

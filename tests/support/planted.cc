@@ -170,8 +170,7 @@ Lookalike lookalike_of_bytes(const std::vector<uint8_t>& bytes) {
   return lookalike_features(d.reduced);
 }
 
-bool pair_joined(const Lookalike& a, const Lookalike& b, const GroupSettings& gs, float allowance_a, float allowance_b) {
-  const MatchSettings ms = pair_settings(gs.match, allowance_a, allowance_b);
+bool pair_joined(const Lookalike& a, const Lookalike& b, const GroupSettings& gs, PictureSize size_a, PictureSize size_b) {
   // The candidate keys as find_groups has them: the hash, the gray screen key
   // and the value plane's key (screen_join.h, match.h).
   const int64_t thr2 = screen_threshold(gs.screen_radius);
@@ -180,18 +179,16 @@ bool pair_joined(const Lookalike& a, const Lookalike& b, const GroupSettings& gs
   auto near = [&](int64_t d2) { return thr2 > 0 && d2 >= 0 && d2 <= thr2; };
   for (int t = 0; t < kDihedralCount; ++t) {
     const bool ab = hamming(a.phash[t], b.phash[0]) <= gs.radius || near(screen_distance2(pa, t, pb)) || near(screen_distance2(va, t, vb));
-    if (ab && match_thumbnails(a.thumb, t, b.thumb, ms).joined) return true;
+    if (ab && match_thumbnails(a.thumb, t, b.thumb, pair_settings(gs.match, size_a, size_b, t)).joined) return true;
     const bool ba = hamming(b.phash[t], a.phash[0]) <= gs.radius || near(screen_distance2(pb, t, pa)) || near(screen_distance2(vb, t, va));
-    if (ba && match_thumbnails(b.thumb, t, a.thumb, ms).joined) return true;
+    if (ba && match_thumbnails(b.thumb, t, a.thumb, pair_settings(gs.match, size_b, size_a, t)).joined) return true;
   }
   return false;
 }
 
 bool pair_joined(const Lookalike& a, cv::Size size_a, const Lookalike& b, cv::Size size_b, const GroupSettings& gs) {
-  auto allowance = [&](cv::Size s) {
-    return size_allowance(static_cast<uint32_t>(s.width), static_cast<uint32_t>(s.height), gs.match);
-  };
-  return pair_joined(a, b, gs, allowance(size_a), allowance(size_b));
+  auto size = [](cv::Size s) { return picture_size(static_cast<uint32_t>(s.width), static_cast<uint32_t>(s.height)); };
+  return pair_joined(a, b, gs, size(size_a), size(size_b));
 }
 
 cv::Mat hue_turned(const cv::Mat& m, int degrees) { return hsv_change(m, degrees, 1.0); }

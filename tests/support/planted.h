@@ -47,11 +47,11 @@ Lookalike lookalike_of_bytes(const std::vector<uint8_t>& bytes);
 // Whether find_groups would join a and b as a pair: some flip/turn of either has
 // a hash within the radius of the other's, or a screen key (gray or value plane,
 // screen_join.h) within screen_radius, and the thumbnails match (match.h),
-// judged by pair_settings with the pictures' size_allowance (1: both at least
-// small_side pixels on a side).
-bool pair_joined(const Lookalike& a, const Lookalike& b, const GroupSettings& gs, float allowance_a = 1.0f,
-                 float allowance_b = 1.0f);
-// The same with the allowances of pictures of the given sizes.
+// judged by pair_settings with the pictures' sizes (unknown by default: the
+// allowance 1 and no resampled comparison).
+bool pair_joined(const Lookalike& a, const Lookalike& b, const GroupSettings& gs, PictureSize size_a = {},
+                 PictureSize size_b = {});
+// The same for pictures of the given sizes.
 bool pair_joined(const Lookalike& a, cv::Size size_a, const Lookalike& b, cv::Size size_b, const GroupSettings& gs);
 
 // Colour photographs from Debian packages, each cut into non-overlapping tiles (at

@@ -92,8 +92,9 @@ namespace tamis {
 // whole picture, and the colour checks for pictures whose gray is flat; 5: the
 // colour check's local share; 6: a closer correlation for pictures under
 // small_side; 7: the second candidate key, screen_radius; 8: 32x32 chroma, a
-// whole-picture HSV change modelled in the fit, and fitted from kColourFitFloor).
-inline constexpr int kMatchRules = 8;
+// whole-picture HSV change modelled in the fit, and fitted from kColourFitFloor;
+// 9: the resampled comparison of pictures of different sizes).
+inline constexpr int kMatchRules = 9;
 
 struct MatchSettings {
   double min_correlation = 0.995;
@@ -109,7 +110,24 @@ struct MatchSettings {
   // pair with such a picture must come closer than min_correlation
   // (size_allowance, pair_settings; docs/lookalikes.md).
   double small_side = 28;
+  // Set per pair by pair_settings (not a setting of its own): when one picture
+  // is smaller than the other and under kThumbSide pixels on a side, the larger
+  // one's thumbnail is also compared after passing through the smaller one's
+  // pixel size (resample_thumbnail), at resample.min_correlation.
+  struct Resample {
+    int width = 0, height = 0;              // the smaller picture's size, in b's frame (0: no resampled comparison)
+    int large_width = 0, large_height = 0;  // the larger one's
+    bool on_a = true;                       // the larger picture is a (else b)
+    double min_correlation = 1;
+  } resample;
 };
+
+// A picture's pixel size as the pair rules read it (0: unknown), each side held
+// under 65,536.
+struct PictureSize {
+  uint16_t width = 0, height = 0;
+};
+PictureSize picture_size(uint32_t width, uint32_t height);
 
 // The share of the correlation's allowance (1 - min_correlation) that a picture
 // of width x height pixels gets: 1 when both sides reach small_side, else
@@ -129,7 +147,44 @@ float size_allowance(uint32_t width, uint32_t height, const MatchSettings& setti
 // reduced copy, and the larger alone joined 69 small-large pairs of distinct
 // pictures, 3 across classes (bench/mixed_sizes.py); the mean joins 5, none
 // across classes.
-MatchSettings pair_settings(const MatchSettings& settings, float allowance_a, float allowance_b);
+//
+// A pair whose smaller picture is at most kResampleArea of the larger one's area,
+// no wider and no taller (in b's frame, after a's flip/turn t), and under
+// kThumbSide pixels on a side, also gets a resampled comparison (Resample): a
+// copy reduced to 14 px from 28 px has lost what its enlarged thumbnail cannot
+// show, and no blur of the sharper thumbnail imitates the loss (Fashion-MNIST
+// halves: blur-matched 0.993-0.996 against 0.9975 needed). After the larger
+// thumbnail has passed through the smaller size, both show what the smaller
+// picture holds, and the pair is judged as two pictures of that size: at the
+// smaller picture's own allowance (min_correlation moved towards 1 by it).
+MatchSettings pair_settings(const MatchSettings& settings, PictureSize a, PictureSize b, int t);
+inline constexpr double kResampleArea = 0.8;
+
+// The ways programs reduce a picture, each as the resampled comparison imitates
+// it: area averaging (cv::INTER_AREA; cv::INTER_LINEAR at half size), every
+// n-th pixel (cv::INTER_NEAREST; Pillow's NEAREST, which takes the pixel under
+// each output's centre), linear and cubic interpolation at the output's centre
+// without widening (cv::INTER_LINEAR, cv::INTER_CUBIC, cv::INTER_LANCZOS4),
+// and the triangle and cubic kernels widened by the scale (Pillow's BILINEAR
+// and BICUBIC; its LANCZOS is near the cubic). The comparison takes the one
+// whose result correlates best with the smaller picture's thumbnail.
+enum class ResampleKernel { area, nearest, nearest_centre, linear, cubic, lanczos, triangle_wide, cubic_wide };
+inline constexpr int kResampleKernels = 8;
+
+// The larger picture's thumbnail `in` brought to the smaller one's pixel size
+// and back: its samples taken back to the larger picture's pixels (at most 32 a
+// side), reduced to r.width x r.height by `kernel`, and enlarged to 32x32 by
+// linear interpolation (half-pixel centres), as features.cc enlarges a small
+// picture. Gray plane alone or all three. A side that is not reduced stays as
+// it is. Plain double arithmetic, rounded half up: the same bytes on every
+// processor.
+void resample_thumbnail(const Thumbnail& in, const MatchSettings::Resample& r, ResampleKernel kernel, Thumbnail& out,
+                        bool gray_only = false);
+// The kernel the resampled comparison uses for a pair: the one whose reduction
+// of the larger picture's gray thumbnail correlates best (the first of equals)
+// with the smaller picture's pixels, as its thumbnail gives them back (the least
+// squares inverse of features.cc's enlargement), at the smaller picture's size.
+ResampleKernel resample_kernel(const Thumbnail& large, const Thumbnail& small, const MatchSettings::Resample& r);
 
 // The tone-and-colour fit's gate: the profiles' bound on the blur-matched
 // correlation (match_may_join's) must reach kFitGate, held within [fit_floor,
@@ -139,6 +194,11 @@ MatchSettings pair_settings(const MatchSettings& settings, float allowance_a, fl
 // and the planted tone and colour copies lose almost nothing from 0.98 to 0.99
 // (docs/lookalikes.md).
 inline constexpr double kFitGate = 0.99;
+// The resampled comparison is tried only for pairs whose blur-matched
+// correlation can reach this (the screen's bound, blur_may_reach), so that the
+// screen stays exact; reduced copies of Fashion-MNIST pictures reach 0.993 and
+// more without it.
+inline constexpr double kResampleGate = kFitGate;
 // A pair whose two pictures have colour is fitted from a lower floor,
 // kColourFitFloor (or fit_floor when lower), which is also its gate, when its
 // colours changed as a whole (the colour check's fit turns the chroma by 10
@@ -214,6 +274,7 @@ struct Match {
   bool blurred_a = true;  // which side the blur went on (when blur_step > 0)
   bool fitted = false;    // the correlation is the tone-and-colour fit's
   bool fitted_a = true;   // a was the fit's source (b fitted from a), else b
+  bool resampled = false; // the measures are the resampled comparison's (MatchSettings::Resample)
 };
 
 // `turned_a`: the first thumbnail after the hit's flip/turn t (turn_thumbnail);
