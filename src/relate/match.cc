@@ -128,17 +128,19 @@ std::vector<double> reduction(int large, int small, ResampleKernel kernel) {
         }
         break;
       }
-      case ResampleKernel::triangle_wide:  // Pillow's BILINEAR and BICUBIC: the kernel widened by the scale
+      case ResampleKernel::box_wide:  // Pillow's BOX, BILINEAR and BICUBIC: the kernel widened by the scale
+      case ResampleKernel::triangle_wide:
       case ResampleKernel::cubic_wide: {
-        const bool tri = kernel == ResampleKernel::triangle_wide;
-        const double support = (tri ? 1.0 : 2.0) * scale;
+        const bool tri = kernel == ResampleKernel::triangle_wide, box = kernel == ResampleKernel::box_wide;
+        const double support = (box ? 0.5 : tri ? 1.0 : 2.0) * scale;
         const int first = static_cast<int>(std::floor(centre - support)), last = static_cast<int>(std::floor(centre + support));
         double sum = 0;
         std::vector<std::pair<int, double>> taps;
         for (int x = first; x <= last; ++x) {
           if (x < 0 || x >= large) continue;  // Pillow leaves out what lies outside and renormalizes
           const double d = (x + 0.5 - centre) / scale;
-          const double w = tri ? triangle_weight(d) : cubic_weight(d, -0.5);
+          // Pillow's box takes the pixels whose centres lie in [-1/2, 1/2) of the output's, each whole.
+          const double w = box ? (d >= -0.5 && d < 0.5 ? 1.0 : 0.0) : tri ? triangle_weight(d) : cubic_weight(d, -0.5);
           if (w == 0) continue;
           taps.push_back({x, w});
           sum += w;

@@ -165,11 +165,12 @@ inline constexpr double kResampleArea = 0.8;
 // n-th pixel (cv::INTER_NEAREST; Pillow's NEAREST, which takes the pixel under
 // each output's centre), linear and cubic interpolation at the output's centre
 // without widening (cv::INTER_LINEAR, cv::INTER_CUBIC, cv::INTER_LANCZOS4),
-// and the triangle and cubic kernels widened by the scale (Pillow's BILINEAR
-// and BICUBIC; its LANCZOS is near the cubic). The comparison takes the one
-// whose result correlates best with the smaller picture's thumbnail.
-enum class ResampleKernel { area, nearest, nearest_centre, linear, cubic, lanczos, triangle_wide, cubic_wide };
-inline constexpr int kResampleKernels = 8;
+// and the box, triangle and cubic kernels widened by the scale (Pillow's BOX,
+// BILINEAR and BICUBIC; its HAMMING and LANCZOS are near the cubic). The
+// comparison takes the one whose result correlates best with the smaller
+// picture's pixels (resample_kernel).
+enum class ResampleKernel { area, nearest, nearest_centre, linear, cubic, lanczos, box_wide, triangle_wide, cubic_wide };
+inline constexpr int kResampleKernels = 9;
 
 // The larger picture's thumbnail `in` brought to the smaller one's pixel size
 // and back: its samples taken back to the larger picture's pixels (at most 32 a
