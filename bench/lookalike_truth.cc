@@ -36,7 +36,7 @@ int main(int argc, char** argv) {
   for (const auto& e : std::filesystem::recursive_directory_iterator(argv[1]))
     if (e.is_regular_file()) files.push_back(e.path());
   std::sort(files.begin(), files.end());
-  struct Source { std::string family; cv::Mat pixels; Lookalike look; };
+  struct Source { std::string family; cv::Mat pixels; Lookalike look; PictureSize ps; };
   std::vector<Source> sources;
   for (size_t k = 0; k < files.size(); k += step)
     sources.push_back({"fashion-mnist", cv::imread(files[k].string(), cv::IMREAD_UNCHANGED), {}});
@@ -45,16 +45,21 @@ int main(int argc, char** argv) {
   for (const auto& sc : test::rendered_scenes(40, 1, 160, 120, 7)) sources.push_back({"scenes", sc.pictures[0], {}});
   const auto tiles = test::photograph_tiles();
   for (const auto& t : tiles) sources.push_back({"photos", t, {}});
-  for (auto& s : sources) s.look = test::lookalike_of_bytes(test::encode_copy(s.pixels, 0));
+  for (auto& s : sources) {
+    const auto bytes = test::encode_copy(s.pixels, 0);
+    s.look = test::lookalike_of_bytes(bytes);
+    s.ps = test::picture_of_bytes(bytes);
+  }
   // Copies, made once.
-  struct Copy { size_t source; size_t kind; Lookalike look; cv::Size size; };
+  struct Copy { size_t source; size_t kind; Lookalike look; cv::Size size; PictureSize ps; };
   std::vector<Copy> copies;
   const auto& kinds = test::planted_kinds();
   for (size_t si = 0; si < sources.size(); ++si)
     for (size_t ki = 0; ki < kinds.size(); ++ki) {
       if (kinds[ki].colour_only && sources[si].pixels.channels() != 3) continue;
       const cv::Mat copy = kinds[ki].make(sources[si].pixels);
-      copies.push_back({si, ki, test::lookalike_of_bytes(test::encode_copy(copy, kinds[ki].jpeg_quality)), copy.size()});
+      const auto bytes = test::encode_copy(copy, kinds[ki].jpeg_quality);
+      copies.push_back({si, ki, test::lookalike_of_bytes(bytes), copy.size(), test::picture_of_bytes(bytes)});
     }
   const auto scenes = test::rendered_scenes(60, 10, 160, 120, 99);
   std::vector<std::vector<Lookalike>> scene_looks;
@@ -93,7 +98,7 @@ int main(int argc, char** argv) {
     std::map<std::string, std::pair<int, int>> per_family;
     std::map<std::pair<std::string, std::string>, std::pair<int, int>> per_kind_family;
     for (const auto& c : copies) {
-      const bool ok = test::pair_joined(c.look, c.size, sources[c.source].look, sources[c.source].pixels.size(), gs);
+      const bool ok = test::pair_joined(c.look, sources[c.source].look, gs, c.ps, sources[c.source].ps);
       auto& k = per_kind[kinds[c.kind].name];
       k.first += ok;
       ++k.second;
@@ -200,15 +205,14 @@ int main(int argc, char** argv) {
     GroupSettings gs;
     for (const auto& c : copies) {
       if (sources[c.source].family != fam ||
-          test::pair_joined(c.look, c.size, sources[c.source].look, sources[c.source].pixels.size(), gs))
+          test::pair_joined(c.look, sources[c.source].look, gs, c.ps, sources[c.source].ps))
         continue;
       const Lookalike& a = sources[c.source].look;
       int best_t = 0, best_d = 65;
       for (int t = 0; t < kDihedralCount; ++t)
         if (hamming(a.phash[t], c.look.phash[0]) < best_d) { best_d = hamming(a.phash[t], c.look.phash[0]); best_t = t; }
       const cv::Size sa = sources[c.source].pixels.size();
-      const MatchSettings ms = pair_settings(gs.match, picture_size(uint32_t(sa.width), uint32_t(sa.height)),
-                                             picture_size(uint32_t(c.size.width), uint32_t(c.size.height)), best_t);
+      const MatchSettings ms = pair_settings(gs.match, sources[c.source].ps, c.ps, best_t);
       const Match m = match_thumbnails(a.thumb, best_t, c.look.thumb, ms);
       // The resampled comparison alone, when the pair has one.
       Match r;
@@ -227,6 +231,13 @@ int main(int argc, char** argv) {
           const Match mk = match_thumbnails(rs, 0, small, own);
           if (mk.correlation > r.correlation) r = mk, kernel = k;
         }
+      }
+      if (kinds[c.kind].jpeg_quality > 0 && sa.width <= 32 && sa.height <= 32) {
+        Thumbnail ta, tj;
+        turn_thumbnail(a.thumb, ta, best_t);
+        jpeg_thumbnail(ta, c.size.width, c.size.height, kinds[c.kind].jpeg_quality, tj);
+        const Match mj = match_thumbnails(tj, 0, c.look.thumb, ms);
+        std::printf("   jpeg-simulated: corr %.5f joined %d blur %d local %.3f\n", mj.correlation, int(mj.joined), mj.blur_step, mj.local);
       }
       std::printf("why %-26s src %3zu hash %2d corr %.4f local %.3f chroma %.3f blur %d | resampled %.4f/%.5f kernel %d blur %d fit %d local %.3f\n",
                   kinds[c.kind].name.c_str(), c.source, best_d, m.correlation, m.local, m.chroma, m.blur_step, r.correlation,

@@ -24,13 +24,14 @@ json record_to_json(const FileRecord& r, bool with_lookalike) {
                         int(r.kind), int(r.defect), int(p.format), int(p.mode), p.bit_depth, p.interlaced, p.has_exif,
                         p.has_gps, p.orientation, p.width, p.height, p.frames, r.features.content_hash[0],
                         r.features.content_hash[1], r.features.has_content_hash, r.features.has_lookalike,
-                        st.luma_mean, st.luma_std, st.entropy, st.focus, st.alpha_min, st.channels_equal, st.distinct});
+                        st.luma_mean, st.luma_std, st.entropy, st.focus, st.alpha_min, st.channels_equal, st.distinct,
+                        p.jpeg_quality});
   if (with_lookalike) e.push_back(r.features.look.phash);
   return e;
 }
 
 FileRecord record_from_json(const json& e) {
-  if (!e.is_array() || (e.size() != 27 && e.size() != 28)) throw std::runtime_error("malformed record");
+  if (!e.is_array() || (e.size() != 28 && e.size() != 29)) throw std::runtime_error("malformed record");
   FileRecord r;
   const auto& path = e[0].get_binary();
   r.path.assign(path.begin(), path.end());
@@ -60,7 +61,9 @@ FileRecord record_from_json(const json& e) {
   st.alpha_min = e[24].get<uint8_t>();
   st.channels_equal = e[25].get<bool>();
   st.distinct = e[26].get<uint8_t>();
-  if (e.size() == 28) r.features.look.phash = e[27].get<std::array<uint64_t, kDihedralCount>>();
+  r.probe.jpeg_quality = e[27].get<uint8_t>();
+  if (r.probe.jpeg_quality > 100) throw std::runtime_error("record: value out of range");
+  if (e.size() == 29) r.features.look.phash = e[28].get<std::array<uint64_t, kDihedralCount>>();
   return r;
 }
 
@@ -91,7 +94,8 @@ void record_to_bytes(const FileRecord& r, std::vector<uint8_t>& out) {
   for (uint8_t b : {uint8_t(r.kind), uint8_t(r.defect), uint8_t(p.format), uint8_t(p.mode), p.bit_depth}) out.push_back(b);
   out.push_back(static_cast<uint8_t>(p.interlaced | p.has_exif << 1 | p.has_gps << 2 | f.has_content_hash << 3 |
                                      f.has_lookalike << 4 | f.stats.channels_equal << 5));
-  put_le(out, p.orientation, 2);
+  out.push_back(static_cast<uint8_t>(p.orientation));
+  out.push_back(p.jpeg_quality);
   put_le(out, p.width, 4);
   put_le(out, p.height, 4);
   put_le(out, p.frames, 4);
@@ -122,7 +126,9 @@ bool record_from_bytes(std::span<const uint8_t> bytes, FileRecord& r) {
   p.interlaced = flags & 1;
   p.has_exif = flags & 2;
   p.has_gps = flags & 4;
-  p.orientation = static_cast<uint16_t>(get_le(b + 6, 2));
+  if (b[6] > 8 || b[7] > 100) return false;
+  p.orientation = b[6];
+  p.jpeg_quality = b[7];
   p.width = static_cast<uint32_t>(get_le(b + 8, 4));
   p.height = static_cast<uint32_t>(get_le(b + 12, 4));
   p.frames = static_cast<uint32_t>(get_le(b + 16, 4));

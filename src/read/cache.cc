@@ -375,7 +375,8 @@ std::optional<GroupResult> RecordCache::load_groups(uint64_t fingerprint, size_t
       grp.diameter_exact = e.at(3).get<bool>();
       for (const auto& l : e.at(4)) {
         GroupLink k{l.at(0).get<uint32_t>(), l.at(1).get<uint32_t>(), l.at(2).get<int>(), l.at(3).get<float>(),
-                    l.at(4).get<int>(), l.at(5).get<bool>(), l.at(6).get<int>(), l.size() > 7 && l.at(7).get<bool>()};
+                    l.at(4).get<int>(), l.at(5).get<bool>(), l.at(6).get<int>(), l.size() > 7 && l.at(7).get<bool>(),
+                    l.size() > 8 ? l.at(8).get<int>() : 0};
         if (!link_in_range(k, n)) return std::nullopt;
         grp.links.push_back(k);
       }
@@ -401,7 +402,7 @@ void RecordCache::store_groups(uint64_t fingerprint, const GroupResult& g) {
   json groups = json::array();
   for (const auto& grp : g.groups) {
     json links = json::array();
-    for (const auto& l : grp.links) links.push_back(json::array({l.a, l.b, l.turn, l.correlation, l.blur_step, l.blurred_a, l.fit_source, l.resampled}));
+    for (const auto& l : grp.links) links.push_back(json::array({l.a, l.b, l.turn, l.correlation, l.blur_step, l.blurred_a, l.fit_source, l.resampled, l.jpeg_quality}));
     groups.push_back(json::array({grp.members, grp.exact, grp.diameter, grp.diameter_exact, links}));
   }
   json j = {{"groups", groups}, {"exact_pairs", g.exact_pairs}, {"candidate_hits", g.candidate_hits},

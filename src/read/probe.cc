@@ -11,6 +11,7 @@
 #include "tamis/base/byte_reader.h"
 #include "tamis/read/decode/pnm_header.h"
 #include "tamis/read/exif.h"
+#include "tamis/read/jpeg_quality.h"
 
 namespace tamis {
 
@@ -150,7 +151,22 @@ ProbeOutcome probe_jpeg(Bytes b) {
       return out;
     }
     Bytes seg = b.subspan(off + 2, *len - 2u);
-    if (m == 0xE1 && starts_with(seg, 0, "Exif\0\0", 6)) {
+    if (m == 0xDB) {  // DQT: tables of 64 steps in zigzag order, 8 or 16 bits each; table 0 is the luminance's
+      size_t at = 0;
+      while (at < seg.size()) {
+        const int precision = seg[at] >> 4, id = seg[at] & 15;
+        const size_t bytes = precision == 0 ? 64 : 128;
+        if (precision > 1 || at + 1 + bytes > seg.size()) break;  // the decoder judges a malformed table
+        if (id == 0) {
+          uint16_t table[64];
+          for (size_t z = 0; z < 64; ++z)
+            table[kZigzagToNatural[z]] = precision == 0 ? seg[at + 1 + z]
+                                                        : static_cast<uint16_t>(seg[at + 1 + 2 * z] << 8 | seg[at + 2 + 2 * z]);
+          out.info.jpeg_quality = jpeg_quality_of_table(table);
+        }
+        at += 1 + bytes;
+      }
+    } else if (m == 0xE1 && starts_with(seg, 0, "Exif\0\0", 6)) {
       take_exif(out.info, seg.subspan(6));
     } else if (m == 0xEE && starts_with(seg, 0, "Adobe", 5) && seg.size() >= 12) {
       // transform byte: 0 = none (CMYK/RGB), 1 = YCbCr, 2 = YCCK; 4 components are CMYK either way

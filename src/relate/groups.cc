@@ -101,7 +101,7 @@ void confirm_hits(const std::vector<std::pair<uint32_t, uint32_t>>& hits, const 
       const bool forward = i < j;
       const int fit = !m.fitted ? 0 : (m.fitted_a == forward ? 1 : 2);
       found[g].push_back({std::min(i, j), std::max(i, j), forward ? t : kInverse[t], m.correlation, m.blur_step,
-                          forward ? m.blurred_a : !m.blurred_a, fit, m.resampled});
+                          forward ? m.blurred_a : !m.blurred_a, fit, m.resampled, m.jpeg_quality});
     }
   };
   if (!thumbs.spilled()) {
@@ -198,7 +198,7 @@ std::vector<GroupLink> join_lookalikes(const std::vector<FileRecord>& records, c
   }, 1);
   // Per image: its pixel size (pair_settings: the allowance, the resampled comparison).
   std::vector<PictureSize> size(n);
-  for (size_t k = 0; k < n; ++k) size[k] = picture_size(records[eligible[k]].probe.width, records[eligible[k]].probe.height);
+  for (size_t k = 0; k < n; ++k) size[k] = picture_size(records[eligible[k]].probe);
   // A hit (8 * image + t, j) goes on to the confirmation unless it pairs an
   // image with itself or the profiles prove that the thumbnails cannot match
   // (neither as they are nor with any blur step the pair would try).
@@ -279,8 +279,8 @@ std::vector<GroupLink> join_lookalikes(const std::vector<FileRecord>& records, c
 // One measurement a pair: its first in (a, b, turn, blur step) order.
 void one_link_a_pair(std::vector<GroupLink>& confirmed) {
   std::sort(confirmed.begin(), confirmed.end(), [](const GroupLink& x, const GroupLink& y) {
-    return std::tie(x.a, x.b, x.turn, x.blur_step, x.blurred_a, x.fit_source, x.resampled) <
-           std::tie(y.a, y.b, y.turn, y.blur_step, y.blurred_a, y.fit_source, y.resampled);
+    return std::tie(x.a, x.b, x.turn, x.blur_step, x.blurred_a, x.fit_source, x.resampled, x.jpeg_quality) <
+           std::tie(y.a, y.b, y.turn, y.blur_step, y.blurred_a, y.fit_source, y.resampled, y.jpeg_quality);
   });
   confirmed.erase(std::unique(confirmed.begin(), confirmed.end(),
                               [](const GroupLink& x, const GroupLink& y) { return x.a == y.a && x.b == y.b; }),
@@ -444,7 +444,7 @@ LookalikeLinks join_lookalike_slice(const std::vector<FileRecord>& records, cons
   };
   auto size_of = [&](uint32_t k) {
     const FileRecord& r = records[eligible[k]];
-    return picture_size(r.probe.width, r.probe.height);
+    return picture_size(r.probe);
   };
   // The queries go in batches whose hits (before the profiles' filter) stay
   // near a budget taken from the join's memory budget; the next batch's size

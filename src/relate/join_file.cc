@@ -22,7 +22,7 @@ constexpr size_t kBody = 24;
 void write_join(std::ostream& os, const JoinSlice& s) {
   json links = json::array();
   for (const GroupLink& l : s.links.links)
-    links.push_back(json::array({l.a, l.b, l.turn, l.correlation, l.blur_step, l.blurred_a, l.fit_source, l.resampled}));
+    links.push_back(json::array({l.a, l.b, l.turn, l.correlation, l.blur_step, l.blurred_a, l.fit_source, l.resampled, l.jpeg_quality}));
   json j = {{"format", "tamis-join"},
             {"tool", s.tool.empty() ? std::string(kToolVersion) : s.tool},
             {"slice", {s.slice.index, s.slice.count}},
@@ -68,7 +68,8 @@ JoinSlice load_join(const std::filesystem::path& file) {
     for (const auto& l : j.at("links")) {
       GroupLink g{l.at(0).get<uint32_t>(), l.at(1).get<uint32_t>(), l.at(2).get<int>(), l.at(3).get<float>(),
                   l.at(4).get<int>(),      l.at(5).get<bool>(),     l.at(6).get<int>(),
-                  l.size() > 7 && l.at(7).get<bool>()};
+                  l.size() > 7 && l.at(7).get<bool>(),
+                  l.size() > 8 ? l.at(8).get<int>() : 0};
       if (!link_in_range(g, s.records) || g.turn < 0) fail("is damaged (a pair out of range)");
       s.links.links.push_back(g);
     }

@@ -18,13 +18,21 @@ float size_allowance(uint32_t width, uint32_t height, const MatchSettings& setti
   return static_cast<float>(share);
 }
 
-PictureSize picture_size(uint32_t width, uint32_t height) {
-  return {static_cast<uint16_t>(std::min<uint32_t>(width, 65535)), static_cast<uint16_t>(std::min<uint32_t>(height, 65535))};
+PictureSize picture_size(uint32_t width, uint32_t height, uint8_t jpeg_quality) {
+  return {static_cast<uint16_t>(std::min<uint32_t>(width, 65535)), static_cast<uint16_t>(std::min<uint32_t>(height, 65535)),
+          jpeg_quality};
+}
+
+PictureSize picture_size(const ProbeInfo& probe) {
+  const bool shown_as_stored = probe.orientation <= 1;
+  return picture_size(probe.width, probe.height,
+                      probe.format == Format::jpeg && shown_as_stored ? probe.jpeg_quality : uint8_t{0});
 }
 
 MatchSettings pair_settings(const MatchSettings& settings, PictureSize a, PictureSize b, int t) {
   MatchSettings s = settings;
   s.resample = {};
+  s.jpeg = {};
   const float allowance_a = size_allowance(a.width, a.height, settings);
   const float allowance_b = size_allowance(b.width, b.height, settings);
   const float share = std::sqrt(allowance_a * allowance_b);
@@ -32,6 +40,16 @@ MatchSettings pair_settings(const MatchSettings& settings, PictureSize a, Pictur
   // a's size in b's frame: a flip/turn with a transpose (t & 4) swaps its sides.
   if (t & 4) std::swap(a.width, a.height);
   if (a.width == 0 || a.height == 0 || b.width == 0 || b.height == 0) return s;
+  // a no JPEG, or one of a higher quality than b's: re-encoding a at b's
+  // quality can imitate b (a JPEG re-encoded at its own quality or above
+  // changes little).
+  if (b.jpeg_quality > 0 && b.jpeg_quality <= kJpegMaxQuality && (a.jpeg_quality == 0 || a.jpeg_quality > b.jpeg_quality) &&
+      a.width == b.width && a.height == b.height && b.width <= kThumbSide && b.height <= kThumbSide) {
+    s.jpeg.width = b.width;
+    s.jpeg.height = b.height;
+    s.jpeg.quality = b.jpeg_quality;
+    s.jpeg.min_correlation = 1.0 - (1.0 - s.min_correlation) * kJpegShare;
+  }
   const bool a_larger = a.width >= b.width && a.height >= b.height;
   const bool b_larger = b.width >= a.width && b.height >= a.height;
   if (a_larger == b_larger) return s;  // the same size, or neither inside the other
@@ -414,6 +432,105 @@ ResampleKernel resample_kernel(const Thumbnail& large, const Thumbnail& small, c
 void resample_thumbnail(const Thumbnail& in, const MatchSettings::Resample& r, ResampleKernel kernel, Thumbnail& out,
                         bool gray_only) {
   resample_planes(in, nullptr, r, kernel, out, gray_only);
+}
+
+namespace {
+
+// The orthonormal 8-point DCT-II basis, cos((2x + 1) u pi / 16) C(u) / 2, from
+// sin_pi (no libm call).
+struct Dct8 {
+  double c[8][8];  // [u][x]
+  Dct8() {
+    for (int u = 0; u < 8; ++u)
+      for (int x = 0; x < 8; ++x) c[u][x] = (u == 0 ? 0.35355339059327373 : 0.5) * sin_pi((2 * x + 1) * u / 16.0 + 0.5);
+  }
+};
+const Dct8& dct8() {
+  static const Dct8 d;
+  return d;
+}
+
+}  // namespace
+
+void jpeg_thumbnail(const Thumbnail& in, int width, int height, int quality, Thumbnail& out) {
+  out = in;
+  const int px = std::min(width, kThumbSide), py = std::min(height, kThumbSide);
+  if (px <= 0 || py <= 0) return;
+  double pixels[1024];
+  picture_plane(in.data(), px, py, pixels);
+  // The picture as its file held it (whole levels), padded to whole blocks by
+  // repeating its last column and row, as the IJG library pads.
+  const int bw = (px + 7) / 8 * 8, bh = (py + 7) / 8 * 8;
+  std::vector<double> img(size_t(bw) * size_t(bh));
+  for (int y = 0; y < bh; ++y)
+    for (int x = 0; x < bw; ++x)
+      img[size_t(y * bw + x)] = std::clamp(std::floor(pixels[std::min(y, py - 1) * px + std::min(x, px - 1)] + 0.5), 0.0, 255.0) - 128.0;
+  const Dct8& d = dct8();
+  int step[64];
+  for (int k = 0; k < 64; ++k) step[k] = ijg_luma_step(quality, k);
+  double ct[8][8];  // the basis transposed: [x][u]
+  for (int u = 0; u < 8; ++u)
+    for (int x = 0; x < 8; ++x) ct[x][u] = d.c[u][x];
+  for (int by = 0; by < bh; by += 8)
+    for (int bx = 0; bx < bw; bx += 8) {
+      double blk[8][8];
+      bool constant = true;
+      for (int y = 0; y < 8; ++y)
+        for (int x = 0; x < 8; ++x) {
+          blk[y][x] = img[size_t((by + y) * bw + bx + x)];
+          constant = constant && blk[y][x] == blk[0][0];
+        }
+      // Quantized as the IJG library does: the nearest step, halves away from zero.
+      auto quantize = [&](double coef, int k) {
+        const double q = coef / step[k];
+        return (q < 0 ? -std::floor(-q + 0.5) : std::floor(q + 0.5)) * step[k];
+      };
+      if (constant) {  // only the DC term, 8 times the level: exact without the cosines
+        const double level = quantize(8.0 * blk[0][0], 0) / 8.0;
+        for (int y = 0; y < 8; ++y)
+          for (int x = 0; x < 8; ++x) img[size_t((by + y) * bw + bx + x)] = level;
+        continue;
+      }
+      // Each pass: out[r][u] = sum over x of in[r][x] c[u][x], the sum in x order,
+      // outputs in the inner loop; the second pass works on the transpose.
+      auto pass = [&](const double (&in)[8][8], double (&out)[8][8], const double (&m)[8][8]) {
+        for (int r = 0; r < 8; ++r) {
+          for (int u = 0; u < 8; ++u) out[u][r] = 0;
+          double row[8] = {0, 0, 0, 0, 0, 0, 0, 0};
+          for (int x = 0; x < 8; ++x)
+            for (int u = 0; u < 8; ++u) row[u] += in[r][x] * m[x][u];
+          for (int u = 0; u < 8; ++u) out[u][r] = row[u];
+        }
+      };
+      double t1[8][8], f[8][8], t2[8][8], back[8][8];
+      pass(blk, t1, ct);  // t1[u][y]: along rows, transposed
+      pass(t1, f, ct);    // f[v][u]... as [u-major]: f[v][u] = sum_y t1[u][y] c[v][y], stored f[v][u]
+      for (int v = 0; v < 8; ++v)
+        for (int u = 0; u < 8; ++u) t2[v][u] = quantize(f[v][u], v * 8 + u);
+      // Back: x = sum_u F[u] c[u][x], the basis itself as the matrix.
+      pass(t2, t1, d.c);  // t1[x][v] = sum_u t2[v][u] c[u][x]
+      pass(t1, back, d.c);  // back[y][x] = sum_v t1[x][v] c[v][y]
+      for (int y = 0; y < 8; ++y)
+        for (int x = 0; x < 8; ++x) img[size_t((by + y) * bw + bx + x)] = back[y][x];
+    }
+  double small[1024], big[1024];
+  for (int y = 0; y < py; ++y)
+    for (int x = 0; x < px; ++x)
+      small[y * px + x] = std::clamp(std::floor(img[size_t(y * bw + x)] + 128.0 + 0.5), 0.0, 255.0);
+  // Enlarged to 32 as features.cc enlarges a picture under 32 px.
+  auto up_taps = [](int n) {
+    std::vector<double> up(size_t(kThumbSide) * size_t(n), 0.0);
+    for (int i = 0; i < kThumbSide; ++i) {
+      int x0, x1;
+      double w;
+      linear_taps(n, kThumbSide, i, x0, x1, w);
+      up[size_t(i) * size_t(n) + size_t(x0)] += 1.0 - w;
+      up[size_t(i) * size_t(n) + size_t(x1)] += w;
+    }
+    return sparse(up, kThumbSide, n);
+  };
+  apply_taps(small, px, up_taps(px), up_taps(py), true, big);
+  for (size_t i = 0; i < kGrayBytes; ++i) out[i] = static_cast<uint8_t>(big[i]);
 }
 
 // The resampled comparison's thumbnail of the larger picture: the kernel
@@ -1388,6 +1505,14 @@ bool resample_tried(const MatchProfile& pa, int t, const MatchProfile& pb, const
   return blur_may_reach(pa, pb, c, low_pair(pa, t, pb, c), std::min(kResampleGate, s.resample.min_correlation));
 }
 
+// Whether a pair gets the re-encoded comparison: pair_settings asked for it and
+// the screen's bound reaches the same gate.
+bool jpeg_tried(const MatchProfile& pa, int t, const MatchProfile& pb, const MatchSettings& s) {
+  if (s.jpeg.quality <= 0 || pa.flat || pb.flat) return false;
+  const BlurCandidates c = blur_candidates(pa, pb);
+  return blur_may_reach(pa, pb, c, low_pair(pa, t, pb, c), std::min(kResampleGate, s.jpeg.min_correlation));
+}
+
 }  // namespace
 
 double fit_floor(const MatchSettings& s, bool colour) {
@@ -1413,7 +1538,12 @@ bool match_may_join(const MatchProfile& a, int t, const MatchProfile& b, const M
   if (1.0 - d * d / 2.0 >= thr) return true;
   // The blurred bound at min_correlation, or at the fit's gate when the fit is
   // on, or at the resampled comparison's gate.
-  return blur_may_reach(a, b, c, lp, fit_gate(settings, a.colour && b.colour)) || resample_tried(a, t, b, settings);
+  // The gates are bounds at different thresholds of one quantity: the lowest
+  // that applies decides.
+  double gate = fit_gate(settings, a.colour && b.colour);
+  if (settings.resample.width > 0) gate = std::min(gate, std::min(kResampleGate, settings.resample.min_correlation));
+  if (settings.jpeg.quality > 0) gate = std::min(gate, std::min(kResampleGate, settings.jpeg.min_correlation));
+  return blur_may_reach(a, b, c, lp, gate);
 }
 
 namespace {
@@ -1554,7 +1684,36 @@ Match match_direct(const Thumbnail& ta, const MatchProfile& pa, int t, const Thu
 Match match_thumbnails(const Thumbnail& ta, const MatchProfile& pa, int t, const Thumbnail& b, const MatchProfile& pb,
                        const MatchSettings& s, std::vector<float>* a_spectrum) {
   const Match direct = match_direct(ta, pa, t, b, pb, s, a_spectrum);
-  if (direct.joined || !resample_tried(pa, t, pb, s)) return direct;
+  if (direct.joined) return direct;
+  if (jpeg_tried(pa, t, pb, s) && thumb_correlation(ta, pa.stats, b, pb.stats) >= kJpegFloor) {
+    // a re-encoded as b was: the same turned thumbnail is compared with many
+    // partners of one quality in a row, so the last re-encoding is kept per
+    // thread (checked by its content).
+    struct Last {
+      Thumbnail in{}, out{};
+      int width = 0, height = 0, quality = 0;
+      MatchProfile profile;
+    };
+    thread_local Last last;
+    if (last.quality != s.jpeg.quality || last.width != s.jpeg.width || last.height != s.jpeg.height || last.in != ta) {
+      last.in = ta;
+      last.width = s.jpeg.width;
+      last.height = s.jpeg.height;
+      last.quality = s.jpeg.quality;
+      jpeg_thumbnail(ta, s.jpeg.width, s.jpeg.height, s.jpeg.quality, last.out);
+      last.profile = match_profile(last.out);
+    }
+    MatchSettings own = s;
+    own.resample = {};
+    own.jpeg = {};
+    own.min_correlation = s.jpeg.min_correlation;
+    Match m = match_direct(last.out, last.profile, 0, b, pb, own, nullptr);
+    if (m.joined) {
+      m.jpeg_quality = s.jpeg.quality;
+      return m;
+    }
+  }
+  if (!resample_tried(pa, t, pb, s)) return direct;
   MatchSettings own = s;
   own.resample = {};
   own.min_correlation = s.resample.min_correlation;

@@ -108,7 +108,7 @@ void save_index(const std::filesystem::path& file, const AuditIndex& x, StagedFi
   json groups = json::array();
   for (const auto& g : x.groups.groups) {
     json links = json::array();
-    for (const auto& l : g.links) links.push_back(json::array({l.a, l.b, l.turn, l.correlation, l.blur_step, l.blurred_a, l.fit_source, l.resampled}));
+    for (const auto& l : g.links) links.push_back(json::array({l.a, l.b, l.turn, l.correlation, l.blur_step, l.blurred_a, l.fit_source, l.resampled, l.jpeg_quality}));
     groups.push_back({{"members", g.members}, {"exact", g.exact}, {"diameter", g.diameter},
                       {"diameter_exact", g.diameter_exact}, {"links", links}});
   }
@@ -339,7 +339,8 @@ AuditIndex load_index(const std::filesystem::path& file) {
         for (const auto& l : g.at("links")) {
           GroupLink k{l.at(0).get<uint32_t>(), l.at(1).get<uint32_t>(), l.at(2).get<int>(), l.at(3).get<float>(),
                       l.at(4).get<int>(), l.at(5).get<bool>(), l.size() > 6 ? l.at(6).get<int>() : 0,
-                      l.size() > 7 && l.at(7).get<bool>()};
+                      l.size() > 7 && l.at(7).get<bool>(),
+                      l.size() > 8 ? l.at(8).get<int>() : 0};
           if (!link_in_range(k, n)) throw std::runtime_error("group link out of range");
           grp.links.push_back(k);
         }

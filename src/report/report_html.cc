@@ -412,6 +412,7 @@ void groups(std::ostringstream& o, const json& report, const Thumbnails& thumbs)
         const std::string fit = str(link.value("fit_source", json("none")));
         if (fit != "none") o << " through a tone-and-colour fit of " << html_escape(fit);
         if (link.value("resampled", false)) o << ", the larger picture brought to the smaller one's size";
+        if (const int q = link.value("jpeg_quality", 0); q > 0) o << ", the other picture re-encoded as a JPEG of quality " << q;
       }
       o << "</div>";
     }

@@ -162,6 +162,7 @@ json groups_json(const AuditResult& r) {
         link["blurred"] = l.blur_step > 0 ? (l.blurred_a ? "a" : "b") : "none";
         link["fit_source"] = l.fit_source == 1 ? "a" : l.fit_source == 2 ? "b" : "none";
         link["resampled"] = l.resampled;
+        link["jpeg_quality"] = l.jpeg_quality;
       }
       links.push_back(std::move(link));
     }

@@ -155,7 +155,7 @@ TEST_CASE("cache: the record bytes round-trip and every malformed row is refused
   FileRecord a;
   a.kind = FileKind::image;
   a.defect = Defect::none;
-  a.probe = {Format::tiff, ColorMode::cmyk, 16, true, true, true, 8, 4000, 3000, 3};
+  a.probe = {Format::tiff, ColorMode::cmyk, 16, true, true, true, 8, 4000, 3000, 3, 75};
   a.features.content_hash = {0x0123456789abcdefULL, 0xfedcba9876543210ULL};
   a.features.has_content_hash = true;
   a.features.has_lookalike = true;
@@ -181,7 +181,8 @@ TEST_CASE("cache: the record bytes round-trip and every malformed row is refused
     // Each enum one past its last value, and an unknown flag bit: refused.
     const std::pair<size_t, uint8_t> bad[] = {{0, uint8_t(FileKind::ignored) + 1}, {1, uint8_t(kLastDefect) + 1},
                                               {2, uint8_t(Format::pnm) + 1},      {3, uint8_t(ColorMode::cmyk) + 1},
-                                              {5, uint8_t(bytes[5] | 64)}};
+                                              {5, uint8_t(bytes[5] | 64)},        {6, 9},
+                                              {7, 101}};  // an orientation past 8, a JPEG quality past 100
     for (auto [at, value] : bad) {
       auto broken = bytes;
       broken[at] = value;

@@ -3,11 +3,14 @@
 
 #include <filesystem>
 #include <regex>
+#include <set>
+#include <vector>
 
 #include <opencv2/imgcodecs.hpp>
 #include <opencv2/imgproc.hpp>
 
 #include "support/temp_tree.h"
+#include "tamis/read/jpeg_quality.h"
 #include "tamis/read/probe.h"
 
 using namespace tamis;
@@ -155,4 +158,29 @@ TEST_CASE("format comes from the bytes, not the extension", "[probe]") {
   CHECK(format_from_extension("a/b.png/photo") == Format::unknown);
   CHECK(format_from_extension(".png") == Format::unknown);
   CHECK(has_other_image_extension("x/y.HEIC"));
+}
+
+TEST_CASE("probe reads the IJG quality a JPEG was written at", "[probe][jpeg]") {
+  // Reference: ITU-T T.81 Annex K, Table K.1 (the example luminance table, which
+  // the IJG library writes unscaled at quality 50), and libjpeg-turbo through
+  // OpenCV's imwrite, told each quality: the probe must read back the quality it
+  // was told (tables that differ between qualities; at the top some qualities
+  // give the same table, and the probe names the highest).
+  const int k1[8] = {16, 11, 10, 16, 24, 40, 51, 61};  // Table K.1, first row
+  for (int k = 0; k < 8; ++k) CHECK(ijg_luma_step(50, k) == k1[k]);
+  CHECK(ijg_luma_step(100, 63) == 1);
+  cv::Mat m(28, 28, CV_8UC1);
+  cv::randu(m, 0, 255);
+  for (int q = 5; q <= 100; q += 5) {
+    std::vector<uchar> buf;
+    cv::imencode(".jpg", m, buf, {cv::IMWRITE_JPEG_QUALITY, q});
+    const ProbeOutcome p = probe_bytes(std::span<const uint8_t>(buf.data(), buf.size()));
+    INFO("quality " << q);
+    CHECK(p.info.format == Format::jpeg);
+    CHECK(int(p.info.jpeg_quality) == q);
+  }
+  // Not a JPEG: no quality.
+  std::vector<uchar> png;
+  cv::imencode(".png", m, png);
+  CHECK(probe_bytes(std::span<const uint8_t>(png.data(), png.size())).info.jpeg_quality == 0);
 }

@@ -72,7 +72,7 @@ def read_part(path):
         data = f.read()
     assert data[:16] == b"\x89tamis-part\r\n\x1a\n\0", "signature"
     version, zero, meta_n, count, recs_n, thumbs_n, zero2 = struct.unpack_from("<IIQQQQQ", data, 16)
-    assert version == 2 and zero == 0 and zero2 == 0
+    assert version == 3 and zero == 0 and zero2 == 0
     thumbs_at = 64 + meta_n + recs_n + 16 * thumbs_n
     assert len(data) == thumbs_at + 3072 * thumbs_n + 24, "length"
     head_sum, file_sum = struct.unpack_from("<QQ", data, len(data) - 24)

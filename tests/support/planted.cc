@@ -170,6 +170,8 @@ Lookalike lookalike_of_bytes(const std::vector<uint8_t>& bytes) {
   return lookalike_features(d.reduced);
 }
 
+PictureSize picture_of_bytes(const std::vector<uint8_t>& bytes) { return picture_size(probe_bytes(bytes).info); }
+
 bool pair_joined(const Lookalike& a, const Lookalike& b, const GroupSettings& gs, PictureSize size_a, PictureSize size_b) {
   // The candidate keys as find_groups has them: the hash, the gray screen key
   // and the value plane's key (screen_join.h, match.h).

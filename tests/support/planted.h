@@ -51,6 +51,8 @@ Lookalike lookalike_of_bytes(const std::vector<uint8_t>& bytes);
 // allowance 1 and no resampled comparison).
 bool pair_joined(const Lookalike& a, const Lookalike& b, const GroupSettings& gs, PictureSize size_a = {},
                  PictureSize size_b = {});
+// A file's size and JPEG quality as the pair rules read them (probe_bytes).
+PictureSize picture_of_bytes(const std::vector<uint8_t>& bytes);
 // The same for pictures of the given sizes.
 bool pair_joined(const Lookalike& a, cv::Size size_a, const Lookalike& b, cv::Size size_b, const GroupSettings& gs);
 

@@ -25,6 +25,8 @@ struct GroupLink {
   bool blurred_a = false;   // the blur went on a (else on b), when blur_step > 0
   int fit_source = 0;       // the tone-and-colour fit gave it (match.h): 1 a was the fit's source, 2 b; 0 no fit
   bool resampled = false;   // measured after the larger picture's thumbnail passed through the smaller's size (match.h)
+  int jpeg_quality = 0;     // measured after the other picture was re-encoded as b's JPEG at this IJG quality (a's when
+                            // the flip/turn was a's own; match.h); 0: not
 };
 // The name of a flip/turn t in the outputs: "none", "mirror", "upside-down",
 // "turn-180", "transpose", "turn-90" (clockwise), "turn-270", "anti-transpose".

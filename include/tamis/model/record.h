@@ -77,6 +77,7 @@ struct ProbeInfo {
   uint32_t width = 0;
   uint32_t height = 0;
   uint32_t frames = 1;              // >1 for animated GIF/APNG/WebP, multi-page TIFF
+  uint8_t jpeg_quality = 0;         // JPEG: the IJG quality nearest to its luminance table (read/jpeg_quality.h); else 0
 };
 
 // Dihedral transform index t in [0, 8): bit 2 = transpose first, bit 1 = then

@@ -30,7 +30,8 @@ FileRecord record_from_json(const nlohmann::json& e);
 //   0 kind, 1 defect, 2 format, 3 colour mode, 4 bit depth (u8 each)
 //   5 flags: bit 0 interlaced, 1 has_exif, 2 has_gps, 3 has_content_hash,
 //            4 has_lookalike, 5 channels_equal (other bits zero)
-//   6 orientation u16, 8 width u32, 12 height u32, 16 frames u32,
+//   6 orientation u8, 7 JPEG quality u8 (0-100; the orientation was a u16
+//     until cache schema 7), 8 width u32, 12 height u32, 16 frames u32,
 //   20 content hash (two u64), 36 luma mean, 40 luma std, 44 entropy, 48 focus (f32),
 //   52 alpha_min u8, 53 distinct u8;
 //   with has_lookalike: 54 the 8 DCT hashes (u64).

@@ -37,7 +37,7 @@ namespace tamis {
 
 // The stored groups' layout, part of the groups fingerprint (2: with their links).
 inline constexpr int kGroupsFormat = 3;
-inline constexpr int kCacheSchemaVersion = 6;  // 2: records in fixed bytes (was CBOR); 3: thumbnails apart; 4: thumbnails with 8x8 chroma; 5: a checksum ends every row; 6: thumbnails with 32x32 chroma
+inline constexpr int kCacheSchemaVersion = 7;  // 2: records in fixed bytes (was CBOR); 3: thumbnails apart; 4: thumbnails with 8x8 chroma; 5: a checksum ends every row; 6: thumbnails with 32x32 chroma; 7: records carry the JPEG quality
 
 class RecordCache {
  public:

@@ -39,7 +39,7 @@
 
 namespace tamis {
 
-inline constexpr uint32_t kPartVersion = 2;  // 2: thumbnails of 3,072 bytes (32x32 chroma)
+inline constexpr uint32_t kPartVersion = 3;  // 2: thumbnails of 3,072 bytes (32x32 chroma); 3: records carry the JPEG quality
 
 struct PartError : std::runtime_error {
   using std::runtime_error::runtime_error;

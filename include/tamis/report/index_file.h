@@ -18,7 +18,7 @@ namespace tamis {
 
 class StagedFiles;
 
-inline constexpr int kIndexVersion = 4;  // 2: thumbnails of 1,152 bytes (gray 32x32, then 8x8 chroma); 3: a checksum; 4: thumbnails of 3,072 bytes (32x32 chroma)
+inline constexpr int kIndexVersion = 5;  // 2: thumbnails of 1,152 bytes (gray 32x32, then 8x8 chroma); 3: a checksum; 4: thumbnails of 3,072 bytes (32x32 chroma); 5: records carry the JPEG quality
 inline constexpr size_t kMaskPairsShown = 12;  // image/mask pairs whose thumbnails the index keeps for the report
 inline constexpr const char* kIndexFileName = "index.cbor";
 
