@@ -6,6 +6,8 @@
 
 #include <opencv2/imgproc.hpp>
 
+#include "tamis/base/exact_math.h"
+
 namespace tamis {
 
 namespace {
@@ -39,10 +41,9 @@ namespace {
 struct DctRows {
   double c[8][32];
   DctRows() {
-    const double pi = std::acos(-1.0);
     for (int u = 0; u < 8; ++u)
       for (int x = 0; x < 32; ++x)
-        c[u][x] = (u == 0 ? std::sqrt(1.0 / 32) : std::sqrt(2.0 / 32)) * std::cos(pi * (2 * x + 1) * u / 64.0);
+        c[u][x] = (u == 0 ? std::sqrt(1.0 / 32) : std::sqrt(2.0 / 32)) * cos_pi((2 * x + 1) * u / 64.0);
   }
 };
 
@@ -351,8 +352,7 @@ struct DctTable {
   DctTable() {
     for (int u = 0; u < 32; ++u)
       for (int x = 0; x < 16; ++x)
-        c[u][x] = static_cast<float>((u ? std::sqrt(2.0 / 32) : std::sqrt(1.0 / 32)) *
-                                     std::cos(3.14159265358979323846 * (2 * x + 1) * u / 64.0));
+        c[u][x] = static_cast<float>((u ? std::sqrt(2.0 / 32) : std::sqrt(1.0 / 32)) * cos_pi((2 * x + 1) * u / 64.0));
   }
 };
 const DctTable& dct_table() {

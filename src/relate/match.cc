@@ -7,6 +7,8 @@
 #include <map>
 #include <vector>
 
+#include "tamis/base/exact_math.h"
+
 namespace tamis {
 
 double blur_sigma(int step) { return 0.25 * step; }
@@ -77,21 +79,6 @@ double cubic_weight(double x, double a) {
   if (x < 1) return ((a + 2) * x - (a + 3)) * x * x + 1;
   if (x < 2) return ((a * x - 5 * a) * x + 8 * a) * x - 4 * a;
   return 0;
-}
-// sin(pi x) in plain arithmetic (no libm call: the same bits on every
-// processor): x reduced to [-1/2, 1/2] about the nearest integer, then the
-// Taylor series to the term in z^23 (|z| <= pi / 2: below 1e-17).
-double sin_pi(double x) {
-  const double k = std::floor(x + 0.5);
-  const double z = 3.14159265358979323846 * (x - k);
-  const double z2 = z * z;
-  double term = z, sum = z;
-  for (int n = 1; n <= 11; ++n) {
-    term *= -z2 / double((2 * n) * (2 * n + 1));
-    sum += term;
-  }
-  const long long ki = static_cast<long long>(k);
-  return (ki % 2 != 0) ? -sum : sum;
 }
 // The Lanczos kernel of 4 lobes, sinc(x) sinc(x / 4) (cv::INTER_LANCZOS4's).
 double lanczos4_weight(double x) {
@@ -495,7 +482,6 @@ void jpeg_thumbnail(const Thumbnail& in, int width, int height, int quality, Thu
       // outputs in the inner loop; the second pass works on the transpose.
       auto pass = [&](const double (&in)[8][8], double (&out)[8][8], const double (&m)[8][8]) {
         for (int r = 0; r < 8; ++r) {
-          for (int u = 0; u < 8; ++u) out[u][r] = 0;
           double row[8] = {0, 0, 0, 0, 0, 0, 0, 0};
           for (int x = 0; x < 8; ++x)
             for (int u = 0; u < 8; ++u) row[u] += in[r][x] * m[x][u];
@@ -503,12 +489,11 @@ void jpeg_thumbnail(const Thumbnail& in, int width, int height, int quality, Thu
         }
       };
       double t1[8][8], f[8][8], t2[8][8], back[8][8];
-      pass(blk, t1, ct);  // t1[u][y]: along rows, transposed
-      pass(t1, f, ct);    // f[v][u]... as [u-major]: f[v][u] = sum_y t1[u][y] c[v][y], stored f[v][u]
+      pass(blk, t1, ct);    // t1[u][y] = sum_x blk[y][x] c[u][x]: each row's transform
+      pass(t1, f, ct);      // f[v][u] = sum_y t1[u][y] c[v][y]: v the vertical frequency
       for (int v = 0; v < 8; ++v)
         for (int u = 0; u < 8; ++u) t2[v][u] = quantize(f[v][u], v * 8 + u);
-      // Back: x = sum_u F[u] c[u][x], the basis itself as the matrix.
-      pass(t2, t1, d.c);  // t1[x][v] = sum_u t2[v][u] c[u][x]
+      pass(t2, t1, d.c);    // t1[x][v] = sum_u t2[v][u] c[u][x]
       pass(t1, back, d.c);  // back[y][x] = sum_v t1[x][v] c[v][y]
       for (int y = 0; y < 8; ++y)
         for (int x = 0; x < 8; ++x) img[size_t((by + y) * bw + bx + x)] = back[y][x];
@@ -571,13 +556,12 @@ struct BlurTable {
   alignas(16) std::array<std::array<float, kScreenSlots>, kBlurSteps> low_gain2{};
   alignas(16) std::array<std::array<float, kScreenSlots>, kDihedralCount> sign{};
   BlurTable() {
-    constexpr double kPi = 3.14159265358979323846;
     for (int s = 0; s < kBlurSteps; ++s) {
       const double sigma = blur_sigma(s), tau = sigma * sigma / 2.0;
       for (int u = 0; u < 32; ++u)
         for (int v = 0; v < 32; ++v) {
-          const double su = std::sin(kPi * u / 64.0), sv = std::sin(kPi * v / 64.0);
-          const double g = std::exp(-tau * (4.0 * su * su + 4.0 * sv * sv));
+          const double su = sin_pi(u / 64.0), sv = sin_pi(v / 64.0);
+          const double g = exp_plain(-tau * (4.0 * su * su + 4.0 * sv * sv));
           gain[size_t(s)][size_t(32 * u + v)] = static_cast<float>(g);
           gain2[size_t(s)][size_t(32 * u + v)] = static_cast<float>(g * g);
         }
