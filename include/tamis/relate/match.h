@@ -59,6 +59,14 @@
 //    neutral, no constant shift) unexplained. An object repainted on a weakly
 //    coloured backdrop passes the chroma check (beta and gamma absorb the
 //    backdrop) but not this one.
+// Two imitations for small pictures, each tried only when the comparison as
+// the thumbnails are does not join the pair (pair_settings says when):
+//  - resampled: a picture under 32 px and a larger one; the larger thumbnail is
+//    taken back to its pixels, reduced to the smaller size as the programs that
+//    reduce pictures do, and enlarged as features.cc enlarges;
+//  - re-encoded: a small JPEG and a picture of its size; the other is
+//    re-encoded as the IJG library would at the JPEG's quality.
+// Then the measurements above are taken again, at a closer threshold.
 // Two thumbnails are joined when correlation (plain, blurred or fitted) >= min_correlation (for
 // pictures under small_side pixels a closer one: pair_settings), local <=
 // max_local, (chroma < 0 or chroma <= max_chroma and chroma_local <=
@@ -173,8 +181,9 @@ float size_allowance(uint32_t width, uint32_t height, const MatchSettings& setti
 // picture holds, and the pair is judged as two pictures of that size: at the
 // smaller picture's own allowance (min_correlation moved towards 1 by it).
 //
-// A pair whose b is a JPEG of at most kJpegMaxQuality, under 32 px on a side
-// (at most 32), and whose a has b's size in b's frame, also gets a re-encoded
+// A pair whose b is a JPEG of at most kJpegMaxQuality, at most 32 px on a side,
+// and whose a has b's size in b's frame and is no JPEG or one of a higher
+// quality (a JPEG re-encoded at its own quality changes little), also gets a re-encoded
 // comparison (Jpeg): a's thumbnail re-encoded as the IJG library encodes at b's
 // quality (jpeg_thumbnail), which imitates what a re-encoded copy lost
 // (Fashion-MNIST at JPEG 30: 0.986-0.995 as they are, 0.999-0.9999 after the
