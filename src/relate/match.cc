@@ -26,9 +26,9 @@ PictureSize picture_size(uint32_t width, uint32_t height, uint8_t jpeg_quality) 
 }
 
 PictureSize picture_size(const ProbeInfo& probe) {
-  const bool shown_as_stored = probe.orientation <= 1;
-  return picture_size(probe.width, probe.height,
-                      probe.format == Format::jpeg && shown_as_stored ? probe.jpeg_quality : uint8_t{0});
+  // The imitation is of 8-bit samples in blocks as stored and shown.
+  const bool imitable = probe.format == Format::jpeg && probe.orientation <= 1 && probe.bit_depth == 8;
+  return picture_size(probe.width, probe.height, imitable ? probe.jpeg_quality : uint8_t{0});
 }
 
 MatchSettings pair_settings(const MatchSettings& settings, PictureSize a, PictureSize b, int t) {

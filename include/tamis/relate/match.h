@@ -148,8 +148,8 @@ struct PictureSize {
   uint8_t jpeg_quality = 0;
 };
 PictureSize picture_size(uint32_t width, uint32_t height, uint8_t jpeg_quality = 0);
-// A record's: its probe's size, and its JPEG quality unless an EXIF orientation
-// turns its pixels.
+// A record's: its probe's size, and its JPEG quality when its samples are 8-bit
+// and no EXIF orientation turns its pixels.
 PictureSize picture_size(const ProbeInfo& probe);
 
 // The share of the correlation's allowance (1 - min_correlation) that a picture
