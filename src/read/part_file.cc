@@ -5,6 +5,7 @@
 #include <unistd.h>
 
 #include <algorithm>
+#include <bit>
 #include <cerrno>
 #include <cstring>
 #include <memory>
@@ -26,6 +27,9 @@ namespace {
 constexpr char kMagic[16] = {'\x89', 't', 'a', 'm', 'i', 's', '-', 'p', 'a', 'r', 't', '\r', '\n', '\x1a', '\n', '\0'};
 constexpr char kEnd[8] = {'t', 'a', 'm', 'i', 's', 'e', 'n', 'd'};
 constexpr size_t kHeader = 64, kTrailer = 24, kTableEntry = 16;
+// A table entry's record index carries this bit when its thumbnail is stored as
+// the gray plane alone (neutral chroma: 1,024 bytes instead of 3,072).
+constexpr uint64_t kGrayOnly = uint64_t{1} << 63;
 constexpr uint64_t kMaxMeta = 1ull << 34;  // a meta block past 16 GB is no part this tool wrote
 // Why a read of a part that opened whole fails: it changed since.
 constexpr const char* kReadAgain = "cannot be read (cut short while in use?)";
@@ -141,16 +145,18 @@ void write_part(std::ostream& os, const ScanPart& p) {
     const size_t n = std::min(kBlock, with_thumb.size() - first);
     p.thumbs.get_many(with_thumb.data() + first, n, block.data());
     for (size_t k = 0; k < n; ++k) {
+      // A gray picture's thumbnail (neutral chroma) is stored as its gray plane.
+      const bool gray = neutral_chroma(block[k]);
       uint8_t entry[kTableEntry];
-      put_u64(entry, with_thumb[first + k]);
-      put_u64(entry + 8, XXH3_64bits(block[k].data(), block[k].size()));
+      put_u64(entry, with_thumb[first + k] | (gray ? kGrayOnly : 0));
+      put_u64(entry + 8, XXH3_64bits(block[k].data(), gray ? kGrayBytes : block[k].size()));
       put(entry, kTableEntry, true);
     }
   }
   for (size_t first = 0; first < with_thumb.size(); first += kBlock) {
     const size_t n = std::min(kBlock, with_thumb.size() - first);
     p.thumbs.get_many(with_thumb.data() + first, n, block.data());
-    put(block.data(), n * sizeof(Thumbnail), false);
+    for (size_t k = 0; k < n; ++k) put(block[k].data(), neutral_chroma(block[k]) ? kGrayBytes : block[k].size(), false);
   }
   uint8_t trailer[kTrailer];
   put_u64(trailer, XXH3_64bits_digest(h.head.get()));
@@ -226,7 +232,15 @@ PartFile::PartFile(const std::filesystem::path& file) : file_(file) {
   // no record has two thumbnails: counts beyond that are no part's.
   if (count > recs_n / kMinRecordBytes || thumbs_n > count) fail("is damaged (its header gives impossible counts)");
   thumbs_at_ = kHeader + meta_n + recs_n + thumbs_n * kTableEntry;
-  const uint64_t expect = thumbs_at_ + thumbs_n * sizeof(Thumbnail) + kTrailer;
+  // The thumbnails take 1,024 bytes (gray) or 3,072 each, as the table says:
+  // the table is read first when the file can hold it.
+  uint64_t expect = thumbs_at_ + thumbs_n * kGrayBytes + kTrailer;
+  std::vector<uint8_t> table(thumbs_n * kTableEntry);
+  if (size_ >= expect) {
+    read_at(kHeader + meta_n + recs_n, table.data(), table.size(), cut);
+    for (uint64_t k = 0; k < thumbs_n; ++k)
+      if (!(get_u64(table.data() + k * kTableEntry) & kGrayOnly)) expect += 2 * kChromaPlane;
+  }
   if (expect != size_)
     fail(size_ < expect ? "is cut short (truncated): " + std::to_string(size_) + " bytes of " + std::to_string(expect)
                         : "is damaged (" + std::to_string(size_ - expect) + " bytes more than its header says)");
@@ -241,7 +255,7 @@ PartFile::PartFile(const std::filesystem::path& file) : file_(file) {
   recs_at_ = kHeader + meta_n;
   recs_bytes_ = recs_n;
   count_ = count;
-  std::vector<uint8_t> meta_bytes(meta_n), table(thumbs_n * kTableEntry);
+  std::vector<uint8_t> meta_bytes(meta_n);
   {
     std::unique_ptr<XXH3_state_t, decltype(&XXH3_freeState)> st(XXH3_createState(), &XXH3_freeState);
     XXH3_64bits_reset(st.get());
@@ -257,7 +271,7 @@ PartFile::PartFile(const std::filesystem::path& file) : file_(file) {
         if (lo < hi) std::memcpy(into.data() + (lo - from), buf.data() + (lo - at), static_cast<size_t>(hi - lo));
       };
       keep(kHeader, meta_bytes);
-      keep(table_at, table);
+      (void)table_at;  // the table was read above; the checksum covers it here
       at += n;
     }
     if (XXH3_64bits_digest(st.get()) != head_sum_) fail("is damaged (checksum mismatch)");
@@ -303,12 +317,17 @@ PartFile::PartFile(const std::filesystem::path& file) : file_(file) {
   // they are exactly the records with look-alike codes).
   thumb_record_.resize(thumbs_n);
   thumb_sum_.resize(thumbs_n);
+  thumb_colour_.assign((thumbs_n + 63) / 64, 0);
+  colour_before_.assign((thumbs_n + 63) / 64 + 1, 0);
   for (uint64_t k = 0; k < thumbs_n; ++k) {
-    const uint64_t rec = get_u64(table.data() + k * kTableEntry);
+    const uint64_t entry = get_u64(table.data() + k * kTableEntry), rec = entry & ~kGrayOnly;
     if (rec >= count || (k > 0 && rec <= thumb_record_[k - 1])) fail("is damaged (thumbnail table)");
     thumb_record_[k] = static_cast<uint32_t>(rec);
     thumb_sum_[k] = get_u64(table.data() + k * kTableEntry + 8);
+    if (!(entry & kGrayOnly)) thumb_colour_[k / 64] |= uint64_t{1} << (k % 64);
   }
+  for (size_t w = 0; w < thumb_colour_.size(); ++w)
+    colour_before_[w + 1] = colour_before_[w] + static_cast<uint32_t>(std::popcount(thumb_colour_[w]));
 }
 
 PartFile::RecordReader::RecordReader(const PartFile& part) : part_(part), buf_(1u << 20) {}
@@ -370,11 +389,32 @@ std::vector<FileRecord> PartFile::read_records() const {
   return out;
 }
 
+bool PartFile::thumbnail_in_colour(size_t k) const { return (thumb_colour_[k / 64] >> (k % 64)) & 1; }
+
+uint64_t PartFile::thumbnail_offset(size_t k) const {
+  const uint64_t below = k % 64 == 0 ? 0 : thumb_colour_[k / 64] & ((uint64_t{1} << (k % 64)) - 1);
+  const uint64_t colour = colour_before_[k / 64] + static_cast<uint64_t>(std::popcount(below));
+  return thumbs_at_ + uint64_t(k) * kGrayBytes + colour * 2 * kChromaPlane;
+}
+
 void PartFile::read_thumbnails(size_t first, size_t count, Thumbnail* out) const {
   if (first > thumb_record_.size() || count > thumb_record_.size() - first) fail("thumbnail out of range");
-  read_at(thumbs_at_ + first * sizeof(Thumbnail), out, count * sizeof(Thumbnail), kReadAgain);
-  for (size_t k = 0; k < count; ++k)
-    if (XXH3_64bits(out[k].data(), out[k].size()) != thumb_sum_[first + k]) fail("is damaged (a thumbnail's checksum)");
+  if (count == 0) return;
+  // One read of the stored bytes, then each thumbnail put in place from the
+  // last one back (a gray one stored as 1,024 bytes gets neutral chroma), so
+  // that `out` itself serves as the buffer.
+  const uint64_t from = thumbnail_offset(first), to = thumbnail_offset(first + count - 1) +
+                                                         (thumbnail_in_colour(first + count - 1) ? sizeof(Thumbnail) : kGrayBytes);
+  uint8_t* bytes = out[0].data();
+  read_at(from, bytes, static_cast<size_t>(to - from), kReadAgain);
+  for (size_t k = count; k-- > 0;) {
+    const size_t at = static_cast<size_t>(thumbnail_offset(first + k) - from);
+    const bool colour = thumbnail_in_colour(first + k);
+    const size_t stored = colour ? sizeof(Thumbnail) : kGrayBytes;
+    if (XXH3_64bits(bytes + at, stored) != thumb_sum_[first + k]) fail("is damaged (a thumbnail's checksum)");
+    std::memmove(out[k].data(), bytes + at, stored);
+    if (!colour) std::memset(out[k].data() + kGrayBytes, 128, 2 * kChromaPlane);
+  }
 }
 
 void PartFile::verify() const {

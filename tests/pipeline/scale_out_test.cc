@@ -160,6 +160,23 @@ TEST_CASE("a part read back equals the scan that wrote it, and damaged, cut or f
       ++thumb;
     }
     CHECK(thumb == back.thumbnails());
+    // Every run of thumbnails read at once, gray ones (stored as their gray plane)
+    // and colour ones (stored whole) mixed: the same as one at a time.
+    size_t gray = 0;
+    for (size_t first = 0; first < back.thumbnails(); ++first)
+      for (size_t count = 1; first + count <= back.thumbnails(); count += 3) {
+        std::vector<Thumbnail> run(count);
+        back.read_thumbnails(first, count, run.data());
+        for (size_t k = 0; k < count; ++k) {
+          Thumbnail one;
+          part.thumbs.get(back.thumbnail_record(first + k), one);
+          CHECK(run[k] == one);
+          if (count == 1) gray += neutral_chroma(one);
+        }
+      }
+    INFO("shard " << k << ": " << gray << " gray thumbnails of " << back.thumbnails());
+    CHECK(gray > 0);
+    CHECK(gray < back.thumbnails());
     total += part.records.size();
   }
   CHECK(total == paths.size());

@@ -74,7 +74,11 @@ def read_part(path):
     version, zero, meta_n, count, recs_n, thumbs_n, zero2 = struct.unpack_from("<IIQQQQQ", data, 16)
     assert version == 3 and zero == 0 and zero2 == 0
     thumbs_at = 64 + meta_n + recs_n + 16 * thumbs_n
-    assert len(data) == thumbs_at + 3072 * thumbs_n + 24, "length"
+    table_at = 64 + meta_n + recs_n
+    gray_only = 1 << 63  # a thumbnail stored as its gray plane alone (1,024 bytes)
+    entries = [struct.unpack_from("<QQ", data, table_at + 16 * k) for k in range(thumbs_n)]
+    sizes = [1024 if rec & gray_only else 3072 for rec, _ in entries]
+    assert len(data) == thumbs_at + sum(sizes) + 24, "length"
     head_sum, file_sum = struct.unpack_from("<QQ", data, len(data) - 24)
     assert data[-8:] == b"tamisend"
     assert xxhash.xxh3_64_intdigest(data[:thumbs_at]) == head_sum, "first checksum"
@@ -87,10 +91,11 @@ def read_part(path):
         at += 4 + n + 24
         at += 1 + data[at]
     assert at == 64 + meta_n + recs_n
-    for k in range(thumbs_n):
-        rec, s = struct.unpack_from("<QQ", data, at + 16 * k)
-        thumb = data[thumbs_at + 3072 * k:thumbs_at + 3072 * (k + 1)]
+    offset = thumbs_at
+    for k, (rec, s) in enumerate(entries):
+        thumb = data[offset:offset + sizes[k]]
         assert xxhash.xxh3_64_intdigest(thumb) == s, "a thumbnail's checksum"
+        offset += sizes[k]
     return meta, paths
 
 

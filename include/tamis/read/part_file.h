@@ -39,7 +39,7 @@
 
 namespace tamis {
 
-inline constexpr uint32_t kPartVersion = 3;  // 2: thumbnails of 3,072 bytes (32x32 chroma); 3: records carry the JPEG quality
+inline constexpr uint32_t kPartVersion = 3;  // 2: thumbnails of 3,072 bytes (32x32 chroma); 3: records carry the JPEG quality, and a gray thumbnail is stored as its gray plane (1,024 bytes)
 
 struct PartError : std::runtime_error {
   using std::runtime_error::runtime_error;
@@ -129,6 +129,13 @@ class PartFile {
   ScanPart info_;
   std::vector<uint32_t> thumb_record_;
   std::vector<uint64_t> thumb_sum_;
+  // Which thumbnails are stored whole (colour; a gray one is its gray plane
+  // alone), 64 to a word, and how many whole ones come before each word: a
+  // thumbnail's place in the file from them (thumbnail_offset).
+  std::vector<uint64_t> thumb_colour_;
+  std::vector<uint32_t> colour_before_;
+  bool thumbnail_in_colour(size_t k) const;
+  uint64_t thumbnail_offset(size_t k) const;
   [[noreturn]] void fail(const std::string& why) const;
   // Reads n bytes at `at` whole (pread, retried); fail(why) when it cannot.
   void read_at(uint64_t at, void* out, size_t n, const char* why) const;
