@@ -39,12 +39,12 @@ int main(int argc, char** argv) {
   struct Source { std::string family; cv::Mat pixels; Lookalike look; PictureSize ps; };
   std::vector<Source> sources;
   for (size_t k = 0; k < files.size(); k += step)
-    sources.push_back({"fashion-mnist", cv::imread(files[k].string(), cv::IMREAD_UNCHANGED), {}});
+    sources.push_back({"fashion-mnist", cv::imread(files[k].string(), cv::IMREAD_UNCHANGED), {}, {}});
   for (const auto& rel : test::distinct_photographs())
-    sources.push_back({"visp", cv::imread((test::kVispDir / rel).string(), cv::IMREAD_UNCHANGED), {}});
-  for (const auto& sc : test::rendered_scenes(40, 1, 160, 120, 7)) sources.push_back({"scenes", sc.pictures[0], {}});
+    sources.push_back({"visp", cv::imread((test::kVispDir / rel).string(), cv::IMREAD_UNCHANGED), {}, {}});
+  for (const auto& sc : test::rendered_scenes(40, 1, 160, 120, 7)) sources.push_back({"scenes", sc.pictures[0], {}, {}});
   const auto tiles = test::photograph_tiles();
-  for (const auto& t : tiles) sources.push_back({"photos", t, {}});
+  for (const auto& t : tiles) sources.push_back({"photos", t, {}, {}});
   for (auto& s : sources) {
     const auto bytes = test::encode_copy(s.pixels, 0);
     s.look = test::lookalike_of_bytes(bytes);

@@ -169,6 +169,20 @@ void linear_taps(int from, int to, int i, int& x0, int& x1, double& w) {
   x1 = std::min(x0 + 1, from - 1);
 }
 
+// features.cc's linear enlargement of n samples to 32 (half-pixel centres,
+// replicated edges): the dense 32 x n matrix U, row-major.
+std::vector<double> enlargement(int n) {
+  std::vector<double> u(size_t(kThumbSide) * size_t(n), 0.0);
+  for (int i = 0; i < kThumbSide; ++i) {
+    int x0, x1;
+    double w;
+    linear_taps(n, kThumbSide, i, x0, x1, w);
+    u[size_t(i) * size_t(n) + size_t(x0)] += 1.0 - w;
+    u[size_t(i) * size_t(n) + size_t(x1)] += w;
+  }
+  return u;
+}
+
 // The least-squares inverse (U^T U)^-1 U^T (n x 32, row-major) of the linear
 // enlargement U (32 x n) of n < 32 samples to 32, as features.cc's cv::resize
 // enlarges a picture under 32 px: it gives the picture's pixels back from its
@@ -184,14 +198,7 @@ const std::vector<double>& enlargement_inverse(int n) {
     for (int x = 0; x < n; ++x) back[size_t(x) * kThumbSide + size_t(x)] = 1.0;
     return back;
   }
-  std::vector<double> u(size_t(kThumbSide) * size_t(n), 0.0);  // [32][n]
-  for (int i = 0; i < kThumbSide; ++i) {
-    int x0, x1;
-    double w;
-    linear_taps(n, kThumbSide, i, x0, x1, w);
-    u[size_t(i) * size_t(n) + size_t(x0)] += 1.0 - w;
-    u[size_t(i) * size_t(n) + size_t(x1)] += w;
-  }
+  const std::vector<double> u = enlargement(n);  // [32][n]
   // Gauss-Jordan on [U^T U | U^T].
   const size_t cols = size_t(n) + kThumbSide;
   std::vector<double> g(size_t(n) * cols, 0.0);
@@ -238,6 +245,14 @@ Taps sparse(const std::vector<double>& dense, int outputs, int inputs) {
   return t;
 }
 
+// The enlargement's taps, made once a thread for each n.
+const Taps& enlargement_taps(int n) {
+  thread_local std::array<Taps, kThumbSide + 1> made;
+  Taps& t = made[size_t(n)];
+  if (t.start.empty()) t = sparse(enlargement(n), kThumbSide, n);
+  return t;
+}
+
 // One side's way through the resampled comparison: the thumbnail's 32 samples
 // go back to the picture's `pixels` (min(large, 32): the inverse of features.cc's
 // enlargement for a picture under 32 px on this side, enlargement_inverse;
@@ -262,15 +277,7 @@ SideResample make_side_resample(int large, int small, ResampleKernel kernel) {
   r.pixels = std::min(large, kThumbSide);
   r.small = small;
   r.down = sparse(reduction(r.pixels, small, kernel), small, r.pixels);
-  std::vector<double> up(size_t(kThumbSide) * size_t(small), 0.0);
-  for (int i = 0; i < kThumbSide; ++i) {
-    int x0, x1;
-    double w;
-    linear_taps(small, kThumbSide, i, x0, x1, w);
-    up[size_t(i) * size_t(small) + size_t(x0)] += 1.0 - w;
-    up[size_t(i) * size_t(small) + size_t(x1)] += w;
-  }
-  r.up = sparse(up, kThumbSide, small);
+  r.up = enlargement_taps(small);
   return r;
 }
 
@@ -362,7 +369,10 @@ double pearson(const double* x, const double* y, size_t n) {
 
 namespace {
 
-// The kernel choice (resample_kernel) given the larger picture's gray pixels.
+// The way of reducing the resampled comparison uses for a pair: the one whose
+// reduction of the larger picture's gray pixels correlates best (the first of
+// equals) with the smaller picture's pixels, as its thumbnail gives them back,
+// at the smaller picture's size.
 ResampleKernel choose_kernel(const double* pixels, const Thumbnail& small, const MatchSettings::Resample& r) {
   // The smaller picture's pixels (its thumbnail's gray plane through the
   // inverse of its enlargement), then each kernel's reduction of the larger
@@ -407,14 +417,6 @@ void resample_planes(const Thumbnail& in, const double* gray_pixels, const Match
 }
 
 }  // namespace
-
-ResampleKernel resample_kernel(const Thumbnail& large, const Thumbnail& small, const MatchSettings::Resample& r) {
-  const SideResample& ax = side_resample(r.large_width, r.width, ResampleKernel::area);
-  const SideResample& ay = side_resample(r.large_height, r.height, ResampleKernel::area);
-  double pixels[1024];
-  picture_plane(large.data(), ax.pixels, ay.pixels, pixels);
-  return choose_kernel(pixels, small, r);
-}
 
 void resample_thumbnail(const Thumbnail& in, const MatchSettings::Resample& r, ResampleKernel kernel, Thumbnail& out,
                         bool gray_only) {
@@ -503,18 +505,7 @@ void jpeg_thumbnail(const Thumbnail& in, int width, int height, int quality, Thu
     for (int x = 0; x < px; ++x)
       small[y * px + x] = std::clamp(std::floor(img[size_t(y * bw + x)] + 128.0 + 0.5), 0.0, 255.0);
   // Enlarged to 32 as features.cc enlarges a picture under 32 px.
-  auto up_taps = [](int n) {
-    std::vector<double> up(size_t(kThumbSide) * size_t(n), 0.0);
-    for (int i = 0; i < kThumbSide; ++i) {
-      int x0, x1;
-      double w;
-      linear_taps(n, kThumbSide, i, x0, x1, w);
-      up[size_t(i) * size_t(n) + size_t(x0)] += 1.0 - w;
-      up[size_t(i) * size_t(n) + size_t(x1)] += w;
-    }
-    return sparse(up, kThumbSide, n);
-  };
-  apply_taps(small, px, up_taps(px), up_taps(py), true, big);
+  apply_taps(small, px, enlargement_taps(px), enlargement_taps(py), true, big);
   for (size_t i = 0; i < kGrayBytes; ++i) out[i] = static_cast<uint8_t>(big[i]);
 }
 
@@ -1481,20 +1472,19 @@ bool blur_may_reach(const MatchProfile& a, const MatchProfile& b, const BlurCand
   return false;
 }
 
-// Whether a pair gets the resampled comparison: pair_settings asked for it and
-// the screen's bound lets the blur-matched correlation reach kResampleGate.
-bool resample_tried(const MatchProfile& pa, int t, const MatchProfile& pb, const MatchSettings& s) {
-  if (s.resample.width <= 0 || pa.flat || pb.flat) return false;
+// Whether the screen's bound lets the pair's blur-matched correlation reach
+// `gate`: the gate of the resampled and re-encoded comparisons (each only when
+// pair_settings asked for it), min(kResampleGate, its own threshold).
+bool imitation_may_reach(const MatchProfile& pa, int t, const MatchProfile& pb, double own_correlation) {
+  if (pa.flat || pb.flat) return false;
   const BlurCandidates c = blur_candidates(pa, pb);
-  return blur_may_reach(pa, pb, c, low_pair(pa, t, pb, c), std::min(kResampleGate, s.resample.min_correlation));
+  return blur_may_reach(pa, pb, c, low_pair(pa, t, pb, c), std::min(kResampleGate, own_correlation));
 }
-
-// Whether a pair gets the re-encoded comparison: pair_settings asked for it and
-// the screen's bound reaches the same gate.
+bool resample_tried(const MatchProfile& pa, int t, const MatchProfile& pb, const MatchSettings& s) {
+  return s.resample.width > 0 && imitation_may_reach(pa, t, pb, s.resample.min_correlation);
+}
 bool jpeg_tried(const MatchProfile& pa, int t, const MatchProfile& pb, const MatchSettings& s) {
-  if (s.jpeg.quality <= 0 || pa.flat || pb.flat) return false;
-  const BlurCandidates c = blur_candidates(pa, pb);
-  return blur_may_reach(pa, pb, c, low_pair(pa, t, pb, c), std::min(kResampleGate, s.jpeg.min_correlation));
+  return s.jpeg.quality > 0 && imitation_may_reach(pa, t, pb, s.jpeg.min_correlation);
 }
 
 }  // namespace

@@ -207,7 +207,7 @@ inline constexpr double kJpegFloor = 0.97;
 // and the box, triangle and cubic kernels widened by the scale (Pillow's BOX,
 // BILINEAR and BICUBIC; its HAMMING and LANCZOS are near the cubic). The
 // comparison takes the one whose result correlates best with the smaller
-// picture's pixels (resample_kernel).
+// picture's pixels.
 enum class ResampleKernel { area, nearest, nearest_centre, linear, cubic, lanczos, box_wide, triangle_wide, cubic_wide };
 inline constexpr int kResampleKernels = 9;
 
@@ -229,11 +229,7 @@ void resample_thumbnail(const Thumbnail& in, const MatchSettings::Resample& r, R
 // back; then enlarged to 32 as features.cc enlarges. The chroma planes are
 // kept. No libm call (the cosines come from sin_pi).
 void jpeg_thumbnail(const Thumbnail& in, int width, int height, int quality, Thumbnail& out);
-// The kernel the resampled comparison uses for a pair: the one whose reduction
-// of the larger picture's gray thumbnail correlates best (the first of equals)
-// with the smaller picture's pixels, as its thumbnail gives them back (the least
-// squares inverse of features.cc's enlargement), at the smaller picture's size.
-ResampleKernel resample_kernel(const Thumbnail& large, const Thumbnail& small, const MatchSettings::Resample& r);
+
 
 // The tone-and-colour fit's gate: the profiles' bound on the blur-matched
 // correlation (match_may_join's) must reach kFitGate, held within [fit_floor,
